@@ -1,0 +1,53 @@
+"""eqbatch: batch chemical-equilibrium engine.
+
+Describe species (with their phase) and reactions as equations, then solve
+one case or millions: every case gets its equilibrium amounts, mole
+fractions, extents and an honest status.
+
+>>> import eqbatch
+>>> system = eqbatch.ReactionSystem(["N2", "H2", "NH3"], ["0.5 N2 + 1.5 H2 = NH3"])
+>>> res = system.solve([1.0, 3.0, 0.0], K=0.0065, P=10.0)
+>>> bool(res.converged[0])
+True
+
+Equilibrium is a thermodynamic limit, not a reactor design.
+"""
+
+from eqbatch._core import __version__ as _core_version
+from eqbatch.equations import parse_equation, parse_formula
+from eqbatch.errors import (
+    AtomBalanceError,
+    CaseInputError,
+    DependentReactionsError,
+    EqbatchError,
+    EquationSyntaxError,
+    InvalidCaseError,
+    SystemDefinitionError,
+    SystemFileError,
+    UnboundedReactionsError,
+    UnknownSpeciesError,
+)
+from eqbatch.kdata import LnKFunction
+from eqbatch.result import EquilibriumResult, Status
+from eqbatch.system import ReactionSystem
+
+__version__ = _core_version
+
+__all__ = [
+    "AtomBalanceError",
+    "CaseInputError",
+    "DependentReactionsError",
+    "EqbatchError",
+    "EquationSyntaxError",
+    "EquilibriumResult",
+    "InvalidCaseError",
+    "LnKFunction",
+    "ReactionSystem",
+    "Status",
+    "SystemDefinitionError",
+    "SystemFileError",
+    "UnboundedReactionsError",
+    "UnknownSpeciesError",
+    "parse_equation",
+    "parse_formula",
+]

@@ -1,0 +1,5 @@
+import sys
+
+from eqbatch.cli import main
+
+sys.exit(main())

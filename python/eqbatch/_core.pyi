@@ -1,0 +1,33 @@
+"""Type stubs of the compiled core (private: use the ``eqbatch`` package)."""
+
+import numpy as np
+import numpy.typing as npt
+
+__version__: str
+
+class StoichiometryError(ValueError):
+    """args: (kind, reaction, indices, coefficients); kind is one of
+    'dependent', 'unbounded', 'empty', 'non-finite'."""
+
+class System:
+    def __init__(self, stoich: npt.NDArray[np.float64], phases: list[int], p0: float) -> None: ...
+    @property
+    def n_species(self) -> int: ...
+    @property
+    def n_reactions(self) -> int: ...
+    def solve(
+        self,
+        feed: npt.NDArray[np.float64],
+        ln_k: npt.NDArray[np.float64],
+        pressure: npt.NDArray[np.float64],
+        n_cases: int,
+        tol: float,
+        max_iter: int,
+        threads: int | None = None,
+    ) -> tuple[
+        npt.NDArray[np.float64],
+        npt.NDArray[np.float64],
+        npt.NDArray[np.float64],
+        npt.NDArray[np.uint8],
+        npt.NDArray[np.uint32],
+    ]: ...

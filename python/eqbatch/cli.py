@@ -1,0 +1,155 @@
+"""The ``eqbatch`` command line.
+
+``eqbatch solve SYSTEM.toml --feed CH4=1,H2O=3 --T 900 --P 10`` prints the
+equilibrium of one case; ``eqbatch demo`` runs the built-in demonstration.
+Errors print one line on standard error and exit with status 2.
+"""
+
+from __future__ import annotations
+
+import argparse
+import sys
+from collections.abc import Sequence
+
+import numpy as np
+
+from eqbatch.errors import EqbatchError
+
+
+class _UsageError(EqbatchError):
+    pass
+
+
+def _pairs(values: Sequence[str] | None, what: str) -> dict[str, float]:
+    out: dict[str, float] = {}
+    for chunk in values or []:
+        for item in chunk.split(","):
+            item = item.strip()
+            if not item:
+                continue
+            name, sep, number = item.partition("=")
+            if not sep or not name.strip():
+                raise _UsageError(f"{what} entries are NAME=VALUE, got {item!r}")
+            try:
+                out[name.strip()] = float(number)
+            except ValueError:
+                raise _UsageError(f"{what} {name.strip()!r}: {number!r} is not a number") from None
+    return out
+
+
+def _fmt(value: float) -> str:
+    if value == 0:
+        return "0"
+    if not np.isfinite(value):
+        return str(value)
+    if 1e-3 <= abs(value) < 1e5:
+        return f"{value:.6g}"
+    return f"{value:.4e}"
+
+
+def _table(headers: list[str], rows: list[list[str]]) -> str:
+    widths = [max(len(h), *(len(r[k]) for r in rows)) for k, h in enumerate(headers)]
+    lines = ["  ".join(h.ljust(w) for h, w in zip(headers, widths))]
+    lines.append("  ".join("-" * w for w in widths))
+    lines += ["  ".join(c.ljust(w) for c, w in zip(r, widths)) for r in rows]
+    return "\n".join(lines)
+
+
+def _cmd_solve(args: argparse.Namespace) -> int:
+    from eqbatch.demo import CAUTION
+    from eqbatch.system import ReactionSystem
+
+    system = ReactionSystem.from_toml(args.system)
+    feed = _pairs(args.feed, "--feed")
+    if not feed:
+        raise _UsageError("give the feed, e.g. --feed CH4=1,H2O=3")
+    k_opts = [(n, _pairs(v, "--" + n)) for n, v in (("lnK", args.lnK), ("K", args.K), ("log10K", args.log10K))]
+    k_given = [(n, v) for n, v in k_opts if v]
+    if len(k_given) > 1:
+        raise _UsageError("give only one of --lnK, --K, --log10K")
+    kwargs = {k_given[0][0]: k_given[0][1]} if k_given else {}
+    res = system.solve(feed, T=args.T, P=args.P, tol=args.tol, max_iter=args.max_iter, **kwargs)
+
+    conditions = []
+    if args.T is not None:
+        conditions.append(f"T = {args.T:g} K")
+    conditions.append(f"P = {float(res.P[0]):g} bar")
+    print(f"Equilibrium of {args.system}: {', '.join(conditions)} (P0 = {system.P0:g} bar)")
+    print(res.message(0))
+    print()
+    feed_row = res.feed[0]
+    rows = [
+        [name, system.phases[k], _fmt(feed_row[k]), _fmt(res.amounts[0, k]), _fmt(res.mole_fractions[0, k])]
+        for k, name in enumerate(system.species)
+    ]
+    print(_table(["species", "phase", "feed/mol", "amount/mol", "mole fraction"], rows))
+    print()
+    rows = [
+        [label, eq, f"{res.lnK[0, j]:.6g}", _fmt(res.extents[0, j])]
+        for j, (label, eq) in enumerate(zip(system.labels, system.equations))
+    ]
+    print(_table(["reaction", "equation", "ln K", "extent/mol"], rows))
+    print()
+    conv = [
+        [name, f"{100 * float(res.conversion(name)[0]):.4g} %"]
+        for name in system.reactants() if feed_row[system.index(name)] > 0
+    ]
+    if conv:
+        print(_table(["reactant", "conversion"], conv))
+        print()
+    print(CAUTION)
+    return 0 if bool(res.converged[0]) else 1
+
+
+def _cmd_demo(args: argparse.Namespace) -> int:
+    from eqbatch.demo import run
+
+    return run(cases=args.cases, threads=args.threads, save_system=args.save_system)
+
+
+def _parser() -> argparse.ArgumentParser:
+    from eqbatch import __version__
+
+    parser = argparse.ArgumentParser(
+        prog="eqbatch",
+        description="Batch chemical-equilibrium engine: equilibrium compositions of simultaneous reactions.",
+    )
+    parser.add_argument("--version", action="version", version=f"eqbatch {__version__}")
+    sub = parser.add_subparsers(dest="command", required=True, metavar="COMMAND")
+
+    solve = sub.add_parser("solve", help="equilibrium of one case of a system file")
+    solve.add_argument("system", help="system file (TOML)")
+    solve.add_argument("--feed", action="append", metavar="SPECIES=MOL[,...]",
+                       help="feed amounts, mol (repeatable; missing species are zero)")
+    solve.add_argument("--T", type=float, metavar="KELVIN", help="temperature, for K(T) data")
+    solve.add_argument("--P", type=float, metavar="BAR", help="pressure, bar (default: the system's P0)")
+    solve.add_argument("--lnK", action="append", metavar="LABEL=VALUE[,...]", help="ln K per reaction")
+    solve.add_argument("--K", action="append", metavar="LABEL=VALUE[,...]", help="K per reaction")
+    solve.add_argument("--log10K", action="append", metavar="LABEL=VALUE[,...]", help="log10 K per reaction")
+    solve.add_argument("--tol", type=float, default=1e-10, help="convergence tolerance on |ln Q - ln K|")
+    solve.add_argument("--max-iter", type=int, default=200, help="Newton iteration limit")
+    solve.set_defaults(run=_cmd_solve)
+
+    demo = sub.add_parser("demo", help="reformer and shift study on built-in data")
+    demo.add_argument("--cases", type=int, default=1_000_000, help="size of the timed random batch")
+    demo.add_argument("--threads", type=int, default=None, help="worker threads (default: all cores)")
+    demo.add_argument("--save-system", metavar="PATH", help="also write the demo's system file here")
+    demo.set_defaults(run=_cmd_demo)
+    return parser
+
+
+def main(argv: Sequence[str] | None = None) -> int:
+    parser = _parser()
+    args = parser.parse_args(argv)
+    try:
+        return int(args.run(args))
+    except (EqbatchError, OSError) as err:
+        print(f"eqbatch: error: {err}", file=sys.stderr)
+        return 2
+    except KeyboardInterrupt:
+        print("eqbatch: interrupted", file=sys.stderr)
+        return 130
+
+
+if __name__ == "__main__":  # pragma: no cover
+    sys.exit(main())

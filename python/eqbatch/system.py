@@ -1,0 +1,497 @@
+"""The reaction system: species, phases, reactions and their K data."""
+
+from __future__ import annotations
+
+import math
+import os
+import re
+from collections.abc import Callable, Iterable, Mapping, Sequence
+from typing import Any, Union
+
+import numpy as np
+
+from eqbatch import _core
+from eqbatch.equations import check_atom_balance, parse_equation, parse_formula
+from eqbatch.errors import (
+    CaseInputError,
+    DependentReactionsError,
+    InvalidCaseError,
+    SystemDefinitionError,
+    UnboundedReactionsError,
+    UnknownSpeciesError,
+)
+from eqbatch.kdata import LN10, LnKFunction, as_lnk_data
+from eqbatch.result import EquilibriumResult
+
+#: Phase names accepted in ``phases=`` and system files, with their core codes.
+PHASES = {"gas": 0, "liquid": 1}
+
+KData = Union[float, LnKFunction]
+ArrayLike = Any
+
+_LABEL = re.compile(r"^[A-Za-z_][A-Za-z0-9_.\-]*$")
+
+
+def _format_combination(indices: Sequence[int], coefs: Sequence[float], labels: Sequence[str]) -> str:
+    parts = []
+    for idx, coef in zip(indices, coefs):
+        c = f"{coef:g}"
+        parts.append(f"{'' if c == '1' else c + ' '}{labels[idx]}")
+    return " + ".join(parts).replace("+ -", "- ")
+
+
+class ReactionSystem:
+    """Species in phases and the reactions between them.
+
+    Parameters
+    ----------
+    species : sequence of str
+        Species names, unique. Names that are chemical formulas (``CH4``,
+        ``CH3OH``) are atom-balance checked; other names are labels.
+    reactions : sequence of str, or mapping label -> equation, or sequence of (label, equation)
+        Equations such as ``"CH4 + H2O = CO + 3 H2"`` (``<=>`` also accepted,
+        coefficients may be fractions: ``"0.5 N2 + 1.5 H2 = NH3"``). Labels
+        default to ``r1``, ``r2``, ...
+    phases : mapping species -> {"gas", "liquid"}, optional
+        Phase of each species; unlisted species are ideal-gas.
+    P0 : float, default 1.0
+        Standard-state pressure of the K data, bar (1.01325 for data on an
+        atmosphere basis).
+    formulas : mapping species -> str or None, optional
+        Explicit chemical formula of a species (``{"EtOH": "C2H5OH"}``), or
+        ``None`` to exclude it from the atom-balance check.
+    check_balance : bool, default True
+        Check the element balance of every reaction between formulas.
+    lnK : mapping label -> float or LnKFunction, or sequence of them, optional
+        Default equilibrium constants: a constant ln K, or ln K as a function
+        of temperature so that a case needs only ``T``.
+
+    Raises
+    ------
+    SystemDefinitionError
+        (or a subclass) naming the reaction, species or element at fault:
+        unknown species, unbalanced atoms, dependent reactions, a bad phase.
+
+    Examples
+    --------
+    >>> system = ReactionSystem(
+    ...     species=["CH4", "H2O", "CO", "H2", "CO2", "N2"],
+    ...     reactions=["CH4 + H2O = CO + 3 H2", "CO + H2O = CO2 + H2"],
+    ... )
+    >>> system.labels
+    ('r1', 'r2')
+    >>> res = system.solve({"CH4": 1.0, "H2O": 3.0, "N2": 0.1}, lnK=[3.27, 0.36], P=1.0)
+    >>> bool(res.converged[0])
+    True
+    """
+
+    def __init__(
+        self,
+        species: Sequence[str],
+        reactions: Sequence[str] | Mapping[str, str] | Sequence[tuple[str, str]],
+        *,
+        phases: Mapping[str, str] | None = None,
+        P0: float = 1.0,
+        formulas: Mapping[str, str | None] | None = None,
+        check_balance: bool = True,
+        lnK: Mapping[str, Any] | Sequence[Any] | None = None,
+    ) -> None:
+        if isinstance(species, str) or not isinstance(species, Iterable):
+            raise SystemDefinitionError("species must be a list of names, e.g. ['CH4', 'H2O']")
+        self.species: tuple[str, ...] = tuple(str(s).strip() for s in species)
+        if not self.species:
+            raise SystemDefinitionError("a system needs at least one species")
+        seen: set[str] = set()
+        for name in self.species:
+            if not name or any(c.isspace() for c in name):
+                raise SystemDefinitionError(f"species name {name!r} must be non-empty without spaces")
+            if name in seen:
+                raise SystemDefinitionError(f"species {name!r} is listed twice")
+            seen.add(name)
+        self._index = {name: k for k, name in enumerate(self.species)}
+
+        self.labels, self.equations = self._read_reactions(reactions)
+        self.phases: tuple[str, ...] = self._read_phases(phases)
+        try:
+            self.P0 = float(P0)
+        except (TypeError, ValueError):
+            raise SystemDefinitionError(f"P0 must be a pressure in bar, got {P0!r}") from None
+        if not (self.P0 > 0 and math.isfinite(self.P0)):
+            raise SystemDefinitionError(f"P0 must be a positive pressure in bar, got {P0!r}")
+
+        self.formulas = self._read_formulas(formulas)
+        nu = np.zeros((len(self.labels), len(self.species)))
+        for j, (label, eq) in enumerate(zip(self.labels, self.equations)):
+            coefs = parse_equation(eq, self.species, label)
+            if check_balance:
+                check_atom_balance(coefs, self.formulas, label, eq)
+            for name, c in coefs.items():
+                nu[j, self._index[name]] = c
+        nu.setflags(write=False)
+        self.stoich: np.ndarray = nu
+        self._reactive = np.any(nu != 0, axis=0)
+        self._core = self._build_core()
+        self.lnK_data: dict[str, KData] = self._read_lnk(lnK)
+        self._constant_lnk = self._constant_row()
+
+    # ----------------------------------------------------------------- set-up
+
+    def _read_reactions(self, reactions: Any) -> tuple[tuple[str, ...], tuple[str, ...]]:
+        if isinstance(reactions, str):
+            reactions = [reactions]
+        if isinstance(reactions, Mapping):
+            pairs = [(str(k), v) for k, v in reactions.items()]
+        else:
+            pairs = []
+            for j, item in enumerate(reactions):
+                if isinstance(item, str):
+                    pairs.append((f"r{j + 1}", item))
+                elif isinstance(item, Mapping):
+                    if "equation" not in item:
+                        raise SystemDefinitionError(f"reaction {j + 1} has no 'equation'")
+                    pairs.append((str(item.get("label", f"r{j + 1}")), item["equation"]))
+                elif isinstance(item, Sequence) and len(item) == 2:
+                    pairs.append((str(item[0]), item[1]))
+                else:
+                    raise SystemDefinitionError(
+                        f"reaction {j + 1}: expected an equation string or (label, equation), got {item!r}"
+                    )
+        if not pairs:
+            raise SystemDefinitionError("a system needs at least one reaction")
+        labels = tuple(p[0] for p in pairs)
+        for label in labels:
+            if not _LABEL.match(label):
+                raise SystemDefinitionError(
+                    f"reaction label {label!r} must start with a letter or '_' and contain only "
+                    "letters, digits, '_', '.', '-'"
+                )
+        dup = {x for x in labels if labels.count(x) > 1}
+        if dup:
+            raise SystemDefinitionError(f"reaction label(s) {sorted(dup)} used more than once")
+        return labels, tuple(p[1] for p in pairs)
+
+    def _read_phases(self, phases: Mapping[str, str] | None) -> tuple[str, ...]:
+        out = ["gas"] * len(self.species)
+        for name, phase in (phases or {}).items():
+            if name not in self._index:
+                raise UnknownSpeciesError(
+                    f"phases: {name!r} is not a species of this system (species are {', '.join(self.species)})"
+                )
+            key = str(phase).strip().lower()
+            if key not in PHASES:
+                raise SystemDefinitionError(
+                    f"phase of {name!r} is {phase!r}; valid phases are {', '.join(PHASES)}"
+                )
+            out[self._index[name]] = key
+        return tuple(out)
+
+    def _read_formulas(self, formulas: Mapping[str, str | None] | None) -> dict[str, dict[str, int] | None]:
+        parsed = {name: parse_formula(name) for name in self.species}
+        for name, formula in (formulas or {}).items():
+            if name not in self._index:
+                raise UnknownSpeciesError(f"formulas: {name!r} is not a species of this system")
+            if formula is None:
+                parsed[name] = None
+                continue
+            counts = parse_formula(str(formula))
+            if counts is None:
+                raise SystemDefinitionError(
+                    f"formula {formula!r} of {name!r} is not a plain chemical formula such as C2H5OH"
+                )
+            parsed[name] = counts
+        return parsed
+
+    def _build_core(self) -> _core.System:
+        codes = [PHASES[p] for p in self.phases]
+        try:
+            return _core.System(np.ascontiguousarray(self.stoich), codes, self.P0)
+        except _core.StoichiometryError as err:
+            kind, reaction, indices, coefs = err.args
+            if kind == "dependent":
+                combo = _format_combination(indices, coefs, self.labels)
+                raise DependentReactionsError(
+                    f"reaction {self.labels[reaction]!r} ({self.equations[reaction]}) is a linear "
+                    f"combination of the others: {self.labels[reaction]} = {combo}. Remove one of "
+                    "them: dependent reactions add nothing to an equilibrium calculation"
+                ) from None
+            if kind == "unbounded":
+                names = ", ".join(f"{self.labels[i]!r} ({self.equations[i]})" for i in indices)
+                combo = _format_combination(indices, coefs, self.labels)
+                raise UnboundedReactionsError(
+                    f"the combination {combo} of reactions {names} consumes nothing, so its extent "
+                    "is unbounded and no equilibrium exists; every reaction must use up something"
+                ) from None
+            raise SystemDefinitionError(str(err)) from None
+
+    def _read_lnk(self, lnK: Any) -> dict[str, KData]:
+        if lnK is None:
+            return {}
+        if isinstance(lnK, Mapping):
+            items = list(lnK.items())
+        else:
+            values = list(lnK)
+            if len(values) != len(self.labels):
+                raise SystemDefinitionError(
+                    f"lnK has {len(values)} entries for {len(self.labels)} reactions"
+                )
+            items = list(zip(self.labels, values))
+        out: dict[str, KData] = {}
+        for label, value in items:
+            if label not in self.labels:
+                raise SystemDefinitionError(
+                    f"lnK: {label!r} is not a reaction label (labels are {', '.join(self.labels)})"
+                )
+            out[label] = as_lnk_data(value, label)
+        return out
+
+    def _constant_row(self) -> np.ndarray | None:
+        if len(self.lnK_data) != len(self.labels):
+            return None
+        if not all(isinstance(v, float) for v in self.lnK_data.values()):
+            return None
+        row = np.array([[self.lnK_data[label] for label in self.labels]], dtype=np.float64)
+        row.setflags(write=False)
+        return row
+
+    @classmethod
+    def from_toml(cls, path: str | os.PathLike[str]) -> ReactionSystem:
+        """Read a system file (TOML); see the README for the format.
+
+        Raises
+        ------
+        SystemFileError
+            The file is missing, not TOML, or has a bad key (the message names
+            the file and the key).
+        """
+        from eqbatch.system_file import load_system
+
+        return load_system(path)
+
+    # ------------------------------------------------------------- accessors
+
+    @property
+    def n_species(self) -> int:
+        return len(self.species)
+
+    @property
+    def n_reactions(self) -> int:
+        return len(self.labels)
+
+    def index(self, species: str) -> int:
+        """Column of ``species`` in the amount arrays."""
+        try:
+            return self._index[species]
+        except KeyError:
+            raise UnknownSpeciesError(
+                f"{species!r} is not a species of this system (species are {', '.join(self.species)})"
+            ) from None
+
+    def reactants(self) -> list[str]:
+        """Species consumed by at least one reaction as written."""
+        return [s for k, s in enumerate(self.species) if np.any(self.stoich[:, k] < 0)]
+
+    @property
+    def needs_T(self) -> bool:
+        """Whether some reaction's K is a function of temperature."""
+        return any(isinstance(v, LnKFunction) for v in self.lnK_data.values())
+
+    def lnK(self, T: ArrayLike) -> np.ndarray:
+        """``(N, R)`` ln K of every reaction at temperatures ``T`` (K) from the
+        system's K data.
+
+        Raises
+        ------
+        CaseInputError
+            A reaction has no K data.
+        """
+        T = np.atleast_1d(np.asarray(T, dtype=np.float64))
+        if T.ndim != 1:
+            raise CaseInputError(f"T must be a scalar or a 1-D array, got shape {T.shape}")
+        missing = [label for label in self.labels if label not in self.lnK_data]
+        if missing:
+            raise CaseInputError(
+                f"reaction(s) {', '.join(map(repr, missing))} have no K data in the system; "
+                "give lnK=, K= or log10K= to solve()"
+            )
+        out = np.empty((T.shape[0], self.n_reactions))
+        for j, label in enumerate(self.labels):
+            data = self.lnK_data[label]
+            out[:, j] = data(T) if callable(data) else data
+        return out
+
+    def __repr__(self) -> str:
+        eqs = "; ".join(f"{lab}: {eq}" for lab, eq in zip(self.labels, self.equations))
+        return f"<ReactionSystem {self.n_species} species, {self.n_reactions} reactions: {eqs}>"
+
+    # ----------------------------------------------------------------- solve
+
+    def _feed_array(self, feed: Any) -> np.ndarray:
+        if isinstance(feed, Mapping):
+            columns = {self.index(k): np.asarray(v, dtype=np.float64) for k, v in feed.items()}
+            n = max((c.size for c in columns.values()), default=1)
+            arr = np.zeros((n, self.n_species))
+            for k, col in columns.items():
+                if col.ndim > 1 or col.size not in (1, n):
+                    raise CaseInputError(f"feed[{self.species[k]!r}] must be a scalar or 1-D array")
+                arr[:, k] = col.reshape(-1)
+            return arr
+        arr = np.asarray(feed, dtype=np.float64)
+        if arr.ndim == 1:
+            arr = arr.reshape(1, -1)
+        if arr.ndim != 2 or arr.shape[1] != self.n_species:
+            raise CaseInputError(
+                f"feed must have shape (N, {self.n_species}) or ({self.n_species},) in the species order "
+                f"{', '.join(self.species)}; got shape {np.shape(feed)}"
+            )
+        return arr if arr.flags.c_contiguous else np.ascontiguousarray(arr)
+
+    def _rows(self, value: Any, name: str, width: int) -> np.ndarray:
+        arr = np.asarray(value, dtype=np.float64)
+        if arr.ndim <= 1 and width == 1:
+            arr = arr.reshape(-1, 1)
+        elif arr.ndim == 1:
+            arr = arr.reshape(1, -1)
+        if arr.ndim != 2 or arr.shape[1] != width:
+            raise CaseInputError(
+                f"{name} must have shape (N, {width}) or ({width},), one column per reaction "
+                f"({', '.join(self.labels)}); got shape {np.shape(value)}"
+            )
+        return arr if arr.flags.c_contiguous else np.ascontiguousarray(arr)
+
+    def _lnk_array(self, lnK: Any, K: Any, log10K: Any, T: np.ndarray | None) -> np.ndarray:
+        given = [(n, v) for n, v in (("lnK", lnK), ("K", K), ("log10K", log10K)) if v is not None]
+        if len(given) > 1:
+            raise CaseInputError(f"give only one of lnK=, K=, log10K= (got {', '.join(n for n, _ in given)})")
+        if given:
+            name, value = given[0]
+            if isinstance(value, Mapping):
+                missing = [lab for lab in self.labels if lab not in value]
+                if missing:
+                    raise CaseInputError(f"{name}: no value for reaction(s) {', '.join(missing)}")
+                unknown = [lab for lab in value if lab not in self.labels]
+                if unknown:
+                    raise CaseInputError(
+                        f"{name}: {', '.join(map(repr, unknown))} not reaction labels "
+                        f"(labels are {', '.join(self.labels)})"
+                    )
+                cols = np.broadcast_arrays(*[np.asarray(value[lab], dtype=np.float64) for lab in self.labels])
+                value = np.stack([c.reshape(-1) for c in cols], axis=1)
+            arr = self._rows(value, name, self.n_reactions)
+            if name == "K":
+                with np.errstate(divide="ignore", invalid="ignore"):
+                    arr = np.log(arr)
+            elif name == "log10K":
+                arr = arr * LN10
+            return arr
+        if T is not None:
+            return self.lnK(T.reshape(-1))
+        if self._constant_lnk is not None:
+            return self._constant_lnk
+        if self.needs_T:
+            raise CaseInputError("this system's K data depend on temperature: give T= (kelvin)")
+        raise CaseInputError(
+            "no equilibrium constants: give lnK=, K= or log10K= (one value per reaction, "
+            f"{', '.join(self.labels)}), or T= for a system with K(T) data"
+        )
+
+    def solve(
+        self,
+        feed: ArrayLike,
+        *,
+        lnK: ArrayLike | None = None,
+        K: ArrayLike | None = None,
+        log10K: ArrayLike | None = None,
+        T: ArrayLike | None = None,
+        P: ArrayLike | None = None,
+        tol: float = 1e-10,
+        max_iter: int = 200,
+        threads: int | None = None,
+        invalid: str = "mark",
+    ) -> EquilibriumResult:
+        """Equilibrium of every case.
+
+        Inputs broadcast: any of ``feed``, ``lnK`` (or ``K``/``log10K``/``T``)
+        and ``P`` may be a single case while the others are batches.
+
+        Parameters
+        ----------
+        feed : array_like, shape (N, S) or (S,), or mapping species -> amount(s)
+            Feed amounts, mol, in the order of ``species`` (missing species of
+            a mapping are zero).
+        lnK, K, log10K : array_like, shape (N, R) or (R,), or mapping label -> value(s), optional
+            Equilibrium constants on the system's standard pressure ``P0``;
+            give at most one. Without them, the system's K data are used
+            (evaluated at ``T`` when they depend on temperature).
+        T : float or array_like, shape (N,), optional
+            Temperature, K, for K(T) data.
+        P : float or array_like, shape (N,), optional
+            Pressure, bar. Defaults to ``P0``.
+        tol : float, default 1e-10
+            Convergence: every reaction, written in the per-case basis of
+            the most abundant species, satisfies ``|ln Q - ln K| <= tol``.
+        max_iter : int, default 200
+            Newton iterations per case.
+        threads : int, optional
+            Worker threads (default: all cores). Results do not depend on it.
+        invalid : {"mark", "raise"}, default "mark"
+            Bad cases (negative or NaN feed, zero total, bad ln K or P) get
+            ``Status.INVALID_INPUT`` and NaN outputs; ``"raise"`` raises
+            :class:`InvalidCaseError` naming the first one instead.
+
+        Returns
+        -------
+        EquilibriumResult
+
+        Examples
+        --------
+        >>> s = ReactionSystem(["A", "B"], ["A = B"])
+        >>> res = s.solve([1.0, 0.0], lnK=np.log([1.0, 3.0])[:, None])
+        >>> res.amounts.round(6).tolist()
+        [[0.5, 0.5], [0.25, 0.75]]
+        """
+        feed_arr = self._feed_array(feed)
+        T_arr = None if T is None else np.atleast_1d(np.asarray(T, dtype=np.float64)).reshape(-1)
+        lnk_arr = self._lnk_array(lnK, K, log10K, T_arr)
+        if P is None:
+            p_arr = np.array([self.P0])
+        else:
+            p_arr = np.asarray(P, dtype=np.float64).reshape(-1)
+            if not p_arr.flags.c_contiguous:
+                p_arr = np.ascontiguousarray(p_arr)
+        n = max(feed_arr.shape[0], lnk_arr.shape[0], p_arr.shape[0], 1 if T_arr is None else T_arr.shape[0])
+        for name, rows in (("feed", feed_arr.shape[0]), ("equilibrium constants", lnk_arr.shape[0]),
+                           ("P", p_arr.shape[0]), ("T", n if T_arr is None else T_arr.shape[0])):
+            if rows != n and rows != 1:
+                raise CaseInputError(f"{name} has {rows} cases but other inputs have {n}; give 1 or {n}")
+        if invalid == "raise":
+            self._raise_invalid(feed_arr, lnk_arr, p_arr, n)
+        elif invalid != "mark":
+            raise CaseInputError(f"invalid must be 'mark' or 'raise', got {invalid!r}")
+        if not (isinstance(max_iter, (int, np.integer)) and max_iter >= 0):
+            raise CaseInputError(f"max_iter must be a non-negative integer, got {max_iter!r}")
+        if threads is not None and not (isinstance(threads, (int, np.integer)) and threads >= 1):
+            raise CaseInputError(f"threads must be a positive integer, got {threads!r}")
+        amounts, extents, fractions, status, iterations = self._core.solve(
+            feed_arr, lnk_arr, p_arr, n, float(tol), int(max_iter), threads
+        )
+        return EquilibriumResult(
+            self, amounts, extents, fractions, status, iterations, feed_arr, p_arr, T_arr, lnk_arr
+        )
+
+    def _raise_invalid(self, feed: np.ndarray, lnk: np.ndarray, P: np.ndarray, n: int) -> None:
+        checks: list[tuple[np.ndarray, Callable[[int], str]]] = [
+            (~np.all(np.isfinite(feed) & (feed >= 0), axis=1),
+             lambda i: f"the feed has a negative or non-finite amount: {feed[i].tolist()}"),
+            (~(feed.sum(axis=1) > 0), lambda i: "the total feed is zero"),
+            (~np.all(np.isfinite(lnk), axis=1),
+             lambda i: f"ln K is not finite: {dict(zip(self.labels, lnk[i].tolist()))}"),
+            (~(np.isfinite(P) & (P > 0)), lambda i: f"the pressure {P[i]} bar is not positive and finite"),
+        ]
+        first = None
+        for bad, why in checks:
+            idx = np.flatnonzero(np.broadcast_to(bad, (n,)) if bad.shape[0] == 1 else bad)
+            if idx.size and (first is None or idx[0] < first[0]):
+                row = int(idx[0]) if bad.shape[0] != 1 else 0
+                first = (int(idx[0]), why(row))
+        if first is not None:
+            raise InvalidCaseError(f"case {first[0]}: {first[1]}")

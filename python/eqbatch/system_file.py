@@ -1,0 +1,106 @@
+"""Reading system files (TOML).
+
+::
+
+    species = ["CH4", "H2O", "CO", "H2", "CO2", "N2"]
+    P0 = 1.01325            # bar, standard pressure of the K data (default 1)
+    check_balance = true    # optional
+
+    [phases]                # optional; unlisted species are gas
+    # EtOH = "liquid"
+
+    [formulas]              # optional explicit formulas for label-named species
+    # EtOH = "C2H5OH"
+
+    [[reactions]]
+    label = "reforming"
+    equation = "CH4 + H2O = CO + 3 H2"
+    lnK = { a = 30.114, b = -26830.0 }   # ln K = a + b/T + c ln T + d T + e T^2
+
+    [[reactions]]
+    label = "shift"
+    equation = "CO + H2O = CO2 + H2"
+    K = 1.44                              # or lnK = ..., log10K = ...
+"""
+
+from __future__ import annotations
+
+import os
+import sys
+from typing import Any
+
+from eqbatch.errors import SystemDefinitionError, SystemFileError
+
+if sys.version_info >= (3, 11):
+    import tomllib
+else:  # pragma: no cover
+    import tomli as tomllib
+
+_TOP_KEYS = {"species", "phases", "formulas", "reactions", "P0", "check_balance"}
+_REACTION_KEYS = {"label", "equation", "lnK", "K", "log10K"}
+
+
+def load_system(path: str | os.PathLike[str]):  # -> ReactionSystem
+    """Build a :class:`~eqbatch.ReactionSystem` from a TOML system file."""
+    from eqbatch.kdata import as_lnk_data
+    from eqbatch.system import ReactionSystem
+
+    name = os.fspath(path)
+    try:
+        with open(name, "rb") as fh:
+            doc = tomllib.load(fh)
+    except FileNotFoundError:
+        raise SystemFileError(f"{name}: no such file") from None
+    except tomllib.TOMLDecodeError as err:
+        raise SystemFileError(f"{name}: not valid TOML: {err}") from None
+    except OSError as err:
+        raise SystemFileError(f"{name}: cannot read: {err.strerror}") from None
+
+    def fail(msg: str) -> SystemFileError:
+        return SystemFileError(f"{name}: {msg}")
+
+    unknown = set(doc) - _TOP_KEYS
+    if unknown:
+        raise fail(f"unknown key(s) {sorted(unknown)}; valid are {sorted(_TOP_KEYS)}")
+    species = doc.get("species")
+    if not isinstance(species, list) or not all(isinstance(s, str) for s in species):
+        raise fail("'species' must be an array of names, e.g. species = [\"CH4\", \"H2O\"]")
+    reactions = doc.get("reactions")
+    if not isinstance(reactions, list) or not reactions:
+        raise fail("needs at least one [[reactions]] table with an 'equation'")
+    pairs: list[tuple[str, str]] = []
+    lnk: dict[str, Any] = {}
+    for j, table in enumerate(reactions):
+        where = f"reactions[{j}]"
+        if not isinstance(table, dict):
+            raise fail(f"{where} must be a table")
+        bad = set(table) - _REACTION_KEYS
+        if bad:
+            raise fail(f"{where}: unknown key(s) {sorted(bad)}; valid are {sorted(_REACTION_KEYS)}")
+        if "equation" not in table or not isinstance(table["equation"], str):
+            raise fail(f"{where}: missing 'equation' (a string such as \"CO + H2O = CO2 + H2\")")
+        label = str(table.get("label", f"r{j + 1}"))
+        pairs.append((label, table["equation"]))
+        kinds = [k for k in ("lnK", "K", "log10K") if k in table]
+        if len(kinds) > 1:
+            raise fail(f"{where} ({label}): give only one of lnK, K, log10K")
+        if kinds:
+            try:
+                lnk[label] = as_lnk_data(table[kinds[0]], label, kinds[0])
+            except SystemDefinitionError as err:
+                raise fail(f"{where}: {err}") from None
+    for key in ("phases", "formulas"):
+        if key in doc and not isinstance(doc[key], dict):
+            raise fail(f"[{key}] must be a table of species = value")
+    try:
+        return ReactionSystem(
+            species,
+            pairs,
+            phases=doc.get("phases"),
+            formulas=doc.get("formulas"),
+            P0=doc.get("P0", 1.0),
+            check_balance=bool(doc.get("check_balance", True)),
+            lnK=lnk or None,
+        )
+    except SystemDefinitionError as err:
+        raise type(err)(f"{name}: {err}") from None

@@ -1,0 +1,384 @@
+//! The batch driver: many cases, one system, all cores.
+//!
+//! Cases are split into fixed chunks and solved on rayon's work-stealing
+//! threads. Each case's result depends only on its own inputs (the zero
+//! pattern analysis is computed once per pattern before the parallel loop),
+//! so results are bit-identical whatever the number of threads. Each thread
+//! reuses one [`Workspace`]; nothing is allocated per case.
+
+use std::collections::HashMap;
+
+use rayon::prelude::*;
+
+use crate::error::CoreError;
+use crate::face::{analyse, Face, FaceError};
+use crate::solver::{solve_case, SolveOptions, Workspace};
+use crate::status::Status;
+use crate::system::{System, N_PHASES};
+
+/// Cases per parallel task: large enough to amortise scheduling, small
+/// enough to balance cases of uneven cost.
+const CHUNK: usize = 64;
+
+/// Per-case inputs. Each array holds either one row (broadcast to every
+/// case) or `n_cases` rows, row-major.
+#[derive(Clone, Copy, Debug)]
+pub struct BatchInputs<'a> {
+    pub n_cases: usize,
+    /// Feed amounts, mol: `1 x S` or `n_cases x S`.
+    pub feed: &'a [f64],
+    /// Natural logarithms of the equilibrium constants: `1 x R` or `n_cases x R`.
+    pub ln_k: &'a [f64],
+    /// Pressure, bar: length 1 or `n_cases`.
+    pub pressure: &'a [f64],
+}
+
+/// Per-case outputs, all `n_cases` rows, row-major.
+#[derive(Debug)]
+pub struct BatchOutputs<'a> {
+    /// Equilibrium amounts, mol (`n_cases x S`).
+    pub amounts: &'a mut [f64],
+    /// Extents of the system's reactions, mol (`n_cases x R`).
+    pub extents: &'a mut [f64],
+    /// Mole fraction of each species within its own phase (`n_cases x S`).
+    pub mole_fractions: &'a mut [f64],
+    /// [`Status`] codes (`n_cases`).
+    pub status: &'a mut [u8],
+    /// Newton iterations taken (`n_cases`).
+    pub iterations: &'a mut [u32],
+}
+
+/// Where a broadcastable input's row for case `k` starts.
+#[derive(Clone, Copy)]
+struct Rows {
+    width: usize,
+    broadcast: bool,
+}
+
+impl Rows {
+    fn check(name: &str, len: usize, width: usize, n_cases: usize) -> Result<Self, CoreError> {
+        if len == width {
+            Ok(Rows {
+                width,
+                broadcast: true,
+            })
+        } else if len == width * n_cases {
+            Ok(Rows {
+                width,
+                broadcast: false,
+            })
+        } else {
+            Err(CoreError::Shape(format!(
+                "{name} has {len} values; expected {width} (one row) or {n_cases} x {width}"
+            )))
+        }
+    }
+
+    fn row<'a>(&self, data: &'a [f64], case: usize) -> &'a [f64] {
+        let start = if self.broadcast { 0 } else { case * self.width };
+        &data[start..start + self.width]
+    }
+}
+
+fn pattern_words(n_species: usize) -> usize {
+    n_species.div_ceil(64).max(1)
+}
+
+fn zero_pattern(feed: &[f64], key: &mut [u64]) {
+    key.fill(0);
+    for (i, &v) in feed.iter().enumerate() {
+        if v == 0.0 {
+            key[i / 64] |= 1 << (i % 64);
+        }
+    }
+}
+
+fn feed_is_valid(feed: &[f64]) -> bool {
+    let mut total = 0.0;
+    for &v in feed {
+        if !(v >= 0.0 && v.is_finite()) {
+            return false;
+        }
+        total += v;
+    }
+    total > 0.0 && total.is_finite()
+}
+
+fn case_is_valid(feed: &[f64], ln_k: &[f64], pressure: f64) -> bool {
+    feed_is_valid(feed) && ln_k.iter().all(|v| v.is_finite()) && pressure > 0.0 && pressure.is_finite()
+}
+
+type FaceTable = HashMap<Vec<u64>, Result<Face, FaceError>>;
+
+/// Analyse every distinct zero pattern among the valid feeds.
+fn faces_for(system: &System, inputs: &BatchInputs, rows: Rows) -> FaceTable {
+    let s = system.n_species();
+    let mut table = FaceTable::new();
+    let mut key = vec![0u64; pattern_words(s)];
+    let n_rows = if rows.broadcast { 1 } else { inputs.n_cases };
+    for case in 0..n_rows {
+        let feed = rows.row(inputs.feed, case);
+        if !feed_is_valid(feed) {
+            continue;
+        }
+        zero_pattern(feed, &mut key);
+        if !table.contains_key(&key[..]) {
+            let zero: Vec<bool> = feed.iter().map(|&v| v == 0.0).collect();
+            table.insert(key.clone(), analyse(system, &zero));
+        }
+    }
+    table
+}
+
+/// Solve every case of a batch. Errors are only for inconsistent array sizes
+/// or options; a bad case gets [`Status::InvalidInput`] and NaN outputs.
+/// `threads`: `None` uses rayon's global pool (all cores), `Some(k)` a pool
+/// of `k` threads.
+pub fn solve_batch(
+    system: &System,
+    inputs: &BatchInputs,
+    outputs: &mut BatchOutputs,
+    options: &SolveOptions,
+    threads: Option<usize>,
+) -> Result<(), CoreError> {
+    let n = inputs.n_cases;
+    let s = system.n_species();
+    let r = system.n_reactions();
+    if !(options.tol > 0.0 && options.tol.is_finite()) {
+        return Err(CoreError::BadOption(format!("tol must be positive, got {}", options.tol)));
+    }
+    let feed_rows = Rows::check("feed", inputs.feed.len(), s, n)?;
+    let k_rows = Rows::check("ln_k", inputs.ln_k.len(), r, n)?;
+    let p_rows = Rows::check("pressure", inputs.pressure.len(), 1, n)?;
+    for (name, len, width) in [
+        ("amounts", outputs.amounts.len(), s),
+        ("extents", outputs.extents.len(), r),
+        ("mole_fractions", outputs.mole_fractions.len(), s),
+        ("status", outputs.status.len(), 1),
+    ] {
+        if len != n * width {
+            return Err(CoreError::Shape(format!("{name} output has {len} values, expected {}", n * width)));
+        }
+    }
+    if outputs.iterations.len() != n {
+        return Err(CoreError::Shape("iterations output has the wrong length".into()));
+    }
+    if n == 0 {
+        return Ok(());
+    }
+    let faces = faces_for(system, inputs, feed_rows);
+
+    let run_chunk = |ws: &mut ChunkState,
+                     chunk: usize,
+                     amounts: &mut [f64],
+                     extents: &mut [f64],
+                     fractions: &mut [f64],
+                     status: &mut [u8],
+                     iterations: &mut [u32]| {
+        for local in 0..status.len() {
+            let case = chunk * CHUNK + local;
+            let feed = feed_rows.row(inputs.feed, case);
+            let ln_k = k_rows.row(inputs.ln_k, case);
+            let pressure = p_rows.row(inputs.pressure, case)[0];
+            let amounts = &mut amounts[local * s..(local + 1) * s];
+            let extents = &mut extents[local * r..(local + 1) * r];
+            let fractions = &mut fractions[local * s..(local + 1) * s];
+            let (st, it) = ws.solve(system, &faces, feed, ln_k, pressure, options);
+            status[local] = st as u8;
+            iterations[local] = it;
+            if st == Status::InvalidInput || st == Status::Infeasible {
+                amounts.fill(f64::NAN);
+                extents.fill(f64::NAN);
+                fractions.fill(f64::NAN);
+                continue;
+            }
+            amounts.copy_from_slice(ws.workspace.amounts());
+            extents.copy_from_slice(ws.workspace.extents());
+            let mut totals = [0.0; N_PHASES];
+            for (i, phase) in system.phases().iter().enumerate() {
+                totals[phase.index()] += amounts[i];
+            }
+            for (i, phase) in system.phases().iter().enumerate() {
+                let total = totals[phase.index()];
+                fractions[i] = if total > 0.0 { amounts[i] / total } else { 0.0 };
+            }
+        }
+    };
+
+    let serial = threads == Some(1) || n <= CHUNK;
+    if serial {
+        let mut state = ChunkState::new(system);
+        for (chunk, ((((a, e), y), st), it)) in outputs
+            .amounts
+            .chunks_mut(CHUNK * s)
+            .zip(outputs.extents.chunks_mut(CHUNK * r))
+            .zip(outputs.mole_fractions.chunks_mut(CHUNK * s))
+            .zip(outputs.status.chunks_mut(CHUNK))
+            .zip(outputs.iterations.chunks_mut(CHUNK))
+            .enumerate()
+        {
+            run_chunk(&mut state, chunk, a, e, y, st, it);
+        }
+        return Ok(());
+    }
+    let parallel = |outputs: &mut BatchOutputs| {
+        outputs
+            .amounts
+            .par_chunks_mut(CHUNK * s)
+            .zip(outputs.extents.par_chunks_mut(CHUNK * r))
+            .zip(outputs.mole_fractions.par_chunks_mut(CHUNK * s))
+            .zip(outputs.status.par_chunks_mut(CHUNK))
+            .zip(outputs.iterations.par_chunks_mut(CHUNK))
+            .enumerate()
+            .for_each_init(
+                || ChunkState::new(system),
+                |state, (chunk, ((((a, e), y), st), it))| run_chunk(state, chunk, a, e, y, st, it),
+            );
+    };
+    match threads {
+        Some(k) if k > 0 => {
+            let pool = rayon::ThreadPoolBuilder::new()
+                .num_threads(k)
+                .build()
+                .map_err(|e| CoreError::BadOption(format!("cannot start {k} threads: {e}")))?;
+            pool.install(|| parallel(outputs));
+        }
+        Some(0) => return Err(CoreError::BadOption("threads must be at least 1".into())),
+        _ => parallel(outputs),
+    }
+    Ok(())
+}
+
+/// One thread's state: its workspace and the key of the last zero pattern
+/// (sweeps usually share one pattern, so the table lookup is skipped).
+struct ChunkState {
+    workspace: Workspace,
+    key: Vec<u64>,
+}
+
+impl ChunkState {
+    fn new(system: &System) -> Self {
+        ChunkState {
+            workspace: Workspace::new(system),
+            key: vec![0; pattern_words(system.n_species())],
+        }
+    }
+
+    fn solve(
+        &mut self,
+        system: &System,
+        faces: &FaceTable,
+        feed: &[f64],
+        ln_k: &[f64],
+        pressure: f64,
+        options: &SolveOptions,
+    ) -> (Status, u32) {
+        if !case_is_valid(feed, ln_k, pressure) {
+            return (Status::InvalidInput, 0);
+        }
+        zero_pattern(feed, &mut self.key);
+        match faces.get(&self.key[..]) {
+            Some(Ok(face)) => solve_case(system, face, feed, ln_k, pressure, options, &mut self.workspace),
+            _ => (Status::Infeasible, 0),
+        }
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::system::Phase;
+
+    fn reforming() -> System {
+        // CH4 H2O CO H2 CO2 N2
+        let nu = vec![
+            -1.0, -1.0, 1.0, 3.0, 0.0, 0.0, //
+            0.0, -1.0, -1.0, 1.0, 1.0, 0.0,
+        ];
+        System::new(nu, 2, 6, vec![Phase::Gas; 6], 1.0).unwrap()
+    }
+
+    fn run(sys: &System, n: usize, feed: &[f64], ln_k: &[f64], p: &[f64], threads: Option<usize>) -> (Vec<f64>, Vec<u8>) {
+        let (s, r) = (sys.n_species(), sys.n_reactions());
+        let mut amounts = vec![0.0; n * s];
+        let mut extents = vec![0.0; n * r];
+        let mut y = vec![0.0; n * s];
+        let mut st = vec![0u8; n];
+        let mut it = vec![0u32; n];
+        let inputs = BatchInputs { n_cases: n, feed, ln_k, pressure: p };
+        let mut out = BatchOutputs {
+            amounts: &mut amounts,
+            extents: &mut extents,
+            mole_fractions: &mut y,
+            status: &mut st,
+            iterations: &mut it,
+        };
+        solve_batch(sys, &inputs, &mut out, &SolveOptions::default(), threads).unwrap();
+        (amounts, st)
+    }
+
+    #[test]
+    fn bad_cases_are_marked_and_the_rest_solved() {
+        let sys = reforming();
+        let n = 200;
+        let mut feed = Vec::new();
+        for k in 0..n {
+            let mut row = vec![1.0, 3.0, 0.0, 0.0, 0.0, 0.1];
+            if k == 7 {
+                row[0] = -1.0;
+            }
+            if k == 9 {
+                row[1] = f64::NAN;
+            }
+            if k == 11 {
+                row = vec![0.0; 6];
+            }
+            feed.extend(row);
+        }
+        let mut p = vec![5.0; n];
+        p[13] = 0.0;
+        let (amounts, st) = run(&sys, n, &feed, &[2.0, 0.5], &p, None);
+        for k in 0..n {
+            let bad = [7, 9, 11, 13].contains(&k);
+            assert_eq!(st[k] == Status::InvalidInput as u8, bad, "case {k}");
+            assert_eq!(amounts[k * 6].is_nan(), bad);
+            if !bad {
+                assert_eq!(st[k], Status::Converged as u8);
+            }
+        }
+    }
+
+    #[test]
+    fn results_do_not_depend_on_thread_count() {
+        let sys = reforming();
+        let n = 1000;
+        let mut feed = Vec::new();
+        let mut ln_k = Vec::new();
+        let mut p = Vec::new();
+        for k in 0..n {
+            let x = k as f64 / n as f64;
+            feed.extend([1.0, 1.5 + 3.0 * x, 0.0, 0.0, 0.0, 0.2]);
+            ln_k.extend([-10.0 + 20.0 * x, 3.0 - 4.0 * x]);
+            p.push(1.0 + 39.0 * x);
+        }
+        let one = run(&sys, n, &feed, &ln_k, &p, Some(1));
+        let two = run(&sys, n, &feed, &ln_k, &p, Some(2));
+        let all = run(&sys, n, &feed, &ln_k, &p, None);
+        assert!(one.1.iter().all(|&s| s == 0));
+        assert_eq!(one.0.iter().map(|v| v.to_bits()).collect::<Vec<_>>(), two.0.iter().map(|v| v.to_bits()).collect::<Vec<_>>());
+        assert_eq!(one.0.iter().map(|v| v.to_bits()).collect::<Vec<_>>(), all.0.iter().map(|v| v.to_bits()).collect::<Vec<_>>());
+    }
+
+    #[test]
+    fn shape_errors_are_reported_not_panicked() {
+        let sys = reforming();
+        let mut a = vec![0.0; 6];
+        let mut e = vec![0.0; 2];
+        let mut y = vec![0.0; 6];
+        let mut st = vec![0u8; 1];
+        let mut it = vec![0u32; 1];
+        let inputs = BatchInputs { n_cases: 1, feed: &[1.0; 5], ln_k: &[0.0; 2], pressure: &[1.0] };
+        let mut out = BatchOutputs { amounts: &mut a, extents: &mut e, mole_fractions: &mut y, status: &mut st, iterations: &mut it };
+        assert!(matches!(solve_batch(&sys, &inputs, &mut out, &SolveOptions::default(), None), Err(CoreError::Shape(_))));
+    }
+}

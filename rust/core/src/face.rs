@@ -1,0 +1,178 @@
+//! Which species a feed can reach, and the face of the extent polytope the
+//! equilibrium lies on.
+//!
+//! A species with zero feed is *reachable* when some combination of
+//! reactions (run forwards or backwards) makes it without consuming anything
+//! that is absent. Reachability depends only on which feed entries are zero,
+//! not on their values: the feasible set `{xi : n0 + nu^T xi >= 0}` is convex
+//! and contains `xi = 0`, so a species is reachable exactly when some
+//! direction `d` has `(nu^T d)_k >= 0` for every zero-feed species `k` and
+//! `> 0` for it. One linear programme per zero pattern finds the largest set
+//! of species that can be made positive together, and a direction that does
+//! it. Unreachable species are exactly zero at equilibrium; the reactions
+//! are restricted to the subspace that leaves them at zero (the face), and
+//! the solve proceeds on that face from a strictly interior start.
+
+use crate::linalg::null_space;
+use crate::lp::{maximize, LpOutcome};
+use crate::system::System;
+
+/// The result of the zero-pattern analysis, shared by every case with the
+/// same pattern.
+#[derive(Clone, Debug)]
+pub struct Face {
+    /// Species that are exactly zero at equilibrium (zero feed, unreachable).
+    pub unreachable: Vec<bool>,
+    /// Dimension of the face (number of free reaction combinations).
+    pub dim: usize,
+    /// `R x dim` row-major: original extents = `basis * face extents`.
+    pub basis: Vec<f64>,
+    /// `dim x S` row-major stoichiometry of the face reactions; the columns of
+    /// unreachable species are exactly zero.
+    pub stoich: Vec<f64>,
+    /// A direction in original extents that makes every reachable zero-feed
+    /// species positive (`(nu^T d)_k >= 1`); zero when every species is fed.
+    pub direction: Vec<f64>,
+    /// `nu^T direction`, per species (exactly zero on unreachable species).
+    pub direction_change: Vec<f64>,
+}
+
+/// Why a face could not be computed.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub enum FaceError {
+    /// The reachability programme did not terminate (round-off cycling).
+    LinearProgramme,
+}
+
+/// Analyse a zero pattern: `zero_feed[i]` is true where species `i` has zero
+/// feed. Inert species are ignored.
+pub fn analyse(system: &System, zero_feed: &[bool]) -> Result<Face, FaceError> {
+    let s = system.n_species();
+    let r = system.n_reactions();
+    let nu = system.stoich();
+    let zero: Vec<usize> = (0..s)
+        .filter(|&i| zero_feed[i] && system.is_reactive(i))
+        .collect();
+    let mut unreachable = vec![false; s];
+    let mut direction = vec![0.0; r];
+    if !zero.is_empty() {
+        // Variables: p (r), q (r), support s_k (|zero|), all >= 0; d = p - q.
+        // Rows: s_k - (nu^T d)_k <= 0 ; s_k <= 1.   Maximise sum s_k.
+        let nz = zero.len();
+        let n_var = 2 * r + nz;
+        let m = 2 * nz;
+        let mut a = vec![0.0; m * n_var];
+        let mut b = vec![0.0; m];
+        for (row, &k) in zero.iter().enumerate() {
+            for j in 0..r {
+                a[row * n_var + j] = -nu[j * s + k];
+                a[row * n_var + r + j] = nu[j * s + k];
+            }
+            a[row * n_var + 2 * r + row] = 1.0;
+            a[(nz + row) * n_var + 2 * r + row] = 1.0;
+            b[nz + row] = 1.0;
+        }
+        let mut c = vec![0.0; n_var];
+        for v in c[2 * r..].iter_mut() {
+            *v = 1.0;
+        }
+        let x = match maximize(&a, &b, &c, m, n_var) {
+            LpOutcome::Optimal { x, .. } => x,
+            LpOutcome::Unbounded | LpOutcome::PivotLimit => return Err(FaceError::LinearProgramme),
+        };
+        for (row, &k) in zero.iter().enumerate() {
+            // The optimum puts every reachable species at support 1 (directions
+            // add, and d is unbounded), so 0.5 separates the two sets robustly.
+            unreachable[k] = x[2 * r + row] < 0.5;
+        }
+        for j in 0..r {
+            direction[j] = x[j] - x[r + j];
+        }
+    }
+    let blocked: Vec<usize> = (0..s).filter(|&i| unreachable[i]).collect();
+    let (basis, dim) = if blocked.is_empty() {
+        let mut eye = vec![0.0; r * r];
+        for j in 0..r {
+            eye[j * r + j] = 1.0;
+        }
+        (eye, r)
+    } else {
+        // Face directions: {d : (nu^T d)_k = 0 for every unreachable k}.
+        let mut m = vec![0.0; blocked.len() * r];
+        for (row, &k) in blocked.iter().enumerate() {
+            for j in 0..r {
+                m[row * r + j] = nu[j * s + k];
+            }
+        }
+        null_space(&m, blocked.len(), r, 1e-12)
+    };
+    let mut stoich = vec![0.0; dim * s];
+    for f in 0..dim {
+        for i in 0..s {
+            if unreachable[i] {
+                continue;
+            }
+            let v: f64 = (0..r).map(|j| basis[j * dim + f] * nu[j * s + i]).sum();
+            stoich[f * s + i] = if v.abs() < 1e-13 { 0.0 } else { v };
+        }
+    }
+    let mut direction_change = vec![0.0; s];
+    for i in 0..s {
+        if !unreachable[i] {
+            direction_change[i] = (0..r).map(|j| direction[j] * nu[j * s + i]).sum();
+        }
+    }
+    Ok(Face {
+        unreachable,
+        dim,
+        basis,
+        stoich,
+        direction,
+        direction_change,
+    })
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::system::Phase;
+
+    fn system(nu: Vec<f64>, r: usize, s: usize) -> System {
+        System::new(nu, r, s, vec![Phase::Gas; s], 1.0).unwrap()
+    }
+
+    #[test]
+    fn reverse_reaction_reaches_reactants() {
+        // A + B = C with only C fed: A and B are reachable by the reverse reaction.
+        let sys = system(vec![-1.0, -1.0, 1.0], 1, 3);
+        let face = analyse(&sys, &[true, true, false]).unwrap();
+        assert_eq!(face.unreachable, vec![false, false, false]);
+        assert_eq!(face.dim, 1);
+        assert!(face.direction_change[0] >= 1.0 - 1e-12);
+    }
+
+    #[test]
+    fn missing_co_reactant_pins_the_reaction() {
+        // A + B = C with only A fed: nothing can happen.
+        let sys = system(vec![-1.0, -1.0, 1.0], 1, 3);
+        let face = analyse(&sys, &[false, true, true]).unwrap();
+        assert_eq!(face.unreachable, vec![false, true, true]);
+        assert_eq!(face.dim, 0);
+    }
+
+    #[test]
+    fn catalytic_cycle_reaches_product_through_a_combination() {
+        // r1: A + X = B, r2: B = X + C. Feed A only. Neither reaction can run
+        // alone, but r1 + r2 (A = C) can: C reachable, X and B not.
+        // species: A X B C
+        let sys = system(vec![-1.0, -1.0, 1.0, 0.0, 0.0, 1.0, -1.0, 1.0], 2, 4);
+        let face = analyse(&sys, &[false, true, true, true]).unwrap();
+        assert_eq!(face.unreachable, vec![false, true, true, false]);
+        assert_eq!(face.dim, 1);
+        // The face reaction is a multiple of A = C with zero X and B columns.
+        let row = &face.stoich[0..4];
+        assert_eq!(row[1], 0.0);
+        assert_eq!(row[2], 0.0);
+        assert!((row[0] + row[3]).abs() < 1e-12 && row[3] != 0.0);
+    }
+}

@@ -1,0 +1,29 @@
+//! eqbatch-core: the batch chemical-equilibrium engine.
+//!
+//! A pure Rust crate with no Python in it. It takes a stoichiometric matrix,
+//! the phase of every species and, per case, the feed, the equilibrium
+//! constants and the pressure, and returns the equilibrium amounts and
+//! extents with an honest per-case [`Status`].
+//!
+//! * [`system`]: the validated reaction system and its structural checks;
+//! * [`face`]: which species a feed can reach (the zero-pattern analysis);
+//! * [`basis`]: the per-case stoichiometric basis that keeps trace species precise;
+//! * [`solver`]: the damped Newton solve of one case;
+//! * [`batch`]: the parallel batch driver;
+//! * [`lp`], [`linalg`]: the small numerical kernels they share.
+
+pub mod basis;
+pub mod batch;
+pub mod error;
+pub mod face;
+pub mod linalg;
+pub mod lp;
+pub mod solver;
+pub mod status;
+pub mod system;
+
+pub use batch::{solve_batch, BatchInputs, BatchOutputs};
+pub use error::CoreError;
+pub use solver::SolveOptions;
+pub use status::Status;
+pub use system::{Phase, System};

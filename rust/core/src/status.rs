@@ -1,0 +1,42 @@
+//! The per-case outcome of a solve.
+
+/// What happened to one case. The numeric values are part of the public
+/// contract (they are stored in result tables), so never renumber them.
+#[repr(u8)]
+#[derive(Clone, Copy, Debug, PartialEq, Eq, Hash)]
+pub enum Status {
+    /// Every reaction satisfies its equilibrium condition within the tolerance.
+    Converged = 0,
+    /// The iteration limit was reached first; the amounts are the last
+    /// iterate (feasible and conserving, but not at equilibrium).
+    IterationLimit = 1,
+    /// The case's inputs are unusable: a negative or non-finite feed, a zero
+    /// total feed, a non-finite ln K, or a non-positive or non-finite pressure.
+    /// Every output of the case is NaN.
+    InvalidInput = 2,
+    /// No equilibrium exists for this feed: some combination of reactions can
+    /// run without consuming anything, so the extents are unbounded.
+    Infeasible = 3,
+    /// The line search could not lower the Gibbs function any further before
+    /// the tolerance was met (the limit of float64 for this case); the amounts
+    /// are the last iterate.
+    Stalled = 4,
+}
+
+impl Status {
+    /// Whether the case reached equilibrium.
+    pub fn is_converged(self) -> bool {
+        self == Status::Converged
+    }
+
+    /// A short human-readable description.
+    pub fn describe(self) -> &'static str {
+        match self {
+            Status::Converged => "converged",
+            Status::IterationLimit => "iteration limit reached",
+            Status::InvalidInput => "invalid input",
+            Status::Infeasible => "infeasible: extents unbounded for this feed",
+            Status::Stalled => "stalled: no further decrease of the Gibbs function",
+        }
+    }
+}

@@ -1,0 +1,16 @@
+//! `eqbatch._core`: the thin Python skin over `eqbatch-core`. It only
+//! borrows numpy arrays, releases the interpreter lock, calls the core and
+//! maps core errors to exceptions; all logic lives in the core.
+
+mod error;
+mod system;
+
+use pyo3::prelude::*;
+
+#[pymodule]
+fn _core(m: &Bound<'_, PyModule>) -> PyResult<()> {
+    m.add_class::<system::PySystem>()?;
+    m.add("StoichiometryError", m.py().get_type::<error::StoichiometryError>())?;
+    m.add("__version__", env!("CARGO_PKG_VERSION"))?;
+    Ok(())
+}

@@ -1,0 +1,116 @@
+//! `eqbatch._core.System`: a validated reaction system and its batch solve.
+
+use eqbatch_core::{solve_batch, BatchInputs, BatchOutputs, Phase, SolveOptions, System};
+use numpy::{
+    PyArray1, PyArray2, PyArrayMethods, PyReadonlyArray1, PyReadonlyArray2, PyUntypedArrayMethods,
+};
+use pyo3::exceptions::PyValueError;
+use pyo3::prelude::*;
+
+use crate::error::to_py;
+
+type Solved<'py> = (
+    Bound<'py, PyArray2<f64>>,
+    Bound<'py, PyArray2<f64>>,
+    Bound<'py, PyArray2<f64>>,
+    Bound<'py, PyArray1<u8>>,
+    Bound<'py, PyArray1<u32>>,
+);
+
+#[pyclass(name = "System", module = "eqbatch._core", frozen)]
+pub struct PySystem {
+    inner: System,
+}
+
+#[pymethods]
+impl PySystem {
+    /// `stoich`: (R, S) coefficients, products positive; `phases`: one code
+    /// per species (0 gas, 1 liquid); `p0`: standard pressure, bar.
+    #[new]
+    fn new(stoich: PyReadonlyArray2<'_, f64>, phases: Vec<u8>, p0: f64) -> PyResult<Self> {
+        let shape = stoich.shape();
+        let (r, s) = (shape[0], shape[1]);
+        let phases = phases
+            .into_iter()
+            .map(|code| match code {
+                0 => Ok(Phase::Gas),
+                1 => Ok(Phase::Liquid),
+                other => Err(PyValueError::new_err(format!("unknown phase code {other}"))),
+            })
+            .collect::<PyResult<Vec<_>>>()?;
+        let inner = System::new(stoich.as_array().iter().copied().collect(), r, s, phases, p0).map_err(to_py)?;
+        Ok(PySystem { inner })
+    }
+
+    #[getter]
+    fn n_species(&self) -> usize {
+        self.inner.n_species()
+    }
+
+    #[getter]
+    fn n_reactions(&self) -> usize {
+        self.inner.n_reactions()
+    }
+
+    /// Solve `n_cases` cases. `feed` (1 or N, S), `ln_k` (1 or N, R) and
+    /// `pressure` (1 or N) must be C-contiguous float64. Returns
+    /// `(amounts, extents, mole_fractions, status, iterations)`.
+    #[pyo3(signature = (feed, ln_k, pressure, n_cases, tol, max_iter, threads=None))]
+    #[allow(clippy::too_many_arguments)]
+    fn solve<'py>(
+        &self,
+        py: Python<'py>,
+        feed: PyReadonlyArray2<'py, f64>,
+        ln_k: PyReadonlyArray2<'py, f64>,
+        pressure: PyReadonlyArray1<'py, f64>,
+        n_cases: usize,
+        tol: f64,
+        max_iter: u32,
+        threads: Option<usize>,
+    ) -> PyResult<Solved<'py>> {
+        let s = self.inner.n_species();
+        let r = self.inner.n_reactions();
+        let amounts = PyArray2::<f64>::zeros(py, [n_cases, s], false);
+        let extents = PyArray2::<f64>::zeros(py, [n_cases, r], false);
+        let fractions = PyArray2::<f64>::zeros(py, [n_cases, s], false);
+        let status = PyArray1::<u8>::zeros(py, n_cases, false);
+        let iterations = PyArray1::<u32>::zeros(py, n_cases, false);
+        {
+            let feed = feed.as_slice()?;
+            let ln_k = ln_k.as_slice()?;
+            let pressure = pressure.as_slice()?;
+            // SAFETY: the five output arrays were created just above, are
+            // C-contiguous, and no other reference to them exists until they
+            // are returned, so these are the only views of their memory.
+            let (a, e, y, st, it) = unsafe {
+                (
+                    amounts.as_slice_mut()?,
+                    extents.as_slice_mut()?,
+                    fractions.as_slice_mut()?,
+                    status.as_slice_mut()?,
+                    iterations.as_slice_mut()?,
+                )
+            };
+            let inputs = BatchInputs {
+                n_cases,
+                feed,
+                ln_k,
+                pressure,
+            };
+            let options = SolveOptions { tol, max_iter };
+            let system = &self.inner;
+            py.detach(move || {
+                let mut outputs = BatchOutputs {
+                    amounts: a,
+                    extents: e,
+                    mole_fractions: y,
+                    status: st,
+                    iterations: it,
+                };
+                solve_batch(system, &inputs, &mut outputs, &options, threads)
+            })
+            .map_err(to_py)?;
+        }
+        Ok((amounts, extents, fractions, status, iterations))
+    }
+}
