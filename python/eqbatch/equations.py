@@ -48,7 +48,7 @@ def parse_formula(text: str) -> dict[str, int] | None:
         if match.start() != pos:
             return None
         symbol, digits = match.groups()
-        if symbol not in ELEMENTS:
+        if symbol not in ELEMENTS or digits.startswith("0"):
             return None
         counts[symbol] = counts.get(symbol, 0) + (int(digits) if digits else 1)
         pos = match.end()

@@ -72,6 +72,18 @@ const ARMIJO: f64 = 1e-4;
 const MINOR_SHARE: f64 = 1e-2;
 /// Backtracking halvings before a case is declared stalled.
 const MAX_BACKTRACKS: u32 = 60;
+/// Relative amount below which float64 can no longer follow a species down
+/// (the normal range ends near 2e-308): a species this far below its phase
+/// total that equilibrium would push lower still is held where it is and
+/// its reaction counts as satisfied. Its amount is then an upper bound.
+const FLOOR_SHARE: f64 = 1e-280;
+/// Absolute companion of [`FLOOR_SHARE`] for very small phase totals.
+const FLOOR_ABS: f64 = 1e-295;
+
+/// The smallest amount the solver follows in a phase of total `total`.
+fn floor_amount(total: f64) -> f64 {
+    (FLOOR_SHARE * total).max(FLOOR_ABS)
+}
 
 /// Per-thread working memory for one case at a time; sized once for the
 /// system and reused, so the solve allocates nothing per case.
@@ -93,6 +105,7 @@ pub struct Workspace {
     step: Vec<f64>,
     du: Vec<f64>,
     on_log_path: Vec<bool>,
+    frozen: Vec<bool>,
     scale: Vec<f64>,
     phase_change: Vec<f64>,
     face_step: Vec<f64>,
@@ -120,6 +133,7 @@ impl Workspace {
             step: vec![0.0; r],
             du: vec![0.0; r],
             on_log_path: vec![false; r],
+            frozen: vec![false; r],
             scale: vec![0.0; r],
             phase_change: vec![0.0; N_PHASES * r],
             face_step: vec![0.0; r],
@@ -263,7 +277,14 @@ pub fn solve_case(
                 ws.phase_change[p * r + j] = pc[p];
             }
             ws.residual[j] = res;
-            worst = worst.max(res.abs());
+            let sp = ws.pivots[j];
+            // At the float64 floor and still too abundant for equilibrium:
+            // hold it there (see FLOOR_SHARE).
+            ws.frozen[j] = res > 0.0
+                && ws.amounts[sp] <= floor_amount(totals[phases[sp].index()]) * 1.000_001;
+            if !ws.frozen[j] {
+                worst = worst.max(res.abs());
+            }
         }
         if !worst.is_finite() {
             return (Status::Stalled, iterations);
@@ -291,10 +312,13 @@ pub fn solve_case(
                         v -= ws.phase_change[p * r + j] * ws.phase_change[p * r + k] / totals[p];
                     }
                 }
+                if ws.frozen[j] || ws.frozen[k] {
+                    v = if j == k { 1.0 } else { 0.0 };
+                }
                 ws.hessian[j * dim + k] = v;
                 ws.hessian[k * dim + j] = v;
             }
-            ws.step[j] = -ws.residual[j];
+            ws.step[j] = if ws.frozen[j] { 0.0 } else { -ws.residual[j] };
         }
         if !solve_spd_scaled(
             &mut ws.hessian[..dim * dim],
@@ -319,6 +343,13 @@ pub fn solve_case(
                 // Do not let a minor species grow past its whole phase in one go.
                 let room = (1.0 / share).ln() + 1.0;
                 alpha_max = alpha_max.min(room / ws.du[j]);
+            } else if ws.du[j] < 0.0 {
+                // Nor shrink below what float64 can follow.
+                let floor = floor_amount(totals[phases[sp].index()]);
+                let depth = (floor / n).ln();
+                if depth < 0.0 && depth > ws.du[j] {
+                    alpha_max = alpha_max.min((depth / ws.du[j]).max(0.0));
+                }
             }
         }
         if !(slope < 0.0) {

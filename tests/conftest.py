@@ -1,0 +1,47 @@
+"""Shared helpers for the test-suite."""
+
+from __future__ import annotations
+
+import numpy as np
+import pytest
+
+import eqbatch
+
+REFORMING_SPECIES = ["CH4", "H2O", "CO", "H2", "CO2", "N2"]
+REFORMING_REACTIONS = {"reforming": "CH4 + H2O = CO + 3 H2", "shift": "CO + H2O = CO2 + H2"}
+
+
+@pytest.fixture
+def reforming() -> eqbatch.ReactionSystem:
+    return eqbatch.ReactionSystem(REFORMING_SPECIES, REFORMING_REACTIONS)
+
+
+def log_residuals(system: eqbatch.ReactionSystem, amounts: np.ndarray, lnK: np.ndarray, P: float) -> np.ndarray:
+    """ln Q - ln K of every reaction as written, from amounts alone (an
+    independent re-computation of the equilibrium conditions)."""
+    nu = system.stoich
+    ln_a = np.zeros(system.n_species)
+    phases = np.array(system.phases)
+    for phase in ("gas", "liquid"):
+        mask = phases == phase
+        total = amounts[mask].sum()
+        with np.errstate(divide="ignore"):
+            ln_a[mask] = np.log(amounts[mask]) - np.log(total) if total > 0 else 0.0
+        if phase == "gas":
+            ln_a[mask] += np.log(P / system.P0)
+    present = amounts > 0
+    out = np.empty(system.n_reactions)
+    for j in range(system.n_reactions):
+        involved = nu[j] != 0
+        if not np.all(present[involved]):
+            out[j] = np.nan  # pinned reaction: not an equation at equilibrium
+        else:
+            out[j] = nu[j, involved] @ ln_a[involved] - lnK[j]
+    return out
+
+
+def conservation_basis(system: eqbatch.ReactionSystem) -> np.ndarray:
+    """Rows spanning the conserved combinations of amounts (null space of nu)."""
+    _, sv, vt = np.linalg.svd(system.stoich)
+    rank = int(np.sum(sv > 1e-10 * sv.max()))
+    return vt[rank:]
