@@ -1,0 +1,83 @@
+"""The command line: `eqbatch solve`, `eqbatch demo`, `python -m eqbatch`."""
+
+from __future__ import annotations
+
+import subprocess
+import sys
+import textwrap
+
+import pytest
+
+from eqbatch.cli import main
+
+
+@pytest.fixture
+def system_file(tmp_path):
+    path = tmp_path / "reformer.toml"
+    path.write_text(textwrap.dedent("""
+        species = ["CH4", "H2O", "CO", "H2", "CO2", "N2"]
+        P0 = 1.01325
+        [[reactions]]
+        label = "reforming"
+        equation = "CH4 + H2O = CO + 3 H2"
+        lnK = { a = 30.114, b = -26830.0 }
+        [[reactions]]
+        label = "shift"
+        equation = "CO + H2O = CO2 + H2"
+        lnK = { a = -4.036, b = 4400.0 }
+    """))
+    return path
+
+
+def test_solve_prints_amounts_fractions_extents_and_conversion(system_file, capsys) -> None:
+    code = main(["solve", str(system_file), "--feed", "CH4=1,H2O=3", "--feed", "N2=0.1", "--T", "1000", "--P", "1"])
+    out = capsys.readouterr().out
+    assert code == 0
+    assert "T = 1000 K, P = 1 bar" in out and "converged" in out
+    for text in ("species", "amount/mol", "mole fraction", "extent/mol", "reforming", "conversion"):
+        assert text in out
+    # the methane conversion printed equals the API's
+    import eqbatch
+
+    res = eqbatch.ReactionSystem.from_toml(system_file).solve({"CH4": 1, "H2O": 3, "N2": 0.1}, T=1000.0, P=1.0)
+    assert f"{100 * res.conversion('CH4')[0]:.4g} %" in out
+    assert "not a reactor design" in out
+
+
+def test_solve_with_explicit_constants(system_file, capsys) -> None:
+    assert main(["solve", str(system_file), "--feed", "CH4=1,H2O=2", "--K", "reforming=1,shift=1"]) == 0
+    assert "ln K" in capsys.readouterr().out
+
+
+@pytest.mark.parametrize(
+    "args, message",
+    [
+        (["solve", "missing.toml", "--feed", "CH4=1"], "missing.toml: no such file"),
+        (["solve", "{sys}", "--feed", "CH4"], "NAME=VALUE"),
+        (["solve", "{sys}", "--feed", "O2=1", "--T", "900"], "'O2' is not a species"),
+        (["solve", "{sys}", "--feed", "CH4=1"], "give T="),
+        (["solve", "{sys}"], "give the feed"),
+    ],
+)
+def test_errors_are_one_line_without_traceback(system_file, capsys, args, message) -> None:
+    args = [a.replace("{sys}", str(system_file)) for a in args]
+    assert main(args) == 2
+    err = capsys.readouterr().err
+    assert err.startswith("eqbatch: error:") and message in err
+    assert "Traceback" not in err and err.count("\n") == 1
+
+
+def test_demo_runs_and_summarises(capsys) -> None:
+    assert main(["demo", "--cases", "2000"]) == 0
+    out = capsys.readouterr().out
+    assert "45 grid cases: 45 converged" in out
+    assert "Methane conversion" in out and "Xu and Froment (1989)" in out
+    assert "2,000 cases" in out and "2000 converged" in out
+    assert "defer to local codes and licensed engineers" in out
+
+
+def test_python_dash_m_and_console_script() -> None:
+    out = subprocess.run([sys.executable, "-m", "eqbatch", "--version"], capture_output=True, text=True, check=True)
+    assert out.stdout.startswith("eqbatch ")
+    out = subprocess.run(["eqbatch", "demo", "--cases", "100"], capture_output=True, text=True)
+    assert out.returncode == 0 and "Random batch: 100 cases" in out.stdout
