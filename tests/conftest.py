@@ -2,10 +2,9 @@
 
 from __future__ import annotations
 
+import eqbatch
 import numpy as np
 import pytest
-
-import eqbatch
 
 REFORMING_SPECIES = ["CH4", "H2O", "CO", "H2", "CO2", "N2"]
 REFORMING_REACTIONS = {"reforming": "CH4 + H2O = CO + 3 H2", "shift": "CO + H2O = CO2 + H2"}
@@ -16,7 +15,9 @@ def reforming() -> eqbatch.ReactionSystem:
     return eqbatch.ReactionSystem(REFORMING_SPECIES, REFORMING_REACTIONS)
 
 
-def log_residuals(system: eqbatch.ReactionSystem, amounts: np.ndarray, lnK: np.ndarray, P: float) -> np.ndarray:
+def log_residuals(
+    system: eqbatch.ReactionSystem, amounts: np.ndarray, lnK: np.ndarray, P: float
+) -> np.ndarray:
     """ln Q - ln K of every reaction as written, from amounts alone (an
     independent re-computation of the equilibrium conditions)."""
     nu = system.stoich

@@ -2,10 +2,9 @@
 
 from __future__ import annotations
 
+import eqbatch
 import numpy as np
 import pytest
-
-import eqbatch
 from conftest import REFORMING_SPECIES
 
 FEED = [1.0, 3.0, 0.0, 0.0, 0.0, 0.1]
@@ -102,7 +101,9 @@ def test_tables(reforming) -> None:
 
 def test_temperature_dependent_K_and_accessors() -> None:
     shift = eqbatch.LnKFunction(a=-4.33, b=4577.8)
-    system = eqbatch.ReactionSystem(["CO", "H2O", "CO2", "H2"], {"wgs": "CO + H2O = CO2 + H2"}, lnK={"wgs": shift})
+    system = eqbatch.ReactionSystem(
+        ["CO", "H2O", "CO2", "H2"], {"wgs": "CO + H2O = CO2 + H2"}, lnK={"wgs": shift}
+    )
     T = np.array([600.0, 800.0])
     np.testing.assert_allclose(system.lnK(T)[:, 0], 4577.8 / T - 4.33)
     res = system.solve([1, 1, 0, 0], T=T)

@@ -7,14 +7,14 @@ import sys
 import textwrap
 
 import pytest
-
 from eqbatch.cli import main
 
 
 @pytest.fixture
 def system_file(tmp_path):
     path = tmp_path / "reformer.toml"
-    path.write_text(textwrap.dedent("""
+    path.write_text(
+        textwrap.dedent("""
         species = ["CH4", "H2O", "CO", "H2", "CO2", "N2"]
         P0 = 1.01325
         [[reactions]]
@@ -25,12 +25,15 @@ def system_file(tmp_path):
         label = "shift"
         equation = "CO + H2O = CO2 + H2"
         lnK = { a = -4.036, b = 4400.0 }
-    """))
+    """)
+    )
     return path
 
 
 def test_solve_prints_amounts_fractions_extents_and_conversion(system_file, capsys) -> None:
-    code = main(["solve", str(system_file), "--feed", "CH4=1,H2O=3", "--feed", "N2=0.1", "--T", "1000", "--P", "1"])
+    code = main(
+        ["solve", str(system_file), "--feed", "CH4=1,H2O=3", "--feed", "N2=0.1", "--T", "1000", "--P", "1"]
+    )
     out = capsys.readouterr().out
     assert code == 0
     assert "T = 1000 K, P = 1 bar" in out and "converged" in out
@@ -39,7 +42,9 @@ def test_solve_prints_amounts_fractions_extents_and_conversion(system_file, caps
     # the methane conversion printed equals the API's
     import eqbatch
 
-    res = eqbatch.ReactionSystem.from_toml(system_file).solve({"CH4": 1, "H2O": 3, "N2": 0.1}, T=1000.0, P=1.0)
+    res = eqbatch.ReactionSystem.from_toml(system_file).solve(
+        {"CH4": 1, "H2O": 3, "N2": 0.1}, T=1000.0, P=1.0
+    )
     assert f"{100 * res.conversion('CH4')[0]:.4g} %" in out
     assert "not a reactor design" in out
 
@@ -77,7 +82,9 @@ def test_demo_runs_and_summarises(capsys) -> None:
 
 
 def test_python_dash_m_and_console_script() -> None:
-    out = subprocess.run([sys.executable, "-m", "eqbatch", "--version"], capture_output=True, text=True, check=True)
+    out = subprocess.run(
+        [sys.executable, "-m", "eqbatch", "--version"], capture_output=True, text=True, check=True
+    )
     assert out.stdout.startswith("eqbatch ")
     out = subprocess.run(["eqbatch", "demo", "--cases", "100"], capture_output=True, text=True)
     assert out.returncode == 0 and "Random batch: 100 cases" in out.stdout

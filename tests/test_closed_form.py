@@ -3,11 +3,10 @@ independently with numpy / sympy in the test."""
 
 from __future__ import annotations
 
+import eqbatch
 import numpy as np
 import pytest
 import sympy
-
-import eqbatch
 
 
 def _root_in(coeffs: list[float], lo: float, hi: float) -> float:

@@ -4,11 +4,10 @@ every kind of bad input inside a batch."""
 
 from __future__ import annotations
 
+import eqbatch
 import numpy as np
 import pytest
 import sympy
-
-import eqbatch
 from conftest import REFORMING_REACTIONS, REFORMING_SPECIES, conservation_basis, log_residuals
 
 Status = eqbatch.Status
@@ -30,7 +29,12 @@ def test_grid_of_extreme_constants_and_pressures_all_converge() -> None:
 def test_trace_feed_beside_a_large_inert_matches_exact_quadratic() -> None:
     # A = B + C with 1e-12 mol of A beside 1e6 mol of inert at P/P0 = 0.5:
     # x^2 P / ((a - x)(a + x + I)) = K, solved exactly with sympy rationals.
-    a, inert, P, K = sympy.Rational(1, 10**12), sympy.Integer(10**6), sympy.Rational(1, 2), sympy.Rational(1, 10**15)
+    a, inert, P, K = (
+        sympy.Rational(1, 10**12),
+        sympy.Integer(10**6),
+        sympy.Rational(1, 2),
+        sympy.Rational(1, 10**15),
+    )
     x = sympy.symbols("x", positive=True)
     roots = sympy.solve(sympy.Eq(x**2 * P, K * (a - x) * (a + x + inert)), x)
     exact = [r for r in roots if 0 < r < a][0]
@@ -84,16 +88,16 @@ def test_every_kind_of_bad_case_is_marked_and_the_rest_solved(reforming) -> None
     feed = np.tile([1.0, 3.0, 0.0, 0.0, 0.0, 0.1], (n, 1))
     lnk = np.tile([2.0, 0.5], (n, 1))
     P = np.full(n, 10.0)
-    feed[1, 0] = -1.0        # negative feed
-    feed[2, 1] = np.nan      # NaN feed
-    feed[3, 1] = np.inf      # infinite feed
-    feed[4] = 0.0            # zero total
-    lnk[5, 0] = np.nan       # NaN ln K
-    lnk[6, 1] = -np.inf      # K = 0
-    P[7] = 0.0               # zero pressure
-    P[8] = -2.0              # negative pressure
-    P[9] = np.nan            # NaN pressure
-    P[10] = np.inf           # infinite pressure
+    feed[1, 0] = -1.0  # negative feed
+    feed[2, 1] = np.nan  # NaN feed
+    feed[3, 1] = np.inf  # infinite feed
+    feed[4] = 0.0  # zero total
+    lnk[5, 0] = np.nan  # NaN ln K
+    lnk[6, 1] = -np.inf  # K = 0
+    P[7] = 0.0  # zero pressure
+    P[8] = -2.0  # negative pressure
+    P[9] = np.nan  # NaN pressure
+    P[10] = np.inf  # infinite pressure
     res = reforming.solve(feed, lnK=lnk, P=P)
     bad = np.arange(1, 11)
     assert np.all(res.status[bad] == Status.INVALID_INPUT)

@@ -2,12 +2,11 @@
 
 from __future__ import annotations
 
+import eqbatch
 import numpy as np
+from conftest import REFORMING_REACTIONS, REFORMING_SPECIES, conservation_basis, log_residuals
 from hypothesis import given, settings
 from hypothesis import strategies as st
-
-import eqbatch
-from conftest import REFORMING_REACTIONS, REFORMING_SPECIES, conservation_basis, log_residuals
 
 SYSTEM = eqbatch.ReactionSystem(REFORMING_SPECIES, REFORMING_REACTIONS)
 
@@ -38,8 +37,12 @@ def test_conservation_positivity_and_residuals(feed, lnK, P) -> None:
 
 
 @settings(max_examples=100, deadline=None)
-@given(feed=st.lists(st.floats(1e-3, 10.0), min_size=5, max_size=5), lnK=st.floats(-20, 20),
-       P1=pressures, P2=pressures)
+@given(
+    feed=st.lists(st.floats(1e-3, 10.0), min_size=5, max_size=5),
+    lnK=st.floats(-20, 20),
+    P1=pressures,
+    P2=pressures,
+)
 def test_pressure_independence_when_gas_moles_are_conserved(feed, lnK, P1, P2) -> None:
     # Water-gas shift conserves gas moles: P and P0 cancel (DESIGN.md).
     system = eqbatch.ReactionSystem(["CO", "H2O", "CO2", "H2", "N2"], ["CO + H2O = CO2 + H2"])
@@ -49,8 +52,7 @@ def test_pressure_independence_when_gas_moles_are_conserved(feed, lnK, P1, P2) -
 
 
 @settings(max_examples=100, deadline=None)
-@given(lnK=st.floats(-12, 6), P=st.floats(1e-2, 1e2), factor=st.floats(1.5, 100.0),
-       inert=st.floats(0.0, 5.0))
+@given(lnK=st.floats(-12, 6), P=st.floats(1e-2, 1e2), factor=st.floats(1.5, 100.0), inert=st.floats(0.0, 5.0))
 def test_conversion_rises_with_pressure_when_gas_moles_fall(lnK, P, factor, inert) -> None:
     # Le Chatelier: 0.5 N2 + 1.5 H2 = NH3 lowers the gas moles.
     system = eqbatch.ReactionSystem(["N2", "H2", "NH3", "Ar"], ["0.5 N2 + 1.5 H2 = NH3"])

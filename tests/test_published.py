@@ -5,10 +5,9 @@ from __future__ import annotations
 
 import math
 
+import eqbatch
 import numpy as np
 import pytest
-
-import eqbatch
 from eqbatch.demo import reformer_system
 
 R_GAS = 8.314462618e-3  # kJ/(mol K), CODATA 2018

@@ -12,13 +12,12 @@
 
 from __future__ import annotations
 
+import eqbatch
 import mpmath
 import numpy as np
 import pytest
 import sympy
 from scipy.optimize import root
-
-import eqbatch
 
 
 def random_system(rng: np.random.Generator):
@@ -148,7 +147,8 @@ def _mp_newton(nu, feed, lnK, P, digits=160):
             n = amounts(x)
             total = sum(n)
             return (
-                sum(v * mpmath.log(v / total) for v in n) + total * ln_p
+                sum(v * mpmath.log(v / total) for v in n)
+                + total * ln_p
                 - sum(x[j] * lnk[j] for j in range(R))
             )
 

@@ -5,10 +5,9 @@ from __future__ import annotations
 
 import textwrap
 
+import eqbatch
 import numpy as np
 import pytest
-
-import eqbatch
 from eqbatch import parse_equation, parse_formula
 
 
@@ -20,7 +19,10 @@ def test_equation_forms() -> None:
     assert parse_equation("N2+3H2=2NH3", sp, "r") == {"N2": -1.0, "H2": -3.0, "NH3": 2.0}
     # a species on both sides keeps its net coefficient
     assert parse_equation("CH4 + 2 H2O = CO + 3 H2 + H2O", sp, "r") == {
-        "CH4": -1.0, "H2O": -1.0, "CO": 1.0, "H2": 3.0,
+        "CH4": -1.0,
+        "H2O": -1.0,
+        "CO": 1.0,
+        "H2": 3.0,
     }
 
 
@@ -70,7 +72,11 @@ def test_dependent_reactions_are_named_with_their_combination() -> None:
     with pytest.raises(eqbatch.DependentReactionsError, match=r"'overall'.*overall = smr \+ wgs"):
         eqbatch.ReactionSystem(
             ["CH4", "H2O", "CO", "H2", "CO2"],
-            {"smr": "CH4 + H2O = CO + 3 H2", "wgs": "CO + H2O = CO2 + H2", "overall": "CH4 + 2 H2O = CO2 + 4 H2"},
+            {
+                "smr": "CH4 + H2O = CO + 3 H2",
+                "wgs": "CO + H2O = CO2 + H2",
+                "overall": "CH4 + 2 H2O = CO2 + 4 H2",
+            },
         )
     with pytest.raises(eqbatch.DependentReactionsError, match="r2 = 2 r1"):
         eqbatch.ReactionSystem(["A", "B"], ["A = B", "2 A = 2 B"])
@@ -83,7 +89,8 @@ def test_reaction_that_consumes_nothing_is_rejected() -> None:
 
 def test_phases_labels_and_P0() -> None:
     system = eqbatch.ReactionSystem(
-        ["EtOH", "AcOH", "EtOAc", "H2O"], {"ester": "EtOH + AcOH = EtOAc + H2O"},
+        ["EtOH", "AcOH", "EtOAc", "H2O"],
+        {"ester": "EtOH + AcOH = EtOAc + H2O"},
         phases={"EtOH": "liquid", "AcOH": "Liquid", "EtOAc": "liquid", "H2O": "liquid"},
         P0=1.01325,
     )
@@ -116,7 +123,9 @@ def write(tmp_path, text: str):
 
 
 def test_system_file_with_constant_and_temperature_dependent_K(tmp_path) -> None:
-    path = write(tmp_path, """
+    path = write(
+        tmp_path,
+        """
         species = ["CH4", "H2O", "CO", "H2", "CO2", "N2"]
         P0 = 1.01325
         [[reactions]]
@@ -127,7 +136,8 @@ def test_system_file_with_constant_and_temperature_dependent_K(tmp_path) -> None
         label = "shift"
         equation = "CO + H2O <=> CO2 + H2"
         log10K = { a = -1.7528, b = 1910.9 }
-    """)
+    """,
+    )
     system = eqbatch.ReactionSystem.from_toml(path)
     assert system.labels == ("reforming", "shift") and system.P0 == 1.01325
     lnk = system.lnK([900.0, 1000.0])
@@ -143,12 +153,15 @@ def test_system_file_with_constant_and_temperature_dependent_K(tmp_path) -> None
 def test_K_lnK_and_log10K_in_files_are_equivalent(tmp_path) -> None:
     results = []
     for key, value in (("lnK", "1.0986122886681098"), ("K", "3.0"), ("log10K", "0.47712125471966244")):
-        path = write(tmp_path, f"""
+        path = write(
+            tmp_path,
+            f"""
             species = ["A", "B"]
             [[reactions]]
             equation = "A = B"
             {key} = {value}
-        """)
+        """,
+        )
         results.append(eqbatch.ReactionSystem.from_toml(path).solve([1.0, 0.0]).amounts)
     for r in results:
         np.testing.assert_allclose(r, [[0.25, 0.75]], rtol=1e-9)
@@ -157,15 +170,20 @@ def test_K_lnK_and_log10K_in_files_are_equivalent(tmp_path) -> None:
 @pytest.mark.parametrize(
     "text, message",
     [
-        ("species = [\"A\", \"B\"]\n", "at least one \\[\\[reactions\\]\\]"),
-        ("species = [\"A\", \"B\"]\n[[reactions]]\nlabel = \"x\"\n", "reactions\\[0\\]: missing 'equation'"),
-        ("species = [\"A\", \"B\"]\n[[reactions]]\nequation = \"A = B\"\nKp = 3\n", "unknown key\\(s\\) \\['Kp'\\]"),
-        ("species = [\"A\", \"B\"]\nspecie = 1\n", "unknown key\\(s\\) \\['specie'\\]"),
-        ("species = [\"A\", \"B\"\n", "not valid TOML"),
-        ("species = [\"A\", \"B\"]\n[[reactions]]\nequation = \"A = C\"\n", "'C' is not a species"),
-        ("species = [\"A\", \"B\"]\n[[reactions]]\nequation = \"A = B\"\nK = -1\n", "K must be positive"),
-        ("species = [\"A\", \"B\"]\n[[reactions]]\nequation = \"A = B\"\nlnK = {a = 1, f = 2}\n",
-         "unknown lnK coefficient"),
+        ('species = ["A", "B"]\n', "at least one \\[\\[reactions\\]\\]"),
+        ('species = ["A", "B"]\n[[reactions]]\nlabel = "x"\n', "reactions\\[0\\]: missing 'equation'"),
+        (
+            'species = ["A", "B"]\n[[reactions]]\nequation = "A = B"\nKp = 3\n',
+            "unknown key\\(s\\) \\['Kp'\\]",
+        ),
+        ('species = ["A", "B"]\nspecie = 1\n', "unknown key\\(s\\) \\['specie'\\]"),
+        ('species = ["A", "B"\n', "not valid TOML"),
+        ('species = ["A", "B"]\n[[reactions]]\nequation = "A = C"\n', "'C' is not a species"),
+        ('species = ["A", "B"]\n[[reactions]]\nequation = "A = B"\nK = -1\n', "K must be positive"),
+        (
+            'species = ["A", "B"]\n[[reactions]]\nequation = "A = B"\nlnK = {a = 1, f = 2}\n',
+            "unknown lnK coefficient",
+        ),
     ],
 )
 def test_bad_system_files_name_the_file_and_key(tmp_path, text: str, message: str) -> None:

@@ -63,7 +63,9 @@ def _cmd_solve(args: argparse.Namespace) -> int:
     feed = _pairs(args.feed, "--feed")
     if not feed:
         raise _UsageError("give the feed, e.g. --feed CH4=1,H2O=3")
-    k_opts = [(n, _pairs(v, "--" + n)) for n, v in (("lnK", args.lnK), ("K", args.K), ("log10K", args.log10K))]
+    k_opts = [
+        (n, _pairs(v, "--" + n)) for n, v in (("lnK", args.lnK), ("K", args.K), ("log10K", args.log10K))
+    ]
     k_given = [(n, v) for n, v in k_opts if v]
     if len(k_given) > 1:
         raise _UsageError("give only one of --lnK, --K, --log10K")
@@ -92,7 +94,8 @@ def _cmd_solve(args: argparse.Namespace) -> int:
     print()
     conv = [
         [name, f"{100 * float(res.conversion(name)[0]):.4g} %"]
-        for name in system.reactants() if feed_row[system.index(name)] > 0
+        for name in system.reactants()
+        if feed_row[system.index(name)] > 0
     ]
     if conv:
         print(_table(["reactant", "conversion"], conv))
@@ -119,8 +122,12 @@ def _parser() -> argparse.ArgumentParser:
 
     solve = sub.add_parser("solve", help="equilibrium of one case of a system file")
     solve.add_argument("system", help="system file (TOML)")
-    solve.add_argument("--feed", action="append", metavar="SPECIES=MOL[,...]",
-                       help="feed amounts, mol (repeatable; missing species are zero)")
+    solve.add_argument(
+        "--feed",
+        action="append",
+        metavar="SPECIES=MOL[,...]",
+        help="feed amounts, mol (repeatable; missing species are zero)",
+    )
     solve.add_argument("--T", type=float, metavar="KELVIN", help="temperature, for K(T) data")
     solve.add_argument("--P", type=float, metavar="BAR", help="pressure, bar (default: the system's P0)")
     solve.add_argument("--lnK", action="append", metavar="LABEL=VALUE[,...]", help="ln K per reaction")

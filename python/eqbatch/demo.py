@@ -85,8 +85,10 @@ def run(cases: int = 1_000_000, threads: int | None = None, save_system: str | N
     t0 = time.perf_counter()
     big = system.solve(reformer_feed(big_S), T=big_T, P=big_P, threads=threads)
     elapsed = time.perf_counter() - t0
-    print(f"Random batch: {cases:,} cases (700-1200 K, 1-40 bar, S/C 1.5-5) solved in "
-          f"{elapsed:.2f} s ({cases / elapsed:,.0f} cases/s): {big.summary()};")
+    print(
+        f"Random batch: {cases:,} cases (700-1200 K, 1-40 bar, S/C 1.5-5) solved in "
+        f"{elapsed:.2f} s ({cases / elapsed:,.0f} cases/s): {big.summary()};"
+    )
     print(f"median {np.median(big.iterations):.0f}, max {big.iterations.max()} Newton iterations\n")
     print(CAUTION)
     return 0 if bool(res.converged.all() and big.converged.all()) else 1

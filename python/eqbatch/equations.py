@@ -87,9 +87,7 @@ def _term_species(term: str) -> str:
     return match.group(2).strip() if match else term
 
 
-def parse_equation(
-    equation: str, species: Sequence[str], label: str
-) -> dict[str, float]:
+def parse_equation(equation: str, species: Sequence[str], label: str) -> dict[str, float]:
     """Net stoichiometric coefficients (products positive) of ``equation``.
 
     Raises
@@ -138,9 +136,7 @@ def parse_equation(
                         f"(species are {', '.join(species)})"
                     )
             if coef <= 0:
-                raise EquationSyntaxError(
-                    f"reaction {label!r}: coefficient of {name!r} must be positive"
-                )
+                raise EquationSyntaxError(f"reaction {label!r}: coefficient of {name!r} must be positive")
             net[name] = net.get(name, Fraction(0)) + sign * coef
     result = {name: float(c) for name, c in net.items() if c != 0}
     if not result:

@@ -74,8 +74,13 @@ class LnKFunction:
     def scaled(self, factor: float) -> LnKFunction:
         """The same function times ``factor`` (for log10 K data: ``LN10``)."""
         return LnKFunction(
-            self.a * factor, self.b * factor, self.c * factor, self.d * factor,
-            self.e * factor, self.T_min, self.T_max,
+            self.a * factor,
+            self.b * factor,
+            self.c * factor,
+            self.d * factor,
+            self.e * factor,
+            self.T_min,
+            self.T_max,
         )
 
     def describe(self) -> str:

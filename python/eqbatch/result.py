@@ -71,8 +71,16 @@ class EquilibriumResult:
     """
 
     __slots__ = (
-        "system", "amounts", "extents", "mole_fractions", "status", "iterations",
-        "_feed", "_P", "_T", "_lnK",
+        "system",
+        "amounts",
+        "extents",
+        "mole_fractions",
+        "status",
+        "iterations",
+        "_feed",
+        "_P",
+        "_T",
+        "_lnK",
     )
 
     def __init__(
@@ -139,7 +147,8 @@ class EquilibriumResult:
             text += f" after {int(self.iterations[case])} iterations"
             feed = self.feed[case]
             zero = [
-                name for k, name in enumerate(self.system.species)
+                name
+                for k, name in enumerate(self.system.species)
                 if feed[k] == 0 and self.amounts[case, k] == 0 and self.system._reactive[k]
             ]
             if zero:
@@ -149,9 +158,10 @@ class EquilibriumResult:
     def summary(self) -> str:
         """Counts of cases by status, e.g. ``'998 converged, 2 invalid input'``."""
         codes, counts = np.unique(self.status, return_counts=True)
-        return ", ".join(
-            f"{c} {Status(int(k)).name.lower().replace('_', ' ')}" for k, c in zip(codes, counts)
-        ) or "no cases"
+        return (
+            ", ".join(f"{c} {Status(int(k)).name.lower().replace('_', ' ')}" for k, c in zip(codes, counts))
+            or "no cases"
+        )
 
     def conversion(self, species: str) -> np.ndarray:
         """``(N,)`` fractional conversion ``(feed - n) / feed`` of a species;

@@ -6,7 +6,7 @@ import math
 import os
 import re
 from collections.abc import Callable, Iterable, Mapping, Sequence
-from typing import Any, Union
+from typing import Any
 
 import numpy as np
 
@@ -26,7 +26,7 @@ from eqbatch.result import EquilibriumResult
 #: Phase names accepted in ``phases=`` and system files, with their core codes.
 PHASES = {"gas": 0, "liquid": 1}
 
-KData = Union[float, LnKFunction]
+KData = float | LnKFunction
 ArrayLike = Any
 
 _LABEL = re.compile(r"^[A-Za-z_][A-Za-z0-9_.\-]*$")
@@ -175,7 +175,8 @@ class ReactionSystem:
         for name, phase in (phases or {}).items():
             if name not in self._index:
                 raise UnknownSpeciesError(
-                    f"phases: {name!r} is not a species of this system (species are {', '.join(self.species)})"
+                    f"phases: {name!r} is not a species of this system "
+                    f"(species are {', '.join(self.species)})"
                 )
             key = str(phase).strip().lower()
             if key not in PHASES:
@@ -231,9 +232,7 @@ class ReactionSystem:
         else:
             values = list(lnK)
             if len(values) != len(self.labels):
-                raise SystemDefinitionError(
-                    f"lnK has {len(values)} entries for {len(self.labels)} reactions"
-                )
+                raise SystemDefinitionError(f"lnK has {len(values)} entries for {len(self.labels)} reactions")
             items = list(zip(self.labels, values))
         out: dict[str, KData] = {}
         for label, value in items:
@@ -459,8 +458,12 @@ class ReactionSystem:
             if not p_arr.flags.c_contiguous:
                 p_arr = np.ascontiguousarray(p_arr)
         n = max(feed_arr.shape[0], lnk_arr.shape[0], p_arr.shape[0], 1 if T_arr is None else T_arr.shape[0])
-        for name, rows in (("feed", feed_arr.shape[0]), ("equilibrium constants", lnk_arr.shape[0]),
-                           ("P", p_arr.shape[0]), ("T", n if T_arr is None else T_arr.shape[0])):
+        for name, rows in (
+            ("feed", feed_arr.shape[0]),
+            ("equilibrium constants", lnk_arr.shape[0]),
+            ("P", p_arr.shape[0]),
+            ("T", n if T_arr is None else T_arr.shape[0]),
+        ):
             if rows != n and rows != 1:
                 raise CaseInputError(f"{name} has {rows} cases but other inputs have {n}; give 1 or {n}")
         if invalid == "raise":
@@ -480,11 +483,15 @@ class ReactionSystem:
 
     def _raise_invalid(self, feed: np.ndarray, lnk: np.ndarray, P: np.ndarray, n: int) -> None:
         checks: list[tuple[np.ndarray, Callable[[int], str]]] = [
-            (~np.all(np.isfinite(feed) & (feed >= 0), axis=1),
-             lambda i: f"the feed has a negative or non-finite amount: {feed[i].tolist()}"),
+            (
+                ~np.all(np.isfinite(feed) & (feed >= 0), axis=1),
+                lambda i: f"the feed has a negative or non-finite amount: {feed[i].tolist()}",
+            ),
             (~(feed.sum(axis=1) > 0), lambda i: "the total feed is zero"),
-            (~np.all(np.isfinite(lnk), axis=1),
-             lambda i: f"ln K is not finite: {dict(zip(self.labels, lnk[i].tolist()))}"),
+            (
+                ~np.all(np.isfinite(lnk), axis=1),
+                lambda i: f"ln K is not finite: {dict(zip(self.labels, lnk[i].tolist()))}",
+            ),
             (~(np.isfinite(P) & (P > 0)), lambda i: f"the pressure {P[i]} bar is not positive and finite"),
         ]
         first = None

@@ -64,7 +64,7 @@ def load_system(path: str | os.PathLike[str]):  # -> ReactionSystem
         raise fail(f"unknown key(s) {sorted(unknown)}; valid are {sorted(_TOP_KEYS)}")
     species = doc.get("species")
     if not isinstance(species, list) or not all(isinstance(s, str) for s in species):
-        raise fail("'species' must be an array of names, e.g. species = [\"CH4\", \"H2O\"]")
+        raise fail('\'species\' must be an array of names, e.g. species = ["CH4", "H2O"]')
     reactions = doc.get("reactions")
     if not isinstance(reactions, list) or not reactions:
         raise fail("needs at least one [[reactions]] table with an 'equation'")

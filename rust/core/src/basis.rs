@@ -136,7 +136,7 @@ mod tests {
             &nu, 2, 5, &amounts, &mut order, &mut b, &mut t, &mut piv, &mut of
         ));
         assert_eq!(piv, [0, 2]); // CH4 then CO
-        // each pivot column is a unit vector
+                                 // each pivot column is a unit vector
         assert_eq!((b[0], b[5]), (1.0, 0.0));
         assert_eq!((b[2], b[7]), (0.0, 1.0));
         // basis_stoich == transform * nu

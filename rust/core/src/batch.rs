@@ -105,7 +105,10 @@ fn feed_is_valid(feed: &[f64]) -> bool {
 }
 
 fn case_is_valid(feed: &[f64], ln_k: &[f64], pressure: f64) -> bool {
-    feed_is_valid(feed) && ln_k.iter().all(|v| v.is_finite()) && pressure > 0.0 && pressure.is_finite()
+    feed_is_valid(feed)
+        && ln_k.iter().all(|v| v.is_finite())
+        && pressure > 0.0
+        && pressure.is_finite()
 }
 
 type FaceTable = HashMap<Vec<u64>, Result<Face, FaceError>>;
@@ -145,7 +148,10 @@ pub fn solve_batch(
     let s = system.n_species();
     let r = system.n_reactions();
     if !(options.tol > 0.0 && options.tol.is_finite()) {
-        return Err(CoreError::BadOption(format!("tol must be positive, got {}", options.tol)));
+        return Err(CoreError::BadOption(format!(
+            "tol must be positive, got {}",
+            options.tol
+        )));
     }
     let feed_rows = Rows::check("feed", inputs.feed.len(), s, n)?;
     let k_rows = Rows::check("ln_k", inputs.ln_k.len(), r, n)?;
@@ -157,11 +163,16 @@ pub fn solve_batch(
         ("status", outputs.status.len(), 1),
     ] {
         if len != n * width {
-            return Err(CoreError::Shape(format!("{name} output has {len} values, expected {}", n * width)));
+            return Err(CoreError::Shape(format!(
+                "{name} output has {len} values, expected {}",
+                n * width
+            )));
         }
     }
     if outputs.iterations.len() != n {
-        return Err(CoreError::Shape("iterations output has the wrong length".into()));
+        return Err(CoreError::Shape(
+            "iterations output has the wrong length".into(),
+        ));
     }
     if n == 0 {
         return Ok(());
@@ -278,7 +289,15 @@ impl ChunkState {
         }
         zero_pattern(feed, &mut self.key);
         match faces.get(&self.key[..]) {
-            Some(Ok(face)) => solve_case(system, face, feed, ln_k, pressure, options, &mut self.workspace),
+            Some(Ok(face)) => solve_case(
+                system,
+                face,
+                feed,
+                ln_k,
+                pressure,
+                options,
+                &mut self.workspace,
+            ),
             _ => (Status::Infeasible, 0),
         }
     }
@@ -298,14 +317,26 @@ mod tests {
         System::new(nu, 2, 6, vec![Phase::Gas; 6], 1.0).unwrap()
     }
 
-    fn run(sys: &System, n: usize, feed: &[f64], ln_k: &[f64], p: &[f64], threads: Option<usize>) -> (Vec<f64>, Vec<u8>) {
+    fn run(
+        sys: &System,
+        n: usize,
+        feed: &[f64],
+        ln_k: &[f64],
+        p: &[f64],
+        threads: Option<usize>,
+    ) -> (Vec<f64>, Vec<u8>) {
         let (s, r) = (sys.n_species(), sys.n_reactions());
         let mut amounts = vec![0.0; n * s];
         let mut extents = vec![0.0; n * r];
         let mut y = vec![0.0; n * s];
         let mut st = vec![0u8; n];
         let mut it = vec![0u32; n];
-        let inputs = BatchInputs { n_cases: n, feed, ln_k, pressure: p };
+        let inputs = BatchInputs {
+            n_cases: n,
+            feed,
+            ln_k,
+            pressure: p,
+        };
         let mut out = BatchOutputs {
             amounts: &mut amounts,
             extents: &mut extents,
@@ -365,8 +396,14 @@ mod tests {
         let two = run(&sys, n, &feed, &ln_k, &p, Some(2));
         let all = run(&sys, n, &feed, &ln_k, &p, None);
         assert!(one.1.iter().all(|&s| s == 0));
-        assert_eq!(one.0.iter().map(|v| v.to_bits()).collect::<Vec<_>>(), two.0.iter().map(|v| v.to_bits()).collect::<Vec<_>>());
-        assert_eq!(one.0.iter().map(|v| v.to_bits()).collect::<Vec<_>>(), all.0.iter().map(|v| v.to_bits()).collect::<Vec<_>>());
+        assert_eq!(
+            one.0.iter().map(|v| v.to_bits()).collect::<Vec<_>>(),
+            two.0.iter().map(|v| v.to_bits()).collect::<Vec<_>>()
+        );
+        assert_eq!(
+            one.0.iter().map(|v| v.to_bits()).collect::<Vec<_>>(),
+            all.0.iter().map(|v| v.to_bits()).collect::<Vec<_>>()
+        );
     }
 
     #[test]
@@ -377,8 +414,22 @@ mod tests {
         let mut y = vec![0.0; 6];
         let mut st = vec![0u8; 1];
         let mut it = vec![0u32; 1];
-        let inputs = BatchInputs { n_cases: 1, feed: &[1.0; 5], ln_k: &[0.0; 2], pressure: &[1.0] };
-        let mut out = BatchOutputs { amounts: &mut a, extents: &mut e, mole_fractions: &mut y, status: &mut st, iterations: &mut it };
-        assert!(matches!(solve_batch(&sys, &inputs, &mut out, &SolveOptions::default(), None), Err(CoreError::Shape(_))));
+        let inputs = BatchInputs {
+            n_cases: 1,
+            feed: &[1.0; 5],
+            ln_k: &[0.0; 2],
+            pressure: &[1.0],
+        };
+        let mut out = BatchOutputs {
+            amounts: &mut a,
+            extents: &mut e,
+            mole_fractions: &mut y,
+            status: &mut st,
+            iterations: &mut it,
+        };
+        assert!(matches!(
+            solve_batch(&sys, &inputs, &mut out, &SolveOptions::default(), None),
+            Err(CoreError::Shape(_))
+        ));
     }
 }

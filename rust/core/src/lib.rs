@@ -12,6 +12,10 @@
 //! * [`batch`]: the parallel batch driver;
 //! * [`lp`], [`linalg`]: the small numerical kernels they share.
 
+// Numerical kernels index several parallel arrays by the same species or
+// reaction number; iterator chains would hide that correspondence.
+#![allow(clippy::needless_range_loop)]
+
 pub mod basis;
 pub mod batch;
 pub mod error;

@@ -57,7 +57,7 @@ fn cholesky_in_place(h: &mut [f64], n: usize, shift: f64) -> bool {
         for k in 0..j {
             diag -= h[j * n + k] * h[j * n + k];
         }
-        if !(diag > 1e-14) {
+        if diag.is_nan() || diag <= 1e-14 {
             return false;
         }
         let ljj = diag.sqrt();

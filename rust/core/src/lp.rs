@@ -130,7 +130,10 @@ mod tests {
     fn detects_unbounded_objective() {
         // max x s.t. -x + y <= 1: x can grow forever.
         let a = [-1.0, 1.0];
-        assert_eq!(maximize(&a, &[1.0], &[1.0, 0.0], 1, 2), LpOutcome::Unbounded);
+        assert_eq!(
+            maximize(&a, &[1.0], &[1.0, 0.0], 1, 2),
+            LpOutcome::Unbounded
+        );
     }
 
     #[test]

@@ -280,8 +280,8 @@ pub fn solve_case(
             let sp = ws.pivots[j];
             // At the float64 floor and still too abundant for equilibrium:
             // hold it there (see FLOOR_SHARE).
-            ws.frozen[j] = res > 0.0
-                && ws.amounts[sp] <= floor_amount(totals[phases[sp].index()]) * 1.000_001;
+            ws.frozen[j] =
+                res > 0.0 && ws.amounts[sp] <= floor_amount(totals[phases[sp].index()]) * 1.000_001;
             if !ws.frozen[j] {
                 worst = worst.max(res.abs());
             }
@@ -352,14 +352,16 @@ pub fn solve_case(
                 }
             }
         }
-        if !(slope < 0.0) {
+        if slope.is_nan() || slope >= 0.0 {
             return (Status::Stalled, iterations);
         }
         for i in 0..s {
             if ws.pivot_of[i] != usize::MAX && ws.on_log_path[ws.pivot_of[i]] {
                 continue;
             }
-            let lin: f64 = (0..dim).map(|j| ws.basis_stoich[j * s + i] * ws.step[j]).sum();
+            let lin: f64 = (0..dim)
+                .map(|j| ws.basis_stoich[j * s + i] * ws.step[j])
+                .sum();
             if lin < 0.0 {
                 alpha_max = alpha_max.min(TO_BOUNDARY * ws.amounts[i] / -lin);
             }
@@ -448,13 +450,27 @@ mod tests {
     use crate::face::analyse;
     use crate::system::Phase;
 
-    fn solve(nu: Vec<f64>, r: usize, feed: &[f64], ln_k: &[f64], p: f64) -> (Vec<f64>, Status, u32) {
+    fn solve(
+        nu: Vec<f64>,
+        r: usize,
+        feed: &[f64],
+        ln_k: &[f64],
+        p: f64,
+    ) -> (Vec<f64>, Status, u32) {
         let s = feed.len();
         let sys = System::new(nu, r, s, vec![Phase::Gas; s], 1.0).unwrap();
         let zero: Vec<bool> = feed.iter().map(|&v| v == 0.0).collect();
         let face = analyse(&sys, &zero).unwrap();
         let mut ws = Workspace::new(&sys);
-        let (st, it) = solve_case(&sys, &face, feed, ln_k, p, &SolveOptions::default(), &mut ws);
+        let (st, it) = solve_case(
+            &sys,
+            &face,
+            feed,
+            ln_k,
+            p,
+            &SolveOptions::default(),
+            &mut ws,
+        );
         (ws.amounts().to_vec(), st, it)
     }
 
@@ -486,9 +502,16 @@ mod tests {
         for &ln_k in &[200.0, -200.0] {
             let (n, st, it) = solve(vec![-1.0, 1.0], 1, &[1.0, 0.0], &[ln_k], 1.0);
             assert_eq!(st, Status::Converged);
-            let (minor, major) = if ln_k > 0.0 { (n[0], n[1]) } else { (n[1], n[0]) };
+            let (minor, major) = if ln_k > 0.0 {
+                (n[0], n[1])
+            } else {
+                (n[1], n[0])
+            };
             let expect = (-200.0_f64).exp() / (1.0 + (-200.0_f64).exp());
-            assert!(((minor - expect) / expect).abs() < 1e-9, "{minor:e} vs {expect:e}");
+            assert!(
+                ((minor - expect) / expect).abs() < 1e-9,
+                "{minor:e} vs {expect:e}"
+            );
             assert!((major - 1.0).abs() < 1e-15);
             assert!(it < 30, "{it} iterations");
         }

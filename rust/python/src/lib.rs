@@ -10,7 +10,10 @@ use pyo3::prelude::*;
 #[pymodule]
 fn _core(m: &Bound<'_, PyModule>) -> PyResult<()> {
     m.add_class::<system::PySystem>()?;
-    m.add("StoichiometryError", m.py().get_type::<error::StoichiometryError>())?;
+    m.add(
+        "StoichiometryError",
+        m.py().get_type::<error::StoichiometryError>(),
+    )?;
     m.add("__version__", env!("CARGO_PKG_VERSION"))?;
     Ok(())
 }

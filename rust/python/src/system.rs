@@ -38,7 +38,14 @@ impl PySystem {
                 other => Err(PyValueError::new_err(format!("unknown phase code {other}"))),
             })
             .collect::<PyResult<Vec<_>>>()?;
-        let inner = System::new(stoich.as_array().iter().copied().collect(), r, s, phases, p0).map_err(to_py)?;
+        let inner = System::new(
+            stoich.as_array().iter().copied().collect(),
+            r,
+            s,
+            phases,
+            p0,
+        )
+        .map_err(to_py)?;
         Ok(PySystem { inner })
     }
 

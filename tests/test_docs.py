@@ -1,0 +1,29 @@
+"""The examples in the README and in the docstrings run and say what they show."""
+
+from __future__ import annotations
+
+import doctest
+import importlib
+import re
+from pathlib import Path
+
+import pytest
+
+README = Path(__file__).resolve().parents[1] / "README.md"
+MODULES = ["eqbatch", "eqbatch.system", "eqbatch.equations", "eqbatch.kdata"]
+
+
+@pytest.mark.parametrize("name", MODULES)
+def test_docstring_examples(name: str) -> None:
+    module = importlib.import_module(name)
+    failed, attempted = doctest.testmod(module, optionflags=doctest.ELLIPSIS)
+    assert attempted > 0 and failed == 0
+
+
+def test_readme_python_blocks_run() -> None:
+    blocks = re.findall(r"```python\n(.*?)```", README.read_text(), flags=re.S)
+    assert blocks
+    for block in blocks:
+        namespace: dict = {}
+        exec(compile(block, str(README), "exec"), namespace)
+        assert namespace["res"].converged.all()
