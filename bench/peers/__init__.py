@@ -1,0 +1,2 @@
+"""Peer implementations raced against eqbatch: what a careful engineer
+writes today when many equilibria are needed."""
