@@ -132,3 +132,14 @@ def test_random_zero_patterns_are_solved_on_their_face() -> None:
     for k in rng.choice(n, 200, replace=False):
         r = log_residuals(system, res.amounts[k], lnk[k], P[k])
         assert np.all(np.abs(r[np.isfinite(r)]) < 1e-8)
+
+
+@pytest.mark.parametrize("tiny", [5e-324, 1e-310, 1e-300])
+def test_subnormal_amounts_in_the_feed(tiny: float) -> None:
+    # A subnormal inert, or a subnormal reactant, must not poison the case: the
+    # inert only dilutes, and a reactant below 1e-300 mol counts as absent.
+    system = eqbatch.ReactionSystem(["N2", "H2", "NH3", "Ar"], ["0.5 N2 + 1.5 H2 = NH3"])
+    clean = system.solve([1.0, 3.0, 0.0, 0.0], lnK=[0.0])
+    res = system.solve([[1.0, 3.0, 0.0, tiny], [1.0, 3.0, tiny, 0.0]], lnK=[0.0])
+    assert np.all(res.converged)
+    np.testing.assert_allclose(res.amounts[:, :3], np.vstack([clean.amounts[0, :3]] * 2), rtol=1e-9)

@@ -6,7 +6,10 @@ use std::time::Instant;
 
 fn main() {
     let mut args = std::env::args().skip(1);
-    let n: usize = args.next().and_then(|a| a.parse().ok()).unwrap_or(1_000_000);
+    let n: usize = args
+        .next()
+        .and_then(|a| a.parse().ok())
+        .unwrap_or(1_000_000);
     let threads: Option<usize> = args.next().and_then(|a| a.parse().ok());
     // CH4 H2O CO H2 CO2 N2
     let nu = vec![
@@ -32,7 +35,12 @@ fn main() {
     let mut fractions = vec![0.0; n * 6];
     let mut status = vec![0u8; n];
     let mut iterations = vec![0u32; n];
-    let inputs = BatchInputs { n_cases: n, feed: &feed, ln_k: &ln_k, pressure: &pressure };
+    let inputs = BatchInputs {
+        n_cases: n,
+        feed: &feed,
+        ln_k: &ln_k,
+        pressure: &pressure,
+    };
     let mut outputs = BatchOutputs {
         amounts: &mut amounts,
         extents: &mut extents,
@@ -41,7 +49,14 @@ fn main() {
         iterations: &mut iterations,
     };
     let start = Instant::now();
-    solve_batch(&system, &inputs, &mut outputs, &SolveOptions::default(), threads).expect("batch");
+    solve_batch(
+        &system,
+        &inputs,
+        &mut outputs,
+        &SolveOptions::default(),
+        threads,
+    )
+    .expect("batch");
     let secs = start.elapsed().as_secs_f64();
     let converged = status.iter().filter(|&&s| s == 0).count();
     let total_iter: u64 = iterations.iter().map(|&i| i as u64).sum();

@@ -15,21 +15,38 @@
 /// Relative size below which an eliminated coefficient counts as zero.
 const ELIM_TOL: f64 = 1e-9;
 
+/// Sort species indices by amount, least abundant first (stable insertion
+/// sort: S is small and the order barely changes between iterations, so this
+/// is close to linear and allocates nothing). Returns whether the order
+/// differs from what `order` held before.
+pub fn sort_by_amount(amounts: &[f64], order: &mut [usize]) -> bool {
+    let s = order.len();
+    let mut changed = false;
+    for k in 1..s {
+        let mut m = k;
+        while m > 0 && amounts[order[m - 1]] > amounts[order[m]] {
+            order.swap(m - 1, m);
+            m -= 1;
+            changed = true;
+        }
+    }
+    changed
+}
+
 /// Rewrite the face reactions `face_stoich` (`dim x S`) by Gauss-Jordan
-/// elimination, choosing as pivot columns the least abundant species first.
+/// elimination, taking as pivot columns the species in `order` (least
+/// abundant first, see [`sort_by_amount`]).
 ///
 /// On return `basis_stoich = transform * face_stoich` has the unit vector
-/// `e_j` in column `pivots[j]`, `pivot_of[i]` is the row whose pivot is
-/// species `i` (or `usize::MAX` for components), and `order` holds the
-/// species sorted by amount. Returns `false` if fewer than `dim` independent
-/// pivots were found (cannot happen for a valid face).
+/// `e_j` in column `pivots[j]`, and `pivot_of[i]` is the row whose pivot is
+/// species `i` (or `usize::MAX` for components). Returns `false` if fewer
+/// than `dim` independent pivots were found (cannot happen for a valid face).
 #[allow(clippy::too_many_arguments)]
 pub fn choose_basis(
     face_stoich: &[f64],
     dim: usize,
     n_species: usize,
-    amounts: &[f64],
-    order: &mut [usize],
+    order: &[usize],
     basis_stoich: &mut [f64],
     transform: &mut [f64],
     pivots: &mut [usize],
@@ -42,18 +59,6 @@ pub fn choose_basis(
         transform[j * dim + j] = 1.0;
     }
     pivot_of.fill(usize::MAX);
-    for (k, slot) in order.iter_mut().enumerate() {
-        *slot = k;
-    }
-    // Stable insertion sort: S is small and the order barely changes between
-    // iterations, so this is close to linear and allocates nothing.
-    for k in 1..s {
-        let mut m = k;
-        while m > 0 && amounts[order[m - 1]] > amounts[order[m]] {
-            order.swap(m - 1, m);
-            m -= 1;
-        }
-    }
     let mut scale = 0.0_f64;
     for v in &face_stoich[..dim * s] {
         scale = scale.max(v.abs());
@@ -131,9 +136,12 @@ mod tests {
         let nu = [-1.0, -1.0, 1.0, 3.0, 0.0, 0.0, -1.0, -1.0, 1.0, 1.0];
         let amounts = [1e-30, 2.0, 1e-3, 3.0, 0.9];
         let (mut order, mut b, mut t, mut piv, mut of) =
-            ([0; 5], [0.0; 10], [0.0; 4], [0; 2], [0; 5]);
+            ([0, 1, 2, 3, 4], [0.0; 10], [0.0; 4], [0; 2], [0; 5]);
+        assert!(sort_by_amount(&amounts, &mut order));
+        assert!(!sort_by_amount(&amounts, &mut order));
+        assert_eq!(order, [0, 2, 4, 1, 3]);
         assert!(choose_basis(
-            &nu, 2, 5, &amounts, &mut order, &mut b, &mut t, &mut piv, &mut of
+            &nu, 2, 5, &order, &mut b, &mut t, &mut piv, &mut of
         ));
         assert_eq!(piv, [0, 2]); // CH4 then CO
                                  // each pivot column is a unit vector

@@ -12,7 +12,7 @@ use rayon::prelude::*;
 
 use crate::error::CoreError;
 use crate::face::{analyse, Face, FaceError};
-use crate::solver::{solve_case, SolveOptions, Workspace};
+use crate::solver::{kernel_for, solve_case, FixedKernel, SolveOptions, Workspace};
 use crate::status::Status;
 use crate::system::{System, N_PHASES};
 
@@ -84,10 +84,14 @@ fn pattern_words(n_species: usize) -> usize {
     n_species.div_ceil(64).max(1)
 }
 
+/// Feeds below this are indistinguishable from zero in float64 (their
+/// reciprocal overflows): they count as zero in the reachability analysis.
+pub const TINY_FEED: f64 = 1e-300;
+
 fn zero_pattern(feed: &[f64], key: &mut [u64]) {
     key.fill(0);
     for (i, &v) in feed.iter().enumerate() {
-        if v == 0.0 {
+        if v < TINY_FEED {
             key[i / 64] |= 1 << (i % 64);
         }
     }
@@ -126,7 +130,7 @@ fn faces_for(system: &System, inputs: &BatchInputs, rows: Rows) -> FaceTable {
         }
         zero_pattern(feed, &mut key);
         if !table.contains_key(&key[..]) {
-            let zero: Vec<bool> = feed.iter().map(|&v| v == 0.0).collect();
+            let zero: Vec<bool> = feed.iter().map(|&v| v < TINY_FEED).collect();
             table.insert(key.clone(), analyse(system, &zero));
         }
     }
@@ -178,6 +182,7 @@ pub fn solve_batch(
         return Ok(());
     }
     let faces = faces_for(system, inputs, feed_rows);
+    let kernel = kernel_for(r, s);
 
     let run_chunk = |ws: &mut ChunkState,
                      chunk: usize,
@@ -194,7 +199,9 @@ pub fn solve_batch(
             let amounts = &mut amounts[local * s..(local + 1) * s];
             let extents = &mut extents[local * r..(local + 1) * r];
             let fractions = &mut fractions[local * s..(local + 1) * s];
-            let (st, it) = ws.solve(system, &faces, feed, ln_k, pressure, options);
+            let (st, it) = ws.solve(
+                system, &faces, feed, ln_k, pressure, options, kernel, amounts, extents,
+            );
             status[local] = st as u8;
             iterations[local] = it;
             if st == Status::InvalidInput || st == Status::Infeasible {
@@ -203,8 +210,6 @@ pub fn solve_batch(
                 fractions.fill(f64::NAN);
                 continue;
             }
-            amounts.copy_from_slice(ws.workspace.amounts());
-            extents.copy_from_slice(ws.workspace.extents());
             let mut totals = [0.0; N_PHASES];
             for (i, phase) in system.phases().iter().enumerate() {
                 totals[phase.index()] += amounts[i];
@@ -275,6 +280,7 @@ impl ChunkState {
         }
     }
 
+    #[allow(clippy::too_many_arguments)]
     fn solve(
         &mut self,
         system: &System,
@@ -283,21 +289,32 @@ impl ChunkState {
         ln_k: &[f64],
         pressure: f64,
         options: &SolveOptions,
+        kernel: Option<FixedKernel>,
+        amounts: &mut [f64],
+        extents: &mut [f64],
     ) -> (Status, u32) {
         if !case_is_valid(feed, ln_k, pressure) {
             return (Status::InvalidInput, 0);
         }
         zero_pattern(feed, &mut self.key);
         match faces.get(&self.key[..]) {
-            Some(Ok(face)) => solve_case(
-                system,
-                face,
-                feed,
-                ln_k,
-                pressure,
-                options,
-                &mut self.workspace,
-            ),
+            Some(Ok(face)) => match kernel {
+                // Specialised kernels run on full faces only (no unreachable species).
+                Some(kernel) if face.dim == system.n_reactions() => kernel(
+                    system, face, feed, ln_k, pressure, options, amounts, extents,
+                ),
+                _ => solve_case(
+                    system,
+                    face,
+                    feed,
+                    ln_k,
+                    pressure,
+                    options,
+                    &mut self.workspace,
+                    amounts,
+                    extents,
+                ),
+            },
             _ => (Status::Infeasible, 0),
         }
     }
