@@ -19,6 +19,7 @@ const ELIM_TOL: f64 = 1e-9;
 /// sort: S is small and the order barely changes between iterations, so this
 /// is close to linear and allocates nothing). Returns whether the order
 /// differs from what `order` held before.
+#[inline(always)]
 pub fn sort_by_amount(amounts: &[f64], order: &mut [usize]) -> bool {
     let s = order.len();
     let mut changed = false;
@@ -42,6 +43,7 @@ pub fn sort_by_amount(amounts: &[f64], order: &mut [usize]) -> bool {
 /// species `i` (or `usize::MAX` for components). Returns `false` if fewer
 /// than `dim` independent pivots were found (cannot happen for a valid face).
 #[allow(clippy::too_many_arguments)]
+#[inline(always)]
 pub fn choose_basis(
     face_stoich: &[f64],
     dim: usize,

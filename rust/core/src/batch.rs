@@ -14,7 +14,7 @@ use crate::error::CoreError;
 use crate::face::{analyse, Face, FaceError};
 use crate::solver::{kernel_for, solve_case, FixedKernel, SolveOptions, Workspace};
 use crate::status::Status;
-use crate::system::{System, N_PHASES};
+use crate::system::{Phase, System, N_PHASES};
 
 /// Cases per parallel task: large enough to amortise scheduling, small
 /// enough to balance cases of uneven cost.
@@ -122,13 +122,18 @@ fn faces_for(system: &System, inputs: &BatchInputs, rows: Rows) -> FaceTable {
     let s = system.n_species();
     let mut table = FaceTable::new();
     let mut key = vec![0u64; pattern_words(s)];
+    let mut previous = key.clone();
     let n_rows = if rows.broadcast { 1 } else { inputs.n_cases };
     for case in 0..n_rows {
         let feed = rows.row(inputs.feed, case);
         if !feed_is_valid(feed) {
             continue;
         }
-        zero_pattern(feed, &mut key);
+        zero_pattern(feed, &mut previous);
+        if previous == key && !table.is_empty() {
+            continue; // same pattern as the case before: no lookup needed
+        }
+        key.copy_from_slice(&previous);
         if !table.contains_key(&key[..]) {
             let zero: Vec<bool> = feed.iter().map(|&v| v < TINY_FEED).collect();
             table.insert(key.clone(), analyse(system, &zero));
@@ -182,7 +187,8 @@ pub fn solve_batch(
         return Ok(());
     }
     let faces = faces_for(system, inputs, feed_rows);
-    let kernel = kernel_for(r, s);
+    let gas_only = system.phases().iter().all(|&p| p == Phase::Gas);
+    let kernel = kernel_for(r, s, gas_only);
 
     let run_chunk = |ws: &mut ChunkState,
                      chunk: usize,

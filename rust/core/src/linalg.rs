@@ -1,6 +1,69 @@
 //! Small dense linear algebra: the sizes here are the number of reactions
 //! (a few to a few dozen), so straightforward loops beat any BLAS call.
 
+/// Solve `H x = rhs` for a symmetric positive definite `H` (`n x n`,
+/// row-major, overwritten; only its upper triangle and diagonal are read)
+/// by a square-root-free `L D L^T` factorisation, falling back to
+/// [`solve_spd_scaled`] when a pivot is not clearly positive.
+///
+/// Like Cholesky, `L D L^T` without pivoting is invariant under symmetric
+/// diagonal scaling, so the badly scaled Hessians of trace species (diagonal
+/// entries 1e80 apart) lose nothing; the pivot test is relative to each
+/// diagonal entry for the same reason. It needs no square roots, which for
+/// the two- and three-reaction systems that dominate batch work is most of
+/// the cost of the solve. `scale` is caller-provided scratch of length `n`.
+#[inline(always)]
+pub fn solve_spd(h: &mut [f64], rhs: &mut [f64], scale: &mut [f64], n: usize) -> bool {
+    for i in 0..n {
+        scale[i] = h[i * n + i];
+    }
+    let mut ok = true;
+    for j in 0..n {
+        let mut d = scale[j];
+        for k in 0..j {
+            let l = h[j * n + k];
+            d -= l * l * h[k * n + k];
+        }
+        if d.is_nan() || d <= 1e-14 * scale[j] || !d.is_finite() {
+            ok = false;
+            break;
+        }
+        h[j * n + j] = d;
+        let inv = 1.0 / d;
+        for i in j + 1..n {
+            let mut v = h[j * n + i]; // A[i][j] from the upper triangle
+            for k in 0..j {
+                v -= h[i * n + k] * h[j * n + k] * h[k * n + k];
+            }
+            h[i * n + j] = v * inv;
+        }
+    }
+    if !ok {
+        for i in 0..n {
+            h[i * n + i] = scale[i];
+        }
+        return solve_spd_scaled(h, rhs, scale, n);
+    }
+    for i in 0..n {
+        let mut v = rhs[i];
+        for k in 0..i {
+            v -= h[i * n + k] * rhs[k];
+        }
+        rhs[i] = v;
+    }
+    for i in 0..n {
+        rhs[i] /= h[i * n + i];
+    }
+    for i in (0..n).rev() {
+        let mut v = rhs[i];
+        for k in i + 1..n {
+            v -= h[k * n + i] * rhs[k];
+        }
+        rhs[i] = v;
+    }
+    rhs.iter().all(|v| v.is_finite())
+}
+
 /// Solve `H x = rhs` for a symmetric positive (semi-)definite `H` (`n x n`,
 /// row-major, overwritten) by Cholesky factorisation after symmetric diagonal
 /// scaling `D H D` with `D = diag(H)^-1/2`.
@@ -15,6 +78,7 @@
 /// still yields a descent direction. Returns `false` only when every shift
 /// fails or the input is not finite. `scale` is caller-provided scratch of
 /// length `n`.
+#[inline(always)]
 pub fn solve_spd_scaled(h: &mut [f64], rhs: &mut [f64], scale: &mut [f64], n: usize) -> bool {
     for i in 0..n {
         let d = h[i * n + i];
@@ -49,6 +113,7 @@ pub fn solve_spd_scaled(h: &mut [f64], rhs: &mut [f64], scale: &mut [f64], n: us
 /// diagonal) and writing `L` strictly below the diagonal, with the diagonal of
 /// `L` kept in the diagonal slot. The upper triangle is left intact. The
 /// diagonal of `A` is 1 after scaling, so it is recovered as `1` on retry.
+#[inline(always)]
 fn cholesky_in_place(h: &mut [f64], n: usize, shift: f64) -> bool {
     for j in 0..n {
         // Scaled diagonal is exactly 1 (up to rounding), independent of
@@ -73,6 +138,7 @@ fn cholesky_in_place(h: &mut [f64], n: usize, shift: f64) -> bool {
     true
 }
 
+#[inline(always)]
 fn forward_back(l: &[f64], x: &mut [f64], n: usize) {
     for i in 0..n {
         let mut s = x[i];
@@ -169,6 +235,38 @@ mod tests {
         for i in 0..3 {
             assert!(((rhs[i] - x_true[i]) / x_true[i]).abs() < 1e-13, "{rhs:?}");
         }
+    }
+
+    #[test]
+    fn ldl_and_scaled_cholesky_agree_on_badly_scaled_systems() {
+        let d = [1e30, 1.0, 1e-30];
+        let a = [2.0, 0.5, 0.1, 0.5, 3.0, 0.2, 0.1, 0.2, 1.5];
+        let x_true = [1e-30, 2.0, -3e30];
+        let mut h = [0.0; 9];
+        for i in 0..3 {
+            for j in 0..3 {
+                h[i * 3 + j] = d[i] * a[i * 3 + j] * d[j];
+            }
+        }
+        let mut rhs = [0.0; 3];
+        for i in 0..3 {
+            rhs[i] = (0..3).map(|j| h[i * 3 + j] * x_true[j]).sum();
+        }
+        let mut scale = [0.0; 3];
+        assert!(solve_spd(&mut h, &mut rhs, &mut scale, 3));
+        for i in 0..3 {
+            assert!(((rhs[i] - x_true[i]) / x_true[i]).abs() < 1e-13, "{rhs:?}");
+        }
+    }
+
+    #[test]
+    fn ldl_falls_back_on_a_singular_matrix() {
+        // Rank one: the shifted, scaled Cholesky still returns a finite step.
+        let mut h = [1.0, 1.0, 1.0, 1.0];
+        let mut rhs = [1.0, 1.0];
+        let mut scale = [0.0; 2];
+        assert!(solve_spd(&mut h, &mut rhs, &mut scale, 2));
+        assert!(rhs.iter().all(|v| v.is_finite()));
     }
 
     #[test]

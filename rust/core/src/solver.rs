@@ -41,9 +41,9 @@
 
 use crate::basis::{choose_basis, sort_by_amount};
 use crate::face::Face;
-use crate::linalg::solve_spd_scaled;
+use crate::linalg::solve_spd;
 use crate::status::Status;
-use crate::system::{Phase, System, N_PHASES};
+use crate::system::{System, N_PHASES};
 
 /// Solver settings shared by every case of a batch.
 #[derive(Clone, Copy, Debug, PartialEq)]
@@ -97,16 +97,12 @@ fn ln_floor(ln_total: f64) -> f64 {
 /// direct formula cancels) by its series `sum_{k>=2} (-1)^k x^k / (k (k-1))`.
 fn phi(x: f64) -> f64 {
     if x.abs() < 0.05 {
-        let mut term = x * x;
-        let mut sum = 0.0;
-        let mut sign = 1.0;
-        for k in 2..=12 {
-            let kf = k as f64;
-            sum += sign * term / (kf * (kf - 1.0));
-            term *= x;
-            sign = -sign;
+        // Horner form of sum_{k=2}^{12} c_k x^k, c_k = (-1)^k / (k (k - 1)).
+        let mut sum = PHI_SERIES[PHI_SERIES.len() - 1];
+        for &c in PHI_SERIES.iter().rev().skip(1) {
+            sum = sum * x + c;
         }
-        sum
+        sum * x * x
     } else if x <= -1.0 {
         // (1 + x) ln(1 + x) -> 0 as the amount goes to zero.
         1.0
@@ -114,6 +110,18 @@ fn phi(x: f64) -> f64 {
         (1.0 + x) * x.ln_1p() - x
     }
 }
+
+/// `(-1)^k / (k (k - 1))` for `k = 2..=12`.
+const PHI_SERIES: [f64; 11] = {
+    let mut c = [0.0; 11];
+    let mut k = 2;
+    while k <= 12 {
+        let sign = if k % 2 == 0 { 1.0 } else { -1.0 };
+        c[k - 2] = sign / ((k * (k - 1)) as f64);
+        k += 1;
+    }
+    c
+};
 
 /// `h(n, d) = (n + d) ln(1 + d/n) - d`, the second-order part of the change
 /// of `n ln n`.
@@ -272,7 +280,7 @@ pub fn solve_case(
     let (s, r) = (system.n_species(), system.n_reactions());
     let mut sc = ws.scratch();
     let out = run(
-        system, face, feed, ln_k, pressure, options, &mut sc, s, r, face.dim,
+        system, face, feed, ln_k, pressure, options, &mut sc, s, r, face.dim, false,
     );
     amounts.copy_from_slice(&sc.amounts[..s]);
     extents.copy_from_slice(&sc.extents[..r]);
@@ -285,7 +293,7 @@ pub type FixedKernel =
     fn(&System, &Face, &[f64], &[f64], f64, &SolveOptions, &mut [f64], &mut [f64]) -> (Status, u32);
 
 #[allow(clippy::too_many_arguments)]
-fn solve_fixed<const R: usize, const S: usize>(
+fn solve_fixed<const R: usize, const S: usize, const G: bool>(
     system: &System,
     face: &Face,
     feed: &[f64],
@@ -336,22 +344,25 @@ fn solve_fixed<const R: usize, const S: usize>(
         extents,
     };
     let out = run(
-        system, face, feed, ln_k, pressure, options, &mut sc, S, R, R,
+        system, face, feed, ln_k, pressure, options, &mut sc, S, R, R, G,
     );
     amounts_out.copy_from_slice(&sc.amounts[..S]);
     extents_out.copy_from_slice(&sc.extents[..R]);
     out
 }
 
-/// The specialised kernel for a system of `r` reactions and `s` species, if
-/// there is one. Specialisations cover the small systems that dominate
+/// The specialised kernel for a system of `r` reactions and `s` species
+/// (all in the gas phase when `gas_only`), if there is one. Specialisations cover the small systems that dominate
 /// batch work (up to five reactions and twelve species); the general path
 /// handles everything else and gives bit-identical results.
-pub fn kernel_for(r: usize, s: usize) -> Option<FixedKernel> {
+pub fn kernel_for(r: usize, s: usize, gas_only: bool) -> Option<FixedKernel> {
     macro_rules! table {
         ($($rr:literal => [$($ss:literal),*]),* $(,)?) => {
-            match (r, s) {
-                $($(($rr, $ss) => Some(solve_fixed::<$rr, $ss> as FixedKernel),)*)*
+            match (r, s, gas_only) {
+                $($(
+                    ($rr, $ss, true) => Some(solve_fixed::<$rr, $ss, true> as FixedKernel),
+                    ($rr, $ss, false) => Some(solve_fixed::<$rr, $ss, false> as FixedKernel),
+                )*)*
                 _ => None,
             }
         };
@@ -379,8 +390,11 @@ fn run(
     s: usize,
     r: usize,
     dim: usize,
+    gas_only: bool,
 ) -> (Status, u32) {
     let phases = &system.phases()[..s];
+    // With `gas_only` a compile-time constant, every phase lookup folds away.
+    let phase_of = |i: usize| if gas_only { 0 } else { phases[i].index() };
     let feed = &feed[..s];
     let ln_k = &ln_k[..r];
     let ln_pressure = (pressure / system.p0()).ln();
@@ -424,11 +438,15 @@ fn run(
     let mut totals = [0.0; N_PHASES];
     for i in 0..s {
         let n = amounts[i];
-        totals[phases[i].index()] += n;
+        totals[phase_of(i)] += n;
         sc.ln_amount[i] = if n > 0.0 { n.ln() } else { 0.0 };
         // Species in no reaction never enter the Hessian; leaving their
         // 1/n at zero keeps a subnormal inert from turning 0 * inf into NaN.
-        sc.inv_amount[i] = if n > 0.0 && system.is_reactive(i) { 1.0 / n } else { 0.0 };
+        sc.inv_amount[i] = if n > 0.0 && system.is_reactive(i) {
+            1.0 / n
+        } else {
+            0.0
+        };
     }
     let mut ln_totals = totals.map(|n| if n > 0.0 { n.ln() } else { 0.0 });
 
@@ -462,9 +480,10 @@ fn run(
                 sc.ln_k_basis[j] = v;
                 let (mut gas, mut liquid) = (0.0, 0.0);
                 for i in 0..s {
-                    match phases[i] {
-                        Phase::Gas => gas += basis_stoich[j * s + i],
-                        Phase::Liquid => liquid += basis_stoich[j * s + i],
+                    if phase_of(i) == 0 {
+                        gas += basis_stoich[j * s + i];
+                    } else {
+                        liquid += basis_stoich[j * s + i];
                     }
                 }
                 sc.gas_change[j] = gas;
@@ -478,16 +497,16 @@ fn run(
         for j in 0..dim {
             let row = &basis_stoich[j * s..(j + 1) * s];
             let mut res = sc.gas_change[j] * ln_pressure - sc.ln_k_basis[j];
+            // No test for zero coefficients: species absent from a reaction
+            // carry a finite log (0 for unreachable ones), and a branch per
+            // term costs more than the multiplication.
             for i in 0..s {
-                let c = row[i];
-                if c != 0.0 {
-                    res += c * (sc.ln_amount[i] - ln_totals[phases[i].index()]);
-                }
+                res += row[i] * (sc.ln_amount[i] - ln_totals[phase_of(i)]);
             }
             sc.residual[j] = res;
             let sp = sc.pivots[j];
             sc.frozen[j] =
-                res > 0.0 && sc.ln_amount[sp] <= ln_floor(ln_totals[phases[sp].index()]) + 1e-6;
+                res > 0.0 && sc.ln_amount[sp] <= ln_floor(ln_totals[phase_of(sp)]) + 1e-6;
             if !sc.frozen[j] {
                 worst = worst.max(res.abs());
             }
@@ -528,7 +547,7 @@ fn run(
             }
             sc.step[j] = if sc.frozen[j] { 0.0 } else { -sc.residual[j] };
         }
-        if !solve_spd_scaled(hessian, &mut sc.step[..dim], &mut sc.scale[..dim], dim) {
+        if !solve_spd(hessian, &mut sc.step[..dim], &mut sc.scale[..dim], dim) {
             return (Status::Stalled, iterations);
         }
 
@@ -541,7 +560,7 @@ fn run(
             let sp = sc.pivots[j];
             let du = sc.step[j] * sc.inv_amount[sp];
             sc.du[j] = du;
-            let ln_share = sc.ln_amount[sp] - ln_totals[phases[sp].index()];
+            let ln_share = sc.ln_amount[sp] - ln_totals[phase_of(sp)];
             let on_log = ln_share < LN_MINOR_SHARE || du < -LOG_PATH_DROP;
             sc.on_log_path[j] = on_log;
             if !on_log {
@@ -555,7 +574,7 @@ fn run(
                 }
             } else {
                 // Nor shrink below what float64 can follow.
-                let depth = ln_floor(ln_totals[phases[sp].index()]) - sc.ln_amount[sp];
+                let depth = ln_floor(ln_totals[phase_of(sp)]) - sc.ln_amount[sp];
                 if depth < 0.0 && depth > du {
                     alpha_max = alpha_max.min(depth / du);
                 }
@@ -582,6 +601,7 @@ fn run(
         let mut alpha = alpha_max;
         let mut accepted = false;
         let mut trial_totals = [0.0; N_PHASES];
+        let mut trial_ln_totals = [0.0; N_PHASES];
         for _ in 0..MAX_BACKTRACKS {
             let mut first_order = 0.0;
             for j in 0..dim {
@@ -610,7 +630,8 @@ fn run(
                 sc.change[i] = d;
                 let new = amounts[i] + d;
                 if d != 0.0 {
-                    if !(new > 0.0 && new.is_finite()) {
+                    // (false for NaN as well)
+                    if !(new > 0.0 && new < f64::INFINITY) {
                         feasible = false;
                         break;
                     }
@@ -620,20 +641,17 @@ fn run(
                     sc.trial_ln[i] = sc.ln_amount[i];
                 }
                 sc.trial[i] = new;
-                trial_totals[phases[i].index()] += new;
+                trial_totals[phase_of(i)] += new;
             }
             if feasible {
-                let trial_ln_totals = trial_totals.map(|n| if n > 0.0 { n.ln() } else { 0.0 });
+                trial_ln_totals = trial_totals.map(|n| if n > 0.0 { n.ln() } else { 0.0 });
                 // Directional derivative of g along the path at the trial point.
                 let mut derivative = 0.0;
                 for j in 0..dim {
                     let row = &basis_stoich[j * s..(j + 1) * s];
                     let mut res = sc.gas_change[j] * ln_pressure - sc.ln_k_basis[j];
                     for i in 0..s {
-                        let c = row[i];
-                        if c != 0.0 {
-                            res += c * (sc.trial_ln[i] - trial_ln_totals[phases[i].index()]);
-                        }
+                        res += row[i] * (sc.trial_ln[i] - trial_ln_totals[phase_of(i)]);
                     }
                     let velocity = if sc.on_log_path[j] {
                         sc.trial[sc.pivots[j]] * sc.du[j]
@@ -652,7 +670,7 @@ fn run(
                 let mut phase_delta = [0.0; N_PHASES];
                 for i in 0..s {
                     second_order += h(amounts[i], sc.change[i]);
-                    phase_delta[phases[i].index()] += sc.change[i];
+                    phase_delta[phase_of(i)] += sc.change[i];
                 }
                 for p in 0..N_PHASES {
                     second_order -= h(totals[p], phase_delta[p]);
@@ -678,7 +696,7 @@ fn run(
             }
         }
         totals = trial_totals;
-        ln_totals = totals.map(|n| if n > 0.0 { n.ln() } else { 0.0 });
+        ln_totals = trial_ln_totals;
         // Extents of the user's reactions: dxi = basis * transform^T * dxi_basis.
         for f in 0..dim {
             let mut v = 0.0;
@@ -732,7 +750,7 @@ mod tests {
             &mut amounts,
             &mut extents,
         );
-        if let Some(kernel) = kernel_for(r, s) {
+        if let Some(kernel) = kernel_for(r, s, true) {
             let (mut a2, mut e2) = (vec![0.0; s], vec![0.0; r]);
             let (st2, it2) = kernel(&sys, &face, feed, ln_k, p, &options, &mut a2, &mut e2);
             assert_eq!((st, it), (st2, it2));
