@@ -17,21 +17,23 @@ const ELIM_TOL: f64 = 1e-9;
 
 /// Sort species indices by amount, least abundant first (stable insertion
 /// sort: S is small and the order barely changes between iterations, so this
-/// is close to linear and allocates nothing). Returns whether the order
-/// differs from what `order` held before.
+/// is close to linear and allocates nothing). Returns the first position
+/// whose entry changed (`order.len()` when nothing moved).
 #[inline(always)]
-pub fn sort_by_amount(amounts: &[f64], order: &mut [usize]) -> bool {
+pub fn sort_by_amount(amounts: &[f64], order: &mut [usize]) -> usize {
     let s = order.len();
-    let mut changed = false;
+    let mut first_moved = s;
     for k in 1..s {
         let mut m = k;
         while m > 0 && amounts[order[m - 1]] > amounts[order[m]] {
             order.swap(m - 1, m);
             m -= 1;
-            changed = true;
+        }
+        if m < k {
+            first_moved = first_moved.min(m);
         }
     }
-    changed
+    first_moved
 }
 
 /// Rewrite the face reactions `face_stoich` (`dim x S`) by Gauss-Jordan
@@ -40,8 +42,10 @@ pub fn sort_by_amount(amounts: &[f64], order: &mut [usize]) -> bool {
 ///
 /// On return `basis_stoich = transform * face_stoich` has the unit vector
 /// `e_j` in column `pivots[j]`, and `pivot_of[i]` is the row whose pivot is
-/// species `i` (or `usize::MAX` for components). Returns `false` if fewer
-/// than `dim` independent pivots were found (cannot happen for a valid face).
+/// species `i` (or `usize::MAX` for components). Returns how many entries
+/// of `order` were examined (the basis depends on nothing after them), or
+/// `None` if fewer than `dim` independent pivots were found (cannot happen
+/// for a valid face).
 #[allow(clippy::too_many_arguments)]
 #[inline(always)]
 pub fn choose_basis(
@@ -53,7 +57,7 @@ pub fn choose_basis(
     transform: &mut [f64],
     pivots: &mut [usize],
     pivot_of: &mut [usize],
-) -> bool {
+) -> Option<usize> {
     let s = n_species;
     basis_stoich[..dim * s].copy_from_slice(&face_stoich[..dim * s]);
     transform[..dim * dim].fill(0.0);
@@ -67,10 +71,12 @@ pub fn choose_basis(
     }
     let eps = ELIM_TOL * scale;
     let mut row = 0;
+    let mut examined = 0;
     for idx in 0..s {
         if row == dim {
             break;
         }
+        examined = idx + 1;
         let species = order[idx];
         let mut best = row;
         let mut best_abs = 0.0;
@@ -125,7 +131,7 @@ pub fn choose_basis(
             *v = 0.0;
         }
     }
-    row == dim
+    (row == dim).then_some(examined)
 }
 
 #[cfg(test)]
@@ -139,12 +145,11 @@ mod tests {
         let amounts = [1e-30, 2.0, 1e-3, 3.0, 0.9];
         let (mut order, mut b, mut t, mut piv, mut of) =
             ([0, 1, 2, 3, 4], [0.0; 10], [0.0; 4], [0; 2], [0; 5]);
-        assert!(sort_by_amount(&amounts, &mut order));
-        assert!(!sort_by_amount(&amounts, &mut order));
+        assert_eq!(sort_by_amount(&amounts, &mut order), 1);
+        assert_eq!(sort_by_amount(&amounts, &mut order), 5); // nothing moved
         assert_eq!(order, [0, 2, 4, 1, 3]);
-        assert!(choose_basis(
-            &nu, 2, 5, &order, &mut b, &mut t, &mut piv, &mut of
-        ));
+        let examined = choose_basis(&nu, 2, 5, &order, &mut b, &mut t, &mut piv, &mut of);
+        assert_eq!(examined, Some(2));
         assert_eq!(piv, [0, 2]); // CH4 then CO
                                  // each pivot column is a unit vector
         assert_eq!((b[0], b[5]), (1.0, 0.0));

@@ -99,28 +99,35 @@ fn zero_pattern(feed: &[f64], key: &mut [u64]) {
 
 fn feed_is_valid(feed: &[f64]) -> bool {
     let mut total = 0.0;
+    let mut lowest = 0.0_f64;
     for &v in feed {
-        if !(v >= 0.0 && v.is_finite()) {
-            return false;
-        }
         total += v;
+        lowest = lowest.min(v);
     }
-    total > 0.0 && total.is_finite()
+    // `lowest` is NaN-propagating through `total`; a negative entry makes it < 0.
+    lowest >= 0.0 && total > 0.0 && total < f64::INFINITY
 }
 
 fn case_is_valid(feed: &[f64], ln_k: &[f64], pressure: f64) -> bool {
-    feed_is_valid(feed)
-        && ln_k.iter().all(|v| v.is_finite())
-        && pressure > 0.0
-        && pressure.is_finite()
+    // One pass each, no early exit: these arrays are a few entries long.
+    let mut ln_k_sum = 0.0;
+    for &v in ln_k {
+        ln_k_sum += v * 0.0; // NaN for any non-finite entry
+    }
+    feed_is_valid(feed) && ln_k_sum == 0.0 && pressure > 0.0 && pressure < f64::INFINITY
 }
 
-type FaceTable = HashMap<Vec<u64>, Result<Face, FaceError>>;
+/// The faces of every distinct zero pattern of a batch.
+#[derive(Default)]
+struct FaceTable {
+    index: HashMap<Vec<u64>, usize>,
+    faces: Vec<Result<Face, FaceError>>,
+}
 
 /// Analyse every distinct zero pattern among the valid feeds.
 fn faces_for(system: &System, inputs: &BatchInputs, rows: Rows) -> FaceTable {
     let s = system.n_species();
-    let mut table = FaceTable::new();
+    let mut table = FaceTable::default();
     let mut key = vec![0u64; pattern_words(s)];
     let mut previous = key.clone();
     let n_rows = if rows.broadcast { 1 } else { inputs.n_cases };
@@ -130,13 +137,14 @@ fn faces_for(system: &System, inputs: &BatchInputs, rows: Rows) -> FaceTable {
             continue;
         }
         zero_pattern(feed, &mut previous);
-        if previous == key && !table.is_empty() {
+        if previous == key && !table.faces.is_empty() {
             continue; // same pattern as the case before: no lookup needed
         }
         key.copy_from_slice(&previous);
-        if !table.contains_key(&key[..]) {
+        if !table.index.contains_key(&key[..]) {
             let zero: Vec<bool> = feed.iter().map(|&v| v < TINY_FEED).collect();
-            table.insert(key.clone(), analyse(system, &zero));
+            table.index.insert(key.clone(), table.faces.len());
+            table.faces.push(analyse(system, &zero));
         }
     }
     table
@@ -271,18 +279,23 @@ pub fn solve_batch(
     Ok(())
 }
 
-/// One thread's state: its workspace and the key of the last zero pattern
-/// (sweeps usually share one pattern, so the table lookup is skipped).
+/// One thread's state: its workspace and the last zero pattern with its
+/// face (sweeps usually share one pattern, so the table lookup is skipped).
 struct ChunkState {
     workspace: Workspace,
     key: Vec<u64>,
+    last_key: Vec<u64>,
+    last_face: Option<usize>,
 }
 
 impl ChunkState {
     fn new(system: &System) -> Self {
+        let words = pattern_words(system.n_species());
         ChunkState {
             workspace: Workspace::new(system),
-            key: vec![0; pattern_words(system.n_species())],
+            key: vec![0; words],
+            last_key: vec![0; words],
+            last_face: None,
         }
     }
 
@@ -303,7 +316,11 @@ impl ChunkState {
             return (Status::InvalidInput, 0);
         }
         zero_pattern(feed, &mut self.key);
-        match faces.get(&self.key[..]) {
+        if self.last_face.is_none() || self.key != self.last_key {
+            self.last_face = faces.index.get(&self.key[..]).copied();
+            self.last_key.copy_from_slice(&self.key);
+        }
+        match self.last_face.map(|k| &faces.faces[k]) {
             Some(Ok(face)) => match kernel {
                 // Specialised kernels run on full faces only (no unreachable species).
                 Some(kernel) if face.dim == system.n_reactions() => kernel(

@@ -454,13 +454,14 @@ fn run(
     let transform = &mut sc.transform[..dim * dim];
     let hessian = &mut sc.hessian[..dim * dim];
     let mut basis_ready = false;
+    let mut basis_prefix = 0;
     let mut iterations = 0;
     loop {
         // 1. The per-case stoichiometric basis, re-derived only when the
-        //    abundance order of the species changes.
-        let reordered = sort_by_amount(amounts, &mut sc.order[..s]);
-        if reordered || !basis_ready {
-            if !choose_basis(
+        //    abundance order changes within the part that chose it.
+        let first_moved = sort_by_amount(amounts, &mut sc.order[..s]);
+        if first_moved < basis_prefix || !basis_ready {
+            match choose_basis(
                 &face.stoich,
                 dim,
                 s,
@@ -470,7 +471,8 @@ fn run(
                 &mut sc.pivots[..dim],
                 &mut sc.pivot_of[..s],
             ) {
-                return (Status::Stalled, iterations);
+                Some(examined) => basis_prefix = examined,
+                None => return (Status::Stalled, iterations),
             }
             for j in 0..dim {
                 let mut v = 0.0;
