@@ -71,9 +71,6 @@ const ARMIJO: f64 = 1e-4;
 /// `ln` of the share of its phase below which a species is minor and moves
 /// in `ln n` (1e-2).
 const LN_MINOR_SHARE: f64 = -4.605_170_185_988_091;
-/// A linear step that would remove more than this fraction of a pivot
-/// species moves it along `ln n` instead.
-const LOG_PATH_DROP: f64 = 0.5;
 /// Largest relative change of any amount for which the quadratic model of
 /// the Gibbs function along the step is trusted (see [`solve_case`]).
 const MODEL_TRUST: f64 = 0.1;
@@ -152,6 +149,7 @@ struct Scratch<'a> {
     ln_k_face: &'a mut [f64],
     ln_k_basis: &'a mut [f64],
     residual: &'a mut [f64],
+    trial_residual: &'a mut [f64],
     hessian: &'a mut [f64],
     step: &'a mut [f64],
     du: &'a mut [f64],
@@ -183,7 +181,7 @@ pub struct Workspace {
 /// Number of per-species `f64` arrays in a [`Scratch`].
 const SPECIES_ARRAYS: usize = 6;
 /// Number of per-reaction `f64` arrays in a [`Scratch`].
-const REACTION_ARRAYS: usize = 11;
+const REACTION_ARRAYS: usize = 12;
 
 impl Workspace {
     pub fn new(system: &System) -> Self {
@@ -207,7 +205,7 @@ impl Workspace {
         let [amounts, ln_amount, inv_amount, trial, trial_ln, change] =
             split_n::<SPECIES_ARRAYS, _>(&mut self.species, s);
         let [order, pivot_of] = split_n::<2, _>(&mut self.species_idx, s);
-        let [ln_k_face, ln_k_basis, residual, step, du, scale, gas_change, liquid_change, basis_step, face_step, extents] =
+        let [ln_k_face, ln_k_basis, residual, trial_residual, step, du, scale, gas_change, liquid_change, basis_step, face_step, extents] =
             split_n::<REACTION_ARRAYS, _>(&mut self.reactions, r);
         let [on_log_path, frozen] = split_n::<2, _>(&mut self.flags, r);
         let [transform, hessian] = split_n::<2, _>(&mut self.square, r * r);
@@ -226,6 +224,7 @@ impl Workspace {
             ln_k_face,
             ln_k_basis,
             residual,
+            trial_residual,
             hessian,
             step,
             du,
@@ -312,7 +311,7 @@ fn solve_fixed<const R: usize, const S: usize, const G: bool>(
     let mut square = [[[0.0; R]; R]; 2];
     let [amounts, ln_amount, inv_amount, trial, trial_ln, change] = &mut species;
     let [order, pivot_of] = &mut species_idx;
-    let [ln_k_face, ln_k_basis, residual, step, du, scale, gas_change, liquid_change, basis_step, face_step, extents] =
+    let [ln_k_face, ln_k_basis, residual, trial_residual, step, du, scale, gas_change, liquid_change, basis_step, face_step, extents] =
         &mut reactions;
     let [on_log_path, frozen] = &mut flags;
     let [transform, hessian] = &mut square;
@@ -331,6 +330,7 @@ fn solve_fixed<const R: usize, const S: usize, const G: bool>(
         ln_k_face,
         ln_k_basis,
         residual,
+        trial_residual,
         hessian: hessian.as_flattened_mut(),
         step,
         du,
@@ -455,12 +455,14 @@ fn run(
     let hessian = &mut sc.hessian[..dim * dim];
     let mut basis_ready = false;
     let mut basis_prefix = 0;
+    let mut residual_known = false;
     let mut iterations = 0;
     loop {
         // 1. The per-case stoichiometric basis, re-derived only when the
         //    abundance order changes within the part that chose it.
         let first_moved = sort_by_amount(amounts, &mut sc.order[..s]);
         if first_moved < basis_prefix || !basis_ready {
+            residual_known = false;
             match choose_basis(
                 &face.stoich,
                 dim,
@@ -494,18 +496,24 @@ fn run(
             basis_ready = true;
         }
 
-        // 2. Residuals ln Q - ln K of the basis reactions.
+        // 2. Residuals ln Q - ln K of the basis reactions (already known from
+        //    the line search when the basis has not changed).
         let mut worst = 0.0_f64;
         for j in 0..dim {
-            let row = &basis_stoich[j * s..(j + 1) * s];
-            let mut res = sc.gas_change[j] * ln_pressure - sc.ln_k_basis[j];
-            // No test for zero coefficients: species absent from a reaction
-            // carry a finite log (0 for unreachable ones), and a branch per
-            // term costs more than the multiplication.
-            for i in 0..s {
-                res += row[i] * (sc.ln_amount[i] - ln_totals[phase_of(i)]);
-            }
-            sc.residual[j] = res;
+            let res = if residual_known {
+                sc.residual[j]
+            } else {
+                let row = &basis_stoich[j * s..(j + 1) * s];
+                let mut res = sc.gas_change[j] * ln_pressure - sc.ln_k_basis[j];
+                // No test for zero coefficients: species absent from a reaction
+                // carry a finite log (0 for unreachable ones), and a branch per
+                // term costs more than the multiplication.
+                for i in 0..s {
+                    res += row[i] * (sc.ln_amount[i] - ln_totals[phase_of(i)]);
+                }
+                sc.residual[j] = res;
+                res
+            };
             let sp = sc.pivots[j];
             sc.frozen[j] =
                 res > 0.0 && sc.ln_amount[sp] <= ln_floor(ln_totals[phase_of(sp)]) + 1e-6;
@@ -563,7 +571,7 @@ fn run(
             let du = sc.step[j] * sc.inv_amount[sp];
             sc.du[j] = du;
             let ln_share = sc.ln_amount[sp] - ln_totals[phase_of(sp)];
-            let on_log = ln_share < LN_MINOR_SHARE || du < -LOG_PATH_DROP;
+            let on_log = ln_share < LN_MINOR_SHARE || du < 0.0;
             sc.on_log_path[j] = on_log;
             if !on_log {
                 continue;
@@ -587,13 +595,18 @@ fn run(
         }
         for i in 0..s {
             let pivot_row = sc.pivot_of[i];
-            if pivot_row != usize::MAX && sc.on_log_path[pivot_row] {
-                continue;
-            }
-            let mut lin = 0.0;
-            for j in 0..dim {
-                lin += basis_stoich[j * s + i] * sc.step[j];
-            }
+            let lin = if pivot_row != usize::MAX {
+                if sc.on_log_path[pivot_row] {
+                    continue;
+                }
+                sc.step[pivot_row]
+            } else {
+                let mut lin = 0.0;
+                for j in 0..dim {
+                    lin += basis_stoich[j * s + i] * sc.step[j];
+                }
+                lin
+            };
             if lin < 0.0 {
                 alpha_max = alpha_max.min(TO_BOUNDARY * amounts[i] / -lin);
             }
@@ -655,6 +668,7 @@ fn run(
                     for i in 0..s {
                         res += row[i] * (sc.trial_ln[i] - trial_ln_totals[phase_of(i)]);
                     }
+                    sc.trial_residual[j] = res;
                     let velocity = if sc.on_log_path[j] {
                         sc.trial[sc.pivots[j]] * sc.du[j]
                     } else {
@@ -699,6 +713,8 @@ fn run(
         }
         totals = trial_totals;
         ln_totals = trial_ln_totals;
+        sc.residual[..dim].copy_from_slice(&sc.trial_residual[..dim]);
+        residual_known = true;
         // Extents of the user's reactions: dxi = basis * transform^T * dxi_basis.
         for f in 0..dim {
             let mut v = 0.0;

@@ -1,0 +1,354 @@
+"""Race eqbatch against its peers on the same cases, in one process, and
+write the figures down.
+
+    python -m bench.run            # full run: writes bench/RESULTS.md and bench/throughput.png
+    python -m bench.run --smoke    # seconds: small sizes, writes under bench/out/
+
+Every engine gets the same inputs (feed, ln K, P), the same tolerance
+(max |ln Q - ln K| <= 1e-10) and the same interior start where it takes one,
+and all cores. Times are the best of a few repeats, after a warm-up (numba's
+compilation is not counted). No test asserts a time.
+"""
+
+from __future__ import annotations
+
+import argparse
+import json
+import os
+import platform
+import subprocess
+import sys
+import time
+from dataclasses import dataclass, field
+from pathlib import Path
+
+import numpy as np
+
+import eqbatch
+from bench import workloads
+from bench.peers import common, numba_newton, numpy_newton, scipy_loop
+from bench.peers.common import Problem
+
+HERE = Path(__file__).resolve().parent
+
+
+@dataclass
+class Run:
+    engine: str
+    workload: str
+    n_cases: int
+    seconds: float
+    converged: float
+    iterations: float
+    disagreement: float = float("nan")
+    extra: dict = field(default_factory=dict)
+
+    @property
+    def per_case_us(self) -> float:
+        return 1e6 * self.seconds / self.n_cases
+
+    @property
+    def rate(self) -> float:
+        return self.n_cases / self.seconds
+
+
+def best_of(fn, repeats: int):
+    best, out = float("inf"), None
+    for _ in range(repeats):
+        t0 = time.perf_counter()
+        out = fn()
+        best = min(best, time.perf_counter() - t0)
+    return best, out
+
+
+def system_for(problem: Problem) -> eqbatch.ReactionSystem:
+    species = list(problem.species)
+    if problem.equations:
+        return eqbatch.ReactionSystem(species, list(problem.equations), P0=problem.P0)
+    equations = []
+    for row in problem.nu:
+        left = " + ".join(f"{-c:g} {s}" for c, s in zip(row, species) if c < 0)
+        right = " + ".join(f"{c:g} {s}" for c, s in zip(row, species) if c > 0)
+        equations.append(f"{left} = {right}")
+    return eqbatch.ReactionSystem(species, equations, P0=problem.P0, check_balance=False)
+
+
+def disagreement(amounts: np.ndarray, reference: np.ndarray, ok: np.ndarray) -> float:
+    """Largest relative difference on species above 1e-9 of their case's total,
+    over the cases both engines solved."""
+    if not ok.any():
+        return float("nan")
+    a, b = amounts[ok], reference[ok]
+    big = b > 1e-9 * b.sum(axis=1, keepdims=True)
+    return float(np.max(np.abs(a - b)[big] / b[big]))
+
+
+def run_eqbatch(problem: Problem, repeats: int, threads: int | None = None) -> tuple[Run, np.ndarray]:
+    system = system_for(problem)
+    system.solve(problem.feed[:10], lnK=problem.lnK[:10], P=problem.P[:10])
+    seconds, res = best_of(
+        lambda: system.solve(problem.feed, lnK=problem.lnK, P=problem.P, threads=threads), repeats
+    )
+    name = "eqbatch" if threads is None else f"eqbatch ({threads} thread{'s' if threads > 1 else ''})"
+    run = Run(name, problem.name, problem.n_cases, seconds, float(res.converged.mean()),
+              float(res.iterations.mean()))
+    return run, res
+
+
+def run_peer(name: str, module, problem: Problem, reference, repeats: int, xi0: np.ndarray) -> Run:
+    if name == "numba":
+        module.solve(problem.subset(8), xi0[:8])  # compile outside the clock
+    seconds, (amounts, converged, iterations) = best_of(lambda: module.solve(problem, xi0), repeats)
+    both = converged & reference.converged[: problem.n_cases]
+    return Run(name, problem.name, problem.n_cases, seconds, float(converged.mean()),
+               float(np.mean(iterations)), disagreement(amounts, reference.amounts[: problem.n_cases], both))
+
+
+def race(problem: Problem, sizes: dict[str, int], repeats: int) -> list[Run]:
+    runs = []
+    ours, reference = run_eqbatch(problem, repeats)
+    runs.append(ours)
+    xi0 = common.interior_start(problem)
+    for name, module in (("numba", numba_newton), ("numpy", numpy_newton), ("scipy loop", scipy_loop)):
+        n = min(sizes[name], problem.n_cases)
+        runs.append(run_peer(name, module, problem.subset(n), reference, 1 if name == "scipy loop" else repeats,
+                             xi0[:n]))
+    return runs
+
+
+def single_call(problem: Problem, calls: int) -> dict[str, float]:
+    """Cost of one system.solve(...) from Python against one scipy.optimize.root
+    call on the same case."""
+    system = system_for(problem)
+    feed, lnk, P = problem.feed[0], problem.lnK[0], float(problem.P[0])
+    xi0 = common.interior_start(problem.subset(1))[0]
+    for _ in range(200):
+        system.solve(feed, lnK=lnk, P=P)
+    t0 = time.perf_counter()
+    for _ in range(calls):
+        system.solve(feed, lnK=lnk, P=P)
+    ours = (time.perf_counter() - t0) / calls
+    t0 = time.perf_counter()
+    n_scipy = max(calls // 50, 20)
+    for _ in range(n_scipy):
+        scipy_loop.solve_case(problem.nu, feed, lnk, P, problem.P0, xi0)
+    theirs = (time.perf_counter() - t0) / n_scipy
+    return {"eqbatch_us": 1e6 * ours, "scipy_root_us": 1e6 * theirs, "ratio": theirs / ours}
+
+
+MEMORY_CHILD = """
+import resource, sys, time, numpy as np
+sys.path.insert(0, {root!r})
+import eqbatch
+from bench import workloads
+n = {n}
+p = workloads.reforming(n)
+system = eqbatch.ReactionSystem(list(p.species), list(p.equations), P0=p.P0)
+inputs = p.feed.nbytes + p.lnK.nbytes + p.P.nbytes
+before = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss * 1024
+t0 = time.perf_counter()
+res = system.solve(p.feed, lnK=p.lnK, P=p.P)
+seconds = time.perf_counter() - t0
+after = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss * 1024
+outputs = sum(a.nbytes for a in (res.amounts, res.extents, res.mole_fractions, res.status, res.iterations))
+print({{"n": n, "seconds": seconds, "inputs": inputs, "outputs": outputs, "peak_before": before,
+       "peak_after": after, "converged": float(res.converged.mean())}})
+"""
+
+
+def peak_memory(n: int) -> dict:
+    code = MEMORY_CHILD.format(root=str(HERE.parent), n=n)
+    out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True)
+    return eval(out.stdout.strip().splitlines()[-1])  # a dict literal printed by the child
+
+
+def machine() -> dict[str, str]:
+    model = platform.processor() or "unknown"
+    try:
+        for line in Path("/proc/cpuinfo").read_text().splitlines():
+            if line.startswith("model name"):
+                model = line.split(":", 1)[1].strip()
+                break
+    except OSError:
+        pass
+    import numba
+    import scipy
+
+    return {
+        "CPU": model,
+        "cores": str(os.cpu_count()),
+        "Python": platform.python_version(),
+        "numpy": np.__version__,
+        "scipy": scipy.__version__,
+        "numba": numba.__version__,
+        "eqbatch": eqbatch.__version__,
+    }
+
+
+def plot(path: Path, scaling: list[Run], network_runs: list[Run]) -> None:
+    import matplotlib
+
+    matplotlib.use("Agg")
+    import matplotlib.pyplot as plt
+
+    fig, (left, right) = plt.subplots(1, 2, figsize=(11, 4.2))
+    for engine in sorted({r.engine for r in scaling}):
+        rows = sorted((r for r in scaling if r.engine == engine), key=lambda r: r.n_cases)
+        left.loglog([r.n_cases for r in rows], [r.rate for r in rows], "o-", label=engine)
+    left.set_xlabel("cases")
+    left.set_ylabel("cases per second")
+    left.set_title("Workload (a): throughput against batch size")
+    left.grid(True, which="both", alpha=0.3)
+    left.legend()
+    for engine in sorted({r.engine for r in network_runs}):
+        rows = sorted((r for r in network_runs if r.engine == engine), key=lambda r: r.extra["reactions"])
+        right.semilogy([r.extra["reactions"] for r in rows], [r.per_case_us for r in rows], "o-", label=engine)
+    right.set_xlabel("reactions")
+    right.set_ylabel("microseconds per case")
+    right.set_title("Workload (c): cost against network size")
+    right.grid(True, which="both", alpha=0.3)
+    right.legend()
+    fig.tight_layout()
+    fig.savefig(path, dpi=110)
+
+
+def table(runs: list[Run], reference: Run) -> str:
+    lines = [
+        "| engine | cases | cases/s | per case | eqbatch is faster by | converged | mean iterations | max rel. disagreement |",
+        "|---|---:|---:|---:|---:|---:|---:|---:|",
+    ]
+    for r in runs:
+        ratio = r.per_case_us / reference.per_case_us
+        lines.append(
+            f"| {r.engine} | {r.n_cases:,} | {r.rate:,.0f} | {r.per_case_us:.3g} us | "
+            f"{'-' if r is reference else f'{ratio:.3g}x'} | {100 * r.converged:.2f} % | {r.iterations:.2f} | "
+            f"{'-' if r is reference else f'{r.disagreement:.1e}'} |"
+        )
+    return "\n".join(lines)
+
+
+def main(argv: list[str] | None = None) -> int:
+    parser = argparse.ArgumentParser(description=__doc__.split("\n\n")[0])
+    parser.add_argument("--smoke", action="store_true", help="tiny sizes, for CI (seconds)")
+    parser.add_argument("--out", type=Path, default=None, help="folder for RESULTS.md and the PNG")
+    args = parser.parse_args(argv)
+    smoke = args.smoke
+    out = args.out or (HERE / "out" if smoke else HERE)
+    out.mkdir(parents=True, exist_ok=True)
+    repeats = 1 if smoke else 3
+    n_a = 2_000 if smoke else 1_000_000
+    sizes = {"numba": n_a, "numpy": 1_000 if smoke else 100_000, "scipy loop": 100 if smoke else 2_000}
+
+    report = ["# Benchmark results", ""]
+    report.append("Reproduce with `python -m bench.run` (needs `pip install '.[bench]'`). "
+                  "Engines: eqbatch; numba `@njit(parallel=True)` Newton specialised to the system; "
+                  "numpy-vectorised damped Newton; a Python loop over `scipy.optimize.root` (hybr). "
+                  "Peers are in `bench/peers/`. Same equations, tolerance (max |ln Q - ln K| <= 1e-10) "
+                  "and interior start; all cores for every engine; best of "
+                  f"{repeats} repeat(s); numba compilation excluded.")
+    report += ["", "## Machine", ""]
+    for k, v in machine().items():
+        report.append(f"- {k}: {v}")
+
+    # (a) reforming + shift
+    problem_a = workloads.reforming(n_a)
+    runs_a = race(problem_a, sizes, repeats)
+    ours = runs_a[0]
+    report += ["", f"## Workload (a): steam reforming + shift, {n_a:,} cases", "",
+               "700-1200 K, 1-40 bar, steam-to-carbon 1.5-5, N2 inert; K(T) from the Xu-Froment correlations.",
+               "", table(runs_a, ours)]
+    by = {r.engine: r for r in runs_a}
+    numba_ratio = by["numba"].per_case_us / ours.per_case_us
+    scipy_ratio = by["scipy loop"].per_case_us / ours.per_case_us
+
+    # threads
+    one, _ = run_eqbatch(problem_a, repeats, threads=1)
+    two, _ = run_eqbatch(problem_a, repeats, threads=2)
+    thread_ratio = one.seconds / two.seconds
+
+    # scaling in N
+    scaling = []
+    sizes_n = [1_000, 10_000] if smoke else [1_000, 10_000, 100_000, 1_000_000, 10_000_000]
+    for n in sizes_n:
+        p = workloads.reforming(n)
+        run, _ = run_eqbatch(p, repeats if n < 10_000_000 else 1)
+        scaling.append(run)
+        if n <= (10_000 if smoke else 1_000_000):
+            xi0 = common.interior_start(p)
+            numba_newton.solve(p.subset(8), xi0[:8])
+            seconds, (a, c, it) = best_of(lambda p=p, xi0=xi0: numba_newton.solve(p, xi0), repeats)
+            scaling.append(Run("numba", p.name, n, seconds, float(c.mean()), float(it.mean())))
+    ours_scaling = [r for r in scaling if r.engine == "eqbatch" and r.n_cases >= 1_000]
+    per_case = [r.per_case_us for r in ours_scaling]
+    linear_spread = max(per_case) / min(per_case[1:] if len(per_case) > 2 else per_case) - 1
+
+    # single call
+    single = single_call(problem_a, 2_000 if smoke else 20_000)
+
+    # memory
+    memory = peak_memory(20_000 if smoke else 10_000_000)
+
+    # (b) five reactions
+    problem_b = workloads.five_reactions(2_000 if smoke else 200_000)
+    # The numpy peer keeps iterating on the cases it cannot converge, so it gets fewer.
+    runs_b = race(problem_b, {"numba": problem_b.n_cases, "numpy": sizes["numpy"] // 10,
+                              "scipy loop": sizes["scipy loop"]}, repeats)
+
+    # (c) networks of growing size
+    network_runs = []
+    for n_reactions in ([2, 5] if smoke else [2, 5, 10, 20]):
+        p = workloads.random_network(500 if smoke else 20_000, n_reactions=n_reactions)
+        run, reference = run_eqbatch(p, repeats)
+        run.extra["reactions"] = p.nu.shape[0]
+        network_runs.append(run)
+        xi0 = common.interior_start(p)
+        peer = run_peer("numba", numba_newton, p, reference, repeats, xi0)
+        peer.extra["reactions"] = p.nu.shape[0]
+        network_runs.append(peer)
+
+    report += ["", "### Targets on workload (a)", "",
+               "| target | measured | met |", "|---|---|---|",
+               f"| >= 1.5x the numba peer | {numba_ratio:.2f}x | {'yes' if numba_ratio >= 1.5 else 'no'} |",
+               f"| >= 500x the scipy loop per case | {scipy_ratio:,.0f}x | {'yes' if scipy_ratio >= 500 else 'no'} |",
+               f"| every case converged | {100 * ours.converged:.4f} % | {'yes' if ours.converged == 1 else 'no'} |",
+               f"| >= 1.8x on 2 threads vs 1 | {thread_ratio:.2f}x ({one.seconds:.3f} s vs {two.seconds:.3f} s) | "
+               f"{'yes' if thread_ratio >= 1.8 else 'no'} |",
+               f"| per-case time within 20 % from 1e3 to 1e7 cases | spread {100 * linear_spread:.0f} % | "
+               f"{'yes' if linear_spread <= 0.2 else 'no'} |",
+               f"| one solve() call <= 1/30 of one scipy root call | {single['eqbatch_us']:.1f} us vs "
+               f"{single['scipy_root_us']:.0f} us (1/{single['ratio']:.0f}) | {'yes' if single['ratio'] >= 30 else 'no'} |"]
+
+    report += ["", "### Throughput against the number of cases", "",
+               "| engine | cases | cases/s | per case |", "|---|---:|---:|---:|"]
+    for r in scaling:
+        report.append(f"| {r.engine} | {r.n_cases:,} | {r.rate:,.0f} | {r.per_case_us:.3g} us |")
+    mib = 1024 * 1024
+    report += ["", "### Peak memory", "",
+               f"{memory['n']:,} cases of workload (a): inputs {memory['inputs'] / mib:,.0f} MiB, outputs "
+               f"{memory['outputs'] / mib:,.0f} MiB; peak resident set {memory['peak_before'] / mib:,.0f} MiB "
+               f"before the solve and {memory['peak_after'] / mib:,.0f} MiB after it, so the solve added "
+               f"{(memory['peak_after'] - memory['peak_before']) / mib:,.0f} MiB against "
+               f"{memory['outputs'] / mib:,.0f} MiB of outputs "
+               f"(solved in {memory['seconds']:.2f} s, {100 * memory['converged']:.2f} % converged)."]
+    report += ["", f"## Workload (b): five reactions, ln K over +-30, {problem_b.n_cases:,} cases", "",
+               table(runs_b, runs_b[0])]
+    report += ["", "## Workload (c): random networks (four elements, all species fed)", "",
+               "| reactions | species | engine | per case | cases/s | converged | mean iterations |",
+               "|---:|---:|---|---:|---:|---:|---:|"]
+    for r in network_runs:
+        report.append(f"| {r.extra['reactions']} | {r.extra['reactions'] + 4} | {r.engine} | "
+                      f"{r.per_case_us:.3g} us | {r.rate:,.0f} | {100 * r.converged:.2f} % | {r.iterations:.2f} |")
+    png = out / "throughput.png"
+    plot(png, scaling, network_runs)
+    report += ["", f"![throughput]({png.name})", ""]
+    (out / "RESULTS.md").write_text("\n".join(report) + "\n")
+    (out / "results.json").write_text(json.dumps({
+        "runs_a": [r.__dict__ for r in runs_a], "single": single, "memory": memory,
+        "threads": {"one": one.seconds, "two": two.seconds},
+    }, indent=1, default=float))
+    print("\n".join(report))
+    return 0
+
+
+if __name__ == "__main__":
+    sys.exit(main())
