@@ -40,6 +40,7 @@ fn main() {
         feed: &feed,
         ln_k: &ln_k,
         pressure: &pressure,
+        start: None,
     };
     let mut outputs = BatchOutputs {
         amounts: &mut amounts,

@@ -31,6 +31,9 @@ pub struct BatchInputs<'a> {
     pub ln_k: &'a [f64],
     /// Pressure, bar: length 1 or `n_cases`.
     pub pressure: &'a [f64],
+    /// Optional starting extents (a warm start): `1 x R` or `n_cases x R`.
+    /// A start that is not strictly feasible for a case is ignored there.
+    pub start: Option<&'a [f64]>,
 }
 
 /// Per-case outputs, all `n_cases` rows, row-major.
@@ -50,13 +53,18 @@ pub struct BatchOutputs<'a> {
 
 /// Where a broadcastable input's row for case `k` starts.
 #[derive(Clone, Copy)]
-struct Rows {
+pub(crate) struct Rows {
     width: usize,
     broadcast: bool,
 }
 
 impl Rows {
-    fn check(name: &str, len: usize, width: usize, n_cases: usize) -> Result<Self, CoreError> {
+    pub(crate) fn check(
+        name: &str,
+        len: usize,
+        width: usize,
+        n_cases: usize,
+    ) -> Result<Self, CoreError> {
         if len == width {
             Ok(Rows {
                 width,
@@ -74,7 +82,7 @@ impl Rows {
         }
     }
 
-    fn row<'a>(&self, data: &'a [f64], case: usize) -> &'a [f64] {
+    pub(crate) fn row<'a>(&self, data: &'a [f64], case: usize) -> &'a [f64] {
         let start = if self.broadcast { 0 } else { case * self.width };
         &data[start..start + self.width]
     }
@@ -119,13 +127,13 @@ fn case_is_valid(feed: &[f64], ln_k: &[f64], pressure: f64) -> bool {
 
 /// The faces of every distinct zero pattern of a batch.
 #[derive(Default)]
-struct FaceTable {
-    index: HashMap<Vec<u64>, usize>,
-    faces: Vec<Result<Face, FaceError>>,
+pub(crate) struct FaceTable {
+    pub(crate) index: HashMap<Vec<u64>, usize>,
+    pub(crate) faces: Vec<Result<Face, FaceError>>,
 }
 
 /// Analyse every distinct zero pattern among the valid feeds.
-fn faces_for(system: &System, inputs: &BatchInputs, rows: Rows) -> FaceTable {
+pub(crate) fn faces_for(system: &System, inputs: &BatchInputs, rows: Rows) -> FaceTable {
     let s = system.n_species();
     let mut table = FaceTable::default();
     let mut key = vec![0u64; pattern_words(s)];
@@ -173,6 +181,10 @@ pub fn solve_batch(
     let feed_rows = Rows::check("feed", inputs.feed.len(), s, n)?;
     let k_rows = Rows::check("ln_k", inputs.ln_k.len(), r, n)?;
     let p_rows = Rows::check("pressure", inputs.pressure.len(), 1, n)?;
+    let start_rows = match inputs.start {
+        Some(x0) => Some(Rows::check("start", x0.len(), r, n)?),
+        None => None,
+    };
     for (name, len, width) in [
         ("amounts", outputs.amounts.len(), s),
         ("extents", outputs.extents.len(), r),
@@ -210,11 +222,15 @@ pub fn solve_batch(
             let feed = feed_rows.row(inputs.feed, case);
             let ln_k = k_rows.row(inputs.ln_k, case);
             let pressure = p_rows.row(inputs.pressure, case)[0];
+            let start = inputs
+                .start
+                .zip(start_rows)
+                .map(|(x0, rows)| rows.row(x0, case));
             let amounts = &mut amounts[local * s..(local + 1) * s];
             let extents = &mut extents[local * r..(local + 1) * r];
             let fractions = &mut fractions[local * s..(local + 1) * s];
             let (st, it) = ws.solve(
-                system, &faces, feed, ln_k, pressure, options, kernel, amounts, extents,
+                system, &faces, feed, ln_k, pressure, start, options, kernel, amounts, extents,
             );
             status[local] = st as u8;
             iterations[local] = it;
@@ -307,6 +323,7 @@ impl ChunkState {
         feed: &[f64],
         ln_k: &[f64],
         pressure: f64,
+        start: Option<&[f64]>,
         options: &SolveOptions,
         kernel: Option<FixedKernel>,
         amounts: &mut [f64],
@@ -324,7 +341,7 @@ impl ChunkState {
             Some(Ok(face)) => match kernel {
                 // Specialised kernels run on full faces only (no unreachable species).
                 Some(kernel) if face.dim == system.n_reactions() => kernel(
-                    system, face, feed, ln_k, pressure, options, amounts, extents,
+                    system, face, feed, ln_k, pressure, start, options, amounts, extents,
                 ),
                 _ => solve_case(
                     system,
@@ -332,6 +349,7 @@ impl ChunkState {
                     feed,
                     ln_k,
                     pressure,
+                    start,
                     options,
                     &mut self.workspace,
                     amounts,
@@ -376,6 +394,7 @@ mod tests {
             feed,
             ln_k,
             pressure: p,
+            start: None,
         };
         let mut out = BatchOutputs {
             amounts: &mut amounts,
@@ -459,6 +478,7 @@ mod tests {
             feed: &[1.0; 5],
             ln_k: &[0.0; 2],
             pressure: &[1.0],
+            start: None,
         };
         let mut out = BatchOutputs {
             amounts: &mut a,

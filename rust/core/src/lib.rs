@@ -10,6 +10,7 @@
 //! * [`basis`]: the per-case stoichiometric basis that keeps trace species precise;
 //! * [`solver`]: the damped Newton solve of one case;
 //! * [`batch`]: the parallel batch driver;
+//! * [`sensitivity`]: exact derivatives of converged cases;
 //! * [`lp`], [`linalg`]: the small numerical kernels they share.
 
 // Numerical kernels index several parallel arrays by the same species or
@@ -22,12 +23,14 @@ pub mod error;
 pub mod face;
 pub mod linalg;
 pub mod lp;
+pub mod sensitivity;
 pub mod solver;
 pub mod status;
 pub mod system;
 
 pub use batch::{solve_batch, BatchInputs, BatchOutputs};
 pub use error::CoreError;
+pub use sensitivity::{sensitivities_batch, SensitivityOutputs};
 pub use solver::SolveOptions;
 pub use status::Status;
 pub use system::{Phase, System};

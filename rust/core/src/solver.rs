@@ -271,6 +271,7 @@ pub fn solve_case(
     feed: &[f64],
     ln_k: &[f64],
     pressure: f64,
+    start: Option<&[f64]>,
     options: &SolveOptions,
     ws: &mut Workspace,
     amounts: &mut [f64],
@@ -279,7 +280,7 @@ pub fn solve_case(
     let (s, r) = (system.n_species(), system.n_reactions());
     let mut sc = ws.scratch();
     let out = run(
-        system, face, feed, ln_k, pressure, options, &mut sc, s, r, face.dim, false,
+        system, face, feed, ln_k, pressure, start, options, &mut sc, s, r, face.dim, false,
     );
     amounts.copy_from_slice(&sc.amounts[..s]);
     extents.copy_from_slice(&sc.extents[..r]);
@@ -288,8 +289,17 @@ pub fn solve_case(
 
 /// A solve specialised to `R` reactions and `S` species on a full face
 /// (no unreachable species), with stack working memory: see [`kernel_for`].
-pub type FixedKernel =
-    fn(&System, &Face, &[f64], &[f64], f64, &SolveOptions, &mut [f64], &mut [f64]) -> (Status, u32);
+pub type FixedKernel = fn(
+    &System,
+    &Face,
+    &[f64],
+    &[f64],
+    f64,
+    Option<&[f64]>,
+    &SolveOptions,
+    &mut [f64],
+    &mut [f64],
+) -> (Status, u32);
 
 #[allow(clippy::too_many_arguments)]
 fn solve_fixed<const R: usize, const S: usize, const G: bool>(
@@ -298,6 +308,7 @@ fn solve_fixed<const R: usize, const S: usize, const G: bool>(
     feed: &[f64],
     ln_k: &[f64],
     pressure: f64,
+    start: Option<&[f64]>,
     options: &SolveOptions,
     amounts_out: &mut [f64],
     extents_out: &mut [f64],
@@ -344,7 +355,7 @@ fn solve_fixed<const R: usize, const S: usize, const G: bool>(
         extents,
     };
     let out = run(
-        system, face, feed, ln_k, pressure, options, &mut sc, S, R, R, G,
+        system, face, feed, ln_k, pressure, start, options, &mut sc, S, R, R, G,
     );
     amounts_out.copy_from_slice(&sc.amounts[..S]);
     extents_out.copy_from_slice(&sc.extents[..R]);
@@ -376,6 +387,46 @@ pub fn kernel_for(r: usize, s: usize, gas_only: bool) -> Option<FixedKernel> {
     }
 }
 
+/// Start from caller-given extents `x0` (a warm start, for instance the
+/// solution of a neighbouring case) when they put every species that can be
+/// present strictly above zero and keep the unreachable ones at zero;
+/// returns `false` (and the default start is used) otherwise.
+#[inline(always)]
+#[allow(clippy::too_many_arguments)]
+fn warm_start(
+    system: &System,
+    face: &Face,
+    feed: &[f64],
+    x0: &[f64],
+    amounts: &mut [f64],
+    extents: &mut [f64],
+    s: usize,
+    r: usize,
+) -> bool {
+    let nu = system.stoich();
+    let mut scale = 0.0_f64;
+    for i in 0..s {
+        scale = scale.max(feed[i]);
+    }
+    for i in 0..s {
+        let mut v = feed[i];
+        for j in 0..r {
+            v += nu[j * s + i] * x0[j];
+        }
+        if face.unreachable[i] {
+            if !(v.abs() <= 1e-12 * scale) {
+                return false;
+            }
+            v = 0.0;
+        } else if system.is_reactive(i) && !(v > 0.0 && v < f64::INFINITY) {
+            return false;
+        }
+        amounts[i] = v;
+    }
+    extents[..r].copy_from_slice(&x0[..r]);
+    true
+}
+
 /// Interior start, then damped Newton iterations; see the module docs.
 #[inline(always)]
 #[allow(clippy::too_many_arguments)]
@@ -385,6 +436,7 @@ fn run(
     feed: &[f64],
     ln_k: &[f64],
     pressure: f64,
+    start: Option<&[f64]>,
     options: &SolveOptions,
     sc: &mut Scratch,
     s: usize,
@@ -399,31 +451,34 @@ fn run(
     let ln_k = &ln_k[..r];
     let ln_pressure = (pressure / system.p0()).ln();
     let amounts = &mut sc.amounts[..s];
+    let start = start.map(|x0| &x0[..r]);
 
-    // Strictly interior start: move from the feed along the face's
-    // reachability direction, halfway to the first species it would use up.
-    let mut t_max = f64::INFINITY;
     for (k, slot) in sc.order[..s].iter_mut().enumerate() {
         // Every case starts from the same order, so that ties between equal
         // amounts break the same way whatever the previous case was.
         *slot = k;
     }
-    for i in 0..s {
-        let dc = face.direction_change[i];
-        if dc < 0.0 {
-            t_max = t_max.min(feed[i] / -dc);
+    if !start.is_some_and(|x0| warm_start(system, face, feed, x0, amounts, sc.extents, s, r)) {
+        // Strictly interior start: move from the feed along the face's
+        // reachability direction, halfway to the first species it would use up.
+        let mut t_max = f64::INFINITY;
+        for i in 0..s {
+            let dc = face.direction_change[i];
+            if dc < 0.0 {
+                t_max = t_max.min(feed[i] / -dc);
+            }
         }
-    }
-    let t = if t_max.is_finite() { 0.5 * t_max } else { 0.0 };
-    for i in 0..s {
-        amounts[i] = if face.unreachable[i] {
-            0.0
-        } else {
-            feed[i] + t * face.direction_change[i]
-        };
-    }
-    for j in 0..r {
-        sc.extents[j] = t * face.direction[j];
+        let t = if t_max.is_finite() { 0.5 * t_max } else { 0.0 };
+        for i in 0..s {
+            amounts[i] = if face.unreachable[i] {
+                0.0
+            } else {
+                feed[i] + t * face.direction_change[i]
+            };
+        }
+        for j in 0..r {
+            sc.extents[j] = t * face.direction[j];
+        }
     }
     if dim == 0 {
         return (Status::Converged, 0);
@@ -763,6 +818,7 @@ mod tests {
             feed,
             ln_k,
             p,
+            None,
             &options,
             &mut ws,
             &mut amounts,
@@ -770,7 +826,7 @@ mod tests {
         );
         if let Some(kernel) = kernel_for(r, s, true) {
             let (mut a2, mut e2) = (vec![0.0; s], vec![0.0; r]);
-            let (st2, it2) = kernel(&sys, &face, feed, ln_k, p, &options, &mut a2, &mut e2);
+            let (st2, it2) = kernel(&sys, &face, feed, ln_k, p, None, &options, &mut a2, &mut e2);
             assert_eq!((st, it), (st2, it2));
             let bits = |v: &[f64]| v.iter().map(|x| x.to_bits()).collect::<Vec<_>>();
             assert_eq!(bits(&amounts), bits(&a2));

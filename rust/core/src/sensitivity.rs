@@ -1,0 +1,293 @@
+//! Exact derivatives of the equilibrium amounts, from the converged Newton
+//! system (implicit function theorem, no finite differences).
+//!
+//! At equilibrium the basis residuals vanish, `F(xi; ln K, ln P, n0) = 0`, so
+//! `H dxi = -dF/dtheta dtheta` with `H` the Hessian of the Gibbs function in
+//! the extents. The system is written in the per-case stoichiometric basis of
+//! the most abundant species ([`crate::basis`]) and solved with the same
+//! scale-invariant factorisation as the Newton step, so the derivative of a
+//! trace species keeps full relative precision (it is its own extent). Species
+//! the feed cannot form are exactly zero and have zero derivatives; a feed
+//! derivative with respect to such a species holds the zero pattern fixed
+//! (the added amount only dilutes its phase).
+
+use rayon::prelude::*;
+
+use crate::basis::{choose_basis, sort_by_amount};
+use crate::batch::{faces_for, BatchInputs, FaceTable, Rows, TINY_FEED};
+use crate::error::CoreError;
+use crate::face::Face;
+use crate::linalg::solve_spd;
+use crate::status::Status;
+use crate::system::{Phase, System};
+
+/// Derivative outputs, all `n_cases` rows, row-major.
+#[derive(Debug)]
+pub struct SensitivityOutputs<'a> {
+    /// `d n_i / d ln K_k`: `n_cases x S x R`.
+    pub d_ln_k: &'a mut [f64],
+    /// `d n_i / d ln P`: `n_cases x S`.
+    pub d_ln_p: &'a mut [f64],
+    /// `d n_i / d n0_k`: `n_cases x S x S`.
+    pub d_feed: &'a mut [f64],
+}
+
+const CHUNK: usize = 64;
+
+/// Derivatives of every converged case; other cases get NaN.
+pub fn sensitivities_batch(
+    system: &System,
+    inputs: &BatchInputs,
+    amounts: &[f64],
+    status: &[u8],
+    out: &mut SensitivityOutputs,
+    threads: Option<usize>,
+) -> Result<(), CoreError> {
+    let n = inputs.n_cases;
+    let (s, r) = (system.n_species(), system.n_reactions());
+    let feed_rows = Rows::check("feed", inputs.feed.len(), s, n)?;
+    let p_rows = Rows::check("pressure", inputs.pressure.len(), 1, n)?;
+    if amounts.len() != n * s
+        || status.len() != n
+        || out.d_ln_k.len() != n * s * r
+        || out.d_ln_p.len() != n * s
+        || out.d_feed.len() != n * s * s
+    {
+        return Err(CoreError::Shape(
+            "sensitivity arrays do not match the batch".into(),
+        ));
+    }
+    if n == 0 {
+        return Ok(());
+    }
+    let faces = faces_for(system, inputs, feed_rows);
+    let work = |chunk: usize, dk: &mut [f64], dp: &mut [f64], df: &mut [f64]| {
+        let mut scratch = Scratch::new(s, r);
+        let cases = dp.len() / s;
+        for local in 0..cases {
+            let case = chunk * CHUNK + local;
+            let dk = &mut dk[local * s * r..(local + 1) * s * r];
+            let dp = &mut dp[local * s..(local + 1) * s];
+            let df = &mut df[local * s * s..(local + 1) * s * s];
+            let feed = feed_rows.row(inputs.feed, case);
+            let face = faces.face_of(feed, s);
+            let ok = status[case] == Status::Converged as u8
+                && face.is_some_and(|face| {
+                    let n_case = &amounts[case * s..(case + 1) * s];
+                    let pressure = p_rows.row(inputs.pressure, case)[0];
+                    case_sensitivities(system, face, n_case, pressure, &mut scratch, dk, dp, df)
+                });
+            if !ok {
+                dk.fill(f64::NAN);
+                dp.fill(f64::NAN);
+                df.fill(f64::NAN);
+            }
+        }
+    };
+    let run = |out: &mut SensitivityOutputs| {
+        out.d_ln_k
+            .par_chunks_mut(CHUNK * s * r)
+            .zip(out.d_ln_p.par_chunks_mut(CHUNK * s))
+            .zip(out.d_feed.par_chunks_mut(CHUNK * s * s))
+            .enumerate()
+            .for_each(|(chunk, ((dk, dp), df))| work(chunk, dk, dp, df));
+    };
+    match threads {
+        Some(k) if k > 0 => rayon::ThreadPoolBuilder::new()
+            .num_threads(k)
+            .build()
+            .map_err(|e| CoreError::BadOption(format!("cannot start {k} threads: {e}")))?
+            .install(|| run(out)),
+        Some(_) => return Err(CoreError::BadOption("threads must be at least 1".into())),
+        None => run(out),
+    }
+    Ok(())
+}
+
+struct Scratch {
+    order: Vec<usize>,
+    pivot_of: Vec<usize>,
+    pivots: Vec<usize>,
+    basis_stoich: Vec<f64>,
+    transform: Vec<f64>,
+    hessian: Vec<f64>,
+    work: Vec<f64>,
+    rhs: Vec<f64>,
+    scale: Vec<f64>,
+    gas: Vec<f64>,
+    liquid: Vec<f64>,
+}
+
+impl Scratch {
+    fn new(s: usize, r: usize) -> Self {
+        Scratch {
+            order: (0..s).collect(),
+            pivot_of: vec![usize::MAX; s],
+            pivots: vec![0; r],
+            basis_stoich: vec![0.0; r * s],
+            transform: vec![0.0; r * r],
+            hessian: vec![0.0; r * r],
+            work: vec![0.0; r * r],
+            rhs: vec![0.0; r],
+            scale: vec![0.0; r],
+            gas: vec![0.0; r],
+            liquid: vec![0.0; r],
+        }
+    }
+}
+
+/// Derivatives of one converged case. Returns `false` if the Newton system
+/// is singular.
+#[allow(clippy::too_many_arguments)]
+fn case_sensitivities(
+    system: &System,
+    face: &Face,
+    amounts: &[f64],
+    _pressure: f64,
+    sc: &mut Scratch,
+    d_ln_k: &mut [f64],
+    d_ln_p: &mut [f64],
+    d_feed: &mut [f64],
+) -> bool {
+    let (s, r, dim) = (system.n_species(), system.n_reactions(), face.dim);
+    let phases = system.phases();
+    d_ln_k.fill(0.0);
+    d_ln_p.fill(0.0);
+    d_feed.fill(0.0);
+    for k in 0..s {
+        d_feed[k * s + k] = 1.0;
+    }
+    if dim == 0 {
+        return true;
+    }
+    for (k, slot) in sc.order.iter_mut().enumerate() {
+        *slot = k;
+    }
+    sort_by_amount(amounts, &mut sc.order);
+    if choose_basis(
+        &face.stoich,
+        dim,
+        s,
+        &sc.order,
+        &mut sc.basis_stoich,
+        &mut sc.transform,
+        &mut sc.pivots[..dim],
+        &mut sc.pivot_of,
+    )
+    .is_none()
+    {
+        return false;
+    }
+    let (mut n_gas, mut n_liquid) = (0.0, 0.0);
+    for i in 0..s {
+        match phases[i] {
+            Phase::Gas => n_gas += amounts[i],
+            Phase::Liquid => n_liquid += amounts[i],
+        }
+    }
+    for j in 0..dim {
+        let nu = &sc.basis_stoich[..dim * s];
+        let (mut g, mut l) = (0.0, 0.0);
+        for i in 0..s {
+            match phases[i] {
+                Phase::Gas => g += nu[j * s + i],
+                Phase::Liquid => l += nu[j * s + i],
+            }
+        }
+        sc.gas[j] = g;
+        sc.liquid[j] = l;
+    }
+    let inv_gas = if n_gas > 0.0 { 1.0 / n_gas } else { 0.0 };
+    let inv_liquid = if n_liquid > 0.0 { 1.0 / n_liquid } else { 0.0 };
+    let nu = &sc.basis_stoich[..dim * s];
+    for j in 0..dim {
+        for k in 0..dim {
+            let mut v = -sc.gas[j] * sc.gas[k] * inv_gas - sc.liquid[j] * sc.liquid[k] * inv_liquid;
+            for i in 0..s {
+                let (a, b) = (nu[j * s + i], nu[k * s + i]);
+                if a != 0.0 && b != 0.0 {
+                    v += a * b / amounts[i];
+                }
+            }
+            sc.hessian[j * dim + k] = v;
+        }
+    }
+    // Solve H x = rhs and spread x over the species: pivots move by their own
+    // extent, components through the stoichiometry.
+    let solve_into = |sc: &mut Scratch, column: &mut dyn FnMut(usize, f64)| -> bool {
+        sc.work[..dim * dim].copy_from_slice(&sc.hessian[..dim * dim]);
+        if !solve_spd(
+            &mut sc.work[..dim * dim],
+            &mut sc.rhs[..dim],
+            &mut sc.scale[..dim],
+            dim,
+        ) {
+            return false;
+        }
+        for i in 0..s {
+            let row = sc.pivot_of[i];
+            let v = if row != usize::MAX {
+                sc.rhs[row]
+            } else {
+                (0..dim)
+                    .map(|j| sc.basis_stoich[j * s + i] * sc.rhs[j])
+                    .sum()
+            };
+            column(i, v);
+        }
+        true
+    };
+    // ln K: dF_b/d ln K_k = -(T W^T)[:, k], so H dxi = (T W^T) e_k.
+    for k in 0..r {
+        for j in 0..dim {
+            sc.rhs[j] = (0..dim)
+                .map(|f| sc.transform[j * dim + f] * face.basis[k * dim + f])
+                .sum();
+        }
+        if !solve_into(sc, &mut |i, v| d_ln_k[i * r + k] = v) {
+            return false;
+        }
+    }
+    // ln P: dF_b/d ln P = gas change.
+    for j in 0..dim {
+        sc.rhs[j] = -sc.gas[j];
+    }
+    if !solve_into(sc, &mut |i, v| d_ln_p[i] = v) {
+        return false;
+    }
+    // Feed of species k: dF_b/d n0_k = nu_b[:, k] / n_k - d_phase(k) / N_phase(k).
+    for k in 0..s {
+        let unreachable = face.unreachable[k] || amounts[k] < TINY_FEED;
+        for j in 0..dim {
+            let own = if unreachable {
+                0.0
+            } else {
+                sc.basis_stoich[j * s + k] / amounts[k]
+            };
+            let dilution = match phases[k] {
+                Phase::Gas => sc.gas[j] * inv_gas,
+                Phase::Liquid => sc.liquid[j] * inv_liquid,
+            };
+            sc.rhs[j] = -(own - dilution);
+        }
+        if !solve_into(sc, &mut |i, v| d_feed[i * s + k] += v) {
+            return false;
+        }
+    }
+    true
+}
+
+impl FaceTable {
+    /// The face of a feed's zero pattern, if the batch analysed one.
+    pub(crate) fn face_of(&self, feed: &[f64], s: usize) -> Option<&Face> {
+        let mut key = vec![0u64; s.div_ceil(64).max(1)];
+        for (i, &v) in feed.iter().enumerate() {
+            if v < TINY_FEED {
+                key[i / 64] |= 1 << (i % 64);
+            }
+        }
+        self.index
+            .get(&key[..])
+            .and_then(|&k| self.faces[k].as_ref().ok())
+    }
+}
