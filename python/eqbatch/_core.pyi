@@ -24,6 +24,7 @@ class System:
         tol: float,
         max_iter: int,
         threads: int | None = None,
+        start: npt.NDArray[np.float64] | None = None,
     ) -> tuple[
         npt.NDArray[np.float64],
         npt.NDArray[np.float64],
@@ -31,3 +32,11 @@ class System:
         npt.NDArray[np.uint8],
         npt.NDArray[np.uint32],
     ]: ...
+    def sensitivities(
+        self,
+        feed: npt.NDArray[np.float64],
+        pressure: npt.NDArray[np.float64],
+        amounts: npt.NDArray[np.float64],
+        status: npt.NDArray[np.uint8],
+        threads: int | None = None,
+    ) -> tuple[npt.NDArray[np.float64], npt.NDArray[np.float64], npt.NDArray[np.float64]]: ...

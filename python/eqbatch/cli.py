@@ -104,6 +104,64 @@ def _cmd_solve(args: argparse.Namespace) -> int:
     return 0 if bool(res.converged[0]) else 1
 
 
+def _cmd_uncertainty(args: argparse.Namespace) -> int:
+    from pathlib import Path
+
+    from eqbatch import plots
+    from eqbatch.demo import CAUTION
+    from eqbatch.system import ReactionSystem
+    from eqbatch.uncertainty import monte_carlo
+
+    system = ReactionSystem.from_toml(args.system)
+    feed = _pairs(args.feed, "--feed")
+    if not feed:
+        raise _UsageError("give the feed, e.g. --feed CH4=1,H2O=3")
+    sig = [(n, _pairs(v, "--" + n.replace("_", "-"))) for n, v in
+           (("lnK_sigma", args.lnK_sigma), ("dG_sigma", args.dG_sigma), ("species_dG_sigma", args.species_dG_sigma))]
+    sig = [(n, v) for n, v in sig if v]
+    if len(sig) != 1:
+        raise _UsageError("give one of --lnK-sigma, --dG-sigma, --species-dG-sigma")
+    lnk = _pairs(args.lnK, "--lnK") or None
+    mc = monte_carlo(system, feed=feed, P=args.P, T=args.T, lnK=lnk, samples=args.samples, seed=args.seed,
+                     **{sig[0][0]: sig[0][1]})
+    print(f"Monte Carlo on ln K for {args.system}: {mc.samples:,} samples (seed {args.seed}), "
+          f"{100 * mc.converged.mean():.2f} % converged")
+    print("ln K standard deviations: " + ", ".join(
+        f"{label} {s:.3g}" for label, s in zip(system.labels, np.sqrt(np.diag(mc.covariance)))))
+    for of, title in (("mole_fractions", "Mole fractions"), ("conversion", "Conversion of reactants")):
+        summ = mc.summary(of)
+        if summ.names:
+            print(f"\n{title}")
+            print(summ.table())
+    outputs = args.output or [f"y_{system.species[int(np.argmax(mc.nominal.mole_fractions[0]))]}"]
+    from eqbatch.plots import parse_output
+
+    for name in outputs:
+        of, what = parse_output(name)
+        rows = mc.ranking(of, what)
+        print(f"\nWhich reaction matters for {name} (share of variance: first order / sampled)")
+        for label, first, sampled in rows:
+            print(f"  {label:<16} {100 * first:6.1f} %  {100 * sampled:6.1f} %")
+    for text in args.limit or []:
+        for op in (">=", "<="):
+            if op in text:
+                name, value = text.split(op)
+                of, what = parse_output(name.strip())
+                kw = {"at_least" if op == ">=" else "at_most": float(value)}
+                p, se = mc.probability(of, what, **kw)
+                print(f"\nP({name.strip()} {op} {float(value):g}) = {p:.4f} +- {se:.4f}")
+                break
+        else:
+            raise _UsageError(f"--limit must look like conversion_CH4>=0.9, got {text!r}")
+    folder = Path(args.plots)
+    folder.mkdir(parents=True, exist_ok=True)
+    hist = plots.histogram(mc, outputs, folder / "histogram.png")
+    torn = plots.tornado(mc, outputs[0], folder / "tornado.png")
+    print(f"\nwrote {hist} and {torn}\n")
+    print(CAUTION)
+    return 0
+
+
 def _cmd_demo(args: argparse.Namespace) -> int:
     from eqbatch.demo import run
 
@@ -136,6 +194,26 @@ def _parser() -> argparse.ArgumentParser:
     solve.add_argument("--tol", type=float, default=1e-10, help="convergence tolerance on |ln Q - ln K|")
     solve.add_argument("--max-iter", type=int, default=200, help="Newton iteration limit")
     solve.set_defaults(run=_cmd_solve)
+
+    unc = sub.add_parser("uncertainty", help="Monte Carlo on uncertain equilibrium constants for one case")
+    unc.add_argument("system", help="system file (TOML)")
+    unc.add_argument("--feed", action="append", metavar="SPECIES=MOL[,...]", help="feed amounts, mol")
+    unc.add_argument("--T", type=float, metavar="KELVIN", help="temperature, for K(T) data and dG sigmas")
+    unc.add_argument("--P", type=float, metavar="BAR", help="pressure, bar (default: P0)")
+    unc.add_argument("--lnK", action="append", metavar="LABEL=VALUE[,...]", help="nominal ln K")
+    unc.add_argument("--lnK-sigma", action="append", metavar="LABEL=SIGMA[,...]", help="std. dev. of ln K")
+    unc.add_argument("--dG-sigma", action="append", metavar="LABEL=KJ[,...]",
+                     help="std. dev. of the standard reaction Gibbs energy, kJ/mol (needs --T)")
+    unc.add_argument("--species-dG-sigma", action="append", metavar="SPECIES=KJ[,...]",
+                     help="independent std. dev. of species' Gibbs energies of formation, kJ/mol (needs --T)")
+    unc.add_argument("--samples", type=int, default=10_000)
+    unc.add_argument("--seed", type=int, default=0)
+    unc.add_argument("--output", action="append", metavar="NAME",
+                     help="outputs to rank and plot: y_H2, n_CO, extent_shift, conversion_CH4")
+    unc.add_argument("--limit", action="append", metavar="NAME>=VALUE",
+                     help="report the probability of meeting a limit, e.g. conversion_CH4>=0.9")
+    unc.add_argument("--plots", default=".", metavar="DIR", help="folder for histogram.png and tornado.png")
+    unc.set_defaults(run=_cmd_uncertainty)
 
     demo = sub.add_parser("demo", help="reformer and shift study on built-in data")
     demo.add_argument("--cases", type=int, default=1_000_000, help="size of the timed random batch")

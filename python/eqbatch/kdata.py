@@ -57,6 +57,12 @@ class LnKFunction:
         self._check_range(T)
         return value
 
+    def derivative(self, T: np.ndarray | float) -> np.ndarray:
+        """``d ln K / dT = -b/T**2 + c/T + d + 2 e T``."""
+        T = np.asarray(T, dtype=np.float64)
+        with np.errstate(divide="ignore", invalid="ignore"):
+            return -self.b / (T * T) + self.c / T + self.d + 2.0 * self.e * T
+
     def _check_range(self, T: np.ndarray) -> None:
         if self.T_min is None and self.T_max is None:
             return

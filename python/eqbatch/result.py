@@ -81,6 +81,7 @@ class EquilibriumResult:
         "_P",
         "_T",
         "_lnK",
+        "_sens",
     )
 
     def __init__(
@@ -106,6 +107,7 @@ class EquilibriumResult:
         self._P = P
         self._T = T
         self._lnK = lnK
+        self._sens: tuple[np.ndarray, np.ndarray, np.ndarray] | None = None
 
     def __len__(self) -> int:
         return self.amounts.shape[0]
@@ -170,6 +172,75 @@ class EquilibriumResult:
         feed = self.feed[:, k]
         with np.errstate(divide="ignore", invalid="ignore"):
             return np.where(feed > 0, (feed - self.amounts[:, k]) / feed, np.nan)
+
+    def sensitivity(self, wrt: str, of: str = "amounts") -> np.ndarray:
+        """Exact derivatives of the equilibrium (solve with ``sensitivities=True``).
+
+        Parameters
+        ----------
+        wrt : {"lnK", "lnP", "P", "feed", "T"}
+            ``"lnK"`` gives shape (N, S, R) (for ``of="extents"`` (N, R, R)),
+            ``"feed"`` (N, S, S) (derivative by the feed of each species),
+            the others (N, S). ``"T"`` needs K(T) data in the system.
+        of : {"amounts", "mole_fractions", "extents"}
+
+        Returns
+        -------
+        ndarray
+            Derivatives from the implicit function theorem applied to the
+            converged Newton system; NaN for cases that did not converge.
+            Species the feed cannot form have zero derivatives.
+        """
+        if self._sens is None:
+            from eqbatch.errors import CaseInputError
+
+            raise CaseInputError("derivatives were not computed: solve with sensitivities=True")
+        d_lnk, d_lnp, d_feed = self._sens
+        if wrt == "lnK":
+            dn = d_lnk
+        elif wrt == "lnP":
+            dn = d_lnp
+        elif wrt == "P":
+            dn = d_lnp / self.P[:, None]
+        elif wrt == "feed":
+            dn = d_feed
+        elif wrt == "T":
+            if self._T is None:
+                from eqbatch.errors import CaseInputError
+
+                raise CaseInputError("no temperature was given to the solve: d/dT is undefined")
+            slope = self.system.dlnK_dT(self.T)
+            dn = np.einsum("nsr,nr->ns", d_lnk, slope)
+        else:
+            raise ValueError(f"wrt must be 'lnK', 'lnP', 'P', 'feed' or 'T', got {wrt!r}")
+        if of == "amounts":
+            return dn
+        if of == "mole_fractions":
+            return self._fraction_derivative(dn)
+        if of == "extents":
+            nu = self.system.stoich
+            change = dn - np.eye(nu.shape[1])[None] if wrt == "feed" else dn
+            # n = n0 + nu^T xi with nu of full row rank: d xi = (nu nu^T)^-1 nu d(n - n0)
+            gram = nu @ nu.T
+            return np.einsum("rs,ns...->nr...", np.linalg.solve(gram, nu), change)
+        raise ValueError(f"of must be 'amounts', 'mole_fractions' or 'extents', got {of!r}")
+
+    def _fraction_derivative(self, dn: np.ndarray) -> np.ndarray:
+        phases = np.array(self.system.phases)
+        out = np.empty_like(dn)
+        n = self.amounts
+        for phase in ("gas", "liquid"):
+            mask = phases == phase
+            if not mask.any():
+                continue
+            total = n[:, mask].sum(axis=1)
+            d_total = dn[:, mask].sum(axis=1)
+            shape = (-1,) + (1,) * (dn.ndim - 2)
+            with np.errstate(divide="ignore", invalid="ignore"):
+                inv = np.where(total > 0, 1.0 / total, 0.0).reshape(shape)
+                y = self.mole_fractions[:, mask].reshape(n.shape[0], mask.sum(), *([1] * (dn.ndim - 2)))
+                out[:, mask] = (dn[:, mask] - y * d_total[:, None]) * inv[:, None]
+        return out
 
     def columns(self, inputs: bool = True) -> dict[str, np.ndarray]:
         """Named columns: the inputs (``feed_<species>``, ``P_bar``, ``T_K``,

@@ -406,6 +406,8 @@ class ReactionSystem:
         max_iter: int = 200,
         threads: int | None = None,
         invalid: str = "mark",
+        x0: ArrayLike | None = None,
+        sensitivities: bool = False,
     ) -> EquilibriumResult:
         """Equilibrium of every case.
 
@@ -436,6 +438,14 @@ class ReactionSystem:
             Bad cases (negative or NaN feed, zero total, bad ln K or P) get
             ``Status.INVALID_INPUT`` and NaN outputs; ``"raise"`` raises
             :class:`InvalidCaseError` naming the first one instead.
+        x0 : array_like, shape (N, R) or (R,), optional
+            Starting extents (a warm start, e.g. ``previous.extents``). Used
+            where it puts every species that can be present above zero;
+            elsewhere the default interior start is used. The equilibrium
+            does not depend on it, only the iteration count does.
+        sensitivities : bool, default False
+            Also compute exact derivatives of the converged cases, read with
+            :meth:`EquilibriumResult.sensitivity`.
 
         Returns
         -------
@@ -474,12 +484,30 @@ class ReactionSystem:
             raise CaseInputError(f"max_iter must be a non-negative integer, got {max_iter!r}")
         if threads is not None and not (isinstance(threads, (int, np.integer)) and threads >= 1):
             raise CaseInputError(f"threads must be a positive integer, got {threads!r}")
+        start = None if x0 is None else self._rows(x0, "x0", self.n_reactions)
+        if start is not None and start.shape[0] not in (1, n):
+            raise CaseInputError(f"x0 has {start.shape[0]} cases but other inputs have {n}; give 1 or {n}")
         amounts, extents, fractions, status, iterations = self._core.solve(
-            feed_arr, lnk_arr, p_arr, n, float(tol), int(max_iter), threads
+            feed_arr, lnk_arr, p_arr, n, float(tol), int(max_iter), threads, start
         )
-        return EquilibriumResult(
+        result = EquilibriumResult(
             self, amounts, extents, fractions, status, iterations, feed_arr, p_arr, T_arr, lnk_arr
         )
+        if sensitivities:
+            result._sens = self._core.sensitivities(feed_arr, p_arr, amounts, status, threads)
+        return result
+
+    def dlnK_dT(self, T: ArrayLike) -> np.ndarray:
+        """``(N, R)`` temperature derivative of ln K, 1/K, from the K(T) data."""
+        T = np.atleast_1d(np.asarray(T, dtype=np.float64))
+        out = np.zeros((T.shape[0], self.n_reactions))
+        for j, label in enumerate(self.labels):
+            data = self.lnK_data.get(label)
+            if data is None:
+                raise CaseInputError(f"reaction {label!r} has no K data: d ln K / dT is unknown")
+            if isinstance(data, LnKFunction):
+                out[:, j] = data.derivative(T)
+        return out
 
     def _raise_invalid(self, feed: np.ndarray, lnk: np.ndarray, P: np.ndarray, n: int) -> None:
         checks: list[tuple[np.ndarray, Callable[[int], str]]] = [

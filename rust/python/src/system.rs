@@ -1,8 +1,11 @@
 //! `eqbatch._core.System`: a validated reaction system and its batch solve.
 
-use eqbatch_core::{solve_batch, BatchInputs, BatchOutputs, Phase, SolveOptions, System};
+use eqbatch_core::{
+    sensitivities_batch, solve_batch, BatchInputs, BatchOutputs, Phase, SensitivityOutputs, SolveOptions,
+    System,
+};
 use numpy::{
-    PyArray1, PyArray2, PyArrayMethods, PyReadonlyArray1, PyReadonlyArray2, PyUntypedArrayMethods,
+    PyArray1, PyArray2, PyArray3, PyArrayMethods, PyReadonlyArray1, PyReadonlyArray2, PyUntypedArrayMethods,
 };
 use pyo3::exceptions::PyValueError;
 use pyo3::prelude::*;
@@ -15,6 +18,12 @@ type Solved<'py> = (
     Bound<'py, PyArray2<f64>>,
     Bound<'py, PyArray1<u8>>,
     Bound<'py, PyArray1<u32>>,
+);
+
+type Sensitivities<'py> = (
+    Bound<'py, PyArray3<f64>>,
+    Bound<'py, PyArray2<f64>>,
+    Bound<'py, PyArray3<f64>>,
 );
 
 #[pyclass(name = "System", module = "eqbatch._core", frozen)]
@@ -62,7 +71,7 @@ impl PySystem {
     /// Solve `n_cases` cases. `feed` (1 or N, S), `ln_k` (1 or N, R) and
     /// `pressure` (1 or N) must be C-contiguous float64. Returns
     /// `(amounts, extents, mole_fractions, status, iterations)`.
-    #[pyo3(signature = (feed, ln_k, pressure, n_cases, tol, max_iter, threads=None))]
+    #[pyo3(signature = (feed, ln_k, pressure, n_cases, tol, max_iter, threads=None, start=None))]
     #[allow(clippy::too_many_arguments)]
     fn solve<'py>(
         &self,
@@ -74,6 +83,7 @@ impl PySystem {
         tol: f64,
         max_iter: u32,
         threads: Option<usize>,
+        start: Option<PyReadonlyArray2<'py, f64>>,
     ) -> PyResult<Solved<'py>> {
         let s = self.inner.n_species();
         let r = self.inner.n_reactions();
@@ -86,6 +96,10 @@ impl PySystem {
             let feed = feed.as_slice()?;
             let ln_k = ln_k.as_slice()?;
             let pressure = pressure.as_slice()?;
+            let start = match &start {
+                Some(x0) => Some(x0.as_slice()?),
+                None => None,
+            };
             // SAFETY: the five output arrays were created just above, are
             // C-contiguous, and no other reference to them exists until they
             // are returned, so these are the only views of their memory.
@@ -103,6 +117,7 @@ impl PySystem {
                 feed,
                 ln_k,
                 pressure,
+                start,
             };
             let options = SolveOptions { tol, max_iter };
             let system = &self.inner;
@@ -119,5 +134,42 @@ impl PySystem {
             .map_err(to_py)?;
         }
         Ok((amounts, extents, fractions, status, iterations))
+    }
+
+    /// Exact derivatives of converged cases: returns `(d n / d ln K (N, S, R),
+    /// d n / d ln P (N, S), d n / d n0 (N, S, S))`; other cases are NaN.
+    #[pyo3(signature = (feed, pressure, amounts, status, threads=None))]
+    fn sensitivities<'py>(
+        &self,
+        py: Python<'py>,
+        feed: PyReadonlyArray2<'py, f64>,
+        pressure: PyReadonlyArray1<'py, f64>,
+        amounts: PyReadonlyArray2<'py, f64>,
+        status: PyReadonlyArray1<'py, u8>,
+        threads: Option<usize>,
+    ) -> PyResult<Sensitivities<'py>> {
+        let s = self.inner.n_species();
+        let r = self.inner.n_reactions();
+        let n_cases = amounts.shape()[0];
+        let d_ln_k = PyArray3::<f64>::zeros(py, [n_cases, s, r], false);
+        let d_ln_p = PyArray2::<f64>::zeros(py, [n_cases, s], false);
+        let d_feed = PyArray3::<f64>::zeros(py, [n_cases, s, s], false);
+        {
+            let feed = feed.as_slice()?;
+            let pressure = pressure.as_slice()?;
+            let amounts = amounts.as_slice()?;
+            let status = status.as_slice()?;
+            // SAFETY: the three arrays were created just above and are not
+            // shared until returned.
+            let (dk, dp, df) = unsafe { (d_ln_k.as_slice_mut()?, d_ln_p.as_slice_mut()?, d_feed.as_slice_mut()?) };
+            let system = &self.inner;
+            py.detach(move || {
+                let inputs = BatchInputs { n_cases, feed, ln_k: &[], pressure, start: None };
+                let mut out = SensitivityOutputs { d_ln_k: dk, d_ln_p: dp, d_feed: df };
+                sensitivities_batch(system, &inputs, amounts, status, &mut out, threads)
+            })
+            .map_err(to_py)?;
+        }
+        Ok((d_ln_k, d_ln_p, d_feed))
     }
 }

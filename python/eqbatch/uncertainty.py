@@ -1,0 +1,388 @@
+"""How sure is this conversion? Monte Carlo on equilibrium constants, the
+first-order (delta-method) estimate beside it, and which reaction's data
+matters most.
+
+Uncertainty in ln K can be given three ways:
+
+* ``lnK_sigma``: standard deviations of ln K, optionally with a correlation
+  matrix between reactions;
+* ``dG_sigma``: standard deviations of the standard reaction Gibbs energies,
+  kJ/mol, at temperature ``T`` (``sigma_lnK = sigma_G / (R T)``), optionally
+  correlated;
+* ``species_dG_sigma``: independent standard deviations of the species'
+  standard Gibbs energies of formation, kJ/mol. Reactions that share species
+  then get the covariance ``nu diag(sigma^2) nu^T / (R T)^2``.
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Mapping, Sequence
+from dataclasses import dataclass, field
+from typing import Any
+
+import numpy as np
+
+from eqbatch.errors import CaseInputError
+from eqbatch.result import EquilibriumResult
+from eqbatch.system import ReactionSystem
+
+#: Molar gas constant, kJ/(mol K) (CODATA 2018).
+R_KJ = 8.314462618e-3
+
+
+def lnK_covariance(
+    system: ReactionSystem,
+    *,
+    lnK_sigma: Sequence[float] | Mapping[str, float] | None = None,
+    dG_sigma: Sequence[float] | Mapping[str, float] | None = None,
+    correlation: np.ndarray | None = None,
+    species_dG_sigma: Mapping[str, float] | None = None,
+    T: float | None = None,
+) -> np.ndarray:
+    """The (R, R) covariance matrix of ln K implied by the given uncertainties.
+
+    Examples
+    --------
+    >>> s = ReactionSystem(["A", "B", "C"], ["A = B", "B = C"])
+    >>> lnK_covariance(s, species_dG_sigma={"B": 2.0}, T=500.0).round(3).tolist()
+    [[0.232, -0.232], [-0.232, 0.232]]
+    """
+    given = [x is not None for x in (lnK_sigma, dG_sigma, species_dG_sigma)]
+    if sum(given) != 1:
+        raise CaseInputError("give exactly one of lnK_sigma=, dG_sigma=, species_dG_sigma=")
+    R = system.n_reactions
+    if species_dG_sigma is not None:
+        if T is None:
+            raise CaseInputError("species_dG_sigma needs the temperature T (K)")
+        var = np.zeros(system.n_species)
+        for name, sigma in species_dG_sigma.items():
+            var[system.index(name)] = float(sigma) ** 2
+        if correlation is not None:
+            raise CaseInputError("species Gibbs energies are taken as independent; correlation= does not apply")
+        return (system.stoich * var) @ system.stoich.T / (R_KJ * T) ** 2
+    values = lnK_sigma if lnK_sigma is not None else dG_sigma
+    sigma = _per_reaction(system, values, "lnK_sigma" if lnK_sigma is not None else "dG_sigma")
+    if dG_sigma is not None:
+        if T is None:
+            raise CaseInputError("dG_sigma needs the temperature T (K): sigma_lnK = sigma_G / (R T)")
+        sigma = sigma / (R_KJ * T)
+    C = np.eye(R) if correlation is None else np.asarray(correlation, dtype=float)
+    if C.shape != (R, R) or not np.allclose(C, C.T) or np.any(np.abs(np.diag(C) - 1) > 1e-12):
+        raise CaseInputError(f"correlation must be a symmetric ({R}, {R}) matrix with unit diagonal")
+    if np.linalg.eigvalsh(C).min() < -1e-10:
+        raise CaseInputError("correlation matrix is not positive semi-definite")
+    return sigma[:, None] * C * sigma[None, :]
+
+
+def _per_reaction(system: ReactionSystem, values: Any, name: str) -> np.ndarray:
+    if isinstance(values, Mapping):
+        out = np.zeros(system.n_reactions)
+        for label, v in values.items():
+            if label not in system.labels:
+                raise CaseInputError(f"{name}: {label!r} is not a reaction label ({', '.join(system.labels)})")
+            out[system.labels.index(label)] = float(v)
+        return out
+    arr = np.asarray(values, dtype=float).reshape(-1)
+    if arr.size == 1:
+        arr = np.full(system.n_reactions, arr[0])
+    if arr.size != system.n_reactions:
+        raise CaseInputError(f"{name} needs one value per reaction ({', '.join(system.labels)})")
+    if np.any(arr < 0):
+        raise CaseInputError(f"{name} must be non-negative")
+    return arr
+
+
+def _sqrt_psd(cov: np.ndarray) -> np.ndarray:
+    """A factor L with L L^T = cov for a positive semi-definite cov."""
+    w, v = np.linalg.eigh(cov)
+    return v * np.sqrt(np.clip(w, 0.0, None))
+
+
+@dataclass
+class Summary:
+    """Monte Carlo statistics of one output array (last axis: species or
+    reactions), each with its Monte Carlo standard error."""
+
+    names: tuple[str, ...]
+    mean: np.ndarray
+    std: np.ndarray
+    percentiles: dict[float, np.ndarray]
+    mean_se: np.ndarray
+    std_se: np.ndarray
+    percentile_se: dict[float, np.ndarray]
+    linear_std: np.ndarray | None = None
+
+    def table(self) -> str:
+        qs = sorted(self.percentiles)
+        head = ["output", "mean", "+-se", "std", "+-se"] + [f"p{q:g}" for q in qs]
+        if self.linear_std is not None:
+            head.append("std (1st order)")
+        rows = []
+        for k, name in enumerate(self.names):
+            row = [name, f"{self.mean[k]:.6g}", f"{self.mean_se[k]:.2g}", f"{self.std[k]:.4g}",
+                   f"{self.std_se[k]:.2g}"] + [f"{self.percentiles[q][k]:.6g}" for q in qs]
+            if self.linear_std is not None:
+                row.append(f"{self.linear_std[k]:.4g}")
+            rows.append(row)
+        widths = [max(len(h), *(len(r[i]) for r in rows)) for i, h in enumerate(head)]
+        lines = ["  ".join(h.ljust(w) for h, w in zip(head, widths)), "  ".join("-" * w for w in widths)]
+        lines += ["  ".join(c.ljust(w) for c, w in zip(r, widths)) for r in rows]
+        return "\n".join(lines)
+
+
+def summarise(values: np.ndarray, names: Sequence[str], percentiles: Sequence[float]) -> Summary:
+    """Mean, standard deviation and percentiles over axis 0 with Monte Carlo
+    standard errors: ``std / sqrt(n)`` for the mean, ``std / sqrt(2 (n - 1))``
+    for the standard deviation (normal theory), and for a percentile the
+    half-width of the distribution-free 68 % order-statistic interval
+    (ranks ``n q +- sqrt(n q (1 - q))``)."""
+    values = np.asarray(values, dtype=float)
+    n = values.shape[0]
+    mean = values.mean(axis=0)
+    std = values.std(axis=0, ddof=1) if n > 1 else np.zeros_like(mean)
+    ordered = np.sort(values, axis=0)
+    pct, pct_se = {}, {}
+    for q in percentiles:
+        p = q / 100.0
+        pct[q] = np.percentile(values, q, axis=0)
+        half = math.sqrt(n * p * (1 - p))
+        lo = int(np.clip(math.floor(n * p - half), 0, n - 1))
+        hi = int(np.clip(math.ceil(n * p + half), 0, n - 1))
+        pct_se[q] = 0.5 * (ordered[hi] - ordered[lo])
+    return Summary(
+        names=tuple(names),
+        mean=mean,
+        std=std,
+        percentiles=pct,
+        mean_se=std / math.sqrt(n),
+        std_se=std / math.sqrt(max(2 * (n - 1), 1)),
+        percentile_se=pct_se,
+    )
+
+
+@dataclass
+class MonteCarloResult:
+    """Samples of one case's equilibrium under uncertain ln K.
+
+    Attributes
+    ----------
+    amounts, mole_fractions : ndarray, shape (samples, S)
+    extents : ndarray, shape (samples, R)
+    lnK : ndarray, shape (samples, R)
+        The sampled constants.
+    converged : ndarray, shape (samples,)
+    nominal : EquilibriumResult
+        The solve at the nominal ln K, with sensitivities.
+    covariance : ndarray, shape (R, R)
+        Covariance of ln K used for sampling.
+    """
+
+    system: ReactionSystem
+    amounts: np.ndarray
+    mole_fractions: np.ndarray
+    extents: np.ndarray
+    lnK: np.ndarray
+    converged: np.ndarray
+    nominal: EquilibriumResult
+    covariance: np.ndarray
+    feed: np.ndarray
+    percentiles: tuple[float, ...] = (5.0, 50.0, 95.0)
+    _cache: dict = field(default_factory=dict, repr=False)
+
+    @property
+    def samples(self) -> int:
+        return self.amounts.shape[0]
+
+    def _output(self, of: str) -> tuple[np.ndarray, tuple[str, ...], np.ndarray]:
+        """Samples, names and the first-order Jacobian (at nominal, by ln K) of an output."""
+        sp = tuple(self.system.species)
+        if of == "amounts":
+            return self.amounts, sp, self.nominal.sensitivity("lnK")[0]
+        if of == "mole_fractions":
+            return self.mole_fractions, sp, self.nominal.sensitivity("lnK", of="mole_fractions")[0]
+        if of == "extents":
+            return self.extents, tuple(self.system.labels), self.nominal.sensitivity("lnK", of="extents")[0]
+        if of == "conversion":
+            names = tuple(s for s in self.system.reactants() if self.feed[self.system.index(s)] > 0)
+            idx = [self.system.index(s) for s in names]
+            values = 1.0 - self.amounts[:, idx] / self.feed[idx]
+            jac = -self.nominal.sensitivity("lnK")[0][idx] / self.feed[idx][:, None]
+            return values, names, jac
+        raise CaseInputError(f"of must be 'amounts', 'mole_fractions', 'extents' or 'conversion', got {of!r}")
+
+    def summary(self, of: str = "mole_fractions") -> Summary:
+        """Statistics of an output with Monte Carlo standard errors, and the
+        first-order (delta-method) standard deviation ``sqrt(J C J^T)`` beside
+        them so one can see when linearisation is not enough."""
+        values, names, jac = self._output(of)
+        ok = self.converged
+        out = summarise(values[ok], names, self.percentiles)
+        out.linear_std = np.sqrt(np.maximum(np.einsum("kr,rs,ks->k", jac, self.covariance, jac), 0.0))
+        return out
+
+    def nominal_value(self, of: str, name: str) -> float:
+        """An output at the nominal ln K."""
+        mc = MonteCarloResult(self.system, self.nominal.amounts, self.nominal.mole_fractions,
+                              self.nominal.extents, self.nominal.lnK, self.nominal.converged,
+                              self.nominal, self.covariance, self.feed)
+        return float(mc.values(of, name)[0])
+
+    def values(self, of: str, name: str) -> np.ndarray:
+        """``(samples,)`` samples of one output, e.g. ``values("conversion", "CH4")``."""
+        values, names, _ = self._output(of)
+        if name not in names:
+            raise CaseInputError(f"{name!r} is not among the {of} outputs ({', '.join(names)})")
+        return values[:, names.index(name)]
+
+    def probability(self, of: str, name: str, *, at_least: float | None = None,
+                    at_most: float | None = None) -> tuple[float, float]:
+        """Probability (and its Monte Carlo standard error) that an output
+        meets a limit, e.g. ``probability("conversion", "CH4", at_least=0.9)``."""
+        if (at_least is None) == (at_most is None):
+            raise CaseInputError("give exactly one of at_least=, at_most=")
+        v = self.values(of, name)[self.converged]
+        hits = v >= at_least if at_least is not None else v <= at_most
+        p = float(hits.mean())
+        return p, math.sqrt(max(p * (1 - p), 0.0) / max(v.size, 1))
+
+    def ranking(self, of: str, name: str) -> list[tuple[str, float, float]]:
+        """Which reaction's uncertainty matters most for one output:
+        ``(label, first-order share of variance, sampled share)`` per
+        reaction, largest first. The first-order share is
+        ``J_r (C J^T)_r / (J C J^T)``; the sampled one is the squared
+        correlation of the output with that reaction's ln K (they agree when
+        the response is linear and the constants independent)."""
+        values, names, jac = self._output(of)
+        k = names.index(name)
+        j = jac[k]
+        total = float(j @ self.covariance @ j)
+        first = (j * (self.covariance @ j)) / total if total > 0 else np.zeros_like(j)
+        v = values[self.converged, k]
+        sampled = []
+        for r in range(self.system.n_reactions):
+            x = self.lnK[self.converged, r]
+            if np.std(x) == 0 or np.std(v) == 0:
+                sampled.append(0.0)
+            else:
+                sampled.append(float(np.corrcoef(x, v)[0, 1] ** 2))
+        rows = list(zip(self.system.labels, first.tolist(), sampled))
+        return sorted(rows, key=lambda row: -abs(row[1]))
+
+    def tornado(self, of: str, name: str) -> list[tuple[str, float, float]]:
+        """Output at nominal ln K shifted by -1 and +1 standard deviation of
+        each reaction in turn (full nonlinear solves): ``(label, low, high)``."""
+        values, names, _ = self._output(of)
+        k = names.index(name)
+        sigma = np.sqrt(np.diag(self.covariance))
+        base = self.nominal.lnK[0]
+        rows = []
+        for r, label in enumerate(self.system.labels):
+            shifted = np.tile(base, (2, 1))
+            shifted[0, r] -= sigma[r]
+            shifted[1, r] += sigma[r]
+            res = self.system.solve(self.feed, lnK=shifted, P=self.nominal.P[0])
+            mc = MonteCarloResult(self.system, res.amounts, res.mole_fractions, res.extents, shifted,
+                                  res.converged, self.nominal, self.covariance, self.feed)
+            out, _, _ = mc._output(of)
+            rows.append((label, float(out[0, k]), float(out[1, k])))
+        return sorted(rows, key=lambda row: -abs(row[2] - row[1]))
+
+
+def monte_carlo(
+    system: ReactionSystem,
+    *,
+    feed: Any,
+    P: float | None = None,
+    T: float | None = None,
+    lnK: Any = None,
+    lnK_sigma: Any = None,
+    dG_sigma: Any = None,
+    correlation: np.ndarray | None = None,
+    species_dG_sigma: Mapping[str, float] | None = None,
+    samples: int = 10_000,
+    seed: int | None = None,
+    percentiles: Sequence[float] = (5.0, 50.0, 95.0),
+    threads: int | None = None,
+) -> MonteCarloResult:
+    """Sample ln K from a multivariate normal around its nominal value and
+    solve every sample (batched through the core).
+
+    Parameters
+    ----------
+    system : ReactionSystem
+    feed : array_like (S,) or mapping
+        One case's feed (for tables of cases see :func:`monte_carlo_table`).
+    P, T : float, optional
+        Pressure (bar) and temperature (K); ``T`` gives the nominal ln K from
+        the system's K(T) data and converts Gibbs-energy uncertainties.
+    lnK : array_like (R,), optional
+        Nominal ln K (instead of K(T)).
+    lnK_sigma, dG_sigma, correlation, species_dG_sigma
+        The uncertainty; see the module docs and :func:`lnK_covariance`.
+    samples : int
+    seed : int, optional
+        Seed of the numpy Generator: the same seed gives the same samples.
+
+    Returns
+    -------
+    MonteCarloResult
+
+    Examples
+    --------
+    >>> s = ReactionSystem(["CO", "H2O", "CO2", "H2"], ["CO + H2O = CO2 + H2"])
+    >>> mc = monte_carlo(s, feed=[1, 1, 0, 0], lnK=[1.0], lnK_sigma=[0.3], samples=2000, seed=1)
+    >>> p, se = mc.probability("conversion", "CO", at_least=0.6)
+    >>> 0.4 < p < 0.9
+    True
+    """
+    nominal = system.solve(feed, lnK=lnK, T=T, P=P, sensitivities=True)
+    if len(nominal) != 1:
+        raise CaseInputError("monte_carlo takes one case; use monte_carlo_table for many")
+    cov = lnK_covariance(system, lnK_sigma=lnK_sigma, dG_sigma=dG_sigma, correlation=correlation,
+                         species_dG_sigma=species_dG_sigma, T=T)
+    rng = np.random.default_rng(seed)
+    z = rng.standard_normal((int(samples), system.n_reactions))
+    lnk = nominal.lnK[0] + z @ _sqrt_psd(cov).T
+    res = system.solve(nominal.feed[0], lnK=lnk, P=nominal.P[0], threads=threads)
+    return MonteCarloResult(system, res.amounts, res.mole_fractions, res.extents, lnk, res.converged,
+                            nominal, cov, nominal.feed[0].copy(), tuple(percentiles))
+
+
+def monte_carlo_table(
+    system: ReactionSystem,
+    *,
+    feed: Any,
+    P: Any = None,
+    T: Any = None,
+    lnK: Any = None,
+    samples: int = 1_000,
+    seed: int | None = None,
+    of: str = "mole_fractions",
+    percentiles: Sequence[float] = (5.0, 50.0, 95.0),
+    threads: int | None = None,
+    **uncertainty: Any,
+) -> dict[str, np.ndarray]:
+    """Monte Carlo for a whole table of cases without holding every sample:
+    each case is sampled and summarised in turn. Returns arrays of shape
+    (N, S) (or (N, R) for extents): ``mean``, ``std``, ``p<q>`` for each
+    percentile, and ``linear_std``. Case ``k`` uses the seed sequence
+    spawned from ``seed`` for index ``k``, so results are reproducible and do
+    not depend on the table's order of evaluation."""
+    base = system.solve(feed, lnK=lnK, T=T, P=P)
+    n = len(base)
+    T_rows = None if base.T is None else np.asarray(base.T)
+    children = np.random.SeedSequence(seed).spawn(n)
+    out: dict[str, list[np.ndarray]] = {}
+    for k in range(n):
+        mc = monte_carlo(system, feed=base.feed[k], P=float(base.P[k]),
+                         T=None if T_rows is None else float(T_rows[k]),
+                         lnK=base.lnK[k] if T_rows is None else None, samples=samples,
+                         seed=children[k], percentiles=percentiles, threads=threads, **uncertainty)
+        summ = mc.summary(of)
+        out.setdefault("mean", []).append(summ.mean)
+        out.setdefault("std", []).append(summ.std)
+        out.setdefault("linear_std", []).append(summ.linear_std)
+        for q in percentiles:
+            out.setdefault(f"p{q:g}", []).append(summ.percentiles[q])
+    return {key: np.vstack(v) for key, v in out.items()}
