@@ -17,12 +17,12 @@ rust-test:          ## the core's unit tests
 lint:               ## formatting and lints, Rust and Python
 	cargo fmt --all --check
 	cargo clippy --workspace --all-targets -- -D warnings
-	$(PYTHON) -m ruff check python tests bench
-	$(PYTHON) -m ruff format --check python tests bench
+	$(PYTHON) -m ruff check python tests bench examples
+	$(PYTHON) -m ruff format --check python tests bench examples
 
 fmt:                ## apply the formatters
 	cargo fmt --all
-	$(PYTHON) -m ruff format python tests bench
+	$(PYTHON) -m ruff format python tests bench examples
 
 check: rust-test lint
 

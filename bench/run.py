@@ -22,9 +22,9 @@ import time
 from dataclasses import dataclass, field
 from pathlib import Path
 
+import eqbatch
 import numpy as np
 
-import eqbatch
 from bench import workloads
 from bench.peers import common, numba_newton, numpy_newton, scipy_loop
 from bench.peers.common import Problem
@@ -90,8 +90,14 @@ def run_eqbatch(problem: Problem, repeats: int, threads: int | None = None) -> t
         lambda: system.solve(problem.feed, lnK=problem.lnK, P=problem.P, threads=threads), repeats
     )
     name = "eqbatch" if threads is None else f"eqbatch ({threads} thread{'s' if threads > 1 else ''})"
-    run = Run(name, problem.name, problem.n_cases, seconds, float(res.converged.mean()),
-              float(res.iterations.mean()))
+    run = Run(
+        name,
+        problem.name,
+        problem.n_cases,
+        seconds,
+        float(res.converged.mean()),
+        float(res.iterations.mean()),
+    )
     return run, res
 
 
@@ -100,8 +106,15 @@ def run_peer(name: str, module, problem: Problem, reference, repeats: int, xi0: 
         module.solve(problem.subset(8), xi0[:8])  # compile outside the clock
     seconds, (amounts, converged, iterations) = best_of(lambda: module.solve(problem, xi0), repeats)
     both = converged & reference.converged[: problem.n_cases]
-    return Run(name, problem.name, problem.n_cases, seconds, float(converged.mean()),
-               float(np.mean(iterations)), disagreement(amounts, reference.amounts[: problem.n_cases], both))
+    return Run(
+        name,
+        problem.name,
+        problem.n_cases,
+        seconds,
+        float(converged.mean()),
+        float(np.mean(iterations)),
+        disagreement(amounts, reference.amounts[: problem.n_cases], both),
+    )
 
 
 def race(problem: Problem, sizes: dict[str, int], repeats: int) -> list[Run]:
@@ -111,8 +124,11 @@ def race(problem: Problem, sizes: dict[str, int], repeats: int) -> list[Run]:
     xi0 = common.interior_start(problem)
     for name, module in (("numba", numba_newton), ("numpy", numpy_newton), ("scipy loop", scipy_loop)):
         n = min(sizes[name], problem.n_cases)
-        runs.append(run_peer(name, module, problem.subset(n), reference, 1 if name == "scipy loop" else repeats,
-                             xi0[:n]))
+        runs.append(
+            run_peer(
+                name, module, problem.subset(n), reference, 1 if name == "scipy loop" else repeats, xi0[:n]
+            )
+        )
     return runs
 
 
@@ -202,7 +218,9 @@ def plot(path: Path, scaling: list[Run], network_runs: list[Run]) -> None:
     left.legend()
     for engine in sorted({r.engine for r in network_runs}):
         rows = sorted((r for r in network_runs if r.engine == engine), key=lambda r: r.extra["reactions"])
-        right.semilogy([r.extra["reactions"] for r in rows], [r.per_case_us for r in rows], "o-", label=engine)
+        right.semilogy(
+            [r.extra["reactions"] for r in rows], [r.per_case_us for r in rows], "o-", label=engine
+        )
     right.set_xlabel("reactions")
     right.set_ylabel("microseconds per case")
     right.set_title("Workload (c): cost against network size")
@@ -240,12 +258,14 @@ def main(argv: list[str] | None = None) -> int:
     sizes = {"numba": n_a, "numpy": 1_000 if smoke else 100_000, "scipy loop": 100 if smoke else 2_000}
 
     report = ["# Benchmark results", ""]
-    report.append("Reproduce with `python -m bench.run` (needs `pip install '.[bench]'`). "
-                  "Engines: eqbatch; numba `@njit(parallel=True)` Newton specialised to the system; "
-                  "numpy-vectorised damped Newton; a Python loop over `scipy.optimize.root` (hybr). "
-                  "Peers are in `bench/peers/`. Same equations, tolerance (max |ln Q - ln K| <= 1e-10) "
-                  "and interior start; all cores for every engine; best of "
-                  f"{repeats} repeat(s); numba compilation excluded.")
+    report.append(
+        "Reproduce with `python -m bench.run` (needs `pip install '.[bench]'`). "
+        "Engines: eqbatch; numba `@njit(parallel=True)` Newton specialised to the system; "
+        "numpy-vectorised damped Newton; a Python loop over `scipy.optimize.root` (hybr). "
+        "Peers are in `bench/peers/`. Same equations, tolerance (max |ln Q - ln K| <= 1e-10) "
+        "and interior start; all cores for every engine; best of "
+        f"{repeats} repeat(s); numba compilation excluded."
+    )
     report += ["", "## Machine", ""]
     for k, v in machine().items():
         report.append(f"- {k}: {v}")
@@ -254,9 +274,14 @@ def main(argv: list[str] | None = None) -> int:
     problem_a = workloads.reforming(n_a)
     runs_a = race(problem_a, sizes, repeats)
     ours = runs_a[0]
-    report += ["", f"## Workload (a): steam reforming + shift, {n_a:,} cases", "",
-               "700-1200 K, 1-40 bar, steam-to-carbon 1.5-5, N2 inert; K(T) from the Xu-Froment correlations.",
-               "", table(runs_a, ours)]
+    report += [
+        "",
+        f"## Workload (a): steam reforming + shift, {n_a:,} cases",
+        "",
+        "700-1200 K, 1-40 bar, steam-to-carbon 1.5-5, N2 inert; K(T) from the Xu-Froment correlations.",
+        "",
+        table(runs_a, ours),
+    ]
     by = {r.engine: r for r in runs_a}
     numba_ratio = by["numba"].per_case_us / ours.per_case_us
     scipy_ratio = by["scipy loop"].per_case_us / ours.per_case_us
@@ -291,12 +316,15 @@ def main(argv: list[str] | None = None) -> int:
     # (b) five reactions
     problem_b = workloads.five_reactions(2_000 if smoke else 200_000)
     # The numpy peer keeps iterating on the cases it cannot converge, so it gets fewer.
-    runs_b = race(problem_b, {"numba": problem_b.n_cases, "numpy": sizes["numpy"] // 10,
-                              "scipy loop": sizes["scipy loop"]}, repeats)
+    runs_b = race(
+        problem_b,
+        {"numba": problem_b.n_cases, "numpy": sizes["numpy"] // 10, "scipy loop": sizes["scipy loop"]},
+        repeats,
+    )
 
     # (c) networks of growing size
     network_runs = []
-    for n_reactions in ([2, 5] if smoke else [2, 5, 10, 20]):
+    for n_reactions in [2, 5] if smoke else [2, 5, 10, 20]:
         p = workloads.random_network(500 if smoke else 20_000, n_reactions=n_reactions)
         run, reference = run_eqbatch(p, repeats)
         run.extra["reactions"] = p.nu.shape[0]
@@ -306,46 +334,78 @@ def main(argv: list[str] | None = None) -> int:
         peer.extra["reactions"] = p.nu.shape[0]
         network_runs.append(peer)
 
-    report += ["", "### Targets on workload (a)", "",
-               "| target | measured | met |", "|---|---|---|",
-               f"| >= 1.5x the numba peer | {numba_ratio:.2f}x | {'yes' if numba_ratio >= 1.5 else 'no'} |",
-               f"| >= 500x the scipy loop per case | {scipy_ratio:,.0f}x | {'yes' if scipy_ratio >= 500 else 'no'} |",
-               f"| every case converged | {100 * ours.converged:.4f} % | {'yes' if ours.converged == 1 else 'no'} |",
-               f"| >= 1.8x on 2 threads vs 1 | {thread_ratio:.2f}x ({one.seconds:.3f} s vs {two.seconds:.3f} s) | "
-               f"{'yes' if thread_ratio >= 1.8 else 'no'} |",
-               f"| per-case time within 20 % from 1e3 to 1e7 cases | spread {100 * linear_spread:.0f} % | "
-               f"{'yes' if linear_spread <= 0.2 else 'no'} |",
-               f"| one solve() call <= 1/30 of one scipy root call | {single['eqbatch_us']:.1f} us vs "
-               f"{single['scipy_root_us']:.0f} us (1/{single['ratio']:.0f}) | {'yes' if single['ratio'] >= 30 else 'no'} |"]
+    report += [
+        "",
+        "### Targets on workload (a)",
+        "",
+        "| target | measured | met |",
+        "|---|---|---|",
+        f"| >= 1.5x the numba peer | {numba_ratio:.2f}x | {'yes' if numba_ratio >= 1.5 else 'no'} |",
+        f"| >= 500x the scipy loop per case | {scipy_ratio:,.0f}x | {'yes' if scipy_ratio >= 500 else 'no'} |",
+        f"| every case converged | {100 * ours.converged:.4f} % | {'yes' if ours.converged == 1 else 'no'} |",
+        f"| >= 1.8x on 2 threads vs 1 | {thread_ratio:.2f}x ({one.seconds:.3f} s vs {two.seconds:.3f} s) | "
+        f"{'yes' if thread_ratio >= 1.8 else 'no'} |",
+        f"| per-case time within 20 % from 1e3 to 1e7 cases | spread {100 * linear_spread:.0f} % | "
+        f"{'yes' if linear_spread <= 0.2 else 'no'} |",
+        f"| one solve() call <= 1/30 of one scipy root call | {single['eqbatch_us']:.1f} us vs "
+        f"{single['scipy_root_us']:.0f} us (1/{single['ratio']:.0f}) | {'yes' if single['ratio'] >= 30 else 'no'} |",
+    ]
 
-    report += ["", "### Throughput against the number of cases", "",
-               "| engine | cases | cases/s | per case |", "|---|---:|---:|---:|"]
+    report += [
+        "",
+        "### Throughput against the number of cases",
+        "",
+        "| engine | cases | cases/s | per case |",
+        "|---|---:|---:|---:|",
+    ]
     for r in scaling:
         report.append(f"| {r.engine} | {r.n_cases:,} | {r.rate:,.0f} | {r.per_case_us:.3g} us |")
     mib = 1024 * 1024
-    report += ["", "### Peak memory", "",
-               f"{memory['n']:,} cases of workload (a): inputs {memory['inputs'] / mib:,.0f} MiB, outputs "
-               f"{memory['outputs'] / mib:,.0f} MiB; peak resident set {memory['peak_before'] / mib:,.0f} MiB "
-               f"before the solve and {memory['peak_after'] / mib:,.0f} MiB after it, so the solve added "
-               f"{(memory['peak_after'] - memory['peak_before']) / mib:,.0f} MiB against "
-               f"{memory['outputs'] / mib:,.0f} MiB of outputs "
-               f"(solved in {memory['seconds']:.2f} s, {100 * memory['converged']:.2f} % converged)."]
-    report += ["", f"## Workload (b): five reactions, ln K over +-30, {problem_b.n_cases:,} cases", "",
-               table(runs_b, runs_b[0])]
-    report += ["", "## Workload (c): random networks (four elements, all species fed)", "",
-               "| reactions | species | engine | per case | cases/s | converged | mean iterations |",
-               "|---:|---:|---|---:|---:|---:|---:|"]
+    report += [
+        "",
+        "### Peak memory",
+        "",
+        f"{memory['n']:,} cases of workload (a): inputs {memory['inputs'] / mib:,.0f} MiB, outputs "
+        f"{memory['outputs'] / mib:,.0f} MiB; peak resident set {memory['peak_before'] / mib:,.0f} MiB "
+        f"before the solve and {memory['peak_after'] / mib:,.0f} MiB after it, so the solve added "
+        f"{(memory['peak_after'] - memory['peak_before']) / mib:,.0f} MiB against "
+        f"{memory['outputs'] / mib:,.0f} MiB of outputs "
+        f"(solved in {memory['seconds']:.2f} s, {100 * memory['converged']:.2f} % converged).",
+    ]
+    report += [
+        "",
+        f"## Workload (b): five reactions, ln K over +-30, {problem_b.n_cases:,} cases",
+        "",
+        table(runs_b, runs_b[0]),
+    ]
+    report += [
+        "",
+        "## Workload (c): random networks (four elements, all species fed)",
+        "",
+        "| reactions | species | engine | per case | cases/s | converged | mean iterations |",
+        "|---:|---:|---|---:|---:|---:|---:|",
+    ]
     for r in network_runs:
-        report.append(f"| {r.extra['reactions']} | {r.extra['reactions'] + 4} | {r.engine} | "
-                      f"{r.per_case_us:.3g} us | {r.rate:,.0f} | {100 * r.converged:.2f} % | {r.iterations:.2f} |")
+        report.append(
+            f"| {r.extra['reactions']} | {r.extra['reactions'] + 4} | {r.engine} | "
+            f"{r.per_case_us:.3g} us | {r.rate:,.0f} | {100 * r.converged:.2f} % | {r.iterations:.2f} |"
+        )
     png = out / "throughput.png"
     plot(png, scaling, network_runs)
     report += ["", f"![throughput]({png.name})", ""]
     (out / "RESULTS.md").write_text("\n".join(report) + "\n")
-    (out / "results.json").write_text(json.dumps({
-        "runs_a": [r.__dict__ for r in runs_a], "single": single, "memory": memory,
-        "threads": {"one": one.seconds, "two": two.seconds},
-    }, indent=1, default=float))
+    (out / "results.json").write_text(
+        json.dumps(
+            {
+                "runs_a": [r.__dict__ for r in runs_a],
+                "single": single,
+                "memory": memory,
+                "threads": {"one": one.seconds, "two": two.seconds},
+            },
+            indent=1,
+            default=float,
+        )
+    )
     print("\n".join(report))
     return 0
 

@@ -39,8 +39,9 @@ class Problem:
         return self.feed.shape[0]
 
     def subset(self, n: int) -> Problem:
-        return Problem(self.name, self.nu, self.feed[:n], self.lnK[:n], self.P[:n], self.P0,
-                       self.species, self.equations)
+        return Problem(
+            self.name, self.nu, self.feed[:n], self.lnK[:n], self.P[:n], self.P0, self.species, self.equations
+        )
 
 
 def reach_direction(nu: np.ndarray, zero: np.ndarray) -> np.ndarray:

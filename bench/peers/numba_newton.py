@@ -144,6 +144,13 @@ def solve(problem: Problem, xi0: np.ndarray | None = None):
     amounts = np.empty((n, problem.nu.shape[1]))
     converged = np.zeros(n, dtype=np.bool_)
     iterations = np.zeros(n, dtype=np.int64)
-    kernel(np.ascontiguousarray(problem.feed), np.ascontiguousarray(problem.lnK),
-           np.log(problem.P / problem.P0), np.ascontiguousarray(xi0), amounts, converged, iterations)
+    kernel(
+        np.ascontiguousarray(problem.feed),
+        np.ascontiguousarray(problem.lnK),
+        np.log(problem.P / problem.P0),
+        np.ascontiguousarray(xi0),
+        amounts,
+        converged,
+        iterations,
+    )
     return amounts, converged, iterations

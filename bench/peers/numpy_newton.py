@@ -38,7 +38,10 @@ def solve(problem: Problem, xi0: np.ndarray | None = None):
         if active.size == 0:
             break
         total = n.sum(axis=1)
-        jac = np.einsum("ri,ni,si->nrs", nu, 1.0 / n, nu) - d[None, :, None] * d[None, None, :] / total[:, None, None]
+        jac = (
+            np.einsum("ri,ni,si->nrs", nu, 1.0 / n, nu)
+            - d[None, :, None] * d[None, None, :] / total[:, None, None]
+        )
         step = np.linalg.solve(jac, -f[..., None])[..., 0]
         change = step @ nu
         with np.errstate(divide="ignore", invalid="ignore"):

@@ -24,8 +24,14 @@ def equations(xi, nu, n0, d, ln_p, ln_k):
 def solve_case(nu, n0, ln_k, P, P0, xi0):
     d = nu.sum(axis=1)
     ln_p = np.log(P / P0)
-    sol = root(equations, xi0, args=(nu, n0, d, ln_p, ln_k), jac=True, method="hybr",
-               options={"xtol": 1e-13, "maxfev": 20 * MAX_ITER})
+    sol = root(
+        equations,
+        xi0,
+        args=(nu, n0, d, ln_p, ln_k),
+        jac=True,
+        method="hybr",
+        options={"xtol": 1e-13, "maxfev": 20 * MAX_ITER},
+    )
     f, _ = equations(sol.x, nu, n0, d, ln_p, ln_k)
     return sol.x, bool(np.max(np.abs(f)) <= TOL), int(sol.nfev)
 

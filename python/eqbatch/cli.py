@@ -116,18 +116,36 @@ def _cmd_uncertainty(args: argparse.Namespace) -> int:
     feed = _pairs(args.feed, "--feed")
     if not feed:
         raise _UsageError("give the feed, e.g. --feed CH4=1,H2O=3")
-    sig = [(n, _pairs(v, "--" + n.replace("_", "-"))) for n, v in
-           (("lnK_sigma", args.lnK_sigma), ("dG_sigma", args.dG_sigma), ("species_dG_sigma", args.species_dG_sigma))]
+    sig = [
+        (n, _pairs(v, "--" + n.replace("_", "-")))
+        for n, v in (
+            ("lnK_sigma", args.lnK_sigma),
+            ("dG_sigma", args.dG_sigma),
+            ("species_dG_sigma", args.species_dG_sigma),
+        )
+    ]
     sig = [(n, v) for n, v in sig if v]
     if len(sig) != 1:
         raise _UsageError("give one of --lnK-sigma, --dG-sigma, --species-dG-sigma")
     lnk = _pairs(args.lnK, "--lnK") or None
-    mc = monte_carlo(system, feed=feed, P=args.P, T=args.T, lnK=lnk, samples=args.samples, seed=args.seed,
-                     **{sig[0][0]: sig[0][1]})
-    print(f"Monte Carlo on ln K for {args.system}: {mc.samples:,} samples (seed {args.seed}), "
-          f"{100 * mc.converged.mean():.2f} % converged")
-    print("ln K standard deviations: " + ", ".join(
-        f"{label} {s:.3g}" for label, s in zip(system.labels, np.sqrt(np.diag(mc.covariance)))))
+    mc = monte_carlo(
+        system,
+        feed=feed,
+        P=args.P,
+        T=args.T,
+        lnK=lnk,
+        samples=args.samples,
+        seed=args.seed,
+        **{sig[0][0]: sig[0][1]},
+    )
+    print(
+        f"Monte Carlo on ln K for {args.system}: {mc.samples:,} samples (seed {args.seed}), "
+        f"{100 * mc.converged.mean():.2f} % converged"
+    )
+    print(
+        "ln K standard deviations: "
+        + ", ".join(f"{label} {s:.3g}" for label, s in zip(system.labels, np.sqrt(np.diag(mc.covariance))))
+    )
     for of, title in (("mole_fractions", "Mole fractions"), ("conversion", "Conversion of reactants")):
         summ = mc.summary(of)
         if summ.names:
@@ -202,16 +220,32 @@ def _parser() -> argparse.ArgumentParser:
     unc.add_argument("--P", type=float, metavar="BAR", help="pressure, bar (default: P0)")
     unc.add_argument("--lnK", action="append", metavar="LABEL=VALUE[,...]", help="nominal ln K")
     unc.add_argument("--lnK-sigma", action="append", metavar="LABEL=SIGMA[,...]", help="std. dev. of ln K")
-    unc.add_argument("--dG-sigma", action="append", metavar="LABEL=KJ[,...]",
-                     help="std. dev. of the standard reaction Gibbs energy, kJ/mol (needs --T)")
-    unc.add_argument("--species-dG-sigma", action="append", metavar="SPECIES=KJ[,...]",
-                     help="independent std. dev. of species' Gibbs energies of formation, kJ/mol (needs --T)")
+    unc.add_argument(
+        "--dG-sigma",
+        action="append",
+        metavar="LABEL=KJ[,...]",
+        help="std. dev. of the standard reaction Gibbs energy, kJ/mol (needs --T)",
+    )
+    unc.add_argument(
+        "--species-dG-sigma",
+        action="append",
+        metavar="SPECIES=KJ[,...]",
+        help="independent std. dev. of species' Gibbs energies of formation, kJ/mol (needs --T)",
+    )
     unc.add_argument("--samples", type=int, default=10_000)
     unc.add_argument("--seed", type=int, default=0)
-    unc.add_argument("--output", action="append", metavar="NAME",
-                     help="outputs to rank and plot: y_H2, n_CO, extent_shift, conversion_CH4")
-    unc.add_argument("--limit", action="append", metavar="NAME>=VALUE",
-                     help="report the probability of meeting a limit, e.g. conversion_CH4>=0.9")
+    unc.add_argument(
+        "--output",
+        action="append",
+        metavar="NAME",
+        help="outputs to rank and plot: y_H2, n_CO, extent_shift, conversion_CH4",
+    )
+    unc.add_argument(
+        "--limit",
+        action="append",
+        metavar="NAME>=VALUE",
+        help="report the probability of meeting a limit, e.g. conversion_CH4>=0.9",
+    )
     unc.add_argument("--plots", default=".", metavar="DIR", help="folder for histogram.png and tornado.png")
     unc.set_defaults(run=_cmd_uncertainty)
 

@@ -64,7 +64,7 @@ def tornado(mc: MonteCarloResult, output: str, path: str | Path) -> Path:
     rows = mc.tornado(of, what)
     base = mc.nominal_value(of, what)
     fig, ax = plt.subplots(figsize=(6.4, 0.6 * len(rows) + 1.4))
-    for k, (label, low, high) in enumerate(reversed(rows)):
+    for k, (_label, low, high) in enumerate(reversed(rows)):
         ax.barh(k, low - base, left=base, color="#cc6677")
         ax.barh(k, high - base, left=base, color="#117733")
     ax.set_yticks(range(len(rows)), [r[0] for r in reversed(rows)])

@@ -59,7 +59,9 @@ def lnK_covariance(
         for name, sigma in species_dG_sigma.items():
             var[system.index(name)] = float(sigma) ** 2
         if correlation is not None:
-            raise CaseInputError("species Gibbs energies are taken as independent; correlation= does not apply")
+            raise CaseInputError(
+                "species Gibbs energies are taken as independent; correlation= does not apply"
+            )
         return (system.stoich * var) @ system.stoich.T / (R_KJ * T) ** 2
     values = lnK_sigma if lnK_sigma is not None else dG_sigma
     sigma = _per_reaction(system, values, "lnK_sigma" if lnK_sigma is not None else "dG_sigma")
@@ -80,7 +82,9 @@ def _per_reaction(system: ReactionSystem, values: Any, name: str) -> np.ndarray:
         out = np.zeros(system.n_reactions)
         for label, v in values.items():
             if label not in system.labels:
-                raise CaseInputError(f"{name}: {label!r} is not a reaction label ({', '.join(system.labels)})")
+                raise CaseInputError(
+                    f"{name}: {label!r} is not a reaction label ({', '.join(system.labels)})"
+                )
             out[system.labels.index(label)] = float(v)
         return out
     arr = np.asarray(values, dtype=float).reshape(-1)
@@ -120,8 +124,13 @@ class Summary:
             head.append("std (1st order)")
         rows = []
         for k, name in enumerate(self.names):
-            row = [name, f"{self.mean[k]:.6g}", f"{self.mean_se[k]:.2g}", f"{self.std[k]:.4g}",
-                   f"{self.std_se[k]:.2g}"] + [f"{self.percentiles[q][k]:.6g}" for q in qs]
+            row = [
+                name,
+                f"{self.mean[k]:.6g}",
+                f"{self.mean_se[k]:.2g}",
+                f"{self.std[k]:.4g}",
+                f"{self.std_se[k]:.2g}",
+            ] + [f"{self.percentiles[q][k]:.6g}" for q in qs]
             if self.linear_std is not None:
                 row.append(f"{self.linear_std[k]:.4g}")
             rows.append(row)
@@ -223,9 +232,17 @@ class MonteCarloResult:
 
     def nominal_value(self, of: str, name: str) -> float:
         """An output at the nominal ln K."""
-        mc = MonteCarloResult(self.system, self.nominal.amounts, self.nominal.mole_fractions,
-                              self.nominal.extents, self.nominal.lnK, self.nominal.converged,
-                              self.nominal, self.covariance, self.feed)
+        mc = MonteCarloResult(
+            self.system,
+            self.nominal.amounts,
+            self.nominal.mole_fractions,
+            self.nominal.extents,
+            self.nominal.lnK,
+            self.nominal.converged,
+            self.nominal,
+            self.covariance,
+            self.feed,
+        )
         return float(mc.values(of, name)[0])
 
     def values(self, of: str, name: str) -> np.ndarray:
@@ -235,8 +252,9 @@ class MonteCarloResult:
             raise CaseInputError(f"{name!r} is not among the {of} outputs ({', '.join(names)})")
         return values[:, names.index(name)]
 
-    def probability(self, of: str, name: str, *, at_least: float | None = None,
-                    at_most: float | None = None) -> tuple[float, float]:
+    def probability(
+        self, of: str, name: str, *, at_least: float | None = None, at_most: float | None = None
+    ) -> tuple[float, float]:
         """Probability (and its Monte Carlo standard error) that an output
         meets a limit, e.g. ``probability("conversion", "CH4", at_least=0.9)``."""
         if (at_least is None) == (at_most is None):
@@ -282,8 +300,17 @@ class MonteCarloResult:
             shifted[0, r] -= sigma[r]
             shifted[1, r] += sigma[r]
             res = self.system.solve(self.feed, lnK=shifted, P=self.nominal.P[0])
-            mc = MonteCarloResult(self.system, res.amounts, res.mole_fractions, res.extents, shifted,
-                                  res.converged, self.nominal, self.covariance, self.feed)
+            mc = MonteCarloResult(
+                self.system,
+                res.amounts,
+                res.mole_fractions,
+                res.extents,
+                shifted,
+                res.converged,
+                self.nominal,
+                self.covariance,
+                self.feed,
+            )
             out, _, _ = mc._output(of)
             rows.append((label, float(out[0, k]), float(out[1, k])))
         return sorted(rows, key=lambda row: -abs(row[2] - row[1]))
@@ -339,14 +366,30 @@ def monte_carlo(
     nominal = system.solve(feed, lnK=lnK, T=T, P=P, sensitivities=True)
     if len(nominal) != 1:
         raise CaseInputError("monte_carlo takes one case; use monte_carlo_table for many")
-    cov = lnK_covariance(system, lnK_sigma=lnK_sigma, dG_sigma=dG_sigma, correlation=correlation,
-                         species_dG_sigma=species_dG_sigma, T=T)
+    cov = lnK_covariance(
+        system,
+        lnK_sigma=lnK_sigma,
+        dG_sigma=dG_sigma,
+        correlation=correlation,
+        species_dG_sigma=species_dG_sigma,
+        T=T,
+    )
     rng = np.random.default_rng(seed)
     z = rng.standard_normal((int(samples), system.n_reactions))
     lnk = nominal.lnK[0] + z @ _sqrt_psd(cov).T
     res = system.solve(nominal.feed[0], lnK=lnk, P=nominal.P[0], threads=threads)
-    return MonteCarloResult(system, res.amounts, res.mole_fractions, res.extents, lnk, res.converged,
-                            nominal, cov, nominal.feed[0].copy(), tuple(percentiles))
+    return MonteCarloResult(
+        system,
+        res.amounts,
+        res.mole_fractions,
+        res.extents,
+        lnk,
+        res.converged,
+        nominal,
+        cov,
+        nominal.feed[0].copy(),
+        tuple(percentiles),
+    )
 
 
 def monte_carlo_table(
@@ -375,10 +418,18 @@ def monte_carlo_table(
     children = np.random.SeedSequence(seed).spawn(n)
     out: dict[str, list[np.ndarray]] = {}
     for k in range(n):
-        mc = monte_carlo(system, feed=base.feed[k], P=float(base.P[k]),
-                         T=None if T_rows is None else float(T_rows[k]),
-                         lnK=base.lnK[k] if T_rows is None else None, samples=samples,
-                         seed=children[k], percentiles=percentiles, threads=threads, **uncertainty)
+        mc = monte_carlo(
+            system,
+            feed=base.feed[k],
+            P=float(base.P[k]),
+            T=None if T_rows is None else float(T_rows[k]),
+            lnK=base.lnK[k] if T_rows is None else None,
+            samples=samples,
+            seed=children[k],
+            percentiles=percentiles,
+            threads=threads,
+            **uncertainty,
+        )
         summ = mc.summary(of)
         out.setdefault("mean", []).append(summ.mean)
         out.setdefault("std", []).append(summ.std)
