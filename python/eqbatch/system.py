@@ -133,6 +133,7 @@ class ReactionSystem:
         self._core = self._build_core()
         self.lnK_data: dict[str, KData] = self._read_lnk(lnK)
         self._constant_lnk = self._constant_row()
+        self._p0_row = np.array([self.P0])
 
     # ----------------------------------------------------------------- set-up
 
@@ -325,6 +326,12 @@ class ReactionSystem:
     # ----------------------------------------------------------------- solve
 
     def _feed_array(self, feed: Any) -> np.ndarray:
+        # Fast path for what optimisers pass: a float64 vector or matrix.
+        if type(feed) is np.ndarray and feed.dtype == np.float64 and feed.shape[-1] == self.n_species:
+            if feed.ndim == 1:
+                return feed.reshape(1, -1) if feed.flags.c_contiguous else np.ascontiguousarray(feed)[None]
+            if feed.ndim == 2 and feed.flags.c_contiguous:
+                return feed
         if isinstance(feed, Mapping):
             columns = {self.index(k): np.asarray(v, dtype=np.float64) for k, v in feed.items()}
             n = max((c.size for c in columns.values()), default=1)
@@ -345,6 +352,11 @@ class ReactionSystem:
         return arr if arr.flags.c_contiguous else np.ascontiguousarray(arr)
 
     def _rows(self, value: Any, name: str, width: int) -> np.ndarray:
+        if type(value) is np.ndarray and value.dtype == np.float64 and value.flags.c_contiguous:
+            if value.ndim == 2 and value.shape[1] == width:
+                return value
+            if value.ndim == 1 and width > 1 and value.shape[0] == width:
+                return value.reshape(1, -1)
         arr = np.asarray(value, dtype=np.float64)
         if arr.ndim <= 1 and width == 1:
             arr = arr.reshape(-1, 1)
@@ -358,6 +370,8 @@ class ReactionSystem:
         return arr if arr.flags.c_contiguous else np.ascontiguousarray(arr)
 
     def _lnk_array(self, lnK: Any, K: Any, log10K: Any, T: np.ndarray | None) -> np.ndarray:
+        if K is None and log10K is None and lnK is not None and type(lnK) is not dict:
+            return self._rows(lnK, "lnK", self.n_reactions)
         given = [(n, v) for n, v in (("lnK", lnK), ("K", K), ("log10K", log10K)) if v is not None]
         if len(given) > 1:
             raise CaseInputError(f"give only one of lnK=, K=, log10K= (got {', '.join(n for n, _ in given)})")
@@ -462,25 +476,24 @@ class ReactionSystem:
         T_arr = None if T is None else np.atleast_1d(np.asarray(T, dtype=np.float64)).reshape(-1)
         lnk_arr = self._lnk_array(lnK, K, log10K, T_arr)
         if P is None:
-            p_arr = np.array([self.P0])
+            p_arr = self._p0_row
+        elif type(P) is float or type(P) is int:
+            p_arr = np.array([P], dtype=np.float64)
         else:
             p_arr = np.asarray(P, dtype=np.float64).reshape(-1)
             if not p_arr.flags.c_contiguous:
                 p_arr = np.ascontiguousarray(p_arr)
-        n = max(feed_arr.shape[0], lnk_arr.shape[0], p_arr.shape[0], 1 if T_arr is None else T_arr.shape[0])
-        for name, rows in (
-            ("feed", feed_arr.shape[0]),
-            ("equilibrium constants", lnk_arr.shape[0]),
-            ("P", p_arr.shape[0]),
-            ("T", n if T_arr is None else T_arr.shape[0]),
-        ):
-            if rows != n and rows != 1:
-                raise CaseInputError(f"{name} has {rows} cases but other inputs have {n}; give 1 or {n}")
+        rows = (feed_arr.shape[0], lnk_arr.shape[0], p_arr.shape[0], 1 if T_arr is None else T_arr.shape[0])
+        n = max(rows)
+        if n > 1:
+            for name, count in zip(("feed", "equilibrium constants", "P", "T"), rows):
+                if count != n and count != 1:
+                    raise CaseInputError(f"{name} has {count} cases but other inputs have {n}; give 1 or {n}")
         if invalid == "raise":
             self._raise_invalid(feed_arr, lnk_arr, p_arr, n)
         elif invalid != "mark":
             raise CaseInputError(f"invalid must be 'mark' or 'raise', got {invalid!r}")
-        if not (isinstance(max_iter, (int, np.integer)) and max_iter >= 0):
+        if max_iter != 200 and not (isinstance(max_iter, (int, np.integer)) and max_iter >= 0):
             raise CaseInputError(f"max_iter must be a non-negative integer, got {max_iter!r}")
         if threads is not None and not (isinstance(threads, (int, np.integer)) and threads >= 1):
             raise CaseInputError(f"threads must be a positive integer, got {threads!r}")
@@ -488,7 +501,7 @@ class ReactionSystem:
         if start is not None and start.shape[0] not in (1, n):
             raise CaseInputError(f"x0 has {start.shape[0]} cases but other inputs have {n}; give 1 or {n}")
         amounts, extents, fractions, status, iterations = self._core.solve(
-            feed_arr, lnk_arr, p_arr, n, float(tol), int(max_iter), threads, start
+            feed_arr, lnk_arr, p_arr, n, tol, max_iter, threads, start
         )
         result = EquilibriumResult(
             self, amounts, extents, fractions, status, iterations, feed_arr, p_arr, T_arr, lnk_arr
