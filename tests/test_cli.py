@@ -72,19 +72,21 @@ def test_errors_are_one_line_without_traceback(system_file, capsys, args, messag
     assert "Traceback" not in err and err.count("\n") == 1
 
 
-def test_demo_runs_and_summarises(capsys) -> None:
-    assert main(["demo", "--cases", "2000"]) == 0
+def test_demo_runs_and_summarises(capsys, tmp_path) -> None:
+    assert main(["demo", "--cases", "2000", "--out", str(tmp_path)]) == 0
     out = capsys.readouterr().out
     assert "45 grid cases: 45 converged" in out
     assert "Methane conversion" in out and "Xu and Froment (1989)" in out
     assert "2,000 cases" in out and "2000 converged" in out
     assert "defer to local codes and licensed engineers" in out
+    assert "Parquet sweep" in out and "184 rows, 184 converged" in out
+    assert (tmp_path / "hydrogen.png").read_bytes()[:4] == b"\x89PNG"
 
 
-def test_python_dash_m_and_console_script() -> None:
+def test_python_dash_m_and_console_script(tmp_path) -> None:
     out = subprocess.run(
         [sys.executable, "-m", "eqbatch", "--version"], capture_output=True, text=True, check=True
     )
     assert out.stdout.startswith("eqbatch ")
-    out = subprocess.run(["eqbatch", "demo", "--cases", "100"], capture_output=True, text=True)
+    out = subprocess.run(["eqbatch", "demo", "--cases", "100"], capture_output=True, text=True, cwd=tmp_path)
     assert out.returncode == 0 and "Random batch: 100 cases" in out.stdout

@@ -180,10 +180,58 @@ def _cmd_uncertainty(args: argparse.Namespace) -> int:
     return 0
 
 
+def _cmd_sweep(args: argparse.Namespace) -> int:
+    from eqbatch.demo import CAUTION
+    from eqbatch.sweep import sweep
+    from eqbatch.system import ReactionSystem
+
+    system = ReactionSystem.from_toml(args.system)
+    summary = sweep(system, args.input, args.output, batch_size=args.batch_size, resume=args.resume,
+                    overwrite=args.overwrite, quiet=True if args.quiet else None, scheduler=args.scheduler,
+                    threads=args.threads)
+    print(f"{args.output}: {summary.line()}"
+          + (f" ({summary.resumed_batches} batches kept from the interrupted run)" if summary.resumed_batches else ""))
+    if not args.quiet:
+        print(CAUTION)
+    return 0
+
+
+def _parse_range(text: str) -> tuple[str, tuple[float, float, int]]:
+    name, sep, spec = text.partition("=")
+    parts = spec.split(":")
+    if not sep or len(parts) not in (2, 3):
+        raise _UsageError(f"--range takes NAME=LOW:HIGH[:COUNT], got {text!r}")
+    try:
+        lo, hi = float(parts[0]), float(parts[1])
+        count = int(parts[2]) if len(parts) == 3 else 1
+    except ValueError:
+        raise _UsageError(f"--range {text!r}: bounds must be numbers and the count an integer") from None
+    return name.strip(), (lo, hi, count)
+
+
+def _cmd_grid(args: argparse.Namespace) -> int:
+    from eqbatch.grid import make_grid, write_grid
+
+    ranges = dict(_parse_range(r) for r in args.range or [])
+    table = make_grid(ranges, constants=_pairs(args.set, "--set"), sample=args.sample, n=args.n,
+                      seed=args.seed, log=tuple(args.log or ()))
+    write_grid(args.output, table)
+    print(f"wrote {table.num_rows:,} cases to {args.output} (columns: {', '.join(table.column_names)})")
+    return 0
+
+
+def _cmd_plot(args: argparse.Namespace) -> int:
+    from eqbatch.plots import result_plot
+
+    out = result_plot(args.result, args.out, x=args.x, y=args.y, by=args.by, z=args.z)
+    print(f"wrote {out}")
+    return 0
+
+
 def _cmd_demo(args: argparse.Namespace) -> int:
     from eqbatch.demo import run
 
-    return run(cases=args.cases, threads=args.threads, save_system=args.save_system)
+    return run(cases=args.cases, threads=args.threads, save_system=args.save_system, out=args.out)
 
 
 def _parser() -> argparse.ArgumentParser:
@@ -249,10 +297,43 @@ def _parser() -> argparse.ArgumentParser:
     unc.add_argument("--plots", default=".", metavar="DIR", help="folder for histogram.png and tornado.png")
     unc.set_defaults(run=_cmd_uncertainty)
 
+    sw = sub.add_parser("sweep", help="solve every row of a Parquet case table (file or folder)")
+    sw.add_argument("system", help="system file (TOML)")
+    sw.add_argument("input", help="Parquet file, or folder of Parquet files")
+    sw.add_argument("output", help="output Parquet file (folder for a folder input)")
+    sw.add_argument("--batch-size", type=int, default=65_536, help="rows per batch (bounds memory)")
+    sw.add_argument("--resume", action="store_true", help="continue an interrupted sweep")
+    sw.add_argument("--overwrite", action="store_true", help="replace an existing output")
+    sw.add_argument("--quiet", action="store_true", help="no progress bar, no caution line")
+    sw.add_argument("--threads", type=int, default=None, help="worker threads (default: all cores)")
+    sw.add_argument("--scheduler", metavar="ADDRESS", help="run a folder on a Dask cluster, one task per file")
+    sw.set_defaults(run=_cmd_sweep)
+
+    gr = sub.add_parser("grid", help="write a Parquet case table: factorial grid or space-filling sample")
+    gr.add_argument("output", help="Parquet file to write")
+    gr.add_argument("--range", action="append", metavar="NAME=LOW:HIGH[:COUNT]", help="a swept column")
+    gr.add_argument("--set", action="append", metavar="NAME=VALUE[,...]", help="constant columns")
+    gr.add_argument("--log", action="append", metavar="NAME", help="space this column evenly in log")
+    gr.add_argument("--sample", choices=["lhs", "sobol"], help="space-filling sample instead of a grid")
+    gr.add_argument("--n", type=int, help="rows of the sample")
+    gr.add_argument("--seed", type=int, default=0)
+    gr.set_defaults(run=_cmd_grid)
+
+    pl = sub.add_parser("plot", help="PNG of a sweep result column against a swept one")
+    pl.add_argument("result", help="sweep output (Parquet)")
+    pl.add_argument("--x", required=True, help="swept column on the x axis")
+    pl.add_argument("--y", required=True, help="result column (or, with --z, a second swept column)")
+    pl.add_argument("--by", help="one line per value of this column")
+    pl.add_argument("--z", help="heat map of this column over --x and --y")
+    pl.add_argument("--out", default="plot.png", help="PNG to write")
+    pl.set_defaults(run=_cmd_plot)
+
     demo = sub.add_parser("demo", help="reformer and shift study on built-in data")
     demo.add_argument("--cases", type=int, default=1_000_000, help="size of the timed random batch")
     demo.add_argument("--threads", type=int, default=None, help="worker threads (default: all cores)")
     demo.add_argument("--save-system", metavar="PATH", help="also write the demo's system file here")
+    demo.add_argument("--out", default="eqbatch-demo", metavar="DIR",
+                      help="folder for the demo's sweep table, results and plot")
     demo.set_defaults(run=_cmd_demo)
     return parser
 

@@ -43,7 +43,8 @@ def reformer_feed(steam_to_carbon: np.ndarray) -> np.ndarray:
     return feed
 
 
-def run(cases: int = 1_000_000, threads: int | None = None, save_system: str | None = None) -> int:
+def run(cases: int = 1_000_000, threads: int | None = None, save_system: str | None = None,
+        out: str | None = "eqbatch-demo") -> int:
     system = reformer_system()
     if save_system:
         Path(save_system).write_text(system_file_text())
@@ -90,5 +91,28 @@ def run(cases: int = 1_000_000, threads: int | None = None, save_system: str | N
         f"{elapsed:.2f} s ({cases / elapsed:,.0f} cases/s): {big.summary()};"
     )
     print(f"median {np.median(big.iterations):.0f}, max {big.iterations.max()} Newton iterations\n")
+    swept_ok = True
+    if out:
+        swept_ok = _sweep_and_plot(system, Path(out), threads)
     print(CAUTION)
-    return 0 if bool(res.converged.all() and big.converged.all()) else 1
+    return 0 if bool(res.converged.all() and big.converged.all()) and swept_ok else 1
+
+
+def _sweep_and_plot(system: ReactionSystem, folder: Path, threads: int | None) -> bool:
+    """A small Parquet sweep (a grid written, solved, plotted) of the same study."""
+    from eqbatch.grid import make_grid, write_grid
+    from eqbatch.plots import result_plot
+    from eqbatch.sweep import sweep
+
+    folder.mkdir(parents=True, exist_ok=True)
+    table = make_grid({"T_K": (750.0, 1200.0, 46), "P_bar": (1.0, 40.0, 4)},
+                      constants={"feed_CH4": 0.98, "feed_H2O": 2.94, "feed_CO": 0.0, "feed_H2": 0.0,
+                                  "feed_CO2": 0.0, "feed_N2": 0.02})
+    cases = folder / "cases.parquet"
+    results = folder / "results.parquet"
+    write_grid(cases, table)
+    summary = sweep(system, cases, results, overwrite=True, quiet=True, threads=threads)
+    png = result_plot(results, folder / "hydrogen.png", x="T_K", y="y_H2", by="P_bar")
+    print(f"Parquet sweep: {cases} -> {results}: {summary.line()}")
+    print(f"plot of y_H2 against T_K by P_bar (S/C 3): {png}\n")
+    return summary.converged == summary.rows

@@ -75,3 +75,70 @@ def tornado(mc: MonteCarloResult, output: str, path: str | Path) -> Path:
     fig.savefig(path, dpi=100)
     plt.close(fig)
     return path
+
+
+def result_plot(
+    path: str | Path,
+    out: str | Path,
+    *,
+    x: str,
+    y: str,
+    by: str | None = None,
+    z: str | None = None,
+    size: tuple[float, float] = (6.4, 4.4),
+    dpi: int = 100,
+) -> Path:
+    """Plot a sweep's output: ``y`` against ``x`` with one line per value of
+    ``by``, or, with ``z``, a heat map of ``z`` over the swept ``x`` and ``y``.
+    Where other columns vary too, the plotted value is their mean (said in
+    the title). Writes a PNG of ``size`` inches at ``dpi``."""
+    import pyarrow.parquet as pq
+
+    from eqbatch.errors import CaseInputError
+
+    cols = [c for c in (x, y, by, z) if c]
+    try:
+        table = pq.read_table(path, columns=cols)
+    except Exception as err:  # pyarrow raises several types for missing columns and bad files
+        raise CaseInputError(f"{path}: cannot read columns {', '.join(cols)} ({err})") from None
+    data = {c: table.column(c).to_numpy(zero_copy_only=False).astype(float) for c in cols}
+    plt = _pyplot()
+    fig, ax = plt.subplots(figsize=size)
+    if z is None:
+        groups = [None] if by is None else np.unique(data[by])
+        points = 0
+        for g in groups:
+            mask = np.ones(table.num_rows, bool) if g is None else data[by] == g
+            xs = np.unique(data[x][mask])
+            points += xs.size
+            ys = [np.nanmean(data[y][mask & (data[x] == v)]) for v in xs]
+            ax.plot(xs, ys, "o-", ms=3, label=None if g is None else f"{by} = {g:g}")
+        ax.set_xlabel(x)
+        ax.set_ylabel(y)
+        if by is not None:
+            ax.legend(fontsize=8)
+    else:
+        xs, ys = np.unique(data[x]), np.unique(data[y])
+        grid = np.full((ys.size, xs.size), np.nan)
+        xi = np.searchsorted(xs, data[x])
+        yi = np.searchsorted(ys, data[y])
+        sums = np.zeros_like(grid)
+        counts = np.zeros_like(grid)
+        np.add.at(sums, (yi, xi), np.nan_to_num(data[z]))
+        np.add.at(counts, (yi, xi), 1)
+        with np.errstate(invalid="ignore"):
+            grid = sums / counts
+        mesh = ax.pcolormesh(xs, ys, grid, shading="nearest", cmap="viridis")
+        fig.colorbar(mesh, ax=ax, label=z)
+        ax.set_xlabel(x)
+        ax.set_ylabel(y)
+        points = int(np.isfinite(grid).sum())
+    averaged = table.num_rows > points
+    ax.set_title(Path(path).name + (" (each point: mean over the other swept columns)" if averaged else ""),
+                 fontsize=9)
+    ax.grid(True, alpha=0.3)
+    fig.tight_layout()
+    out = Path(out)
+    fig.savefig(out, dpi=dpi)
+    plt.close(fig)
+    return out

@@ -40,6 +40,11 @@ def _format_combination(indices: Sequence[int], coefs: Sequence[float], labels: 
     return " + ".join(parts).replace("+ -", "- ")
 
 
+def _rebuild_system(spec: dict) -> ReactionSystem:
+    spec = dict(spec)
+    return ReactionSystem(spec.pop("species"), spec.pop("reactions"), **spec)
+
+
 class ReactionSystem:
     """Species in phases and the reactions between them.
 
@@ -132,6 +137,16 @@ class ReactionSystem:
         self._reactive = np.any(nu != 0, axis=0)
         self._core = self._build_core()
         self.lnK_data: dict[str, KData] = self._read_lnk(lnK)
+        # What it takes to build the same system again (pickling, Dask workers).
+        self._spec = {
+            "species": list(self.species),
+            "reactions": list(zip(self.labels, self.equations)),
+            "phases": dict(zip(self.species, self.phases)),
+            "P0": self.P0,
+            "formulas": {k: v for k, v in (formulas or {}).items()},
+            "check_balance": check_balance,
+            "lnK": dict(self.lnK_data),
+        }
         self._constant_lnk = self._constant_row()
         self._p0_row = np.array([self.P0])
 
@@ -318,6 +333,9 @@ class ReactionSystem:
             data = self.lnK_data[label]
             out[:, j] = data(T) if callable(data) else data
         return out
+
+    def __reduce__(self):
+        return (_rebuild_system, (self._spec,))
 
     def __repr__(self) -> str:
         eqs = "; ".join(f"{lab}: {eq}" for lab, eq in zip(self.labels, self.equations))
