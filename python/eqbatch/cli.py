@@ -186,11 +186,25 @@ def _cmd_sweep(args: argparse.Namespace) -> int:
     from eqbatch.system import ReactionSystem
 
     system = ReactionSystem.from_toml(args.system)
-    summary = sweep(system, args.input, args.output, batch_size=args.batch_size, resume=args.resume,
-                    overwrite=args.overwrite, quiet=True if args.quiet else None, scheduler=args.scheduler,
-                    threads=args.threads)
-    print(f"{args.output}: {summary.line()}"
-          + (f" ({summary.resumed_batches} batches kept from the interrupted run)" if summary.resumed_batches else ""))
+    summary = sweep(
+        system,
+        args.input,
+        args.output,
+        batch_size=args.batch_size,
+        resume=args.resume,
+        overwrite=args.overwrite,
+        quiet=True if args.quiet else None,
+        scheduler=args.scheduler,
+        threads=args.threads,
+    )
+    print(
+        f"{args.output}: {summary.line()}"
+        + (
+            f" ({summary.resumed_batches} batches kept from the interrupted run)"
+            if summary.resumed_batches
+            else ""
+        )
+    )
     if not args.quiet:
         print(CAUTION)
     return 0
@@ -213,8 +227,14 @@ def _cmd_grid(args: argparse.Namespace) -> int:
     from eqbatch.grid import make_grid, write_grid
 
     ranges = dict(_parse_range(r) for r in args.range or [])
-    table = make_grid(ranges, constants=_pairs(args.set, "--set"), sample=args.sample, n=args.n,
-                      seed=args.seed, log=tuple(args.log or ()))
+    table = make_grid(
+        ranges,
+        constants=_pairs(args.set, "--set"),
+        sample=args.sample,
+        n=args.n,
+        seed=args.seed,
+        log=tuple(args.log or ()),
+    )
     write_grid(args.output, table)
     print(f"wrote {table.num_rows:,} cases to {args.output} (columns: {', '.join(table.column_names)})")
     return 0
@@ -306,7 +326,9 @@ def _parser() -> argparse.ArgumentParser:
     sw.add_argument("--overwrite", action="store_true", help="replace an existing output")
     sw.add_argument("--quiet", action="store_true", help="no progress bar, no caution line")
     sw.add_argument("--threads", type=int, default=None, help="worker threads (default: all cores)")
-    sw.add_argument("--scheduler", metavar="ADDRESS", help="run a folder on a Dask cluster, one task per file")
+    sw.add_argument(
+        "--scheduler", metavar="ADDRESS", help="run a folder on a Dask cluster, one task per file"
+    )
     sw.set_defaults(run=_cmd_sweep)
 
     gr = sub.add_parser("grid", help="write a Parquet case table: factorial grid or space-filling sample")
@@ -332,8 +354,12 @@ def _parser() -> argparse.ArgumentParser:
     demo.add_argument("--cases", type=int, default=1_000_000, help="size of the timed random batch")
     demo.add_argument("--threads", type=int, default=None, help="worker threads (default: all cores)")
     demo.add_argument("--save-system", metavar="PATH", help="also write the demo's system file here")
-    demo.add_argument("--out", default="eqbatch-demo", metavar="DIR",
-                      help="folder for the demo's sweep table, results and plot")
+    demo.add_argument(
+        "--out",
+        default="eqbatch-demo",
+        metavar="DIR",
+        help="folder for the demo's sweep table, results and plot",
+    )
     demo.set_defaults(run=_cmd_demo)
     return parser
 

@@ -43,8 +43,12 @@ def reformer_feed(steam_to_carbon: np.ndarray) -> np.ndarray:
     return feed
 
 
-def run(cases: int = 1_000_000, threads: int | None = None, save_system: str | None = None,
-        out: str | None = "eqbatch-demo") -> int:
+def run(
+    cases: int = 1_000_000,
+    threads: int | None = None,
+    save_system: str | None = None,
+    out: str | None = "eqbatch-demo",
+) -> int:
     system = reformer_system()
     if save_system:
         Path(save_system).write_text(system_file_text())
@@ -105,9 +109,17 @@ def _sweep_and_plot(system: ReactionSystem, folder: Path, threads: int | None) -
     from eqbatch.sweep import sweep
 
     folder.mkdir(parents=True, exist_ok=True)
-    table = make_grid({"T_K": (750.0, 1200.0, 46), "P_bar": (1.0, 40.0, 4)},
-                      constants={"feed_CH4": 0.98, "feed_H2O": 2.94, "feed_CO": 0.0, "feed_H2": 0.0,
-                                  "feed_CO2": 0.0, "feed_N2": 0.02})
+    table = make_grid(
+        {"T_K": (750.0, 1200.0, 46), "P_bar": (1.0, 40.0, 4)},
+        constants={
+            "feed_CH4": 0.98,
+            "feed_H2O": 2.94,
+            "feed_CO": 0.0,
+            "feed_H2": 0.0,
+            "feed_CO2": 0.0,
+            "feed_N2": 0.02,
+        },
+    )
     cases = folder / "cases.parquet"
     results = folder / "results.parquet"
     write_grid(cases, table)

@@ -134,8 +134,9 @@ def result_plot(
         ax.set_ylabel(y)
         points = int(np.isfinite(grid).sum())
     averaged = table.num_rows > points
-    ax.set_title(Path(path).name + (" (each point: mean over the other swept columns)" if averaged else ""),
-                 fontsize=9)
+    ax.set_title(
+        Path(path).name + (" (each point: mean over the other swept columns)" if averaged else ""), fontsize=9
+    )
     ax.grid(True, alpha=0.3)
     fig.tight_layout()
     out = Path(out)

@@ -10,12 +10,13 @@ unchanged and in order, then ``n_<species>``, ``y_<species>``,
 ``extent_<label>``, ``conversion_<species>`` (reactants with a feed column),
 ``status`` and ``iterations``.
 
-Never losing work: each finished batch is written as its own part file in a
-hidden ``.<name>.partial`` folder beside the output (each part appears under
-its final name only once complete), so an interruption (Ctrl-C, ``kill -9``)
-loses at most the batch in flight, and ``resume=True`` continues after the
-last finished one. The output itself appears under its final name only when
-complete (parts are merged into a temporary file that is then renamed).
+Never losing work: each finished batch is also written as its own part file
+(Arrow IPC) in a hidden ``.<name>.partial`` folder beside the output (each
+part appears under its final name only once complete), so an interruption
+(Ctrl-C, ``kill -9``) loses at most the batch in flight, and ``resume=True``
+continues after the last finished one, re-reading the finished parts. The
+output itself is written to a temporary name as the sweep goes and renamed
+only when complete; the parts are then removed.
 """
 
 from __future__ import annotations
@@ -60,9 +61,11 @@ class SweepSummary:
     def line(self) -> str:
         rate = self.rows / self.seconds if self.seconds > 0 else float("inf")
         others = ", ".join(f"{v:,} {k}" for k, v in sorted(self.by_status.items()) if k != "converged")
-        return (f"{self.rows:,} rows, {self.converged:,} converged"
-                + (f", not converged: {others}" if others else "")
-                + f"; {self.seconds:.1f} s ({rate:,.0f} rows/s)")
+        return (
+            f"{self.rows:,} rows, {self.converged:,} converged"
+            + (f", not converged: {others}" if others else "")
+            + f"; {self.seconds:.1f} s ({rate:,.0f} rows/s)"
+        )
 
     def merge(self, other: SweepSummary) -> None:
         self.rows += other.rows
@@ -125,8 +128,11 @@ class _Plan:
         self.system = system
         names = list(schema.names)
         self.names = names
-        numeric = {n for n in names if pa.types.is_floating(schema.field(n).type)
-                   or pa.types.is_integer(schema.field(n).type)}
+        numeric = {
+            n
+            for n in names
+            if pa.types.is_floating(schema.field(n).type) or pa.types.is_integer(schema.field(n).type)
+        }
 
         def need_numeric(col: str) -> None:
             if col not in numeric:
@@ -143,7 +149,9 @@ class _Plan:
                 self.feed_cols.append(None)
                 missing.append(sp)
         if len(missing) == len(system.species):
-            raise SweepError(f"{path}: no feed column; expected feed_<species> for {', '.join(system.species)}")
+            raise SweepError(
+                f"{path}: no feed column; expected feed_<species> for {', '.join(system.species)}"
+            )
         if missing:
             say(f"{path}: no column for {', '.join('feed_' + m for m in missing)}: taken as zero feed")
         self.p_col = "P_bar" if "P_bar" in names else None
@@ -158,13 +166,17 @@ class _Plan:
         present = [c for c in lnk if c in names]
         if present and len(present) != len(lnk):
             absent = sorted(set(lnk) - set(present))
-            raise SweepError(f"{path}: missing column(s) {', '.join(absent)} (give every lnK_<label> or none)")
+            raise SweepError(
+                f"{path}: missing column(s) {', '.join(absent)} (give every lnK_<label> or none)"
+            )
         for c in present:
             need_numeric(c)
         self.lnk_cols = present or None
         if self.lnk_cols is None:
             if not system.lnK_data or len(system.lnK_data) != system.n_reactions:
-                raise SweepError(f"{path}: missing column(s) {', '.join(lnk)}; the system has no K data for them")
+                raise SweepError(
+                    f"{path}: missing column(s) {', '.join(lnk)}; the system has no K data for them"
+                )
             if system.needs_T and self.t_col is None:
                 raise SweepError(f"{path}: missing column 'T_K', needed for the system's K(T) data")
         fed = [sp for sp, col in zip(system.species, self.feed_cols) if col is not None]
@@ -175,9 +187,13 @@ class _Plan:
 
     def output_names(self) -> list[str]:
         s = self.system
-        return ([f"n_{x}" for x in s.species] + [f"y_{x}" for x in s.species]
-                + [f"extent_{x}" for x in s.labels] + [f"conversion_{x}" for x in self.conversion]
-                + ["status", "iterations"])
+        return (
+            [f"n_{x}" for x in s.species]
+            + [f"y_{x}" for x in s.species]
+            + [f"extent_{x}" for x in s.labels]
+            + [f"conversion_{x}" for x in self.conversion]
+            + ["status", "iterations"]
+        )
 
     def solve(self, batch: Any, options: dict) -> tuple[Any, np.ndarray]:
         pa, _ = _pa()
@@ -217,8 +233,14 @@ class _Plan:
 
 def _fingerprint(system: ReactionSystem, path: Path, batch_size: int, options: dict) -> dict:
     stat = path.stat()
-    return {"input": str(path.resolve()), "size": stat.st_size, "mtime_ns": stat.st_mtime_ns,
-            "batch_size": batch_size, "system": repr(system._spec), "options": repr(sorted(options.items()))}
+    return {
+        "input": str(path.resolve()),
+        "size": stat.st_size,
+        "mtime_ns": stat.st_mtime_ns,
+        "batch_size": batch_size,
+        "system": repr(system._spec),
+        "options": repr(sorted(options.items())),
+    }
 
 
 def sweep_file(
@@ -241,7 +263,9 @@ def sweep_file(
     if dst.exists() and not overwrite:
         raise SweepError(f"{dst}: exists; pass overwrite=True (--overwrite) to replace it")
     if partial.exists() and not (resume or overwrite):
-        raise SweepError(f"{dst}: an interrupted sweep left {partial}; resume it (--resume) or start over (--overwrite)")
+        raise SweepError(
+            f"{dst}: an interrupted sweep left {partial}; resume it (--resume) or start over (--overwrite)"
+        )
     if partial.exists() and overwrite and not resume:
         shutil.rmtree(partial)
     pf = _open(src)
@@ -252,8 +276,10 @@ def sweep_file(
     if meta_path.exists():
         old = json.loads(meta_path.read_text())
         if old != meta:
-            raise SweepError(f"{dst}: the interrupted sweep in {partial} was made from other input or settings; "
-                             "start over with --overwrite")
+            raise SweepError(
+                f"{dst}: the interrupted sweep in {partial} was made from other input or settings; "
+                "start over with --overwrite"
+            )
     else:
         tmp = meta_path.with_suffix(".tmp")
         tmp.write_text(json.dumps(meta))
@@ -263,39 +289,95 @@ def sweep_file(
     progress = _Progress(total, quiet)
     t0 = time.perf_counter()
     done = 0
-    for k, batch in enumerate(pf.iter_batches(batch_size=batch_size)):
-        part = partial / f"part-{k:06d}.parquet"
-        if part.exists():
-            status = pq.read_table(part, columns=["status"]).column("status").to_numpy()
-            summary.resumed_batches += 1
-        else:
-            table, status = plan.solve(batch, options)
-            tmp = part.with_suffix(".tmp")
-            pq.write_table(table, tmp)
-            os.replace(tmp, part)  # a part is there whole or not at all
-        _count(summary, status)
-        done += batch.num_rows
-        progress.update(done)
-    progress.update(done, final=True)
-    # Merge the parts into the output, which appears under its name only when complete.
     tmp_out = dst.parent / f".{dst.name}.tmp"
-    parts = sorted(partial.glob("part-*.parquet"))
-    writer = None
+    writer = _BackgroundWriter(tmp_out)
     try:
-        for p in parts:
-            table = pq.read_table(p)
-            if writer is None:
-                writer = pq.ParquetWriter(tmp_out, table.schema)
-            writer.write_table(table)
-        if writer is None:  # an empty input: an empty table with the output columns
-            pq.write_table(_empty_output(plan, pf.schema_arrow), tmp_out)
+        for k, batch in enumerate(pf.iter_batches(batch_size=batch_size)):
+            part = partial / f"part-{k:06d}.arrow"
+            if part.exists():
+                table = _read_part(part)
+                summary.resumed_batches += 1
+                writer.put(table)
+            else:
+                table, _ = plan.solve(batch, options)
+                writer.put(table, part)
+            _count(summary, table.column("status").to_numpy())
+            done += batch.num_rows
+            progress.update(done)
+        progress.update(done, final=True)
+        if done == 0:  # an empty input: an empty table with the output columns
+            writer.put(_empty_output(plan, pf.schema_arrow))
     finally:
-        if writer is not None:
-            writer.close()
+        writer.close()
     os.replace(tmp_out, dst)
     shutil.rmtree(partial, ignore_errors=True)
     summary.seconds = time.perf_counter() - t0
     return summary
+
+
+def _write_part(table: Any, path: Path) -> None:
+    """A finished batch, as Arrow IPC: written at memory speed, read back by
+    memory map when a sweep resumes."""
+    import pyarrow.feather as feather
+
+    feather.write_feather(table, path, compression="uncompressed")
+
+
+def _read_part(path: Path) -> Any:
+    import pyarrow.feather as feather
+
+    return feather.read_table(path, memory_map=False)
+
+
+class _BackgroundWriter:
+    """The part files and the output Parquet file, written batch by batch on
+    their own thread so that encoding overlaps the next batch's solve (both
+    release the GIL).
+    Dictionary encoding is off: solver outputs are distinct doubles, for
+    which it costs time and saves nothing."""
+
+    def __init__(self, path: Path) -> None:
+        import queue
+        import threading
+
+        self.path = path
+        self.queue: queue.Queue = queue.Queue(maxsize=2)  # bounds the tables in flight
+        self.error: BaseException | None = None
+        self.thread = threading.Thread(target=self._run, daemon=True)
+        self.thread.start()
+
+    def _run(self) -> None:
+        _, pq = _pa()
+        writer = None
+        try:
+            while (item := self.queue.get()) is not None:
+                table, part = item
+                if part is not None:
+                    tmp = part.with_suffix(".tmp")
+                    _write_part(table, tmp)
+                    os.replace(tmp, part)  # a part is there whole or not at all
+                if writer is None:
+                    writer = pq.ParquetWriter(self.path, table.schema, use_dictionary=False)
+                writer.write_table(table)
+        except BaseException as err:  # re-raised on the caller's thread by close()
+            self.error = err
+            while self.queue.get() is not None:
+                pass
+        finally:
+            if writer is not None:
+                writer.close()
+
+    def put(self, table: Any, part: Path | None = None) -> None:
+        """Append ``table`` to the output; first save it as ``part`` if given."""
+        if self.error is not None:
+            raise self.error
+        self.queue.put((table, part))
+
+    def close(self) -> None:
+        self.queue.put(None)
+        self.thread.join()
+        if self.error is not None:
+            raise self.error
 
 
 def _empty_output(plan: _Plan, schema: Any) -> Any:
@@ -387,8 +469,14 @@ def sweep(
         for f in files:
             total.merge(sweep_file(system, f, dst / f.name, quiet=quiet, **kwargs))
     else:
-        futures = client.map(_sweep_task, [system] * len(files), files, [dst / f.name for f in files],
-                             [kwargs] * len(files), pure=False)
+        futures = client.map(
+            _sweep_task,
+            [system] * len(files),
+            files,
+            [dst / f.name for f in files],
+            [kwargs] * len(files),
+            pure=False,
+        )
         for part in client.gather(futures):
             total.merge(part)
     total.seconds = time.perf_counter() - t0

@@ -1,0 +1,316 @@
+"""Parquet sweeps: round trips, datasets, resume after kill -9, refusal to
+overwrite, bad files, Dask, grids and plots."""
+
+from __future__ import annotations
+
+import os
+import signal
+import struct
+import subprocess
+import sys
+import textwrap
+import time
+from pathlib import Path
+
+import eqbatch
+import numpy as np
+import pyarrow as pa
+import pyarrow.parquet as pq
+import pytest
+from eqbatch.demo import reformer_system
+from eqbatch.grid import make_grid, write_grid
+from eqbatch.sweep import SweepError, sweep
+
+SYSTEM_FILE = Path(eqbatch.__file__).parent / "data" / "reformer.toml"
+
+
+def cases(n: int, seed: int = 0) -> pa.Table:
+    rng = np.random.default_rng(seed)
+    return pa.table(
+        {
+            "case_id": np.arange(n),
+            "feed_CH4": np.full(n, 0.98),
+            "feed_H2O": rng.uniform(1.5, 5.0, n),
+            "feed_N2": np.full(n, 0.02),
+            "T_K": rng.uniform(700.0, 1200.0, n),
+            "P_bar": rng.uniform(1.0, 40.0, n),
+            "site": np.array(["north", "south"])[rng.integers(0, 2, n)],
+        }
+    )
+
+
+def test_round_trip_equals_an_in_memory_solve(tmp_path) -> None:
+    table = cases(5000)
+    pq.write_table(table, tmp_path / "in.parquet")
+    system = reformer_system()
+    summary = sweep(system, tmp_path / "in.parquet", tmp_path / "out.parquet", batch_size=1024, quiet=True)
+    out = pq.read_table(tmp_path / "out.parquet")
+    assert summary.rows == 5000 and summary.converged == 5000
+    # every input column unchanged and in order, then the outputs
+    assert out.column_names[: table.num_columns] == table.column_names
+    assert out.select(table.column_names).equals(table)
+    feed = np.column_stack(
+        [table.column("feed_CH4"), table.column("feed_H2O"), np.zeros((5000, 3)), table.column("feed_N2")]
+    )
+    res = system.solve(feed, T=table.column("T_K").to_numpy(), P=table.column("P_bar").to_numpy())
+    np.testing.assert_array_equal(
+        np.column_stack([out.column(f"n_{s}") for s in system.species]), res.amounts
+    )
+    np.testing.assert_array_equal(out.column("y_H2").to_numpy(), res.mole_fractions[:, 3])
+    np.testing.assert_array_equal(out.column("extent_shift").to_numpy(), res.extents[:, 1])
+    np.testing.assert_array_equal(out.column("conversion_CH4").to_numpy(), res.conversion("CH4"))
+    np.testing.assert_array_equal(out.column("status").to_numpy(), res.status)
+    assert not list(tmp_path.glob(".*"))  # no temporary or partial files left
+
+
+def test_dataset_folder_gives_one_output_per_file(tmp_path) -> None:
+    src = tmp_path / "cases"
+    src.mkdir()
+    for k in range(3):
+        pq.write_table(cases(700, seed=k), src / f"part{k}.parquet")
+    summary = sweep(reformer_system(), src, tmp_path / "results", quiet=True)
+    assert summary.rows == 2100
+    names = sorted(p.name for p in (tmp_path / "results").glob("*.parquet"))
+    assert names == ["part0.parquet", "part1.parquet", "part2.parquet"]
+    sweep(reformer_system(), src / "part1.parquet", tmp_path / "one.parquet", quiet=True)
+    assert pq.read_table(tmp_path / "results" / "part1.parquet").equals(
+        pq.read_table(tmp_path / "one.parquet")
+    )
+
+
+def test_refuses_to_overwrite_unless_asked(tmp_path) -> None:
+    pq.write_table(cases(100), tmp_path / "in.parquet")
+    system = reformer_system()
+    sweep(system, tmp_path / "in.parquet", tmp_path / "out.parquet", quiet=True)
+    before = (tmp_path / "out.parquet").read_bytes()
+    with pytest.raises(SweepError, match="exists; pass overwrite=True"):
+        sweep(system, tmp_path / "in.parquet", tmp_path / "out.parquet", quiet=True)
+    assert (tmp_path / "out.parquet").read_bytes() == before
+    sweep(system, tmp_path / "in.parquet", tmp_path / "out.parquet", quiet=True, overwrite=True)
+
+
+def test_resume_after_kill_9_equals_an_uninterrupted_run(tmp_path) -> None:
+    pq.write_table(cases(120_000, seed=3), tmp_path / "in.parquet")
+    script = textwrap.dedent(f"""
+        import time, eqbatch.sweep as sw
+        from eqbatch.demo import reformer_system
+        real = sw._Plan.solve
+        def slow(self, batch, options):
+            time.sleep(0.05)  # leave time to be killed mid-run
+            return real(self, batch, options)
+        sw._Plan.solve = slow
+        sw.sweep(reformer_system(), {str(tmp_path / "in.parquet")!r}, {str(tmp_path / "out.parquet")!r},
+                 batch_size=2000, quiet=True)
+    """)
+    proc = subprocess.Popen([sys.executable, "-c", script])
+    partial = tmp_path / ".out.parquet.partial"
+    deadline = time.time() + 60
+    while time.time() < deadline and len(list(partial.glob("part-*.arrow"))) < 5:
+        time.sleep(0.02)
+    os.kill(proc.pid, signal.SIGKILL)
+    proc.wait()
+    done_parts = len(list(partial.glob("part-*.arrow")))
+    assert 5 <= done_parts < 60 and not (tmp_path / "out.parquet").exists()
+    with pytest.raises(SweepError, match="resume it"):
+        sweep(
+            reformer_system(), tmp_path / "in.parquet", tmp_path / "out.parquet", batch_size=2000, quiet=True
+        )
+    summary = sweep(
+        reformer_system(),
+        tmp_path / "in.parquet",
+        tmp_path / "out.parquet",
+        batch_size=2000,
+        quiet=True,
+        resume=True,
+    )
+    assert summary.resumed_batches >= 5 and summary.rows == 120_000
+    sweep(reformer_system(), tmp_path / "in.parquet", tmp_path / "fresh.parquet", batch_size=2000, quiet=True)
+    assert pq.read_table(tmp_path / "out.parquet").equals(pq.read_table(tmp_path / "fresh.parquet"))
+    assert not partial.exists()
+
+
+def test_nulls_make_a_row_invalid_not_the_run(tmp_path) -> None:
+    table = cases(10)
+    h2o = table.column("feed_H2O").to_pylist()
+    h2o[4] = None
+    table = table.set_column(2, "feed_H2O", pa.array(h2o, pa.float64()))
+    pq.write_table(table, tmp_path / "in.parquet")
+    summary = sweep(reformer_system(), tmp_path / "in.parquet", tmp_path / "out.parquet", quiet=True)
+    status = pq.read_table(tmp_path / "out.parquet").column("status").to_numpy()
+    assert status[4] == eqbatch.Status.INVALID_INPUT and np.all(np.delete(status, 4) == 0)
+    assert summary.by_status == {"converged": 9, "invalid input": 1}
+
+
+@pytest.mark.parametrize(
+    "make, message",
+    [
+        (lambda t: t.drop(["T_K"]), r"missing column 'T_K'"),
+        (
+            lambda t: t.set_column(1, "feed_CH4", pa.array(["a"] * t.num_rows)),
+            r"column 'feed_CH4' must be numeric",
+        ),
+        (lambda t: t.drop(["feed_CH4", "feed_H2O", "feed_N2"]), r"no feed column"),
+        (
+            lambda t: t.append_column("lnK_reforming", pa.array(np.zeros(t.num_rows))),
+            r"missing column\(s\) lnK_shift",
+        ),
+    ],
+)
+def test_bad_columns_name_the_file_and_column(tmp_path, make, message) -> None:
+    path = tmp_path / "bad.parquet"
+    pq.write_table(make(cases(20)), path)
+    with pytest.raises(SweepError, match=message) as info:
+        sweep(reformer_system(), path, tmp_path / "out.parquet", quiet=True)
+    assert str(path) in str(info.value)
+    assert not (tmp_path / "out.parquet").exists()
+
+
+def test_corrupt_and_non_parquet_files(tmp_path) -> None:
+    good = tmp_path / "good.parquet"
+    pq.write_table(cases(50), good)
+    corrupt = tmp_path / "corrupt.parquet"
+    corrupt.write_bytes(good.read_bytes()[: len(good.read_bytes()) // 2])
+    text = tmp_path / "text.parquet"
+    text.write_text("case,T\n1,900\n")
+    for path in (corrupt, text):
+        with pytest.raises(SweepError, match="not a readable Parquet file") as info:
+            sweep(reformer_system(), path, tmp_path / "out.parquet", quiet=True)
+        assert str(path) in str(info.value)
+    with pytest.raises(SweepError, match="no such file"):
+        sweep(reformer_system(), tmp_path / "missing.parquet", tmp_path / "out.parquet", quiet=True)
+
+
+def test_cli_sweep_summary_line(tmp_path) -> None:
+    pq.write_table(cases(300), tmp_path / "in.parquet")
+    out = subprocess.run(
+        [
+            "eqbatch",
+            "sweep",
+            str(SYSTEM_FILE),
+            str(tmp_path / "in.parquet"),
+            str(tmp_path / "out.parquet"),
+            "--quiet",
+        ],
+        capture_output=True,
+        text=True,
+    )
+    assert out.returncode == 0, out.stderr
+    assert "300 rows, 300 converged" in out.stdout
+    again = subprocess.run(
+        ["eqbatch", "sweep", str(SYSTEM_FILE), str(tmp_path / "in.parquet"), str(tmp_path / "out.parquet")],
+        capture_output=True,
+        text=True,
+    )
+    assert (
+        again.returncode == 2 and again.stderr.startswith("eqbatch: error:") and "--overwrite" in again.stderr
+    )
+
+
+def test_dask_local_cluster_equals_the_local_run(tmp_path) -> None:
+    import distributed  # part of the test extra: a missing install fails, it does not skip
+
+    src = tmp_path / "cases"
+    src.mkdir()
+    for k in range(4):
+        pq.write_table(cases(400, seed=10 + k), src / f"f{k}.parquet")
+    system = reformer_system()
+    sweep(system, src, tmp_path / "local", quiet=True)
+    with (
+        distributed.LocalCluster(
+            n_workers=2, threads_per_worker=1, processes=True, host="127.0.0.1", dashboard_address=None
+        ) as cluster,
+        distributed.Client(cluster) as client,
+    ):
+        summary = sweep(system, src, tmp_path / "dask", client=client, quiet=True)
+    assert summary.rows == 1600
+    for k in range(4):
+        name = f"f{k}.parquet"
+        assert pq.read_table(tmp_path / "dask" / name).equals(pq.read_table(tmp_path / "local" / name))
+
+
+def test_factorial_grid_and_seeded_samples(tmp_path) -> None:
+    grid = make_grid(
+        {"T_K": (800, 1000, 3), "P_bar": (1, 100, 3)}, constants={"feed_CH4": 1.0}, log=("P_bar",)
+    )
+    assert grid.num_rows == 9
+    np.testing.assert_allclose(sorted(set(grid.column("P_bar").to_pylist())), [1.0, 10.0, 100.0])
+    np.testing.assert_array_equal(grid.column("feed_CH4").to_numpy(), np.ones(9))
+    for kind in ("lhs", "sobol"):
+        a = make_grid({"T_K": (700, 1200, 0), "S": (1.5, 5, 0)}, sample=kind, n=64, seed=7)
+        b = make_grid({"T_K": (700, 1200, 0), "S": (1.5, 5, 0)}, sample=kind, n=64, seed=7)
+        c = make_grid({"T_K": (700, 1200, 0), "S": (1.5, 5, 0)}, sample=kind, n=64, seed=8)
+        assert a.equals(b) and not a.equals(c)
+        t = a.column("T_K").to_numpy()
+        assert t.min() >= 700 and t.max() <= 1200
+    # Latin hypercube: exactly one sample in each of the n strata of every column
+    lhs = make_grid({"T_K": (0, 1, 0)}, sample="lhs", n=50, seed=1).column("T_K").to_numpy()
+    assert sorted(np.floor(lhs * 50).astype(int)) == list(range(50))
+    out = subprocess.run(
+        [
+            "eqbatch",
+            "grid",
+            str(tmp_path / "g.parquet"),
+            "--range",
+            "T_K=700:1200:6",
+            "--range",
+            "P_bar=1:40:2",
+            "--set",
+            "feed_CH4=0.98,feed_H2O=2.94",
+        ],
+        capture_output=True,
+        text=True,
+    )
+    assert out.returncode == 0 and "wrote 12 cases" in out.stdout
+    assert pq.read_table(tmp_path / "g.parquet").num_rows == 12
+
+
+def _png_size(path: Path) -> tuple[int, int]:
+    data = path.read_bytes()
+    assert data[:8] == b"\x89PNG\r\n\x1a\n"
+    return struct.unpack(">II", data[16:24])
+
+
+def test_plot_writes_a_png_of_the_right_size(tmp_path) -> None:
+    table = make_grid(
+        {"T_K": (800, 1100, 7), "P_bar": (1, 30, 3)},
+        constants={"feed_CH4": 0.98, "feed_H2O": 2.94, "feed_N2": 0.02},
+    )
+    write_grid(tmp_path / "g.parquet", table)
+    sweep(reformer_system(), tmp_path / "g.parquet", tmp_path / "r.parquet", quiet=True)
+    out = subprocess.run(
+        [
+            "eqbatch",
+            "plot",
+            str(tmp_path / "r.parquet"),
+            "--x",
+            "T_K",
+            "--y",
+            "y_H2",
+            "--by",
+            "P_bar",
+            "--out",
+            str(tmp_path / "lines.png"),
+        ],
+        capture_output=True,
+        text=True,
+    )
+    assert out.returncode == 0, out.stderr
+    assert _png_size(tmp_path / "lines.png") == (640, 440)
+    out = subprocess.run(
+        [
+            "eqbatch",
+            "plot",
+            str(tmp_path / "r.parquet"),
+            "--x",
+            "T_K",
+            "--y",
+            "P_bar",
+            "--z",
+            "y_H2",
+            "--out",
+            str(tmp_path / "heat.png"),
+        ],
+        capture_output=True,
+        text=True,
+    )
+    assert out.returncode == 0 and _png_size(tmp_path / "heat.png") == (640, 440)
