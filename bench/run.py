@@ -197,7 +197,7 @@ import sys, time
 sys.path.insert(0, {root!r})
 import numpy as np, pyarrow as pa, pyarrow.parquet as pq
 from eqbatch.demo import reformer_system
-from eqbatch.sweep import sweep
+from eqbatch.sweeps import sweep
 
 
 def status(key):

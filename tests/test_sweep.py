@@ -19,7 +19,7 @@ import pyarrow.parquet as pq
 import pytest
 from eqbatch.demo import reformer_system
 from eqbatch.grid import make_grid, write_grid
-from eqbatch.sweep import SweepError, sweep
+from eqbatch.sweeps import SweepError, sweep
 
 SYSTEM_FILE = Path(eqbatch.__file__).parent / "data" / "reformer.toml"
 
@@ -92,7 +92,7 @@ def test_refuses_to_overwrite_unless_asked(tmp_path) -> None:
 def test_resume_after_kill_9_equals_an_uninterrupted_run(tmp_path) -> None:
     pq.write_table(cases(120_000, seed=3), tmp_path / "in.parquet")
     script = textwrap.dedent(f"""
-        import time, eqbatch.sweep as sw
+        import time, eqbatch.sweeps as sw
         from eqbatch.demo import reformer_system
         real = sw._Plan.solve
         def slow(self, batch, options):

@@ -30,6 +30,8 @@ from eqbatch.errors import (
 from eqbatch.kdata import LnKFunction
 from eqbatch.result import EquilibriumResult, Status
 from eqbatch.system import ReactionSystem
+from eqbatch.sweeps import SweepError, SweepSummary, sweep
+from eqbatch.uncertainty import MonteCarloResult, lnK_covariance, monte_carlo, monte_carlo_table
 
 __version__ = _core_version
 
@@ -42,12 +44,19 @@ __all__ = [
     "EquilibriumResult",
     "InvalidCaseError",
     "LnKFunction",
+    "MonteCarloResult",
     "ReactionSystem",
     "Status",
+    "SweepError",
+    "SweepSummary",
     "SystemDefinitionError",
     "SystemFileError",
     "UnboundedReactionsError",
     "UnknownSpeciesError",
+    "lnK_covariance",
+    "monte_carlo",
+    "monte_carlo_table",
     "parse_equation",
     "parse_formula",
+    "sweep",
 ]

@@ -182,7 +182,7 @@ def _cmd_uncertainty(args: argparse.Namespace) -> int:
 
 def _cmd_sweep(args: argparse.Namespace) -> int:
     from eqbatch.demo import CAUTION
-    from eqbatch.sweep import sweep
+    from eqbatch.sweeps import sweep
     from eqbatch.system import ReactionSystem
 
     system = ReactionSystem.from_toml(args.system)

@@ -106,7 +106,7 @@ def _sweep_and_plot(system: ReactionSystem, folder: Path, threads: int | None) -
     """A small Parquet sweep (a grid written, solved, plotted) of the same study."""
     from eqbatch.grid import make_grid, write_grid
     from eqbatch.plots import result_plot
-    from eqbatch.sweep import sweep
+    from eqbatch.sweeps import sweep
 
     folder.mkdir(parents=True, exist_ok=True)
     table = make_grid(

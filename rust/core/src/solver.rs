@@ -414,7 +414,7 @@ fn warm_start(
             v += nu[j * s + i] * x0[j];
         }
         if face.unreachable[i] {
-            if !(v.abs() <= 1e-12 * scale) {
+            if v.is_nan() || v.abs() > 1e-12 * scale {
                 return false;
             }
             v = 0.0;

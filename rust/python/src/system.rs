@@ -1,11 +1,12 @@
 //! `eqbatch._core.System`: a validated reaction system and its batch solve.
 
 use eqbatch_core::{
-    sensitivities_batch, solve_batch, BatchInputs, BatchOutputs, Phase, SensitivityOutputs, SolveOptions,
-    System,
+    sensitivities_batch, solve_batch, BatchInputs, BatchOutputs, Phase, SensitivityOutputs,
+    SolveOptions, System,
 };
 use numpy::{
-    PyArray1, PyArray2, PyArray3, PyArrayMethods, PyReadonlyArray1, PyReadonlyArray2, PyUntypedArrayMethods,
+    PyArray1, PyArray2, PyArray3, PyArrayMethods, PyReadonlyArray1, PyReadonlyArray2,
+    PyUntypedArrayMethods,
 };
 use pyo3::exceptions::PyValueError;
 use pyo3::prelude::*;
@@ -161,11 +162,27 @@ impl PySystem {
             let status = status.as_slice()?;
             // SAFETY: the three arrays were created just above and are not
             // shared until returned.
-            let (dk, dp, df) = unsafe { (d_ln_k.as_slice_mut()?, d_ln_p.as_slice_mut()?, d_feed.as_slice_mut()?) };
+            let (dk, dp, df) = unsafe {
+                (
+                    d_ln_k.as_slice_mut()?,
+                    d_ln_p.as_slice_mut()?,
+                    d_feed.as_slice_mut()?,
+                )
+            };
             let system = &self.inner;
             py.detach(move || {
-                let inputs = BatchInputs { n_cases, feed, ln_k: &[], pressure, start: None };
-                let mut out = SensitivityOutputs { d_ln_k: dk, d_ln_p: dp, d_feed: df };
+                let inputs = BatchInputs {
+                    n_cases,
+                    feed,
+                    ln_k: &[],
+                    pressure,
+                    start: None,
+                };
+                let mut out = SensitivityOutputs {
+                    d_ln_k: dk,
+                    d_ln_p: dp,
+                    d_feed: df,
+                };
                 sensitivities_batch(system, &inputs, amounts, status, &mut out, threads)
             })
             .map_err(to_py)?;
