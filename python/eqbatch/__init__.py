@@ -29,8 +29,8 @@ from eqbatch.errors import (
 )
 from eqbatch.kdata import LnKFunction
 from eqbatch.result import EquilibriumResult, Status
-from eqbatch.system import ReactionSystem
 from eqbatch.sweeps import SweepError, SweepSummary, sweep
+from eqbatch.system import ReactionSystem
 from eqbatch.uncertainty import MonteCarloResult, lnK_covariance, monte_carlo, monte_carlo_table
 
 __version__ = _core_version
