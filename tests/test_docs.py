@@ -27,4 +27,5 @@ def test_readme_python_blocks_run() -> None:
     for block in blocks:
         namespace.pop("res", None)
         exec(compile(block, str(README), "exec"), namespace)
-        assert namespace["res"].converged.all()
+        if "res" in namespace:  # blocks that solve something show a converged result
+            assert namespace["res"].converged.all()

@@ -248,6 +248,38 @@ def _cmd_plot(args: argparse.Namespace) -> int:
     return 0
 
 
+def _cmd_thermo(args: argparse.Namespace) -> int:
+    from eqbatch.system import ReactionSystem
+
+    system = ReactionSystem.from_toml(args.system)
+    try:
+        lo, hi, count = (float(x) for x in args.T.split(":"))
+    except ValueError:
+        raise _UsageError(f"--T takes LOW:HIGH:COUNT in kelvin, got {args.T!r}") from None
+    T = np.linspace(lo, hi, int(count))
+    lnk, dH, dG = system.lnK(T), system.dH(T), system.dG(T)
+    for j, (label, eq) in enumerate(zip(system.labels, system.equations)):
+        print(f"{label}: {eq}")
+        rows = [
+            [f"{t:g}", f"{dH[k, j] / 1000:.3f}", f"{dG[k, j] / 1000:.3f}", f"{lnk[k, j]:.5g}"]
+            for k, t in enumerate(T)
+        ]
+        print(_table(["T/K", "dH/(kJ/mol)", "dG/(kJ/mol)", "ln K"], rows))
+        print()
+    print(f"standard pressure P0 = {system.P0:g} bar")
+    if system.species_data:
+        print("species data:")
+        for name, data in system.species_data.items():
+            lo_t, hi_t = data.range
+            print(f"  {name}: {data.source} ({lo_t:g}-{hi_t:g} K)")
+    others = [label for label in system.labels if type(system.lnK_data.get(label)).__name__ != "ThermoLnK"]
+    for label in others:
+        data = system.lnK_data.get(label)
+        kind = "ln K(T) correlation" if callable(data) else "constant ln K"
+        print(f"  {label}: {kind} from the system file")
+    return 0
+
+
 def _cmd_demo(args: argparse.Namespace) -> int:
     from eqbatch.demo import run
 
@@ -349,6 +381,11 @@ def _parser() -> argparse.ArgumentParser:
     pl.add_argument("--z", help="heat map of this column over --x and --y")
     pl.add_argument("--out", default="plot.png", help="PNG to write")
     pl.set_defaults(run=_cmd_plot)
+
+    th = sub.add_parser("thermo", help="dH, dG and ln K of every reaction over a temperature range")
+    th.add_argument("system", help="system file (TOML)")
+    th.add_argument("--T", default="600:1200:7", metavar="LOW:HIGH:COUNT", help="temperatures, K")
+    th.set_defaults(run=_cmd_thermo)
 
     demo = sub.add_parser("demo", help="reformer and shift study on built-in data")
     demo.add_argument("--cases", type=int, default=1_000_000, help="size of the timed random batch")

@@ -30,6 +30,9 @@ class Status(IntEnum):
     #: The Gibbs function could not be lowered further before ``tol`` was met
     #: (float64 limit for the case); amounts are the last iterate.
     STALLED = 4
+    #: Adiabatic solve: no outlet temperature within the species data's
+    #: range balances the enthalpy; amounts are those at the range's edge.
+    OUT_OF_RANGE = 5
 
     @property
     def description(self) -> str:
@@ -42,6 +45,7 @@ _DESCRIPTIONS = {
     Status.INVALID_INPUT: "invalid input (negative/NaN feed, zero total, bad ln K or pressure)",
     Status.INFEASIBLE: "infeasible: the extents are unbounded for this feed",
     Status.STALLED: "stalled: no further decrease of the Gibbs function",
+    Status.OUT_OF_RANGE: "no adiabatic outlet temperature within the data's temperature range",
 }
 
 

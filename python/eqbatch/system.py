@@ -70,6 +70,11 @@ class ReactionSystem:
     lnK : mapping label -> float or LnKFunction, or sequence of them, optional
         Default equilibrium constants: a constant ln K, or ln K as a function
         of temperature so that a case needs only ``T``.
+    species_data : mapping species -> NASA7, Shomate or CpPolynomial, optional
+        Standard-state thermochemistry (on the system's ``P0``); every
+        reaction without explicit K data whose species all have data gets
+        ``ln K(T) = -dG(T) / (R T)`` from it. With ``reactions="auto"`` an
+        independent reaction set is generated from the species' formulas.
 
     Raises
     ------
@@ -100,6 +105,7 @@ class ReactionSystem:
         formulas: Mapping[str, str | None] | None = None,
         check_balance: bool = True,
         lnK: Mapping[str, Any] | Sequence[Any] | None = None,
+        species_data: Mapping[str, Any] | None = None,
     ) -> None:
         if isinstance(species, str) or not isinstance(species, Iterable):
             raise SystemDefinitionError("species must be a list of names, e.g. ['CH4', 'H2O']")
@@ -115,6 +121,15 @@ class ReactionSystem:
             seen.add(name)
         self._index = {name: k for k, name in enumerate(self.species)}
 
+        self.formulas = self._read_formulas(formulas)
+        if isinstance(reactions, str) and reactions.strip().lower() == "auto":
+            from eqbatch.thermo import independent_reactions
+
+            reactions = independent_reactions(self.species, self.formulas)
+            if not reactions:
+                raise SystemDefinitionError(
+                    "reactions='auto': the species admit no reaction (S = rank of elements)"
+                )
         self.labels, self.equations = self._read_reactions(reactions)
         self.phases: tuple[str, ...] = self._read_phases(phases)
         try:
@@ -124,10 +139,11 @@ class ReactionSystem:
         if not (self.P0 > 0 and math.isfinite(self.P0)):
             raise SystemDefinitionError(f"P0 must be a positive pressure in bar, got {P0!r}")
 
-        self.formulas = self._read_formulas(formulas)
         nu = np.zeros((len(self.labels), len(self.species)))
+        parsed = []
         for j, (label, eq) in enumerate(zip(self.labels, self.equations)):
             coefs = parse_equation(eq, self.species, label)
+            parsed.append(coefs)
             if check_balance:
                 check_atom_balance(coefs, self.formulas, label, eq)
             for name, c in coefs.items():
@@ -137,6 +153,13 @@ class ReactionSystem:
         self._reactive = np.any(nu != 0, axis=0)
         self._core = self._build_core()
         self.lnK_data: dict[str, KData] = self._read_lnk(lnK)
+        given_lnk = dict(self.lnK_data)
+        self.species_data = self._read_species_data(species_data)
+        for label, coefs in zip(self.labels, parsed):
+            if label not in self.lnK_data and all(name in self.species_data for name in coefs):
+                from eqbatch.thermo import ThermoLnK
+
+                self.lnK_data[label] = ThermoLnK(coefs, self.species_data)
         # What it takes to build the same system again (pickling, Dask workers).
         self._spec = {
             "species": list(self.species),
@@ -145,7 +168,8 @@ class ReactionSystem:
             "P0": self.P0,
             "formulas": {k: v for k, v in (formulas or {}).items()},
             "check_balance": check_balance,
-            "lnK": dict(self.lnK_data),
+            "species_data": dict(self.species_data),
+            "lnK": given_lnk,
         }
         self._constant_lnk = self._constant_row()
         self._p0_row = np.array([self.P0])
@@ -259,6 +283,37 @@ class ReactionSystem:
             out[label] = as_lnk_data(value, label)
         return out
 
+    def _read_species_data(self, data: Mapping[str, Any] | None) -> dict[str, Any]:
+        from eqbatch.thermo import NASA7, CpPolynomial, Shomate, species_data_from_table
+
+        out = {}
+        for name, value in (data or {}).items():
+            if name not in self._index:
+                raise UnknownSpeciesError(f"species_data: {name!r} is not a species of this system")
+            if isinstance(value, (NASA7, Shomate, CpPolynomial)):
+                out[name] = value
+            elif isinstance(value, Mapping):
+                out[name] = species_data_from_table(name, value)
+            else:
+                raise SystemDefinitionError(
+                    f"species_data[{name!r}] must be NASA7, Shomate or CpPolynomial data"
+                )
+        return out
+
+    def dG(self, T: ArrayLike) -> np.ndarray:
+        """``(N, R)`` standard reaction Gibbs energy, J/mol, at ``T`` (K)."""
+        from eqbatch.thermo import R
+
+        T = np.atleast_1d(np.asarray(T, dtype=np.float64))
+        return -R * T[:, None] * self.lnK(T)
+
+    def dH(self, T: ArrayLike) -> np.ndarray:
+        """``(N, R)`` standard reaction enthalpy, J/mol, at ``T`` (K): ``R T^2 d ln K / dT``."""
+        from eqbatch.thermo import R
+
+        T = np.atleast_1d(np.asarray(T, dtype=np.float64))
+        return R * (T * T)[:, None] * self.dlnK_dT(T)
+
     def _constant_row(self) -> np.ndarray | None:
         if len(self.lnK_data) != len(self.labels):
             return None
@@ -308,7 +363,7 @@ class ReactionSystem:
     @property
     def needs_T(self) -> bool:
         """Whether some reaction's K is a function of temperature."""
-        return any(isinstance(v, LnKFunction) for v in self.lnK_data.values())
+        return any(callable(v) for v in self.lnK_data.values())
 
     def lnK(self, T: ArrayLike) -> np.ndarray:
         """``(N, R)`` ln K of every reaction at temperatures ``T`` (K) from the
@@ -440,6 +495,8 @@ class ReactionSystem:
         invalid: str = "mark",
         x0: ArrayLike | None = None,
         sensitivities: bool = False,
+        approach: Mapping[str, float] | None = None,
+        adiabatic: bool = False,
     ) -> EquilibriumResult:
         """Equilibrium of every case.
 
@@ -478,6 +535,16 @@ class ReactionSystem:
         sensitivities : bool, default False
             Also compute exact derivatives of the converged cases, read with
             :meth:`EquilibriumResult.sensitivity`.
+        approach : mapping label -> kelvin, optional
+            Temperature approach to equilibrium per reaction (needs ``T`` and
+            K(T) data): the reaction is taken ``dT`` short of equilibrium, at
+            ``K(T - dT)`` if endothermic and ``K(T + dT)`` if exothermic.
+        adiabatic : bool, default False
+            ``T`` is the inlet temperature; find per case the outlet
+            temperature (``result.T``) at which the mixture is at equilibrium
+            and its enthalpy equals the inlet's (needs species data for every
+            species). ``Status.OUT_OF_RANGE`` where no temperature in the
+            data's range balances.
 
         Returns
         -------
@@ -490,9 +557,24 @@ class ReactionSystem:
         >>> res.amounts.round(6).tolist()
         [[0.5, 0.5], [0.25, 0.75]]
         """
+        if adiabatic:
+            if T is None or lnK is not None or K is not None or log10K is not None or approach:
+                raise CaseInputError(
+                    "adiabatic=True takes the inlet temperature T= and species data, nothing else"
+                )
+            from eqbatch.adiabatic import adiabatic_solve
+
+            return adiabatic_solve(self, feed, T, P, tol=tol, threads=threads)
         feed_arr = self._feed_array(feed)
         T_arr = None if T is None else np.atleast_1d(np.asarray(T, dtype=np.float64)).reshape(-1)
-        lnk_arr = self._lnk_array(lnK, K, log10K, T_arr)
+        if approach:
+            if T_arr is None or lnK is not None or K is not None or log10K is not None:
+                raise CaseInputError("approach= needs T= and the system's K(T) data (not explicit constants)")
+            from eqbatch.thermo import approach_lnK
+
+            lnk_arr = approach_lnK(self, T_arr, approach)
+        else:
+            lnk_arr = self._lnk_array(lnK, K, log10K, T_arr)
         if P is None:
             p_arr = self._p0_row
         elif type(P) is float or type(P) is int:
@@ -536,7 +618,7 @@ class ReactionSystem:
             data = self.lnK_data.get(label)
             if data is None:
                 raise CaseInputError(f"reaction {label!r} has no K data: d ln K / dT is unknown")
-            if isinstance(data, LnKFunction):
+            if callable(data):
                 out[:, j] = data.derivative(T)
         return out
 

@@ -21,6 +21,16 @@
     label = "shift"
     equation = "CO + H2O = CO2 + H2"
     K = 1.44                              # or lnK = ..., log10K = ...
+
+Instead of K data, species may carry thermochemistry, and the reactions may
+be generated (``reactions = "auto"``)::
+
+    [species_data.H2O]
+    source = "NIST Chemistry WebBook, Shomate"
+    shomate = [{ T_min = 500, T_max = 1700, A = 30.092, B = 6.832514, C = 6.793435,
+                 D = -2.53448, E = 0.082139, F = -250.881, G = 223.3967, H = -241.8264 }]
+    # or nasa7 = { T_mid = 1000, low = [...7], high = [...7], T_min = 200, T_max = 3500 }
+    # or cp_poly = { a = [a0, a1, a2, a3, a4], dHf = -241.8, S298 = 188.8 }
 """
 
 from __future__ import annotations
@@ -36,7 +46,7 @@ if sys.version_info >= (3, 11):
 else:  # pragma: no cover
     import tomli as tomllib
 
-_TOP_KEYS = {"species", "phases", "formulas", "reactions", "P0", "check_balance"}
+_TOP_KEYS = {"species", "phases", "formulas", "reactions", "P0", "check_balance", "species_data"}
 _REACTION_KEYS = {"label", "equation", "lnK", "K", "log10K"}
 
 
@@ -66,11 +76,15 @@ def load_system(path: str | os.PathLike[str]):  # -> ReactionSystem
     if not isinstance(species, list) or not all(isinstance(s, str) for s in species):
         raise fail('\'species\' must be an array of names, e.g. species = ["CH4", "H2O"]')
     reactions = doc.get("reactions")
-    if not isinstance(reactions, list) or not reactions:
-        raise fail("needs at least one [[reactions]] table with an 'equation'")
-    pairs: list[tuple[str, str]] = []
+    species_data = doc.get("species_data")
+    if species_data is not None and not isinstance(species_data, dict):
+        raise fail("[species_data] must hold one table per species, e.g. [species_data.CH4]")
+    auto = isinstance(reactions, str) and reactions.strip().lower() == "auto"
+    if not auto and (not isinstance(reactions, list) or not reactions):
+        raise fail("needs at least one [[reactions]] table with an 'equation' (or reactions = \"auto\")")
+    pairs: list[tuple[str, str]] | str = "auto" if auto else []
     lnk: dict[str, Any] = {}
-    for j, table in enumerate(reactions):
+    for j, table in enumerate([] if auto else reactions):
         where = f"reactions[{j}]"
         if not isinstance(table, dict):
             raise fail(f"{where} must be a table")
@@ -80,7 +94,7 @@ def load_system(path: str | os.PathLike[str]):  # -> ReactionSystem
         if "equation" not in table or not isinstance(table["equation"], str):
             raise fail(f"{where}: missing 'equation' (a string such as \"CO + H2O = CO2 + H2\")")
         label = str(table.get("label", f"r{j + 1}"))
-        pairs.append((label, table["equation"]))
+        pairs.append((label, table["equation"]))  # type: ignore[union-attr]
         kinds = [k for k in ("lnK", "K", "log10K") if k in table]
         if len(kinds) > 1:
             raise fail(f"{where} ({label}): give only one of lnK, K, log10K")
@@ -101,6 +115,7 @@ def load_system(path: str | os.PathLike[str]):  # -> ReactionSystem
             P0=doc.get("P0", 1.0),
             check_balance=bool(doc.get("check_balance", True)),
             lnK=lnk or None,
+            species_data=species_data,
         )
     except SystemDefinitionError as err:
         raise type(err)(f"{name}: {err}") from None

@@ -1,0 +1,115 @@
+"""Adiabatic equilibrium: the outlet temperature at which the mixture is at
+equilibrium and its enthalpy equals the inlet's (a reactor bed with no heat
+exchange), batched over cases.
+
+Per case, ``f(T) = sum_i n_i(T) h_i(T) - sum_i n0_i h_i(T_in) = 0`` is solved
+by Newton's method with the exact derivative
+``f'(T) = sum_i n_i c_p,i + sum_i h_i dn_i/dT`` (the equilibrium's temperature
+sensitivity), safeguarded by bisection inside the temperature range that all
+species' data cover, and warm-started from the previous iterate's extents.
+"""
+
+from __future__ import annotations
+
+from typing import Any
+
+import numpy as np
+
+from eqbatch.errors import CaseInputError
+from eqbatch.result import EquilibriumResult, Status
+
+
+def _enthalpy_data(system):
+    missing = [s for s in system.species if s not in system.species_data]
+    if missing:
+        raise CaseInputError(
+            f"adiabatic=True needs species data (enthalpies) for every species; none for {', '.join(missing)}"
+        )
+    data = [system.species_data[s] for s in system.species]
+    lo = max(d.range[0] for d in data)
+    hi = min(d.range[1] for d in data)
+    return data, lo, hi
+
+
+def _h(data, T: np.ndarray) -> np.ndarray:
+    return np.column_stack([d.h(T) for d in data])
+
+
+def _cp(data, T: np.ndarray) -> np.ndarray:
+    return np.column_stack([d.cp(T) for d in data])
+
+
+def adiabatic_solve(
+    system,
+    feed: Any,
+    T: Any,
+    P: Any,
+    *,
+    tol: float = 1e-10,
+    max_iter: int = 60,
+    threads: int | None = None,
+    energy_tol: float = 1e-11,
+) -> EquilibriumResult:
+    """See :meth:`ReactionSystem.solve` with ``adiabatic=True``."""
+    import warnings
+
+    data, lo, hi = _enthalpy_data(system)
+    base = system.solve(feed, T=T, P=P, threads=threads, tol=tol)
+    n = len(base)
+    feed_rows = np.asarray(base.feed)
+    T_in = np.broadcast_to(np.asarray(base.T, dtype=float), (n,)).copy()
+    P_rows = np.asarray(base.P, dtype=float)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")  # range warnings: the bracket keeps T inside
+        H_in = np.sum(feed_rows * _h(data, T_in), axis=1)
+        scale = np.sum(np.abs(feed_rows * _h(data, T_in)), axis=1) + 1.0
+
+        def residual(Tc, extents=None):
+            r = system.solve(
+                feed_rows, T=Tc, P=P_rows, threads=threads, tol=tol, sensitivities=True, x0=extents
+            )
+            h = _h(data, Tc)
+            f = np.sum(r.amounts * h, axis=1) - H_in
+            df = np.sum(r.amounts * _cp(data, Tc), axis=1) + np.sum(h * r.sensitivity("T"), axis=1)
+            return r, f, df
+
+        a = np.full(n, lo)
+        b = np.full(n, hi)
+        _, fa, _ = residual(a)
+        _, fb, _ = residual(b)
+        bracketed = np.isfinite(fa) & np.isfinite(fb) & (np.sign(fa) != np.sign(fb)) | (fa == 0) | (fb == 0)
+        Tc = np.clip(T_in, lo, hi)
+        res, f, df = residual(Tc)
+        for _ in range(max_iter):
+            done = ~bracketed | (np.abs(f) <= energy_tol * scale)
+            if done.all():
+                break
+            # keep the bracket [a, b] around the root (f rises with T: the
+            # mixture's enthalpy grows with temperature)
+            below = f < 0
+            a = np.where(below & ~done, np.maximum(a, Tc), a)
+            b = np.where(~below & ~done, np.minimum(b, Tc), b)
+            with np.errstate(divide="ignore", invalid="ignore"):
+                newton = Tc - f / df
+            inside = np.isfinite(newton) & (newton > a) & (newton < b)
+            Tn = np.where(inside, newton, 0.5 * (a + b))
+            Tc = np.where(done, Tc, Tn)
+            res, f, df = residual(Tc, res.extents)
+    status = res.status.copy()
+    status[~bracketed & (status == Status.CONVERGED)] = Status.OUT_OF_RANGE
+    not_closed = bracketed & ~(np.abs(f) <= energy_tol * scale) & (status == Status.CONVERGED)
+    status[not_closed] = Status.ITERATION_LIMIT
+    out = EquilibriumResult(
+        system,
+        res.amounts,
+        res.extents,
+        res.mole_fractions,
+        status,
+        res.iterations,
+        feed_rows,
+        P_rows,
+        Tc,
+        res.lnK,
+    )
+    out._sens = res._sens
+    return out
