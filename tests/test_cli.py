@@ -76,7 +76,7 @@ def test_demo_runs_and_summarises(capsys, tmp_path) -> None:
     assert main(["demo", "--cases", "2000", "--out", str(tmp_path)]) == 0
     out = capsys.readouterr().out
     assert "45 grid cases: 45 converged" in out
-    assert "Methane conversion" in out and "Xu and Froment (1989)" in out
+    assert "Methane conversion" in out and "NIST WebBook Shomate" in out
     assert "2,000 cases" in out and "2000 converged" in out
     assert "defer to local codes and licensed engineers" in out
     assert "Parquet sweep" in out and "184 rows, 184 converged" in out

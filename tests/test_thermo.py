@@ -269,3 +269,48 @@ def test_adiabatic_outside_the_data_range_is_reported() -> None:
     res = s.solve([[1.0, 0.0], [0.001, 1.0]], T=650.0, adiabatic=True)
     assert res.status[0] == eqbatch.Status.OUT_OF_RANGE and "temperature range" in res.message(0)
     assert res.status[1] == eqbatch.Status.CONVERGED
+
+
+# --- the chemicals data source -------------------------------------------------
+
+
+def chem(species, equation):
+    return eqbatch.ReactionSystem(species, [equation], thermo="chemicals")
+
+
+def test_chemicals_source_against_published_correlations() -> None:
+    T = T_RANGE
+    # water-gas shift, Moe (1962), from memory
+    wgs = chem(["CO", "H2O", "CO2", "H2"], "CO + H2O = CO2 + H2").lnK(T)[:, 0]
+    np.testing.assert_allclose(wgs, 4577.8 / T - 4.33, atol=0.2)
+    # ammonia, Gillespie and Beattie (1930), atm basis, from memory
+    nh3 = chem(["N2", "H2", "NH3"], "0.5 N2 + 1.5 H2 = NH3").lnK(T)[:, 0] + math.log(1.01325)
+    log10k = 2250.322 / T - 0.85340 - 1.51049 * np.log10(T) - 25.8987e-5 * T + 14.8961e-8 * T**2
+    np.testing.assert_allclose(nh3, math.log(10) * log10k, atol=0.2)
+    # methanol from CO, Graaf, Stamhuis and Beenackers (1986): log10 K = 5139/T - 12.621, bar^-2 (from memory)
+    meoh = chem(["CO", "H2", "CH3OH"], "CO + 2 H2 = CH3OH").lnK(T)[:, 0]
+    np.testing.assert_allclose(meoh, math.log(10) * (5139.0 / T - 12.621), atol=0.2)
+    # steam reforming, Xu and Froment (1989), atm^2 basis, from memory
+    smr = chem(["CH4", "H2O", "CO", "H2"], "CH4 + H2O = CO + 3 H2").lnK(T)[:, 0] - 2 * math.log(1.01325)
+    np.testing.assert_allclose(smr, 30.114 - 26830.0 / T, atol=0.2)
+
+
+def test_chemicals_source_records_provenance_and_warns_outside_range(tmp_path) -> None:
+    s = chem(["N2", "H2", "NH3"], "0.5 N2 + 1.5 H2 = NH3")
+    source = s.species_data["NH3"].source
+    assert "Poling, Prausnitz and O'Connell" in source and "50-1000 K" in source and "ATCT" in source
+    with pytest.warns(UserWarning, match="outside the data's range"):
+        s.lnK(1200.0)
+    # user data override the source species by species
+    own = CpPolynomial(a=(4.0,), dHf=-46.0, S298=192.0, source="my own NH3")
+    mixed = eqbatch.ReactionSystem(
+        ["N2", "H2", "NH3"], ["0.5 N2 + 1.5 H2 = NH3"], thermo="chemicals", species_data={"NH3": own}
+    )
+    assert mixed.species_data["NH3"].source == "my own NH3" and "chemicals" in mixed.species_data["N2"].source
+    path = tmp_path / "nh3.toml"
+    path.write_text('species = ["N2", "H2", "NH3"]\nreactions = "auto"\n[thermo]\nsource = "chemicals"\n')
+    from_file = eqbatch.ReactionSystem.from_toml(path)
+    assert from_file.equations == ("N2 + 3 H2 = 2 NH3",)
+    np.testing.assert_allclose(from_file.lnK(800.0)[0, 0], 2 * s.lnK(800.0)[0, 0], rtol=1e-12)
+    with pytest.raises(eqbatch.SystemDefinitionError, match="no compound found for species 'Xq'"):
+        eqbatch.ReactionSystem(["N2", "Xq"], ["N2 = Xq"], thermo="chemicals", check_balance=False)

@@ -66,7 +66,7 @@ def run(
     h2_yield = n[:, 3] / 0.98
 
     print("eqbatch demo: steam reforming + water-gas shift of natural gas (98 % CH4, 2 % N2)")
-    print("K(T): Xu and Froment (1989) correlations, 1 atm basis\n")
+    print("K(T) from species thermochemistry: NIST WebBook Shomate coefficients, 1 bar basis\n")
     print(f"{len(res)} grid cases: {res.summary()}\n")
     header = "  ".join(f"{t:>6.0f} K" for t in temps)
     for title, values, fmt in (

@@ -75,6 +75,10 @@ class ReactionSystem:
         reaction without explicit K data whose species all have data gets
         ``ln K(T) = -dG(T) / (R T)`` from it. With ``reactions="auto"`` an
         independent reaction set is generated from the species' formulas.
+    thermo : {"chemicals"}, optional
+        Take the data of every species not in ``species_data`` from the
+        ``chemicals`` package (by name, else by formula); each species'
+        ``source`` records where its values came from.
 
     Raises
     ------
@@ -106,6 +110,7 @@ class ReactionSystem:
         check_balance: bool = True,
         lnK: Mapping[str, Any] | Sequence[Any] | None = None,
         species_data: Mapping[str, Any] | None = None,
+        thermo: str | None = None,
     ) -> None:
         if isinstance(species, str) or not isinstance(species, Iterable):
             raise SystemDefinitionError("species must be a list of names, e.g. ['CH4', 'H2O']")
@@ -155,6 +160,17 @@ class ReactionSystem:
         self.lnK_data: dict[str, KData] = self._read_lnk(lnK)
         given_lnk = dict(self.lnK_data)
         self.species_data = self._read_species_data(species_data)
+        if thermo is not None:
+            if str(thermo).lower() != "chemicals":
+                raise SystemDefinitionError(
+                    f"thermo must be 'chemicals' (the supported data source), got {thermo!r}"
+                )
+            from eqbatch.thermo import chemicals_data
+
+            for name in self.species:
+                if name not in self.species_data:
+                    text = (formulas or {}).get(name)
+                    self.species_data[name] = chemicals_data(name, text if isinstance(text, str) else None)
         for label, coefs in zip(self.labels, parsed):
             if label not in self.lnK_data and all(name in self.species_data for name in coefs):
                 from eqbatch.thermo import ThermoLnK
@@ -168,7 +184,7 @@ class ReactionSystem:
             "P0": self.P0,
             "formulas": {k: v for k, v in (formulas or {}).items()},
             "check_balance": check_balance,
-            "species_data": dict(self.species_data),
+            "species_data": dict(self.species_data),  # includes any fetched from a data source
             "lnK": given_lnk,
         }
         self._constant_lnk = self._constant_row()

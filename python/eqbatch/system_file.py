@@ -46,8 +46,17 @@ if sys.version_info >= (3, 11):
 else:  # pragma: no cover
     import tomli as tomllib
 
-_TOP_KEYS = {"species", "phases", "formulas", "reactions", "P0", "check_balance", "species_data"}
+_TOP_KEYS = {"species", "phases", "formulas", "reactions", "P0", "check_balance", "species_data", "thermo"}
 _REACTION_KEYS = {"label", "equation", "lnK", "K", "log10K"}
+
+
+def _thermo_source(doc: dict, fail) -> str | None:
+    table = doc.get("thermo")
+    if table is None:
+        return None
+    if not isinstance(table, dict) or set(table) - {"source"} or "source" not in table:
+        raise fail('[thermo] takes one key, source = "chemicals"')
+    return str(table["source"])
 
 
 def load_system(path: str | os.PathLike[str]):  # -> ReactionSystem
@@ -116,6 +125,7 @@ def load_system(path: str | os.PathLike[str]):  # -> ReactionSystem
             check_balance=bool(doc.get("check_balance", True)),
             lnK=lnk or None,
             species_data=species_data,
+            thermo=_thermo_source(doc, fail),
         )
     except SystemDefinitionError as err:
         raise type(err)(f"{name}: {err}") from None

@@ -407,3 +407,53 @@ def equilibrium_temperature(
             ok = np.abs(data(T) - ln_q) <= 1e-8 * np.maximum(1.0, np.abs(ln_q))
         out[:, j] = np.where(ok, T, np.nan)
     return out
+
+
+def chemicals_data(name: str, formula: str | None = None) -> CpPolynomial:
+    """Standard-state data of one gas from the ``chemicals`` package: the
+    ideal-gas heat-capacity polynomial of Poling, Prausnitz and O'Connell,
+    *The Properties of Gases and Liquids* (its table's validity range), with
+    the formation enthalpy and entropy at 298.15 K from the package's first
+    ranked source for each (recorded in ``source``)."""
+    try:
+        from chemicals import CAS_from_any
+        from chemicals.heat_capacity import Cp_data_Poling
+        from chemicals.reaction import Hfg, Hfg_methods, S0g, S0g_methods
+    except ImportError:
+        raise SystemDefinitionError(
+            "thermo='chemicals' needs the chemicals package: pip install chemicals"
+        ) from None
+    cas = None
+    for key in (name, formula):
+        if not key:
+            continue
+        try:
+            cas = CAS_from_any(key)
+            break
+        except Exception:  # chemicals raises ValueError and others for unknown names
+            continue
+    if cas is None:
+        raise SystemDefinitionError(
+            f"thermo='chemicals': no compound found for species {name!r}"
+            + (f" (formula {formula})" if formula else "")
+        )
+    if cas not in Cp_data_Poling.index:
+        raise SystemDefinitionError(
+            f"thermo='chemicals': no ideal-gas Cp polynomial for {name!r} (CAS {cas})"
+        )
+    h_methods, s_methods = Hfg_methods(cas), S0g_methods(cas)
+    if not h_methods or not s_methods:
+        raise SystemDefinitionError(
+            f"thermo='chemicals': no formation enthalpy or entropy for {name!r} (CAS {cas})"
+        )
+    hf = Hfg(cas, method=h_methods[0])
+    s0 = S0g(cas, method=s_methods[0])
+    row = Cp_data_Poling.loc[cas]
+    a = tuple(float(row[k]) for k in ("a0", "a1", "a2", "a3", "a4"))
+    t_min, t_max = float(row["Tmin"]), float(row["Tmax"])
+    source = (
+        f"chemicals {cas}: Cp/R polynomial of Poling, Prausnitz and O'Connell ({t_min:g}-{t_max:g} K); "
+        f"dfH(298.15 K) = {hf / 1000:.3f} kJ/mol ({h_methods[0]}); "
+        f"S(298.15 K) = {s0:.2f} J/mol/K ({s_methods[0]})"
+    )
+    return CpPolynomial(a=a, dHf=hf / 1000.0, S298=s0, T_min=t_min, T_max=t_max, source=source)
