@@ -5,6 +5,7 @@ from __future__ import annotations
 import subprocess
 import sys
 import textwrap
+from pathlib import Path
 
 import pytest
 from eqbatch.cli import main
@@ -90,3 +91,21 @@ def test_python_dash_m_and_console_script(tmp_path) -> None:
     assert out.stdout.startswith("eqbatch ")
     out = subprocess.run(["eqbatch", "demo", "--cases", "100"], capture_output=True, text=True, cwd=tmp_path)
     assert out.returncode == 0 and "Random batch: 100 cases" in out.stdout
+
+
+def test_solve_adiabatic_and_approach_from_the_command_line(capsys) -> None:
+    import eqbatch
+
+    path = str(Path(eqbatch.__file__).parent / "data" / "reformer.toml")
+    assert main(["solve", path, "--feed", "CH4=1,H2O=3", "--T", "1100", "--P", "20", "--adiabatic"]) == 0
+    out = capsys.readouterr().out
+    assert "adiabatic, inlet 1100 K, outlet T = " in out
+    # reforming is endothermic: the adiabatic outlet is colder than the inlet
+    outlet = float(out.split("outlet T = ")[1].split(" K")[0])
+    assert 800 < outlet < 1100
+    assert (
+        main(
+            ["solve", path, "--feed", "CH4=1,H2O=3", "--T", "1100", "--P", "20", "--approach", "reforming=20"]
+        )
+        == 0
+    )

@@ -69,11 +69,17 @@ def _cmd_solve(args: argparse.Namespace) -> int:
     k_given = [(n, v) for n, v in k_opts if v]
     if len(k_given) > 1:
         raise _UsageError("give only one of --lnK, --K, --log10K")
-    kwargs = {k_given[0][0]: k_given[0][1]} if k_given else {}
+    kwargs: dict = {k_given[0][0]: k_given[0][1]} if k_given else {}
+    if args.approach:
+        kwargs["approach"] = _pairs(args.approach, "--approach")
+    if args.adiabatic:
+        kwargs["adiabatic"] = True
     res = system.solve(feed, T=args.T, P=args.P, tol=args.tol, max_iter=args.max_iter, **kwargs)
 
     conditions = []
-    if args.T is not None:
+    if args.adiabatic:
+        conditions.append(f"adiabatic, inlet {args.T:g} K, outlet T = {float(res.T[0]):.2f} K")
+    elif args.T is not None:
         conditions.append(f"T = {args.T:g} K")
     conditions.append(f"P = {float(res.P[0]):g} bar")
     print(f"Equilibrium of {args.system}: {', '.join(conditions)} (P0 = {system.P0:g} bar)")
@@ -309,6 +315,17 @@ def _parser() -> argparse.ArgumentParser:
     solve.add_argument("--lnK", action="append", metavar="LABEL=VALUE[,...]", help="ln K per reaction")
     solve.add_argument("--K", action="append", metavar="LABEL=VALUE[,...]", help="K per reaction")
     solve.add_argument("--log10K", action="append", metavar="LABEL=VALUE[,...]", help="log10 K per reaction")
+    solve.add_argument(
+        "--approach",
+        action="append",
+        metavar="LABEL=KELVIN[,...]",
+        help="temperature approach to equilibrium per reaction (needs K(T) data)",
+    )
+    solve.add_argument(
+        "--adiabatic",
+        action="store_true",
+        help="--T is the inlet: find the adiabatic outlet temperature (needs species data)",
+    )
     solve.add_argument("--tol", type=float, default=1e-10, help="convergence tolerance on |ln Q - ln K|")
     solve.add_argument("--max-iter", type=int, default=200, help="Newton iteration limit")
     solve.set_defaults(run=_cmd_solve)
