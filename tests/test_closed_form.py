@@ -63,7 +63,7 @@ def test_condensation_of_a_pure_liquid(K: float, P: float) -> None:
     # V (gas) = L (liquid, alone in its phase, activity 1), with an inert gas.
     # Equilibrium: y_V = P0 / (K P) (a vapour-pressure condition); feed V = 1,
     # inert 1 -> n_V / (n_V + 1) = c, n_V = c / (1 - c), while c < 1/2 (below
-    # that K P the liquid would vanish: phase disappearance is not handled yet).
+    # that K P the liquid vanishes: see test_phases.py).
     system = eqbatch.ReactionSystem(["V", "L", "I"], ["V = L"], phases={"L": "liquid"})
     c = 1.0 / (K * P)
     res = system.solve([1.0, 0.0, 1.0], K=[K], P=P)

@@ -189,6 +189,7 @@ class ReactionSystem:
         }
         self._constant_lnk = self._constant_row()
         self._p0_row = np.array([self.P0])
+        self._two_phase = len(set(self.phases)) > 1
 
     # ----------------------------------------------------------------- set-up
 
@@ -622,6 +623,10 @@ class ReactionSystem:
         result = EquilibriumResult(
             self, amounts, extents, fractions, status, iterations, feed_arr, p_arr, T_arr, lnk_arr
         )
+        if self._two_phase and (status == 1).any() | (status == 4).any():
+            from eqbatch.phases import repair_vanished_phases
+
+            repair_vanished_phases(self, result)
         if sensitivities:
             result._sens = self._core.sensitivities(feed_arr, p_arr, amounts, status, threads)
         return result

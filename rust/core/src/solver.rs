@@ -570,8 +570,13 @@ fn run(
                 res
             };
             let sp = sc.pivots[j];
-            sc.frozen[j] =
-                res > 0.0 && sc.ln_amount[sp] <= ln_floor(ln_totals[phase_of(sp)]) + 1e-6;
+            // Only a minor species of its phase is held at the floor: when a
+            // whole phase shrinks there (a phase that should vanish), its
+            // species keep their share and the case must not pass as converged.
+            let ln_total = ln_totals[phase_of(sp)];
+            sc.frozen[j] = res > 0.0
+                && sc.ln_amount[sp] <= ln_floor(ln_total) + 1e-6
+                && sc.ln_amount[sp] - ln_total <= LN_MINOR_SHARE;
             if !sc.frozen[j] {
                 worst = worst.max(res.abs());
             }
