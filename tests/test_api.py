@@ -121,3 +121,17 @@ def test_status_enum_and_messages(reforming) -> None:
     limited = reforming.solve(FEED, lnK=[30.0, -30.0], max_iter=1)
     assert limited.status[0] == eqbatch.Status.ITERATION_LIMIT
     assert np.all(np.isfinite(limited.amounts))  # the last iterate, not NaN
+
+
+def test_chained_starts_on_a_sorted_grid() -> None:
+    from eqbatch.demo import reformer_feed, reformer_system
+
+    system = reformer_system()
+    T = np.repeat(np.linspace(800, 1200, 100), 10)
+    P = np.tile(np.linspace(1, 40, 10), 100)
+    plain = system.solve(reformer_feed(3.0), T=T, P=P)
+    chained = system.solve(reformer_feed(3.0), T=T, P=P, chain=True)
+    one = system.solve(reformer_feed(3.0), T=T, P=P, chain=True, threads=1)
+    np.testing.assert_allclose(chained.amounts, plain.amounts, rtol=1e-9, atol=1e-14)
+    assert chained.iterations.mean() < 0.9 * plain.iterations.mean()
+    assert chained.amounts.tobytes() == one.amounts.tobytes()  # still independent of threads

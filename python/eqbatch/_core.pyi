@@ -25,6 +25,7 @@ class System:
         max_iter: int,
         threads: int | None = None,
         start: npt.NDArray[np.float64] | None = None,
+        chain: bool = False,
     ) -> tuple[
         npt.NDArray[np.float64],
         npt.NDArray[np.float64],

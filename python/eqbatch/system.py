@@ -514,6 +514,7 @@ class ReactionSystem:
         sensitivities: bool = False,
         approach: Mapping[str, float] | None = None,
         adiabatic: bool = False,
+        chain: bool = False,
     ) -> EquilibriumResult:
         """Equilibrium of every case.
 
@@ -556,6 +557,12 @@ class ReactionSystem:
             Temperature approach to equilibrium per reaction (needs ``T`` and
             K(T) data): the reaction is taken ``dT`` short of equilibrium, at
             ``K(T - dT)`` if endothermic and ``K(T + dT)`` if exothermic.
+        chain : bool, default False
+            Start each case from the solution of the case before it (within
+            fixed chunks of 64 cases, so results still do not depend on the
+            number of threads). Fewer iterations when neighbouring rows are
+            alike (a sorted grid); more for unrelated rows. Results then
+            depend, within ``tol``, on the order of the cases.
         adiabatic : bool, default False
             ``T`` is the inlet temperature; find per case the outlet
             temperature (``result.T``) at which the mixture is at equilibrium
@@ -618,7 +625,7 @@ class ReactionSystem:
         if start is not None and start.shape[0] not in (1, n):
             raise CaseInputError(f"x0 has {start.shape[0]} cases but other inputs have {n}; give 1 or {n}")
         amounts, extents, fractions, status, iterations = self._core.solve(
-            feed_arr, lnk_arr, p_arr, n, tol, max_iter, threads, start
+            feed_arr, lnk_arr, p_arr, n, tol, max_iter, threads, start, chain
         )
         result = EquilibriumResult(
             self, amounts, extents, fractions, status, iterations, feed_arr, p_arr, T_arr, lnk_arr

@@ -50,14 +50,12 @@ fn main() {
         iterations: &mut iterations,
     };
     let start = Instant::now();
-    solve_batch(
-        &system,
-        &inputs,
-        &mut outputs,
-        &SolveOptions::default(),
-        threads,
-    )
-    .expect("batch");
+    // CHAIN=1 in the environment: chained starts (each case from its predecessor).
+    let options = SolveOptions {
+        chain: std::env::var("CHAIN").is_ok(),
+        ..SolveOptions::default()
+    };
+    solve_batch(&system, &inputs, &mut outputs, &options, threads).expect("batch");
     let secs = start.elapsed().as_secs_f64();
     let converged = status.iter().filter(|&&s| s == 0).count();
     let total_iter: u64 = iterations.iter().map(|&i| i as u64).sum();

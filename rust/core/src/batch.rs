@@ -217,6 +217,7 @@ pub fn solve_batch(
                      fractions: &mut [f64],
                      status: &mut [u8],
                      iterations: &mut [u32]| {
+        let mut previous_converged = false;
         for local in 0..status.len() {
             let case = chunk * CHUNK + local;
             let feed = feed_rows.row(inputs.feed, case);
@@ -226,14 +227,24 @@ pub fn solve_batch(
                 .start
                 .zip(start_rows)
                 .map(|(x0, rows)| rows.row(x0, case));
+            let chained = options.chain && start.is_none() && previous_converged;
             let amounts = &mut amounts[local * s..(local + 1) * s];
-            let extents = &mut extents[local * r..(local + 1) * r];
+            // The cases before this one in the chunk are finished: a chained
+            // start reads the previous case's extents from the output.
+            let (before, current) = extents.split_at_mut(local * r);
+            let extents = &mut current[..r];
+            let start = if chained {
+                Some(&before[(local - 1) * r..])
+            } else {
+                start
+            };
             let fractions = &mut fractions[local * s..(local + 1) * s];
             let (st, it) = ws.solve(
                 system, &faces, feed, ln_k, pressure, start, options, kernel, amounts, extents,
             );
             status[local] = st as u8;
             iterations[local] = it;
+            previous_converged = st == Status::Converged;
             if st == Status::InvalidInput || st == Status::Infeasible {
                 amounts.fill(f64::NAN);
                 extents.fill(f64::NAN);

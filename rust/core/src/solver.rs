@@ -52,6 +52,12 @@ pub struct SolveOptions {
     pub tol: f64,
     /// Newton iterations before giving up with [`Status::IterationLimit`].
     pub max_iter: u32,
+    /// Start each case from the converged extents of the case before it in
+    /// its chunk of the batch (where they are feasible). Fewer iterations for
+    /// sweeps whose neighbouring cases are alike; results then depend (within
+    /// the tolerance) on the order of the cases, though still not on the
+    /// number of threads, since chunks are fixed.
+    pub chain: bool,
 }
 
 impl Default for SolveOptions {
@@ -59,6 +65,7 @@ impl Default for SolveOptions {
         SolveOptions {
             tol: 1e-10,
             max_iter: 200,
+            chain: false,
         }
     }
 }

@@ -72,7 +72,7 @@ impl PySystem {
     /// Solve `n_cases` cases. `feed` (1 or N, S), `ln_k` (1 or N, R) and
     /// `pressure` (1 or N) must be C-contiguous float64. Returns
     /// `(amounts, extents, mole_fractions, status, iterations)`.
-    #[pyo3(signature = (feed, ln_k, pressure, n_cases, tol, max_iter, threads=None, start=None))]
+    #[pyo3(signature = (feed, ln_k, pressure, n_cases, tol, max_iter, threads=None, start=None, chain=false))]
     #[allow(clippy::too_many_arguments)]
     fn solve<'py>(
         &self,
@@ -85,6 +85,7 @@ impl PySystem {
         max_iter: u32,
         threads: Option<usize>,
         start: Option<PyReadonlyArray2<'py, f64>>,
+        chain: bool,
     ) -> PyResult<Solved<'py>> {
         let s = self.inner.n_species();
         let r = self.inner.n_reactions();
@@ -120,7 +121,11 @@ impl PySystem {
                 pressure,
                 start,
             };
-            let options = SolveOptions { tol, max_iter };
+            let options = SolveOptions {
+                tol,
+                max_iter,
+                chain,
+            };
             let system = &self.inner;
             py.detach(move || {
                 let mut outputs = BatchOutputs {
