@@ -460,7 +460,7 @@ class ReactionSystem:
         return arr if arr.flags.c_contiguous else np.ascontiguousarray(arr)
 
     def _lnk_array(self, lnK: Any, K: Any, log10K: Any, T: np.ndarray | None) -> np.ndarray:
-        if K is None and log10K is None and lnK is not None and type(lnK) is not dict:
+        if K is None and log10K is None and type(lnK) in (np.ndarray, list, tuple, float, int):
             return self._rows(lnK, "lnK", self.n_reactions)
         given = [(n, v) for n, v in (("lnK", lnK), ("K", K), ("log10K", log10K)) if v is not None]
         if len(given) > 1:
