@@ -109,3 +109,9 @@ def test_solve_adiabatic_and_approach_from_the_command_line(capsys) -> None:
         )
         == 0
     )
+
+
+def test_bad_pressure_on_the_command_line_is_one_line(system_file, capsys) -> None:
+    assert main(["solve", str(system_file), "--feed", "CH4=1,H2O=3", "--T", "1000", "--P", "-5"]) == 2
+    err = capsys.readouterr().err
+    assert err.startswith("eqbatch: error: case 0: the pressure -5.0 bar") and err.count("\n") == 1

@@ -314,3 +314,16 @@ def test_plot_writes_a_png_of_the_right_size(tmp_path) -> None:
         text=True,
     )
     assert out.returncode == 0 and _png_size(tmp_path / "heat.png") == (640, 440)
+
+
+def test_quiet_sweep_and_plot_errors(tmp_path, capsys) -> None:
+    pq.write_table(cases(50), tmp_path / "in.parquet")
+    sweep(reformer_system(), tmp_path / "in.parquet", tmp_path / "out.parquet", quiet=True)
+    assert capsys.readouterr().err == ""  # quiet: no progress bar and no notes
+    from eqbatch.cli import main
+
+    code = main(
+        ["plot", str(tmp_path / "out.parquet"), "--x", "T_K", "--y", "y_H3", "--out", str(tmp_path / "p.png")]
+    )
+    err = capsys.readouterr().err
+    assert code == 2 and "no column 'y_H3'" in err and err.count("\n") == 1

@@ -74,7 +74,9 @@ def _cmd_solve(args: argparse.Namespace) -> int:
         kwargs["approach"] = _pairs(args.approach, "--approach")
     if args.adiabatic:
         kwargs["adiabatic"] = True
-    res = system.solve(feed, T=args.T, P=args.P, tol=args.tol, max_iter=args.max_iter, **kwargs)
+    res = system.solve(
+        feed, T=args.T, P=args.P, tol=args.tol, max_iter=args.max_iter, invalid="raise", **kwargs
+    )
 
     conditions = []
     if args.adiabatic:

@@ -98,9 +98,14 @@ def result_plot(
 
     cols = [c for c in (x, y, by, z) if c]
     try:
-        table = pq.read_table(path, columns=cols)
-    except Exception as err:  # pyarrow raises several types for missing columns and bad files
-        raise CaseInputError(f"{path}: cannot read columns {', '.join(cols)} ({err})") from None
+        names = pq.read_schema(path).names
+    except Exception as err:  # pyarrow raises several types for missing and bad files
+        raise CaseInputError(f"{path}: not a readable Parquet file ({type(err).__name__})") from None
+    missing = [c for c in cols if c not in names]
+    if missing:
+        shown = ", ".join(n for n in names if not n.startswith("__"))
+        raise CaseInputError(f"{path}: no column {', '.join(map(repr, missing))} (columns are {shown})")
+    table = pq.read_table(path, columns=cols)
     data = {c: table.column(c).to_numpy(zero_copy_only=False).astype(float) for c in cols}
     plt = _pyplot()
     fig, ax = plt.subplots(figsize=size)

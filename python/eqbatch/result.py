@@ -150,7 +150,8 @@ class EquilibriumResult:
         st = Status(int(self.status[case]))
         text = f"case {case}: {st.description}"
         if st in (Status.CONVERGED, Status.ITERATION_LIMIT, Status.STALLED):
-            text += f" after {int(self.iterations[case])} iterations"
+            count = int(self.iterations[case])
+            text += f" after {count} iteration{'' if count == 1 else 's'}"
             feed = self.feed[case]
             zero = [
                 name

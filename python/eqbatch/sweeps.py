@@ -445,6 +445,8 @@ def sweep(
     src, dst = Path(input), Path(output)
     options = {"tol": tol, "max_iter": max_iter, "threads": threads}
     kwargs = {"batch_size": batch_size, "resume": resume, "overwrite": overwrite, **options}
+    if quiet:
+        kwargs["say"] = lambda msg: None  # quiet means no notes either
     t0 = time.perf_counter()
     if not src.exists():
         raise SweepError(f"{src}: no such file or folder")
