@@ -128,8 +128,43 @@ fn case_is_valid(feed: &[f64], ln_k: &[f64], pressure: f64) -> bool {
 /// The faces of every distinct zero pattern of a batch.
 #[derive(Default)]
 pub(crate) struct FaceTable {
-    pub(crate) index: HashMap<Vec<u64>, usize>,
-    pub(crate) faces: Vec<Result<Face, FaceError>>,
+    index: HashMap<Vec<u64>, usize>,
+    faces: Vec<Result<Face, FaceError>>,
+}
+
+/// A per-thread cursor into a [`FaceTable`]: the key buffer and the last
+/// pattern looked up (sweeps usually share one pattern, so the hash lookup
+/// is skipped and nothing is allocated per case).
+pub(crate) struct FaceCursor {
+    key: Vec<u64>,
+    last_key: Vec<u64>,
+    last: Option<usize>,
+}
+
+impl FaceCursor {
+    pub(crate) fn new(n_species: usize) -> Self {
+        let words = pattern_words(n_species);
+        FaceCursor {
+            key: vec![0; words],
+            last_key: vec![0; words],
+            last: None,
+        }
+    }
+
+    /// The face of `feed`'s zero pattern; `None` if it was not analysed,
+    /// `Some(Err)` if its analysis failed.
+    pub(crate) fn face<'t>(
+        &mut self,
+        table: &'t FaceTable,
+        feed: &[f64],
+    ) -> Option<&'t Result<Face, FaceError>> {
+        zero_pattern(feed, &mut self.key);
+        if self.last.is_none() || self.key != self.last_key {
+            self.last = table.index.get(&self.key[..]).copied();
+            self.last_key.copy_from_slice(&self.key);
+        }
+        self.last.map(|k| &table.faces[k])
+    }
 }
 
 /// Analyse every distinct zero pattern among the valid feeds.
@@ -292,37 +327,43 @@ pub fn solve_batch(
                 |state, (chunk, ((((a, e), y), st), it))| run_chunk(state, chunk, a, e, y, st, it),
             );
     };
+    on_threads(threads, || parallel(outputs))
+}
+
+/// Run `work` on rayon's global pool (`None`: all cores) or on a pool of
+/// `k` threads.
+pub(crate) fn on_threads(
+    threads: Option<usize>,
+    work: impl FnOnce() + Send,
+) -> Result<(), CoreError> {
     match threads {
-        Some(k) if k > 0 => {
+        Some(0) => Err(CoreError::BadOption("threads must be at least 1".into())),
+        Some(k) => {
             let pool = rayon::ThreadPoolBuilder::new()
                 .num_threads(k)
                 .build()
                 .map_err(|e| CoreError::BadOption(format!("cannot start {k} threads: {e}")))?;
-            pool.install(|| parallel(outputs));
+            pool.install(work);
+            Ok(())
         }
-        Some(0) => return Err(CoreError::BadOption("threads must be at least 1".into())),
-        _ => parallel(outputs),
+        None => {
+            work();
+            Ok(())
+        }
     }
-    Ok(())
 }
 
-/// One thread's state: its workspace and the last zero pattern with its
-/// face (sweeps usually share one pattern, so the table lookup is skipped).
+/// One thread's state: its workspace and its place in the face table.
 struct ChunkState {
     workspace: Workspace,
-    key: Vec<u64>,
-    last_key: Vec<u64>,
-    last_face: Option<usize>,
+    faces: FaceCursor,
 }
 
 impl ChunkState {
     fn new(system: &System) -> Self {
-        let words = pattern_words(system.n_species());
         ChunkState {
             workspace: Workspace::new(system),
-            key: vec![0; words],
-            last_key: vec![0; words],
-            last_face: None,
+            faces: FaceCursor::new(system.n_species()),
         }
     }
 
@@ -343,12 +384,7 @@ impl ChunkState {
         if !case_is_valid(feed, ln_k, pressure) {
             return (Status::InvalidInput, 0);
         }
-        zero_pattern(feed, &mut self.key);
-        if self.last_face.is_none() || self.key != self.last_key {
-            self.last_face = faces.index.get(&self.key[..]).copied();
-            self.last_key.copy_from_slice(&self.key);
-        }
-        match self.last_face.map(|k| &faces.faces[k]) {
+        match self.faces.face(faces, feed) {
             Some(Ok(face)) => match kernel {
                 // Specialised kernels run on full faces only (no unreachable species).
                 Some(kernel) if face.dim == system.n_reactions() => kernel(

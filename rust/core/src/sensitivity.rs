@@ -14,7 +14,7 @@
 use rayon::prelude::*;
 
 use crate::basis::{choose_basis, sort_by_amount};
-use crate::batch::{faces_for, BatchInputs, FaceTable, Rows, TINY_FEED};
+use crate::batch::{faces_for, on_threads, BatchInputs, FaceCursor, Rows, TINY_FEED};
 use crate::error::CoreError;
 use crate::face::Face;
 use crate::linalg::solve_spd;
@@ -46,7 +46,7 @@ pub fn sensitivities_batch(
     let n = inputs.n_cases;
     let (s, r) = (system.n_species(), system.n_reactions());
     let feed_rows = Rows::check("feed", inputs.feed.len(), s, n)?;
-    let p_rows = Rows::check("pressure", inputs.pressure.len(), 1, n)?;
+    Rows::check("pressure", inputs.pressure.len(), 1, n)?;
     if amounts.len() != n * s
         || status.len() != n
         || out.d_ln_k.len() != n * s * r
@@ -63,6 +63,7 @@ pub fn sensitivities_batch(
     let faces = faces_for(system, inputs, feed_rows);
     let work = |chunk: usize, dk: &mut [f64], dp: &mut [f64], df: &mut [f64]| {
         let mut scratch = Scratch::new(s, r);
+        let mut cursor = FaceCursor::new(s);
         let cases = dp.len() / s;
         for local in 0..cases {
             let case = chunk * CHUNK + local;
@@ -70,13 +71,14 @@ pub fn sensitivities_batch(
             let dp = &mut dp[local * s..(local + 1) * s];
             let df = &mut df[local * s * s..(local + 1) * s * s];
             let feed = feed_rows.row(inputs.feed, case);
-            let face = faces.face_of(feed, s);
             let ok = status[case] == Status::Converged as u8
-                && face.is_some_and(|face| {
-                    let n_case = &amounts[case * s..(case + 1) * s];
-                    let pressure = p_rows.row(inputs.pressure, case)[0];
-                    case_sensitivities(system, face, n_case, pressure, &mut scratch, dk, dp, df)
-                });
+                && match cursor.face(&faces, feed) {
+                    Some(Ok(face)) => {
+                        let n_case = &amounts[case * s..(case + 1) * s];
+                        case_sensitivities(system, face, n_case, &mut scratch, dk, dp, df)
+                    }
+                    _ => false,
+                };
             if !ok {
                 dk.fill(f64::NAN);
                 dp.fill(f64::NAN);
@@ -92,16 +94,7 @@ pub fn sensitivities_batch(
             .enumerate()
             .for_each(|(chunk, ((dk, dp), df))| work(chunk, dk, dp, df));
     };
-    match threads {
-        Some(k) if k > 0 => rayon::ThreadPoolBuilder::new()
-            .num_threads(k)
-            .build()
-            .map_err(|e| CoreError::BadOption(format!("cannot start {k} threads: {e}")))?
-            .install(|| run(out)),
-        Some(_) => return Err(CoreError::BadOption("threads must be at least 1".into())),
-        None => run(out),
-    }
-    Ok(())
+    on_threads(threads, || run(out))
 }
 
 struct Scratch {
@@ -143,7 +136,6 @@ fn case_sensitivities(
     system: &System,
     face: &Face,
     amounts: &[f64],
-    _pressure: f64,
     sc: &mut Scratch,
     d_ln_k: &mut [f64],
     d_ln_p: &mut [f64],
@@ -275,19 +267,4 @@ fn case_sensitivities(
         }
     }
     true
-}
-
-impl FaceTable {
-    /// The face of a feed's zero pattern, if the batch analysed one.
-    pub(crate) fn face_of(&self, feed: &[f64], s: usize) -> Option<&Face> {
-        let mut key = vec![0u64; s.div_ceil(64).max(1)];
-        for (i, &v) in feed.iter().enumerate() {
-            if v < TINY_FEED {
-                key[i / 64] |= 1 << (i % 64);
-            }
-        }
-        self.index
-            .get(&key[..])
-            .and_then(|&k| self.faces[k].as_ref().ok())
-    }
 }
