@@ -2,6 +2,9 @@
 
 from __future__ import annotations
 
+import struct
+from pathlib import Path
+
 import eqbatch
 import numpy as np
 import pytest
@@ -46,3 +49,10 @@ def conservation_basis(system: eqbatch.ReactionSystem) -> np.ndarray:
     _, sv, vt = np.linalg.svd(system.stoich)
     rank = int(np.sum(sv > 1e-10 * sv.max()))
     return vt[rank:]
+
+
+def png_size(path: Path) -> tuple[int, int]:
+    """Width and height of a PNG file, after checking its signature."""
+    data = Path(path).read_bytes()
+    assert data[:8] == b"\x89PNG\r\n\x1a\n"
+    return struct.unpack(">II", data[16:24])

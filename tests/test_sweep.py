@@ -5,7 +5,6 @@ from __future__ import annotations
 
 import os
 import signal
-import struct
 import subprocess
 import sys
 import textwrap
@@ -17,6 +16,7 @@ import numpy as np
 import pyarrow as pa
 import pyarrow.parquet as pq
 import pytest
+from conftest import png_size
 from eqbatch.demo import reformer_system
 from eqbatch.grid import make_grid, write_grid
 from eqbatch.sweeps import SweepError, sweep
@@ -264,12 +264,6 @@ def test_factorial_grid_and_seeded_samples(tmp_path) -> None:
     assert pq.read_table(tmp_path / "g.parquet").num_rows == 12
 
 
-def _png_size(path: Path) -> tuple[int, int]:
-    data = path.read_bytes()
-    assert data[:8] == b"\x89PNG\r\n\x1a\n"
-    return struct.unpack(">II", data[16:24])
-
-
 def test_plot_writes_a_png_of_the_right_size(tmp_path) -> None:
     table = make_grid(
         {"T_K": (800, 1100, 7), "P_bar": (1, 30, 3)},
@@ -295,7 +289,7 @@ def test_plot_writes_a_png_of_the_right_size(tmp_path) -> None:
         text=True,
     )
     assert out.returncode == 0, out.stderr
-    assert _png_size(tmp_path / "lines.png") == (640, 440)
+    assert png_size(tmp_path / "lines.png") == (640, 440)
     out = subprocess.run(
         [
             "eqbatch",
@@ -313,7 +307,7 @@ def test_plot_writes_a_png_of_the_right_size(tmp_path) -> None:
         capture_output=True,
         text=True,
     )
-    assert out.returncode == 0 and _png_size(tmp_path / "heat.png") == (640, 440)
+    assert out.returncode == 0 and png_size(tmp_path / "heat.png") == (640, 440)
 
 
 def test_quiet_sweep_and_plot_errors(tmp_path, capsys) -> None:

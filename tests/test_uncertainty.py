@@ -4,13 +4,13 @@ probabilities written independently in the tests."""
 from __future__ import annotations
 
 import math
-import struct
 import sys
 from pathlib import Path
 
 import eqbatch
 import numpy as np
 import pytest
+from conftest import png_size
 from eqbatch.uncertainty import R_KJ, lnK_covariance, monte_carlo
 from scipy.stats import norm
 
@@ -101,12 +101,6 @@ def test_ranking_shares_and_tornado() -> None:
     assert all(min(lo, hi) < nominal < max(lo, hi) for _, lo, hi in tornado)
 
 
-def _png_size(path: Path) -> tuple[int, int]:
-    data = path.read_bytes()
-    assert data[:8] == b"\x89PNG\r\n\x1a\n"
-    return struct.unpack(">II", data[16:24])
-
-
 def test_cli_prints_the_summary_and_writes_pngs(tmp_path, capsys) -> None:
     from eqbatch.cli import main
 
@@ -140,9 +134,9 @@ def test_cli_prints_the_summary_and_writes_pngs(tmp_path, capsys) -> None:
     out = capsys.readouterr().out
     assert code == 0
     assert "Mole fractions" in out and "std (1st order)" in out and "P(conversion_CH4 >= 0.3)" in out
-    w, h = _png_size(tmp_path / "histogram.png")
+    w, h = png_size(tmp_path / "histogram.png")
     assert (w, h) == (840, 340)
-    w, h = _png_size(tmp_path / "tornado.png")
+    w, h = png_size(tmp_path / "tornado.png")
     assert w == 640 and h > 100
 
 

@@ -55,14 +55,21 @@ def _table(headers: list[str], rows: list[list[str]]) -> str:
     return "\n".join(lines)
 
 
-def _cmd_solve(args: argparse.Namespace) -> int:
-    from eqbatch.demo import CAUTION
+def _system_and_feed(args: argparse.Namespace):
+    """The system file and the one case's ``--feed`` of a command."""
     from eqbatch.system import ReactionSystem
 
     system = ReactionSystem.from_toml(args.system)
     feed = _pairs(args.feed, "--feed")
     if not feed:
         raise _UsageError("give the feed, e.g. --feed CH4=1,H2O=3")
+    return system, feed
+
+
+def _cmd_solve(args: argparse.Namespace) -> int:
+    from eqbatch.demo import CAUTION
+
+    system, feed = _system_and_feed(args)
     k_opts = [
         (n, _pairs(v, "--" + n)) for n, v in (("lnK", args.lnK), ("K", args.K), ("log10K", args.log10K))
     ]
@@ -117,13 +124,9 @@ def _cmd_uncertainty(args: argparse.Namespace) -> int:
 
     from eqbatch import plots
     from eqbatch.demo import CAUTION
-    from eqbatch.system import ReactionSystem
     from eqbatch.uncertainty import monte_carlo
 
-    system = ReactionSystem.from_toml(args.system)
-    feed = _pairs(args.feed, "--feed")
-    if not feed:
-        raise _UsageError("give the feed, e.g. --feed CH4=1,H2O=3")
+    system, feed = _system_and_feed(args)
     sig = [
         (n, _pairs(v, "--" + n.replace("_", "-")))
         for n, v in (

@@ -35,6 +35,14 @@ def _pyplot():
     return plt
 
 
+def _save(plt, fig, path: str | Path, dpi: int = 100) -> Path:
+    fig.tight_layout()
+    path = Path(path)
+    fig.savefig(path, dpi=dpi)
+    plt.close(fig)
+    return path
+
+
 def histogram(mc: MonteCarloResult, outputs: Sequence[str], path: str | Path) -> Path:
     """Histograms of Monte Carlo outputs, one panel each, with the 5/50/95th
     percentiles marked."""
@@ -49,11 +57,7 @@ def histogram(mc: MonteCarloResult, outputs: Sequence[str], path: str | Path) ->
         ax.set_xlabel(name)
         ax.set_ylabel("samples")
         ax.set_title(f"{mc.samples:,} samples")
-    fig.tight_layout()
-    path = Path(path)
-    fig.savefig(path, dpi=100)
-    plt.close(fig)
-    return path
+    return _save(plt, fig, path)
 
 
 def tornado(mc: MonteCarloResult, output: str, path: str | Path) -> Path:
@@ -70,11 +74,7 @@ def tornado(mc: MonteCarloResult, output: str, path: str | Path) -> Path:
     ax.set_yticks(range(len(rows)), [r[0] for r in reversed(rows)])
     ax.axvline(base, color="k", lw=1)
     ax.set_xlabel(f"{output} (red: ln K - 1 sigma, green: + 1 sigma)")
-    fig.tight_layout()
-    path = Path(path)
-    fig.savefig(path, dpi=100)
-    plt.close(fig)
-    return path
+    return _save(plt, fig, path)
 
 
 def result_plot(
@@ -143,8 +143,4 @@ def result_plot(
         Path(path).name + (" (each point: mean over the other swept columns)" if averaged else ""), fontsize=9
     )
     ax.grid(True, alpha=0.3)
-    fig.tight_layout()
-    out = Path(out)
-    fig.savefig(out, dpi=dpi)
-    plt.close(fig)
-    return out
+    return _save(plt, fig, out, dpi)

@@ -203,22 +203,32 @@ class MonteCarloResult:
     def samples(self) -> int:
         return self.amounts.shape[0]
 
+    def _values(self, of: str, amounts: np.ndarray, fractions: np.ndarray, extents: np.ndarray):
+        """One output (rows of cases) from amounts, mole fractions and extents, with its names."""
+        if of == "amounts":
+            return amounts, tuple(self.system.species)
+        if of == "mole_fractions":
+            return fractions, tuple(self.system.species)
+        if of == "extents":
+            return extents, tuple(self.system.labels)
+        if of == "conversion":
+            names = self._reactants()
+            idx = [self.system.index(s) for s in names]
+            return 1.0 - amounts[:, idx] / self.feed[idx], names
+        raise CaseInputError(f"of must be 'amounts', 'mole_fractions', 'extents' or 'conversion', got {of!r}")
+
+    def _reactants(self) -> tuple[str, ...]:
+        return tuple(s for s in self.system.reactants() if self.feed[self.system.index(s)] > 0)
+
     def _output(self, of: str) -> tuple[np.ndarray, tuple[str, ...], np.ndarray]:
         """Samples, names and the first-order Jacobian (at nominal, by ln K) of an output."""
-        sp = tuple(self.system.species)
-        if of == "amounts":
-            return self.amounts, sp, self.nominal.sensitivity("lnK")[0]
-        if of == "mole_fractions":
-            return self.mole_fractions, sp, self.nominal.sensitivity("lnK", of="mole_fractions")[0]
-        if of == "extents":
-            return self.extents, tuple(self.system.labels), self.nominal.sensitivity("lnK", of="extents")[0]
+        values, names = self._values(of, self.amounts, self.mole_fractions, self.extents)
         if of == "conversion":
-            names = tuple(s for s in self.system.reactants() if self.feed[self.system.index(s)] > 0)
             idx = [self.system.index(s) for s in names]
-            values = 1.0 - self.amounts[:, idx] / self.feed[idx]
             jac = -self.nominal.sensitivity("lnK")[0][idx] / self.feed[idx][:, None]
-            return values, names, jac
-        raise CaseInputError(f"of must be 'amounts', 'mole_fractions', 'extents' or 'conversion', got {of!r}")
+        else:
+            jac = self.nominal.sensitivity("lnK", of=of)[0]
+        return values, names, jac
 
     def summary(self, of: str = "mole_fractions") -> Summary:
         """Statistics of an output with Monte Carlo standard errors, and the
@@ -232,18 +242,9 @@ class MonteCarloResult:
 
     def nominal_value(self, of: str, name: str) -> float:
         """An output at the nominal ln K."""
-        mc = MonteCarloResult(
-            self.system,
-            self.nominal.amounts,
-            self.nominal.mole_fractions,
-            self.nominal.extents,
-            self.nominal.lnK,
-            self.nominal.converged,
-            self.nominal,
-            self.covariance,
-            self.feed,
-        )
-        return float(mc.values(of, name)[0])
+        n = self.nominal
+        values, names = self._values(of, n.amounts, n.mole_fractions, n.extents)
+        return float(values[0, names.index(name)])
 
     def values(self, of: str, name: str) -> np.ndarray:
         """``(samples,)`` samples of one output, e.g. ``values("conversion", "CH4")``."""
@@ -290,7 +291,7 @@ class MonteCarloResult:
     def tornado(self, of: str, name: str) -> list[tuple[str, float, float]]:
         """Output at nominal ln K shifted by -1 and +1 standard deviation of
         each reaction in turn (full nonlinear solves): ``(label, low, high)``."""
-        values, names, _ = self._output(of)
+        _, names = self._values(of, self.amounts[:0], self.mole_fractions[:0], self.extents[:0])
         k = names.index(name)
         sigma = np.sqrt(np.diag(self.covariance))
         base = self.nominal.lnK[0]
@@ -300,18 +301,7 @@ class MonteCarloResult:
             shifted[0, r] -= sigma[r]
             shifted[1, r] += sigma[r]
             res = self.system.solve(self.feed, lnK=shifted, P=self.nominal.P[0])
-            mc = MonteCarloResult(
-                self.system,
-                res.amounts,
-                res.mole_fractions,
-                res.extents,
-                shifted,
-                res.converged,
-                self.nominal,
-                self.covariance,
-                self.feed,
-            )
-            out, _, _ = mc._output(of)
+            out, _ = self._values(of, res.amounts, res.mole_fractions, res.extents)
             rows.append((label, float(out[0, k]), float(out[1, k])))
         return sorted(rows, key=lambda row: -abs(row[2] - row[1]))
 
