@@ -5,7 +5,7 @@ from __future__ import annotations
 import math
 import os
 import re
-from collections.abc import Callable, Iterable, Mapping, Sequence
+from collections.abc import Iterable, Mapping, Sequence
 from typing import Any
 
 import numpy as np
@@ -21,7 +21,7 @@ from eqbatch.errors import (
     UnknownSpeciesError,
 )
 from eqbatch.kdata import LN10, LnKFunction, as_lnk_data
-from eqbatch.result import EquilibriumResult
+from eqbatch.result import EquilibriumResult, Status
 
 #: Phase names accepted in ``phases=`` and system files, with their core codes.
 PHASES = {"gas": 0, "liquid": 1}
@@ -613,9 +613,7 @@ class ReactionSystem:
             for name, count in zip(("feed", "equilibrium constants", "P", "T"), rows):
                 if count != n and count != 1:
                     raise CaseInputError(f"{name} has {count} cases but other inputs have {n}; give 1 or {n}")
-        if invalid == "raise":
-            self._raise_invalid(feed_arr, lnk_arr, p_arr, n)
-        elif invalid != "mark":
+        if invalid not in ("mark", "raise"):
             raise CaseInputError(f"invalid must be 'mark' or 'raise', got {invalid!r}")
         if max_iter != 200 and not (isinstance(max_iter, (int, np.integer)) and max_iter >= 0):
             raise CaseInputError(f"max_iter must be a non-negative integer, got {max_iter!r}")
@@ -630,6 +628,10 @@ class ReactionSystem:
         result = EquilibriumResult(
             self, amounts, extents, fractions, status, iterations, feed_arr, p_arr, T_arr, lnk_arr
         )
+        if invalid == "raise" and (status == Status.INVALID_INPUT).any():
+            k = int(np.flatnonzero(status == Status.INVALID_INPUT)[0])
+            why = self._why_invalid(result.feed[k], result.lnK[k], float(result.P[k]))
+            raise InvalidCaseError(f"case {k}: {why}")
         if self._two_phase and (status == 1).any() | (status == 4).any():
             from eqbatch.phases import repair_vanished_phases
 
@@ -650,24 +652,12 @@ class ReactionSystem:
                 out[:, j] = data.derivative(T)
         return out
 
-    def _raise_invalid(self, feed: np.ndarray, lnk: np.ndarray, P: np.ndarray, n: int) -> None:
-        checks: list[tuple[np.ndarray, Callable[[int], str]]] = [
-            (
-                ~np.all(np.isfinite(feed) & (feed >= 0), axis=1),
-                lambda i: f"the feed has a negative or non-finite amount: {feed[i].tolist()}",
-            ),
-            (~(feed.sum(axis=1) > 0), lambda i: "the total feed is zero"),
-            (
-                ~np.all(np.isfinite(lnk), axis=1),
-                lambda i: f"ln K is not finite: {dict(zip(self.labels, lnk[i].tolist()))}",
-            ),
-            (~(np.isfinite(P) & (P > 0)), lambda i: f"the pressure {P[i]} bar is not positive and finite"),
-        ]
-        first = None
-        for bad, why in checks:
-            idx = np.flatnonzero(np.broadcast_to(bad, (n,)) if bad.shape[0] == 1 else bad)
-            if idx.size and (first is None or idx[0] < first[0]):
-                row = int(idx[0]) if bad.shape[0] != 1 else 0
-                first = (int(idx[0]), why(row))
-        if first is not None:
-            raise InvalidCaseError(f"case {first[0]}: {first[1]}")
+    def _why_invalid(self, feed: np.ndarray, lnk: np.ndarray, P: float) -> str:
+        """Which rule of the core's input check a case broke (see Status.INVALID_INPUT)."""
+        if not np.all(np.isfinite(feed) & (feed >= 0)):
+            return f"the feed has a negative or non-finite amount: {feed.tolist()}"
+        if not feed.sum() > 0:
+            return "the total feed is zero"
+        if not np.all(np.isfinite(lnk)):
+            return f"ln K is not finite: {dict(zip(self.labels, lnk.tolist()))}"
+        return f"the pressure {P} bar is not positive and finite"
