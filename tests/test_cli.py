@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import shutil
 import subprocess
 import sys
 import textwrap
@@ -89,7 +90,10 @@ def test_python_dash_m_and_console_script(tmp_path) -> None:
         [sys.executable, "-m", "eqbatch", "--version"], capture_output=True, text=True, check=True
     )
     assert out.stdout.startswith("eqbatch ")
-    out = subprocess.run(["eqbatch", "demo", "--cases", "100"], capture_output=True, text=True, cwd=tmp_path)
+    # the console script installed beside this interpreter
+    script = shutil.which("eqbatch", path=str(Path(sys.executable).parent)) or shutil.which("eqbatch")
+    assert script is not None
+    out = subprocess.run([script, "demo", "--cases", "100"], capture_output=True, text=True, cwd=tmp_path)
     assert out.returncode == 0 and "Random batch: 100 cases" in out.stdout
 
 

@@ -22,6 +22,8 @@ from eqbatch.grid import make_grid, write_grid
 from eqbatch.sweeps import SweepError, sweep
 
 SYSTEM_FILE = Path(eqbatch.__file__).parent / "data" / "reformer.toml"
+# the command line of this interpreter's installation (no reliance on PATH)
+EQBATCH = (sys.executable, "-m", "eqbatch")
 
 
 def cases(n: int, seed: int = 0) -> pa.Table:
@@ -184,7 +186,7 @@ def test_cli_sweep_summary_line(tmp_path) -> None:
     pq.write_table(cases(300), tmp_path / "in.parquet")
     out = subprocess.run(
         [
-            "eqbatch",
+            *EQBATCH,
             "sweep",
             str(SYSTEM_FILE),
             str(tmp_path / "in.parquet"),
@@ -197,7 +199,7 @@ def test_cli_sweep_summary_line(tmp_path) -> None:
     assert out.returncode == 0, out.stderr
     assert "300 rows, 300 converged" in out.stdout
     again = subprocess.run(
-        ["eqbatch", "sweep", str(SYSTEM_FILE), str(tmp_path / "in.parquet"), str(tmp_path / "out.parquet")],
+        [*EQBATCH, "sweep", str(SYSTEM_FILE), str(tmp_path / "in.parquet"), str(tmp_path / "out.parquet")],
         capture_output=True,
         text=True,
     )
@@ -247,7 +249,7 @@ def test_factorial_grid_and_seeded_samples(tmp_path) -> None:
     assert sorted(np.floor(lhs * 50).astype(int)) == list(range(50))
     out = subprocess.run(
         [
-            "eqbatch",
+            *EQBATCH,
             "grid",
             str(tmp_path / "g.parquet"),
             "--range",
@@ -273,7 +275,7 @@ def test_plot_writes_a_png_of_the_right_size(tmp_path) -> None:
     sweep(reformer_system(), tmp_path / "g.parquet", tmp_path / "r.parquet", quiet=True)
     out = subprocess.run(
         [
-            "eqbatch",
+            *EQBATCH,
             "plot",
             str(tmp_path / "r.parquet"),
             "--x",
@@ -292,7 +294,7 @@ def test_plot_writes_a_png_of_the_right_size(tmp_path) -> None:
     assert png_size(tmp_path / "lines.png") == (640, 440)
     out = subprocess.run(
         [
-            "eqbatch",
+            *EQBATCH,
             "plot",
             str(tmp_path / "r.parquet"),
             "--x",
