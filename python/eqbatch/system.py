@@ -535,8 +535,11 @@ class ReactionSystem:
         P : float or array_like, shape (N,), optional
             Pressure, bar. Defaults to ``P0``.
         tol : float, default 1e-10
-            Convergence: every reaction, written in the per-case basis of
-            the most abundant species, satisfies ``|ln Q - ln K| <= tol``.
+            Convergence: ``|ln Q - ln K| <= tol`` for every reaction of an
+            independent set: the reactions as given (small all-gas systems,
+            while every species holds at least 1e-9 of the gas), otherwise
+            the same reactions rewritten per case in terms of the most
+            abundant species, which keeps trace species precise.
         max_iter : int, default 200
             Newton iterations per case.
         threads : int, optional

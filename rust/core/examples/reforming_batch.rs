@@ -59,6 +59,16 @@ fn main() {
     let secs = start.elapsed().as_secs_f64();
     let converged = status.iter().filter(|&&s| s == 0).count();
     let total_iter: u64 = iterations.iter().map(|&i| i as u64).sum();
+    if std::env::var("HIST").is_ok() {
+        let mut hist = [0usize; 64];
+        for &i in &iterations {
+            hist[(i as usize).min(63)] += 1;
+        }
+        println!(
+            "iterations histogram: {:?}",
+            &hist[..hist.iter().rposition(|&c| c > 0).unwrap_or(0) + 1]
+        );
+    }
     println!(
         "{n} cases in {secs:.3} s: {:.0} cases/s, {converged} converged, {:.2} iterations per case",
         n as f64 / secs,

@@ -12,6 +12,7 @@ use rayon::prelude::*;
 
 use crate::error::CoreError;
 use crate::face::{analyse, Face, FaceError};
+use crate::lanes::{lane_kernel_for, LaneCase};
 use crate::solver::{kernel_for, solve_case, FixedKernel, SolveOptions, Workspace};
 use crate::status::Status;
 use crate::system::{Phase, System, N_PHASES};
@@ -19,6 +20,10 @@ use crate::system::{Phase, System, N_PHASES};
 /// Cases per parallel task: large enough to amortise scheduling, small
 /// enough to balance cases of uneven cost.
 const CHUNK: usize = 64;
+/// Cases per parallel task on the lane path ([`crate::lanes`]): lanes that
+/// finish take the next case of their task, so longer tasks leave fewer
+/// lanes idle while a task drains.
+const LANE_CHUNK: usize = 256;
 
 /// Per-case inputs. Each array holds either one row (broadcast to every
 /// case) or `n_cases` rows, row-major.
@@ -159,7 +164,9 @@ impl FaceCursor {
         feed: &[f64],
     ) -> Option<&'t Result<Face, FaceError>> {
         zero_pattern(feed, &mut self.key);
-        if self.last.is_none() || self.key != self.last_key {
+        // (word by word: a slice comparison would call memcmp per case)
+        let same = self.key.iter().zip(&self.last_key).all(|(a, b)| a == b);
+        if self.last.is_none() || !same {
             self.last = table.index.get(&self.key[..]).copied();
             self.last_key.copy_from_slice(&self.key);
         }
@@ -167,26 +174,49 @@ impl FaceCursor {
     }
 }
 
-/// Analyse every distinct zero pattern among the valid feeds.
-pub(crate) fn faces_for(system: &System, inputs: &BatchInputs, rows: Rows) -> FaceTable {
+/// Analyse every distinct zero pattern among the valid feeds. The scan for
+/// patterns runs in parallel blocks (it reads every feed once before the
+/// solve); patterns are then analysed once each, in order of first
+/// appearance, so the table does not depend on the number of threads.
+/// With `parallel`, call it on the pool that is to do the work.
+pub(crate) fn faces_for(
+    system: &System,
+    inputs: &BatchInputs,
+    rows: Rows,
+    parallel: bool,
+) -> FaceTable {
+    const BLOCK: usize = 16_384;
     let s = system.n_species();
-    let mut table = FaceTable::default();
-    let mut key = vec![0u64; pattern_words(s)];
-    let mut previous = key.clone();
+    let words = pattern_words(s);
     let n_rows = if rows.broadcast { 1 } else { inputs.n_cases };
-    for case in 0..n_rows {
-        let feed = rows.row(inputs.feed, case);
-        if !feed_is_valid(feed) {
-            continue;
+    // Per block: its distinct patterns and a case that has each.
+    let scan = |block: usize| -> Vec<(Vec<u64>, usize)> {
+        let mut found: Vec<(Vec<u64>, usize)> = Vec::new();
+        let mut key = vec![0u64; words];
+        for case in block * BLOCK..((block + 1) * BLOCK).min(n_rows) {
+            let feed = rows.row(inputs.feed, case);
+            if !feed_is_valid(feed) {
+                continue;
+            }
+            zero_pattern(feed, &mut key);
+            if !found.iter().any(|(k, _)| *k == key) {
+                found.push((key.clone(), case));
+            }
         }
-        zero_pattern(feed, &mut previous);
-        if previous == key && !table.faces.is_empty() {
-            continue; // same pattern as the case before: no lookup needed
-        }
-        key.copy_from_slice(&previous);
-        if !table.index.contains_key(&key[..]) {
+        found
+    };
+    let blocks = n_rows.div_ceil(BLOCK);
+    let found: Vec<Vec<(Vec<u64>, usize)>> = if parallel && blocks > 1 {
+        (0..blocks).into_par_iter().map(scan).collect()
+    } else {
+        (0..blocks).map(scan).collect()
+    };
+    let mut table = FaceTable::default();
+    for (key, case) in found.into_iter().flatten() {
+        if !table.index.contains_key(&key) {
+            let feed = rows.row(inputs.feed, case);
             let zero: Vec<bool> = feed.iter().map(|&v| v < TINY_FEED).collect();
-            table.index.insert(key.clone(), table.faces.len());
+            table.index.insert(key, table.faces.len());
             table.faces.push(analyse(system, &zero));
         }
     }
@@ -241,9 +271,52 @@ pub fn solve_batch(
     if n == 0 {
         return Ok(());
     }
-    let faces = faces_for(system, inputs, feed_rows);
+    let serial = threads == Some(1) || n <= CHUNK;
+    let faces = if serial {
+        faces_for(system, inputs, feed_rows, false)
+    } else {
+        let mut table = None;
+        on_threads(threads, || {
+            table = Some(faces_for(system, inputs, feed_rows, true))
+        })?;
+        table.unwrap_or_default()
+    };
     let gas_only = system.phases().iter().all(|&p| p == Phase::Gas);
     let kernel = kernel_for(r, s, gas_only);
+
+    // All-gas small systems solve their eligible cases in vector lanes
+    // (cases with a start or a chained start go one at a time).
+    let lane_kernel = if gas_only && !options.chain && inputs.start.is_none() {
+        lane_kernel_for(r, s)
+    } else {
+        None
+    };
+
+    // Lane tasks: long, but at least eight per thread so that small batches
+    // still spread over every core (lane results do not depend on chunking).
+    let chunk_len = if lane_kernel.is_some() {
+        let workers = threads.unwrap_or_else(rayon::current_num_threads).max(1);
+        (n / (8 * workers)).clamp(CHUNK, LANE_CHUNK)
+    } else {
+        CHUNK
+    };
+
+    let finish = |amounts: &mut [f64], extents: &mut [f64], fractions: &mut [f64], st: Status| {
+        if st == Status::InvalidInput || st == Status::Infeasible {
+            amounts.fill(f64::NAN);
+            extents.fill(f64::NAN);
+            fractions.fill(f64::NAN);
+            return;
+        }
+        let mut totals = [0.0; N_PHASES];
+        for (i, phase) in system.phases().iter().enumerate() {
+            totals[phase.index()] += amounts[i];
+        }
+        for (i, phase) in system.phases().iter().enumerate() {
+            let total = totals[phase.index()];
+            fractions[i] = if total > 0.0 { amounts[i] / total } else { 0.0 };
+        }
+    };
 
     let run_chunk = |ws: &mut ChunkState,
                      chunk: usize,
@@ -252,9 +325,69 @@ pub fn solve_batch(
                      fractions: &mut [f64],
                      status: &mut [u8],
                      iterations: &mut [u32]| {
+        if let Some(lane_kernel) = lane_kernel {
+            // Eligible cases (valid, on a full face) to the lanes; the rest
+            // one at a time. Which path a case takes depends on its own
+            // inputs only.
+            let n_local = status.len();
+            let mut cases: Vec<LaneCase> = Vec::with_capacity(n_local);
+            let mut eligible = [false; LANE_CHUNK];
+            for local in 0..n_local {
+                let case = chunk * chunk_len + local;
+                let feed = feed_rows.row(inputs.feed, case);
+                let ln_k = k_rows.row(inputs.ln_k, case);
+                let pressure = p_rows.row(inputs.pressure, case)[0];
+                if !case_is_valid(feed, ln_k, pressure) {
+                    continue;
+                }
+                if let Some(Ok(face)) = ws.faces.face(&faces, feed) {
+                    if face.dim == r {
+                        eligible[local] = true;
+                        cases.push(LaneCase {
+                            row: local,
+                            feed,
+                            ln_k,
+                            pressure,
+                            face,
+                        });
+                    }
+                }
+            }
+            let mut results = [(Status::InvalidInput, 0); LANE_CHUNK];
+            lane_kernel(
+                system,
+                &cases,
+                options,
+                amounts,
+                extents,
+                &mut results[..cases.len()],
+            );
+            let mut outcome = [(Status::InvalidInput, 0); LANE_CHUNK];
+            for (k, case) in cases.iter().enumerate() {
+                outcome[case.row] = results[k];
+            }
+            for local in 0..n_local {
+                let a = &mut amounts[local * s..(local + 1) * s];
+                let e = &mut extents[local * r..(local + 1) * r];
+                if !eligible[local] {
+                    let case = chunk * chunk_len + local;
+                    let feed = feed_rows.row(inputs.feed, case);
+                    let ln_k = k_rows.row(inputs.ln_k, case);
+                    let pressure = p_rows.row(inputs.pressure, case)[0];
+                    outcome[local] = ws.solve(
+                        system, &faces, feed, ln_k, pressure, None, options, kernel, a, e,
+                    );
+                }
+                let (st, it) = outcome[local];
+                status[local] = st as u8;
+                iterations[local] = it;
+                finish(a, e, &mut fractions[local * s..(local + 1) * s], st);
+            }
+            return;
+        }
         let mut previous_converged = false;
         for local in 0..status.len() {
-            let case = chunk * CHUNK + local;
+            let case = chunk * chunk_len + local;
             let feed = feed_rows.row(inputs.feed, case);
             let ln_k = k_rows.row(inputs.ln_k, case);
             let pressure = p_rows.row(inputs.pressure, case)[0];
@@ -280,33 +413,19 @@ pub fn solve_batch(
             status[local] = st as u8;
             iterations[local] = it;
             previous_converged = st == Status::Converged;
-            if st == Status::InvalidInput || st == Status::Infeasible {
-                amounts.fill(f64::NAN);
-                extents.fill(f64::NAN);
-                fractions.fill(f64::NAN);
-                continue;
-            }
-            let mut totals = [0.0; N_PHASES];
-            for (i, phase) in system.phases().iter().enumerate() {
-                totals[phase.index()] += amounts[i];
-            }
-            for (i, phase) in system.phases().iter().enumerate() {
-                let total = totals[phase.index()];
-                fractions[i] = if total > 0.0 { amounts[i] / total } else { 0.0 };
-            }
+            finish(amounts, extents, fractions, st);
         }
     };
 
-    let serial = threads == Some(1) || n <= CHUNK;
     if serial {
         let mut state = ChunkState::new(system);
         for (chunk, ((((a, e), y), st), it)) in outputs
             .amounts
-            .chunks_mut(CHUNK * s)
-            .zip(outputs.extents.chunks_mut(CHUNK * r))
-            .zip(outputs.mole_fractions.chunks_mut(CHUNK * s))
-            .zip(outputs.status.chunks_mut(CHUNK))
-            .zip(outputs.iterations.chunks_mut(CHUNK))
+            .chunks_mut(chunk_len * s)
+            .zip(outputs.extents.chunks_mut(chunk_len * r))
+            .zip(outputs.mole_fractions.chunks_mut(chunk_len * s))
+            .zip(outputs.status.chunks_mut(chunk_len))
+            .zip(outputs.iterations.chunks_mut(chunk_len))
             .enumerate()
         {
             run_chunk(&mut state, chunk, a, e, y, st, it);
@@ -316,11 +435,11 @@ pub fn solve_batch(
     let parallel = |outputs: &mut BatchOutputs| {
         outputs
             .amounts
-            .par_chunks_mut(CHUNK * s)
-            .zip(outputs.extents.par_chunks_mut(CHUNK * r))
-            .zip(outputs.mole_fractions.par_chunks_mut(CHUNK * s))
-            .zip(outputs.status.par_chunks_mut(CHUNK))
-            .zip(outputs.iterations.par_chunks_mut(CHUNK))
+            .par_chunks_mut(chunk_len * s)
+            .zip(outputs.extents.par_chunks_mut(chunk_len * r))
+            .zip(outputs.mole_fractions.par_chunks_mut(chunk_len * s))
+            .zip(outputs.status.par_chunks_mut(chunk_len))
+            .zip(outputs.iterations.par_chunks_mut(chunk_len))
             .enumerate()
             .for_each_init(
                 || ChunkState::new(system),
@@ -411,16 +530,7 @@ impl ChunkState {
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::system::Phase;
-
-    fn reforming() -> System {
-        // CH4 H2O CO H2 CO2 N2
-        let nu = vec![
-            -1.0, -1.0, 1.0, 3.0, 0.0, 0.0, //
-            0.0, -1.0, -1.0, 1.0, 1.0, 0.0,
-        ];
-        System::new(nu, 2, 6, vec![Phase::Gas; 6], 1.0).unwrap()
-    }
+    use crate::fixtures::reforming;
 
     fn run(
         sys: &System,

@@ -9,6 +9,8 @@
 //! * [`face`]: which species a feed can reach (the zero-pattern analysis);
 //! * [`basis`]: the per-case stoichiometric basis that keeps trace species precise;
 //! * [`solver`]: the damped Newton solve of one case;
+//! * [`lean`]: a cheaper Newton path for small all-gas cases away from trace levels;
+//! * [`lanes`]: the same for eight cases at a time in vector lanes (batch work);
 //! * [`batch`]: the parallel batch driver;
 //! * [`sensitivity`]: exact derivatives of converged cases;
 //! * [`lp`], [`linalg`]: the small numerical kernels they share.
@@ -21,7 +23,10 @@ pub mod basis;
 pub mod batch;
 pub mod error;
 pub mod face;
+pub mod lanes;
+pub mod lean;
 pub mod linalg;
+mod ln;
 pub mod lp;
 pub mod sensitivity;
 pub mod solver;
@@ -34,3 +39,19 @@ pub use sensitivity::{sensitivities_batch, SensitivityOutputs};
 pub use solver::SolveOptions;
 pub use status::Status;
 pub use system::{Phase, System};
+
+#[cfg(test)]
+pub(crate) mod fixtures {
+    //! Systems shared by the unit tests.
+    use crate::system::{Phase, System};
+
+    /// Steam reforming + water-gas shift with a nitrogen inert:
+    /// CH4 H2O CO H2 CO2 N2, P0 = 1 bar.
+    pub(crate) fn reforming() -> System {
+        let nu = vec![
+            -1.0, -1.0, 1.0, 3.0, 0.0, 0.0, //
+            0.0, -1.0, -1.0, 1.0, 1.0, 0.0,
+        ];
+        System::new(nu, 2, 6, vec![Phase::Gas; 6], 1.0).unwrap()
+    }
+}

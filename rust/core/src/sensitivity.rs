@@ -60,7 +60,11 @@ pub fn sensitivities_batch(
     if n == 0 {
         return Ok(());
     }
-    let faces = faces_for(system, inputs, feed_rows);
+    let mut table = None;
+    on_threads(threads, || {
+        table = Some(faces_for(system, inputs, feed_rows, true))
+    })?;
+    let faces = table.unwrap_or_default();
     let work = |chunk: usize, dk: &mut [f64], dp: &mut [f64], df: &mut [f64]| {
         let mut scratch = Scratch::new(s, r);
         let mut cursor = FaceCursor::new(s);

@@ -72,15 +72,15 @@ impl Default for SolveOptions {
 
 /// Fraction-to-boundary factor for species on the straight-line path: a
 /// step may remove at most this fraction of what is left.
-const TO_BOUNDARY: f64 = 0.99;
+pub(crate) const TO_BOUNDARY: f64 = 0.99;
 /// Armijo sufficient-decrease constant.
-const ARMIJO: f64 = 1e-4;
+pub(crate) const ARMIJO: f64 = 1e-4;
 /// `ln` of the share of its phase below which a species is minor and moves
 /// in `ln n` (1e-2).
-const LN_MINOR_SHARE: f64 = -4.605_170_185_988_091;
+pub(crate) const LN_MINOR_SHARE: f64 = -4.605_170_185_988_091;
 /// Largest relative change of any amount for which the quadratic model of
 /// the Gibbs function along the step is trusted (see [`solve_case`]).
-const MODEL_TRUST: f64 = 0.1;
+pub(crate) const MODEL_TRUST: f64 = 0.1;
 /// Backtracking halvings before a case is declared stalled.
 const MAX_BACKTRACKS: u32 = 60;
 /// `ln` of the share of its phase below which float64 can no longer follow a
@@ -116,7 +116,7 @@ fn phi(x: f64) -> f64 {
 }
 
 /// `(-1)^k / (k (k - 1))` for `k = 2..=12`.
-const PHI_SERIES: [f64; 11] = {
+pub(crate) const PHI_SERIES: [f64; 11] = {
     let mut c = [0.0; 11];
     let mut k = 2;
     while k <= 12 {
@@ -127,9 +127,23 @@ const PHI_SERIES: [f64; 11] = {
     c
 };
 
+/// The Armijo test on the exact Gibbs change `first_order + second_order`
+/// of a trial step of length `alpha` along a direction of slope `slope`
+/// (or, on a curved path, against the path's own first-order change).
+#[inline(always)]
+pub(crate) fn sufficient_decrease(
+    first_order: f64,
+    second_order: f64,
+    alpha: f64,
+    slope: f64,
+) -> bool {
+    let decrease = first_order + second_order;
+    decrease <= ARMIJO * alpha * slope || (first_order < 0.0 && decrease <= ARMIJO * first_order)
+}
+
 /// `h(n, d) = (n + d) ln(1 + d/n) - d`, the second-order part of the change
 /// of `n ln n`.
-fn h(n: f64, d: f64) -> f64 {
+pub(crate) fn h(n: f64, d: f64) -> f64 {
     if n > 0.0 {
         n * phi(d / n)
     } else {
@@ -309,7 +323,7 @@ pub type FixedKernel = fn(
 ) -> (Status, u32);
 
 #[allow(clippy::too_many_arguments)]
-fn solve_fixed<const R: usize, const S: usize, const G: bool>(
+pub(crate) fn solve_fixed<const R: usize, const S: usize, const G: bool>(
     system: &System,
     face: &Face,
     feed: &[f64],
@@ -369,29 +383,51 @@ fn solve_fixed<const R: usize, const S: usize, const G: bool>(
     out
 }
 
+/// Every (reactions, species) pair with specialised kernels: the small
+/// systems that dominate batch work (up to five reactions and twelve species).
+macro_rules! for_small_systems {
+    ($m:ident, $($arg:tt)*) => {
+        $m! { $($arg)*;
+            1 => [2, 3, 4, 5, 6],
+            2 => [3, 4, 5, 6, 7, 8],
+            3 => [4, 5, 6, 7, 8, 9],
+            4 => [5, 6, 7, 8, 9, 10],
+            5 => [6, 7, 8, 9, 10, 11, 12],
+        }
+    };
+}
+
+macro_rules! kernel_table {
+    ($r:expr, $s:expr, $gas:expr, $lean:expr; $($rr:literal => [$($ss:literal),*]),* $(,)?) => {
+        match ($r, $s, $gas, $lean) {
+            $($(
+                // The lean path for up to three reactions: on larger networks
+                // trace species are common (workload (b): ln K over +-30) and
+                // the hand-backs to the general solve cost more than it saves.
+                ($rr, $ss, true, true) if $rr <= 3 => {
+                    Some(crate::lean::solve_lean::<$rr, $ss> as FixedKernel)
+                }
+                ($rr, $ss, true, _) => Some(solve_fixed::<$rr, $ss, true> as FixedKernel),
+                ($rr, $ss, false, _) => Some(solve_fixed::<$rr, $ss, false> as FixedKernel),
+            )*)*
+            _ => None,
+        }
+    };
+}
+
 /// The specialised kernel for a system of `r` reactions and `s` species
-/// (all in the gas phase when `gas_only`), if there is one. Specialisations cover the small systems that dominate
-/// batch work (up to five reactions and twelve species); the general path
-/// handles everything else and gives bit-identical results.
+/// (all in the gas phase when `gas_only`), if there is one. All-gas systems
+/// of up to three reactions get the lean path ([`crate::lean`]) in front of the specialised general
+/// solve. The general solve itself gives bit-identical results on heap and
+/// stack memory ([`general_kernel_for`]); the lean path agrees with it to
+/// well within the tolerance, not to the bit.
 pub fn kernel_for(r: usize, s: usize, gas_only: bool) -> Option<FixedKernel> {
-    macro_rules! table {
-        ($($rr:literal => [$($ss:literal),*]),* $(,)?) => {
-            match (r, s, gas_only) {
-                $($(
-                    ($rr, $ss, true) => Some(solve_fixed::<$rr, $ss, true> as FixedKernel),
-                    ($rr, $ss, false) => Some(solve_fixed::<$rr, $ss, false> as FixedKernel),
-                )*)*
-                _ => None,
-            }
-        };
-    }
-    table! {
-        1 => [2, 3, 4, 5, 6],
-        2 => [3, 4, 5, 6, 7, 8],
-        3 => [4, 5, 6, 7, 8, 9],
-        4 => [5, 6, 7, 8, 9, 10],
-        5 => [6, 7, 8, 9, 10, 11, 12],
-    }
+    for_small_systems!(kernel_table, r, s, gas_only, true)
+}
+
+/// [`kernel_for`] without the lean path: the general solve on stack memory.
+pub fn general_kernel_for(r: usize, s: usize, gas_only: bool) -> Option<FixedKernel> {
+    for_small_systems!(kernel_table, r, s, gas_only, false)
 }
 
 /// Start from caller-given extents `x0` (a warm start, for instance the
@@ -400,7 +436,7 @@ pub fn kernel_for(r: usize, s: usize, gas_only: bool) -> Option<FixedKernel> {
 /// returns `false` (and the default start is used) otherwise.
 #[inline(always)]
 #[allow(clippy::too_many_arguments)]
-fn warm_start(
+pub(crate) fn warm_start(
     system: &System,
     face: &Face,
     feed: &[f64],
@@ -432,6 +468,37 @@ fn warm_start(
     }
     extents[..r].copy_from_slice(&x0[..r]);
     true
+}
+
+/// Strictly interior start: move from the feed along the face's
+/// reachability direction, halfway to the first species it would use up.
+#[inline(always)]
+pub(crate) fn interior_start(
+    face: &Face,
+    feed: &[f64],
+    amounts: &mut [f64],
+    extents: &mut [f64],
+    s: usize,
+    r: usize,
+) {
+    let mut t_max = f64::INFINITY;
+    for i in 0..s {
+        let dc = face.direction_change[i];
+        if dc < 0.0 {
+            t_max = t_max.min(feed[i] / -dc);
+        }
+    }
+    let t = if t_max.is_finite() { 0.5 * t_max } else { 0.0 };
+    for i in 0..s {
+        amounts[i] = if face.unreachable[i] {
+            0.0
+        } else {
+            feed[i] + t * face.direction_change[i]
+        };
+    }
+    for j in 0..r {
+        extents[j] = t * face.direction[j];
+    }
 }
 
 /// Interior start, then damped Newton iterations; see the module docs.
@@ -466,26 +533,7 @@ fn run(
         *slot = k;
     }
     if !start.is_some_and(|x0| warm_start(system, face, feed, x0, amounts, sc.extents, s, r)) {
-        // Strictly interior start: move from the feed along the face's
-        // reachability direction, halfway to the first species it would use up.
-        let mut t_max = f64::INFINITY;
-        for i in 0..s {
-            let dc = face.direction_change[i];
-            if dc < 0.0 {
-                t_max = t_max.min(feed[i] / -dc);
-            }
-        }
-        let t = if t_max.is_finite() { 0.5 * t_max } else { 0.0 };
-        for i in 0..s {
-            amounts[i] = if face.unreachable[i] {
-                0.0
-            } else {
-                feed[i] + t * face.direction_change[i]
-            };
-        }
-        for j in 0..r {
-            sc.extents[j] = t * face.direction[j];
-        }
+        interior_start(face, feed, amounts, sc.extents, s, r);
     }
     if dim == 0 {
         return (Status::Converged, 0);
@@ -758,10 +806,7 @@ fn run(
                 for p in 0..N_PHASES {
                     second_order -= h(totals[p], phase_delta[p]);
                 }
-                let decrease = first_order + second_order;
-                if decrease <= ARMIJO * alpha * slope
-                    || (first_order < 0.0 && decrease <= ARMIJO * first_order)
-                {
+                if sufficient_decrease(first_order, second_order, alpha, slope) {
                     accepted = true;
                     break;
                 }
@@ -836,7 +881,7 @@ mod tests {
             &mut amounts,
             &mut extents,
         );
-        if let Some(kernel) = kernel_for(r, s, true) {
+        if let Some(kernel) = general_kernel_for(r, s, true) {
             let (mut a2, mut e2) = (vec![0.0; s], vec![0.0; r]);
             let (st2, it2) = kernel(&sys, &face, feed, ln_k, p, None, &options, &mut a2, &mut e2);
             assert_eq!((st, it), (st2, it2));
