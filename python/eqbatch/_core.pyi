@@ -29,7 +29,6 @@ class System:
     ) -> tuple[
         npt.NDArray[np.float64],
         npt.NDArray[np.float64],
-        npt.NDArray[np.float64],
         npt.NDArray[np.uint8],
         npt.NDArray[np.uint32],
     ]: ...

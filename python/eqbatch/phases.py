@@ -145,7 +145,7 @@ def repair_vanished_phases(system, result) -> None:
                 amounts, xi = start, xi_shift
                 status = Status.CONVERGED
             else:
-                a, e, _, st, it = core.solve(
+                a, e, st, it = core.solve(
                     start[None, :], (W.T @ lnk)[None, :], np.array([P]), 1, 1e-10, 200
                 )
                 if st[0] != Status.CONVERGED:

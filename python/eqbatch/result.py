@@ -78,7 +78,7 @@ class EquilibriumResult:
         "system",
         "amounts",
         "extents",
-        "mole_fractions",
+        "_mole_fractions",
         "status",
         "iterations",
         "_feed",
@@ -93,7 +93,7 @@ class EquilibriumResult:
         system: ReactionSystem,
         amounts: np.ndarray,
         extents: np.ndarray,
-        mole_fractions: np.ndarray,
+        mole_fractions: np.ndarray | None,
         status: np.ndarray,
         iterations: np.ndarray,
         feed: np.ndarray,
@@ -104,7 +104,7 @@ class EquilibriumResult:
         self.system = system
         self.amounts = amounts
         self.extents = extents
-        self.mole_fractions = mole_fractions
+        self._mole_fractions = mole_fractions
         self.status = status
         self.iterations = iterations
         self._feed = feed
@@ -112,6 +112,19 @@ class EquilibriumResult:
         self._T = T
         self._lnK = lnK
         self._sens: tuple[np.ndarray, np.ndarray, np.ndarray] | None = None
+
+    @property
+    def mole_fractions(self) -> np.ndarray:
+        """(N, S) mole fraction of each species within its own phase (0 in an
+        empty phase, NaN for invalid or infeasible cases), computed from the
+        amounts when first read."""
+        if self._mole_fractions is None:
+            self._mole_fractions = mole_fractions_of(self.system.phases, self.amounts)
+        return self._mole_fractions
+
+    @mole_fractions.setter
+    def mole_fractions(self, value: np.ndarray) -> None:
+        self._mole_fractions = value
 
     def __len__(self) -> int:
         return self.amounts.shape[0]
@@ -286,3 +299,20 @@ class EquilibriumResult:
 
         cols = self.columns(inputs)
         return pa.table({k: pa.array(np.ascontiguousarray(v)) for k, v in cols.items()})
+
+
+def mole_fractions_of(phases, amounts: np.ndarray) -> np.ndarray:
+    """Mole fractions within each phase, as the core defines them: ``n_i / N``
+    of the species' phase, 0 where the phase is empty, NaN where the amounts are."""
+    amounts = np.asarray(amounts, dtype=np.float64)
+    phases = np.asarray(phases)
+    out = np.empty_like(amounts)
+    for phase in np.unique(phases):
+        cols = np.flatnonzero(phases == phase)
+        part = amounts[:, cols]
+        total = part.sum(axis=1, keepdims=True)
+        with np.errstate(invalid="ignore", divide="ignore"):
+            y = np.where(total > 0, part / np.where(total > 0, total, 1.0), 0.0)
+        y[np.isnan(total[:, 0])] = np.nan
+        out[:, cols] = y
+    return out

@@ -45,7 +45,7 @@ fn main() {
     let mut outputs = BatchOutputs {
         amounts: &mut amounts,
         extents: &mut extents,
-        mole_fractions: &mut fractions,
+        mole_fractions: Some(&mut fractions),
         status: &mut status,
         iterations: &mut iterations,
     };

@@ -48,8 +48,9 @@ pub struct BatchOutputs<'a> {
     pub amounts: &'a mut [f64],
     /// Extents of the system's reactions, mol (`n_cases x R`).
     pub extents: &'a mut [f64],
-    /// Mole fraction of each species within its own phase (`n_cases x S`).
-    pub mole_fractions: &'a mut [f64],
+    /// Mole fraction of each species within its own phase (`n_cases x S`),
+    /// when wanted (callers that can compute them later save the memory).
+    pub mole_fractions: Option<&'a mut [f64]>,
     /// [`Status`] codes (`n_cases`).
     pub status: &'a mut [u8],
     /// Newton iterations taken (`n_cases`).
@@ -253,7 +254,11 @@ pub fn solve_batch(
     for (name, len, width) in [
         ("amounts", outputs.amounts.len(), s),
         ("extents", outputs.extents.len(), r),
-        ("mole_fractions", outputs.mole_fractions.len(), s),
+        (
+            "mole_fractions",
+            outputs.mole_fractions.as_ref().map_or(n * s, |y| y.len()),
+            s,
+        ),
         ("status", outputs.status.len(), 1),
     ] {
         if len != n * width {
@@ -301,28 +306,35 @@ pub fn solve_batch(
         CHUNK
     };
 
-    let finish = |amounts: &mut [f64], extents: &mut [f64], fractions: &mut [f64], st: Status| {
-        if st == Status::InvalidInput || st == Status::Infeasible {
-            amounts.fill(f64::NAN);
-            extents.fill(f64::NAN);
-            fractions.fill(f64::NAN);
-            return;
-        }
-        let mut totals = [0.0; N_PHASES];
-        for (i, phase) in system.phases().iter().enumerate() {
-            totals[phase.index()] += amounts[i];
-        }
-        for (i, phase) in system.phases().iter().enumerate() {
-            let total = totals[phase.index()];
-            fractions[i] = if total > 0.0 { amounts[i] / total } else { 0.0 };
-        }
-    };
+    let finish =
+        |amounts: &mut [f64], extents: &mut [f64], fractions: Option<&mut [f64]>, st: Status| {
+            let bad = st == Status::InvalidInput || st == Status::Infeasible;
+            if bad {
+                amounts.fill(f64::NAN);
+                extents.fill(f64::NAN);
+            }
+            let Some(fractions) = fractions else {
+                return;
+            };
+            if bad {
+                fractions.fill(f64::NAN);
+                return;
+            }
+            let mut totals = [0.0; N_PHASES];
+            for (i, phase) in system.phases().iter().enumerate() {
+                totals[phase.index()] += amounts[i];
+            }
+            for (i, phase) in system.phases().iter().enumerate() {
+                let total = totals[phase.index()];
+                fractions[i] = if total > 0.0 { amounts[i] / total } else { 0.0 };
+            }
+        };
 
     let run_chunk = |ws: &mut ChunkState,
                      chunk: usize,
                      amounts: &mut [f64],
                      extents: &mut [f64],
-                     fractions: &mut [f64],
+                     mut fractions: Option<&mut [f64]>,
                      status: &mut [u8],
                      iterations: &mut [u32]| {
         if let Some(lane_kernel) = lane_kernel {
@@ -381,7 +393,10 @@ pub fn solve_batch(
                 let (st, it) = outcome[local];
                 status[local] = st as u8;
                 iterations[local] = it;
-                finish(a, e, &mut fractions[local * s..(local + 1) * s], st);
+                let y = fractions
+                    .as_deref_mut()
+                    .map(|y| &mut y[local * s..(local + 1) * s]);
+                finish(a, e, y, st);
             }
             return;
         }
@@ -406,24 +421,43 @@ pub fn solve_batch(
             } else {
                 start
             };
-            let fractions = &mut fractions[local * s..(local + 1) * s];
+            let y = fractions
+                .as_deref_mut()
+                .map(|y| &mut y[local * s..(local + 1) * s]);
             let (st, it) = ws.solve(
                 system, &faces, feed, ln_k, pressure, start, options, kernel, amounts, extents,
             );
             status[local] = st as u8;
             iterations[local] = it;
             previous_converged = st == Status::Converged;
-            finish(amounts, extents, fractions, st);
+            finish(amounts, extents, y, st);
         }
     };
 
+    // The mole-fraction output, when there is one, cut like the others.
+    let n_chunks = n.div_ceil(chunk_len);
+    fn fraction_chunks(
+        y: Option<&mut [f64]>,
+        len: usize,
+        n_chunks: usize,
+    ) -> Vec<Option<&mut [f64]>> {
+        match y {
+            Some(y) => y.chunks_mut(len).map(Some).collect(),
+            None => (0..n_chunks).map(|_| None).collect(),
+        }
+    }
     if serial {
         let mut state = ChunkState::new(system);
+        let ys = fraction_chunks(
+            outputs.mole_fractions.as_deref_mut(),
+            chunk_len * s,
+            n_chunks,
+        );
         for (chunk, ((((a, e), y), st), it)) in outputs
             .amounts
             .chunks_mut(chunk_len * s)
             .zip(outputs.extents.chunks_mut(chunk_len * r))
-            .zip(outputs.mole_fractions.chunks_mut(chunk_len * s))
+            .zip(ys)
             .zip(outputs.status.chunks_mut(chunk_len))
             .zip(outputs.iterations.chunks_mut(chunk_len))
             .enumerate()
@@ -433,11 +467,16 @@ pub fn solve_batch(
         return Ok(());
     }
     let parallel = |outputs: &mut BatchOutputs| {
+        let ys = fraction_chunks(
+            outputs.mole_fractions.as_deref_mut(),
+            chunk_len * s,
+            n_chunks,
+        );
         outputs
             .amounts
             .par_chunks_mut(chunk_len * s)
             .zip(outputs.extents.par_chunks_mut(chunk_len * r))
-            .zip(outputs.mole_fractions.par_chunks_mut(chunk_len * s))
+            .zip(ys)
             .zip(outputs.status.par_chunks_mut(chunk_len))
             .zip(outputs.iterations.par_chunks_mut(chunk_len))
             .enumerate()
@@ -556,7 +595,7 @@ mod tests {
         let mut out = BatchOutputs {
             amounts: &mut amounts,
             extents: &mut extents,
-            mole_fractions: &mut y,
+            mole_fractions: Some(&mut y),
             status: &mut st,
             iterations: &mut it,
         };
@@ -640,7 +679,7 @@ mod tests {
         let mut out = BatchOutputs {
             amounts: &mut a,
             extents: &mut e,
-            mole_fractions: &mut y,
+            mole_fractions: Some(&mut y),
             status: &mut st,
             iterations: &mut it,
         };

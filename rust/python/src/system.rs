@@ -16,7 +16,6 @@ use crate::error::to_py;
 type Solved<'py> = (
     Bound<'py, PyArray2<f64>>,
     Bound<'py, PyArray2<f64>>,
-    Bound<'py, PyArray2<f64>>,
     Bound<'py, PyArray1<u8>>,
     Bound<'py, PyArray1<u32>>,
 );
@@ -71,7 +70,8 @@ impl PySystem {
 
     /// Solve `n_cases` cases. `feed` (1 or N, S), `ln_k` (1 or N, R) and
     /// `pressure` (1 or N) must be C-contiguous float64. Returns
-    /// `(amounts, extents, mole_fractions, status, iterations)`.
+    /// `(amounts, extents, status, iterations)`; mole fractions are left to
+    /// the caller (computed on demand, which saves their memory in batches).
     #[pyo3(signature = (feed, ln_k, pressure, n_cases, tol, max_iter, threads=None, start=None, chain=false))]
     #[allow(clippy::too_many_arguments)]
     fn solve<'py>(
@@ -91,7 +91,6 @@ impl PySystem {
         let r = self.inner.n_reactions();
         let amounts = PyArray2::<f64>::zeros(py, [n_cases, s], false);
         let extents = PyArray2::<f64>::zeros(py, [n_cases, r], false);
-        let fractions = PyArray2::<f64>::zeros(py, [n_cases, s], false);
         let status = PyArray1::<u8>::zeros(py, n_cases, false);
         let iterations = PyArray1::<u32>::zeros(py, n_cases, false);
         {
@@ -102,14 +101,13 @@ impl PySystem {
                 Some(x0) => Some(x0.as_slice()?),
                 None => None,
             };
-            // SAFETY: the five output arrays were created just above, are
+            // SAFETY: the four output arrays were created just above, are
             // C-contiguous, and no other reference to them exists until they
             // are returned, so these are the only views of their memory.
-            let (a, e, y, st, it) = unsafe {
+            let (a, e, st, it) = unsafe {
                 (
                     amounts.as_slice_mut()?,
                     extents.as_slice_mut()?,
-                    fractions.as_slice_mut()?,
                     status.as_slice_mut()?,
                     iterations.as_slice_mut()?,
                 )
@@ -131,7 +129,7 @@ impl PySystem {
                 let mut outputs = BatchOutputs {
                     amounts: a,
                     extents: e,
-                    mole_fractions: y,
+                    mole_fractions: None,
                     status: st,
                     iterations: it,
                 };
@@ -139,7 +137,7 @@ impl PySystem {
             })
             .map_err(to_py)?;
         }
-        Ok((amounts, extents, fractions, status, iterations))
+        Ok((amounts, extents, status, iterations))
     }
 
     /// Exact derivatives of converged cases: returns `(d n / d ln K (N, S, R),
