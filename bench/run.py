@@ -465,12 +465,12 @@ def main(argv: list[str] | None = None) -> int:
         "| parallel zero-pattern scan, word compare of pattern keys, 256-case lane tasks | "
         "about 5 % on two threads |",
         "",
-        "Per-case time against the number of cases: from 1e6 cases up the outputs "
-        "(69 bytes per case: amounts, extents, status, iterations; mole fractions are computed "
-        "when first read, which took 48 bytes per case off this) are fresh memory, which this VM "
-        "maps and zeroes at roughly 0.05-0.1 us per case (system time in `getrusage`); smaller "
-        "batches reuse memory the allocator already holds. That, not the solver, is what "
-        "spreads the per-case times below.",
+        "Per-case time against the number of cases: user time is linear in the number of "
+        "cases; from 1e6 cases up the outputs (69 bytes per case: amounts, extents, status, "
+        "iterations; mole fractions are computed when first read, which took 48 bytes per case "
+        "off this) are fresh memory, which this VM maps and zeroes (0.7-1.3 s of system time "
+        "for 1e7 cases, about half of the extra per-case time at 1e7; the rest is not yet "
+        "explained). Smaller batches reuse memory the allocator already holds.",
     ]
     report += [
         "",
