@@ -145,9 +145,7 @@ def repair_vanished_phases(system, result) -> None:
                 amounts, xi = start, xi_shift
                 status = Status.CONVERGED
             else:
-                a, e, st, it = core.solve(
-                    start[None, :], (W.T @ lnk)[None, :], np.array([P]), 1, 1e-10, 200
-                )
+                a, e, st, it = core.solve(start[None, :], (W.T @ lnk)[None, :], np.array([P]), 1, 1e-10, 200)
                 if st[0] != Status.CONVERGED:
                     continue
                 amounts, xi, status = a[0], xi_shift + W @ e[0], Status.CONVERGED
