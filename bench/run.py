@@ -457,7 +457,7 @@ def main(argv: list[str] | None = None) -> int:
         "| line search reusing the trial point's logarithms, L D L^T, specialised kernels, "
         "branch-free residuals, basis re-derived only when needed | 9.9k instructions |",
         "| log path for shrinking pivots | 4.64 -> 4.44 iterations |",
-        "| lean path (same iteration, fixed-size arrays, no phase/floor bookkeeping) | 8.5k instructions, "
+        "| lean scalar path (same iteration, fixed-size arrays, no phase/floor bookkeeping; since removed) | 8.5k instructions, "
         "0.98 -> 1.14 M cases/s on one thread |",
         "| lane kernel: 8 cases per vector group (AVX-512 / AVX2+FMA, run-time dispatch), "
         "inlined vector logarithm, streaming refill | 1.14 -> 1.75 M cases/s on one thread "

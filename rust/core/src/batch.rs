@@ -292,8 +292,8 @@ pub fn solve_batch(
     let kernel = kernel_for(r, s, gas_only);
 
     // All-gas small systems solve their eligible cases in vector lanes
-    // (cases with a start or a chained start go one at a time).
-    let lane_kernel = if gas_only && !options.chain && inputs.start.is_none() {
+    // (chained starts, which need the case before, go one at a time).
+    let lane_kernel = if gas_only && !options.chain {
         lane_kernel_for(r, s)
     } else {
         None
@@ -360,6 +360,10 @@ pub fn solve_batch(
                         cases.push(LaneCase {
                             row: local,
                             feed,
+                            start: inputs
+                                .start
+                                .zip(start_rows)
+                                .map(|(x0, rows)| rows.row(x0, case)),
                             ln_k,
                             pressure,
                             face,
@@ -367,19 +371,8 @@ pub fn solve_batch(
                     }
                 }
             }
-            let mut results = [(Status::InvalidInput, 0); LANE_CHUNK];
-            lane_kernel(
-                system,
-                &cases,
-                options,
-                amounts,
-                extents,
-                &mut results[..cases.len()],
-            );
             let mut outcome = [(Status::InvalidInput, 0); LANE_CHUNK];
-            for (k, case) in cases.iter().enumerate() {
-                outcome[case.row] = results[k];
-            }
+            lane_kernel(system, &cases, options, amounts, extents, &mut outcome);
             for local in 0..n_local {
                 let a = &mut amounts[local * s..(local + 1) * s];
                 let e = &mut extents[local * r..(local + 1) * r];
@@ -388,8 +381,12 @@ pub fn solve_batch(
                     let feed = feed_rows.row(inputs.feed, case);
                     let ln_k = k_rows.row(inputs.ln_k, case);
                     let pressure = p_rows.row(inputs.pressure, case)[0];
+                    let start = inputs
+                        .start
+                        .zip(start_rows)
+                        .map(|(x0, rows)| rows.row(x0, case));
                     outcome[local] = ws.solve(
-                        system, &faces, feed, ln_k, pressure, None, options, kernel, a, e,
+                        system, &faces, feed, ln_k, pressure, start, options, kernel, a, e,
                     );
                 }
                 let (st, it) = outcome[local];

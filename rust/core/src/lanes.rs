@@ -10,7 +10,8 @@
 //! ([`crate::ln`]).
 //!
 //! The method is the damped Newton iteration of [`crate::solver`] on the
-//! extents of the reactions as given: same interior start, same Gibbs merit,
+//! extents of the reactions as given: same start (the caller's extents where
+//! they are strictly feasible, else the interior start), same Gibbs merit,
 //! same line-search acceptance, fraction-to-boundary steps on the straight
 //! line (to 90 % of the boundary, [`LANE_TO_BOUNDARY`]). Lanes converge,
 //! backtrack and stop independently; a lane that has finished takes the next
@@ -30,7 +31,10 @@
 
 use crate::face::Face;
 use crate::ln::ln_normal;
-use crate::solver::{solve_fixed, SolveOptions, ARMIJO, MODEL_TRUST, PHI_SERIES};
+use crate::solver::{
+    for_small_systems, interior_start, solve_fixed, sufficient_decrease, warm_start, SolveOptions,
+    MODEL_TRUST, PHI_SERIES,
+};
 use crate::status::Status;
 use crate::system::System;
 
@@ -54,10 +58,12 @@ type Lanes = [f64; LANES];
 type Mask = [bool; LANES];
 
 /// One case for the lane kernel: valid inputs on a full face (no
-/// unreachable species) and no start given; its outputs go to row `row`.
+/// unreachable species), optionally starting extents; its outputs go to row
+/// `row`.
 pub struct LaneCase<'a> {
     pub row: usize,
     pub feed: &'a [f64],
+    pub start: Option<&'a [f64]>,
     pub ln_k: &'a [f64],
     pub pressure: f64,
     pub face: &'a Face,
@@ -65,7 +71,7 @@ pub struct LaneCase<'a> {
 
 /// Solve a list of cases, [`LANES`] at a time (a lane that finishes takes
 /// the next case): amounts to `amounts[row * S..]`, extents to
-/// `extents[row * R..]`, status and iterations to `out[k]` for `cases[k]`.
+/// `extents[row * R..]`, status and iterations to `out[row]`.
 pub type LaneKernel =
     fn(&System, &[LaneCase], &SolveOptions, &mut [f64], &mut [f64], &mut [(Status, u32)]);
 
@@ -73,20 +79,14 @@ pub type LaneKernel =
 /// compiled for the widest vector instructions this processor has.
 pub fn lane_kernel_for(r: usize, s: usize) -> Option<LaneKernel> {
     macro_rules! pick {
-        ($($rr:literal => [$($ss:literal),*]),* $(,)?) => {
-            match (r, s) {
+        ($r:expr, $s:expr; $($rr:literal => [$($ss:literal),*]),* $(,)?) => {
+            match ($r, $s) {
                 $($(($rr, $ss) => Some(dispatch::<$rr, $ss>()),)*)*
                 _ => None,
             }
         };
     }
-    pick! {
-        1 => [2, 3, 4, 5, 6],
-        2 => [3, 4, 5, 6, 7, 8],
-        3 => [4, 5, 6, 7, 8, 9],
-        4 => [5, 6, 7, 8, 9, 10],
-        5 => [6, 7, 8, 9, 10, 11, 12],
-    }
+    for_small_systems!(pick, r, s)
 }
 
 fn dispatch<const R: usize, const S: usize>() -> LaneKernel {
@@ -314,7 +314,7 @@ fn solve_group<const R: usize, const S: usize>(
                         for j in 0..R {
                             extents[j] = xi[j][l];
                         }
-                        out[slot[l]] = (Status::Converged, iterations[l]);
+                        out[case.row] = (Status::Converged, iterations[l]);
                     }
                     Lane::Handback => {
                         // Continue from the lane's last point (strictly
@@ -341,7 +341,7 @@ fn solve_group<const R: usize, const S: usize>(
                             &mut amounts_out[case.row * S..(case.row + 1) * S],
                             &mut extents_out[case.row * R..(case.row + 1) * R],
                         );
-                        out[slot[l]] = (status, used + more);
+                        out[case.row] = (status, used + more);
                     }
                     Lane::Idle => {}
                 }
@@ -349,30 +349,24 @@ fn solve_group<const R: usize, const S: usize>(
                 if next == cases.len() {
                     break;
                 }
-                // Load case `next`: the interior start on its own face.
+                // Load case `next`: its start (the caller's extents where they
+                // are strictly feasible, else the interior start on its face).
                 let case = &cases[next];
                 slot[l] = next;
                 next += 1;
-                let face = case.face;
-                let mut t_max = f64::INFINITY;
-                for i in 0..S {
-                    let dc = face.direction_change[i];
-                    if dc < 0.0 {
-                        t_max = min(t_max, case.feed[i] / -dc);
-                    }
+                let (mut n0, mut xi0) = ([0.0; S], [0.0; R]);
+                if !case.start.is_some_and(|x0| {
+                    warm_start(system, case.face, case.feed, x0, &mut n0, &mut xi0, S, R)
+                }) {
+                    interior_start(case.face, case.feed, &mut n0, &mut xi0, S, R);
                 }
-                let t = if t_max < f64::INFINITY {
-                    0.5 * t_max
-                } else {
-                    0.0
-                };
                 let mut sum = 0.0;
                 for i in 0..S {
-                    n[i][l] = case.feed[i] + t * face.direction_change[i];
-                    sum += n[i][l];
+                    n[i][l] = n0[i];
+                    sum += n0[i];
                 }
                 for j in 0..R {
-                    xi[j][l] = t * face.direction[j];
+                    xi[j][l] = xi0[j];
                 }
                 total[l] = sum;
                 let mut inside = (SMALLEST..=f64::MAX).contains(&sum);
@@ -534,8 +528,8 @@ fn solve_group<const R: usize, const S: usize>(
                 let ht = h_lanes(&total, &total_change);
                 for l in 0..LANES {
                     second[l] -= ht[l];
-                    let first_order = alpha[l] * slope[l];
-                    let exact = first_order + second[l] <= ARMIJO * first_order;
+                    let exact =
+                        sufficient_decrease(alpha[l] * slope[l], second[l], alpha[l], slope[l]);
                     accept[l] |= pending[l] && feasible[l] && exact;
                 }
             }
@@ -584,7 +578,7 @@ fn solve_group<const R: usize, const S: usize>(
             }
         }
 
-        // Reciprocals of the new amounts, and lanes that left the lean region.
+        // Reciprocals of the new amounts, and lanes that left the lane region.
         let mut outside = [false; LANES];
         for i in 0..S {
             if !reactive[i] {
@@ -660,7 +654,7 @@ mod tests {
     use super::*;
     use crate::face::analyse;
     use crate::fixtures::reforming;
-    use crate::solver::general_kernel_for;
+    use crate::solver::kernel_for;
 
     /// 29 cases (not a multiple of the lane count): the benchmark's ranges
     /// (Xu-Froment ln K, from memory) plus constants far enough out that
@@ -692,18 +686,33 @@ mod tests {
             .collect()
     }
 
-    fn check(kernel: LaneKernel) {
+    /// Lanes against the general solve; with `warm`, every lane starts from
+    /// the general solve's extents and must take at most a step or two.
+    fn check(kernel: LaneKernel, warm: bool) {
         let sys = reforming();
         let options = SolveOptions::default();
         let data = cases();
         let faces = faces_of(&sys, &data);
+        let general = kernel_for(2, 6, true).unwrap();
+        let reference: Vec<([f64; 6], [f64; 2])> = data
+            .iter()
+            .zip(&faces)
+            .map(|((feed, ln_k, p), face)| {
+                let (mut a, mut e) = ([0.0; 6], [0.0; 2]);
+                let (st, _) = general(&sys, face, feed, ln_k, *p, None, &options, &mut a, &mut e);
+                assert_eq!(st, Status::Converged);
+                (a, e)
+            })
+            .collect();
         let list: Vec<LaneCase> = data
             .iter()
             .zip(&faces)
+            .zip(&reference)
             .enumerate()
-            .map(|(row, ((feed, ln_k, p), face))| LaneCase {
+            .map(|(row, (((feed, ln_k, p), face), (_, e)))| LaneCase {
                 row,
                 feed,
+                start: warm.then_some(&e[..]),
                 ln_k,
                 pressure: *p,
                 face,
@@ -713,16 +722,19 @@ mod tests {
         let mut extents = vec![f64::NAN; 2 * data.len()];
         let mut out = vec![(Status::InvalidInput, 0); data.len()];
         kernel(&sys, &list, &options, &mut amounts, &mut extents, &mut out);
-        let general = general_kernel_for(2, 6, true).unwrap();
         let nu = sys.stoich();
-        for (k, ((feed, ln_k, p), face)) in data.iter().zip(&faces).enumerate() {
-            let (mut a, mut e) = ([0.0; 6], [0.0; 2]);
-            let (st, _) = general(&sys, face, feed, ln_k, *p, None, &options, &mut a, &mut e);
-            assert_eq!(
-                (out[k].0, st),
-                (Status::Converged, Status::Converged),
-                "case {k}"
-            );
+        for (k, ((feed, _, _), (a, _))) in data.iter().zip(&reference).enumerate() {
+            assert_eq!(out[k].0, Status::Converged, "case {k}");
+            // (Cases 25 and 26 end with a species near 1e-26 of the gas: from
+            // extents, n = feed + nu^T xi cancels to nothing for it, so no
+            // start given as extents can hold it and the interior start is used.)
+            if warm && k != 25 && k != 26 {
+                assert!(
+                    out[k].1 <= 2,
+                    "case {k}: {} steps from the solution",
+                    out[k].1
+                );
+            }
             for i in 0..6 {
                 // The equilibrium is unique: every amount agrees relatively,
                 // trace species included.
@@ -746,8 +758,13 @@ mod tests {
     #[test]
     fn lanes_agree_with_the_general_solve() {
         // Portable code, and the variant this processor dispatches to.
-        check(solve_group::<2, 6>);
-        check(lane_kernel_for(2, 6).unwrap());
+        check(solve_group::<2, 6>, false);
+        check(lane_kernel_for(2, 6).unwrap(), false);
+    }
+
+    #[test]
+    fn lanes_take_a_warm_start() {
+        check(lane_kernel_for(2, 6).unwrap(), true);
     }
 
     #[test]
@@ -763,6 +780,7 @@ mod tests {
                 .enumerate()
                 .map(|(row, &k)| LaneCase {
                     row,
+                    start: None,
                     feed: &data[k].0,
                     ln_k: &data[k].1,
                     pressure: data[k].2,

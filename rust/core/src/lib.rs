@@ -9,8 +9,7 @@
 //! * [`face`]: which species a feed can reach (the zero-pattern analysis);
 //! * [`basis`]: the per-case stoichiometric basis that keeps trace species precise;
 //! * [`solver`]: the damped Newton solve of one case;
-//! * [`lean`]: a cheaper Newton path for small all-gas cases away from trace levels;
-//! * [`lanes`]: the same for eight cases at a time in vector lanes (batch work);
+//! * [`lanes`]: the batch path for small all-gas systems, eight cases per vector group;
 //! * [`batch`]: the parallel batch driver;
 //! * [`sensitivity`]: exact derivatives of converged cases;
 //! * [`lp`], [`linalg`]: the small numerical kernels they share.
@@ -24,7 +23,6 @@ pub mod batch;
 pub mod error;
 pub mod face;
 pub mod lanes;
-pub mod lean;
 pub mod linalg;
 mod ln;
 pub mod lp;

@@ -72,12 +72,12 @@ impl Default for SolveOptions {
 
 /// Fraction-to-boundary factor for species on the straight-line path: a
 /// step may remove at most this fraction of what is left.
-pub(crate) const TO_BOUNDARY: f64 = 0.99;
+const TO_BOUNDARY: f64 = 0.99;
 /// Armijo sufficient-decrease constant.
-pub(crate) const ARMIJO: f64 = 1e-4;
+const ARMIJO: f64 = 1e-4;
 /// `ln` of the share of its phase below which a species is minor and moves
 /// in `ln n` (1e-2).
-pub(crate) const LN_MINOR_SHARE: f64 = -4.605_170_185_988_091;
+const LN_MINOR_SHARE: f64 = -4.605_170_185_988_091;
 /// Largest relative change of any amount for which the quadratic model of
 /// the Gibbs function along the step is trusted (see [`solve_case`]).
 pub(crate) const MODEL_TRUST: f64 = 0.1;
@@ -143,7 +143,7 @@ pub(crate) fn sufficient_decrease(
 
 /// `h(n, d) = (n + d) ln(1 + d/n) - d`, the second-order part of the change
 /// of `n ln n`.
-pub(crate) fn h(n: f64, d: f64) -> f64 {
+fn h(n: f64, d: f64) -> f64 {
     if n > 0.0 {
         n * phi(d / n)
     } else {
@@ -384,7 +384,9 @@ pub(crate) fn solve_fixed<const R: usize, const S: usize, const G: bool>(
 }
 
 /// Every (reactions, species) pair with specialised kernels: the small
-/// systems that dominate batch work (up to five reactions and twelve species).
+/// systems that dominate batch work (up to five reactions and twelve
+/// species). `$m` is a macro that turns the list into a `match`; the solver
+/// and the lane kernel ([`crate::lanes`]) use the same list.
 macro_rules! for_small_systems {
     ($m:ident, $($arg:tt)*) => {
         $m! { $($arg)*;
@@ -396,19 +398,14 @@ macro_rules! for_small_systems {
         }
     };
 }
+pub(crate) use for_small_systems;
 
 macro_rules! kernel_table {
-    ($r:expr, $s:expr, $gas:expr, $lean:expr; $($rr:literal => [$($ss:literal),*]),* $(,)?) => {
-        match ($r, $s, $gas, $lean) {
+    ($r:expr, $s:expr, $gas:expr; $($rr:literal => [$($ss:literal),*]),* $(,)?) => {
+        match ($r, $s, $gas) {
             $($(
-                // The lean path for up to three reactions: on larger networks
-                // trace species are common (workload (b): ln K over +-30) and
-                // the hand-backs to the general solve cost more than it saves.
-                ($rr, $ss, true, true) if $rr <= 3 => {
-                    Some(crate::lean::solve_lean::<$rr, $ss> as FixedKernel)
-                }
-                ($rr, $ss, true, _) => Some(solve_fixed::<$rr, $ss, true> as FixedKernel),
-                ($rr, $ss, false, _) => Some(solve_fixed::<$rr, $ss, false> as FixedKernel),
+                ($rr, $ss, true) => Some(solve_fixed::<$rr, $ss, true> as FixedKernel),
+                ($rr, $ss, false) => Some(solve_fixed::<$rr, $ss, false> as FixedKernel),
             )*)*
             _ => None,
         }
@@ -416,18 +413,10 @@ macro_rules! kernel_table {
 }
 
 /// The specialised kernel for a system of `r` reactions and `s` species
-/// (all in the gas phase when `gas_only`), if there is one. All-gas systems
-/// of up to three reactions get the lean path ([`crate::lean`]) in front of the specialised general
-/// solve. The general solve itself gives bit-identical results on heap and
-/// stack memory ([`general_kernel_for`]); the lean path agrees with it to
-/// well within the tolerance, not to the bit.
+/// (all in the gas phase when `gas_only`), if there is one; the general path
+/// handles everything else and gives bit-identical results.
 pub fn kernel_for(r: usize, s: usize, gas_only: bool) -> Option<FixedKernel> {
-    for_small_systems!(kernel_table, r, s, gas_only, true)
-}
-
-/// [`kernel_for`] without the lean path: the general solve on stack memory.
-pub fn general_kernel_for(r: usize, s: usize, gas_only: bool) -> Option<FixedKernel> {
-    for_small_systems!(kernel_table, r, s, gas_only, false)
+    for_small_systems!(kernel_table, r, s, gas_only)
 }
 
 /// Start from caller-given extents `x0` (a warm start, for instance the
@@ -881,7 +870,7 @@ mod tests {
             &mut amounts,
             &mut extents,
         );
-        if let Some(kernel) = general_kernel_for(r, s, true) {
+        if let Some(kernel) = kernel_for(r, s, true) {
             let (mut a2, mut e2) = (vec![0.0; s], vec![0.0; r]);
             let (st2, it2) = kernel(&sys, &face, feed, ln_k, p, None, &options, &mut a2, &mut e2);
             assert_eq!((st, it), (st2, it2));
