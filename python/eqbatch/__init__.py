@@ -14,6 +14,7 @@ Equilibrium is a thermodynamic limit, not a reactor design.
 """
 
 from eqbatch._core import __version__ as _core_version
+from eqbatch._core import release_buffers as _release_buffers
 from eqbatch.equations import parse_equation, parse_formula
 from eqbatch.errors import (
     AtomBalanceError,
@@ -34,6 +35,18 @@ from eqbatch.system import ReactionSystem
 from eqbatch.uncertainty import MonteCarloResult, lnK_covariance, monte_carlo, monte_carlo_table
 
 __version__ = _core_version
+
+
+def release_memory() -> int:
+    """Return the output memory eqbatch keeps for reuse to the operating system.
+
+    Large result arrays (4 MiB and up) that Python has freed are kept, up to
+    1 GiB and for at most 30 s, so that the next large solve writes into memory
+    the process already holds instead of asking the system for fresh pages
+    (which can cost more than the solve). Returns the bytes released.
+    """
+    return _release_buffers()
+
 
 __all__ = [
     "AtomBalanceError",
@@ -58,5 +71,6 @@ __all__ = [
     "monte_carlo_table",
     "parse_equation",
     "parse_formula",
+    "release_memory",
     "sweep",
 ]

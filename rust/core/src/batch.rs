@@ -708,6 +708,78 @@ mod tests {
         );
     }
 
+    /// The contract the Python layer's reused output memory relies on: every
+    /// value of every case is written, whatever the path and the outcome.
+    #[test]
+    fn every_output_value_is_written() {
+        const POISON: u64 = 0x7ff8_dead_beef_0001; // a NaN no solve produces
+        let gas = reforming();
+        let nu = vec![-1.0, 1.0]; // A(g) = B(l)
+        let two_phase = System::new(nu, 1, 2, vec![Phase::Gas, Phase::Liquid], 1.0).unwrap();
+        for sys in [&gas, &two_phase] {
+            let (s, r) = (sys.n_species(), sys.n_reactions());
+            let n = 1000;
+            let mut feed = Vec::new();
+            let mut ln_k = Vec::new();
+            for k in 0..n {
+                let x = k as f64 / n as f64;
+                let mut row: Vec<f64> = (0..s).map(|i| 0.5 + x + i as f64).collect();
+                match k % 7 {
+                    1 => row[0] = -1.0,      // invalid input
+                    2 => row[s - 1] = 0.0,   // a zero pattern
+                    3 => row[1..].fill(0.0), // another one
+                    4 => row.fill(0.0),      // no feed at all: invalid
+                    _ => {}
+                }
+                feed.extend(row);
+                ln_k.extend((0..r).map(|j| -8.0 + 16.0 * x + j as f64));
+            }
+            let p = vec![3.0; n];
+            let x0 = vec![0.0; n * r];
+            for (max_iter, chain, start, threads) in [
+                (200, false, None, None),
+                (200, false, None, Some(1)),
+                (1, false, None, None),
+                (200, true, None, None),
+                (200, false, Some(&x0[..]), None),
+            ] {
+                let mut amounts = vec![f64::from_bits(POISON); n * s];
+                let mut extents = vec![f64::from_bits(POISON); n * r];
+                let mut st = vec![0xab_u8; n];
+                let mut it = vec![u32::MAX - 7; n];
+                let inputs = BatchInputs {
+                    n_cases: n,
+                    feed: &feed,
+                    ln_k: &ln_k,
+                    pressure: &p,
+                    start,
+                };
+                let mut out = BatchOutputs {
+                    amounts: &mut amounts,
+                    extents: &mut extents,
+                    mole_fractions: None,
+                    status: &mut st,
+                    iterations: &mut it,
+                };
+                let options = SolveOptions {
+                    max_iter,
+                    chain,
+                    ..SolveOptions::default()
+                };
+                solve_batch(sys, &inputs, &mut out, &options, threads).unwrap();
+                let what = format!(
+                    "S={s} max_iter={max_iter} chain={chain} x0={}",
+                    start.is_some()
+                );
+                assert!(amounts.iter().all(|v| v.to_bits() != POISON), "{what}");
+                assert!(extents.iter().all(|v| v.to_bits() != POISON), "{what}");
+                assert!(st.iter().all(|&v| v <= Status::Stalled as u8), "{what}");
+                assert!(it.iter().all(|&v| v <= max_iter), "{what}");
+                assert!(st.contains(&(Status::InvalidInput as u8)), "{what}");
+            }
+        }
+    }
+
     #[test]
     fn shape_errors_are_reported_not_panicked() {
         let sys = reforming();

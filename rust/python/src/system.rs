@@ -11,6 +11,7 @@ use numpy::{
 use pyo3::exceptions::PyValueError;
 use pyo3::prelude::*;
 
+use crate::buffers::output;
 use crate::error::to_py;
 
 type Solved<'py> = (
@@ -89,10 +90,11 @@ impl PySystem {
     ) -> PyResult<Solved<'py>> {
         let s = self.inner.n_species();
         let r = self.inner.n_reactions();
-        let amounts = PyArray2::<f64>::zeros(py, [n_cases, s], false);
-        let extents = PyArray2::<f64>::zeros(py, [n_cases, r], false);
-        let status = PyArray1::<u8>::zeros(py, n_cases, false);
-        let iterations = PyArray1::<u32>::zeros(py, n_cases, false);
+        // Large outputs reuse memory of results already freed (see buffers.rs).
+        let amounts = output::<f64, _>(py, [n_cases, s])?;
+        let extents = output::<f64, _>(py, [n_cases, r])?;
+        let status = output::<u8, _>(py, n_cases)?;
+        let iterations = output::<u32, _>(py, n_cases)?;
         {
             let feed = feed.as_slice()?;
             let ln_k = ln_k.as_slice()?;
