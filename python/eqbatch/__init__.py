@@ -41,9 +41,11 @@ def release_memory() -> int:
     """Return the output memory eqbatch keeps for reuse to the operating system.
 
     Large result arrays (4 MiB and up) that Python has freed are kept, up to
-    1 GiB and for at most 30 s, so that the next large solve writes into memory
-    the process already holds instead of asking the system for fresh pages
-    (which can cost more than the solve). Returns the bytes released.
+    1 GiB, so that the next large solve writes into memory the process already
+    holds instead of asking the system for fresh pages (which can cost more
+    than the solve). Blocks unused for 30 s are freed at the next solve; a
+    program that stops solving keeps them until it calls this or exits.
+    Returns the bytes the cache held.
     """
     return _release_buffers()
 

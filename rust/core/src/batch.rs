@@ -710,6 +710,7 @@ mod tests {
 
     /// The contract the Python layer's reused output memory relies on: every
     /// value of every case is written, whatever the path and the outcome.
+    /// (Infeasible cases share the invalid cases' NaN fill in `finish`.)
     #[test]
     fn every_output_value_is_written() {
         const POISON: u64 = 0x7ff8_dead_beef_0001; // a NaN no solve produces
@@ -736,15 +737,19 @@ mod tests {
             }
             let p = vec![3.0; n];
             let x0 = vec![0.0; n * r];
-            for (max_iter, chain, start, threads) in [
-                (200, false, None, None),
-                (200, false, None, Some(1)),
-                (1, false, None, None),
-                (200, true, None, None),
-                (200, false, Some(&x0[..]), None),
+            let x0_one = vec![0.0; r]; // one start for every case
+            for (max_iter, chain, start, threads, with_fractions) in [
+                (200, false, None, None, false),
+                (200, false, None, Some(1), true),
+                (1, false, None, None, false),
+                (0, false, None, None, true),
+                (200, true, None, None, false),
+                (200, false, Some(&x0[..]), None, false),
+                (200, false, Some(&x0_one[..]), Some(1), false),
             ] {
                 let mut amounts = vec![f64::from_bits(POISON); n * s];
                 let mut extents = vec![f64::from_bits(POISON); n * r];
+                let mut fractions = vec![f64::from_bits(POISON); n * s];
                 let mut st = vec![0xab_u8; n];
                 let mut it = vec![u32::MAX - 7; n];
                 let inputs = BatchInputs {
@@ -757,7 +762,7 @@ mod tests {
                 let mut out = BatchOutputs {
                     amounts: &mut amounts,
                     extents: &mut extents,
-                    mole_fractions: None,
+                    mole_fractions: with_fractions.then_some(&mut fractions[..]),
                     status: &mut st,
                     iterations: &mut it,
                 };
@@ -773,6 +778,9 @@ mod tests {
                 );
                 assert!(amounts.iter().all(|v| v.to_bits() != POISON), "{what}");
                 assert!(extents.iter().all(|v| v.to_bits() != POISON), "{what}");
+                if with_fractions {
+                    assert!(fractions.iter().all(|v| v.to_bits() != POISON), "{what}");
+                }
                 assert!(st.iter().all(|&v| v <= Status::Stalled as u8), "{what}");
                 assert!(it.iter().all(|&v| v <= max_iter), "{what}");
                 assert!(st.contains(&(Status::InvalidInput as u8)), "{what}");

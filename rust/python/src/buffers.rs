@@ -13,8 +13,9 @@
 //! back to a small process-wide cache instead, and the next solve of a
 //! similar size takes them: a loop of large solves (a Monte Carlo study, an
 //! optimiser's sweep) then maps its output memory once. The cache holds at
-//! most [`RETAIN`] bytes, drops blocks unused for [`KEEP_FOR`] (checked when
-//! the cache is used) and is emptied by `eqbatch.release_memory()`.
+//! most [`RETAIN`] bytes, drops blocks unused for [`KEEP_FOR`] (checked at
+//! every solve: a process that stops solving keeps them until it exits or
+//! calls `eqbatch.release_memory()`, which empties the cache).
 //!
 //! Fresh blocks are zeroed (by the operating system); a reused block holds
 //! the values of the result it last served. The core writes every value of
@@ -26,6 +27,7 @@ use std::time::{Duration, Instant};
 
 use numpy::ndarray::{ArrayView, Dimension, IntoDimension};
 use numpy::{Element, PyArray};
+use pyo3::exceptions::PyMemoryError;
 use pyo3::prelude::*;
 
 /// Outputs smaller than this come from numpy as usual (the heap reuses them).
@@ -91,7 +93,7 @@ fn lock() -> std::sync::MutexGuard<'static, Cache> {
 
 /// A block of at least `words` words: from the cache when one fits, else
 /// fresh and zeroed. Blocks keep their full length (the array uses a prefix).
-fn block(words: usize) -> Vec<u64> {
+fn block(words: usize) -> PyResult<Vec<u64>> {
     let now = Instant::now();
     let (found, gone) = {
         let mut cache = lock();
@@ -100,13 +102,30 @@ fn block(words: usize) -> Vec<u64> {
     };
     drop(gone);
     match found {
-        Some(block) => block,
+        Some(block) => Ok(block),
         None => fresh(words),
     }
 }
 
-fn fresh(words: usize) -> Vec<u64> {
-    let block = vec![0u64; words];
+/// Zeroed memory straight from the allocator (`calloc`: pages the system
+/// maps on first touch, not written here); out of memory is a `MemoryError`.
+fn fresh(words: usize) -> PyResult<Vec<u64>> {
+    let layout = std::alloc::Layout::array::<u64>(words)
+        .map_err(|_| PyMemoryError::new_err("output too large"))?;
+    // SAFETY: `layout` has a non-zero size (callers ask for at least
+    // POOLED_FROM bytes); a non-null result is `words` zeroed u64 values
+    // allocated by the global allocator with exactly the layout a
+    // `Vec<u64>` of capacity `words` frees with.
+    let block = unsafe {
+        let ptr = std::alloc::alloc_zeroed(layout).cast::<u64>();
+        if ptr.is_null() {
+            return Err(PyMemoryError::new_err(format!(
+                "cannot allocate {} MiB for the outputs",
+                (words * 8) >> 20
+            )));
+        }
+        Vec::from_raw_parts(ptr, words, words)
+    };
     // numpy asks for transparent huge pages on its large arrays; do the same
     // (fewer page faults and TLB misses; only advice, so errors are ignored).
     #[cfg(target_os = "linux")]
@@ -127,7 +146,7 @@ fn fresh(words: usize) -> Vec<u64> {
             }
         }
     }
-    block
+    Ok(block)
 }
 
 /// Owns one output block while any numpy view of it lives; returns it to
@@ -154,22 +173,33 @@ impl Drop for OutputBlock {
     }
 }
 
+/// Element types for which every bit pattern is a valid value, so that a
+/// reused block's left-over bytes are never undefined behaviour to read
+/// (not `bool`, for one), and whose alignment a `u64` block satisfies.
+pub trait AnyBits: Element + Copy {}
+impl AnyBits for f64 {}
+impl AnyBits for u32 {}
+impl AnyBits for u8 {}
+
 /// A C-contiguous array of `shape`, its memory from the cache when large.
 /// Its values are zeros (fresh) or left over from an earlier result
 /// (reused): the caller overwrites every one.
 pub fn output<'py, T, D>(py: Python<'py>, shape: D) -> PyResult<Bound<'py, PyArray<T, D::Dim>>>
 where
-    T: Element + Copy,
+    T: AnyBits,
     D: IntoDimension,
 {
+    const { assert!(std::mem::align_of::<T>() <= std::mem::align_of::<u64>()) };
     let dim = shape.into_dimension();
     let len = dim.size();
-    let bytes = len * std::mem::size_of::<T>();
+    let bytes = len
+        .checked_mul(std::mem::size_of::<T>())
+        .ok_or_else(|| PyMemoryError::new_err("output too large"))?;
     if bytes < POOLED_FROM {
+        expire();
         return Ok(PyArray::zeros(py, dim, false));
     }
-    debug_assert!(std::mem::align_of::<T>() <= std::mem::align_of::<u64>());
-    let mut words = block(bytes.div_ceil(8));
+    let mut words = block(bytes.div_ceil(8))?;
     let data = words.as_mut_ptr().cast::<T>();
     let owner = Bound::new(py, OutputBlock { words })?;
     // SAFETY: `data` points at `len` values of `T` inside the block that
@@ -182,7 +212,21 @@ where
     }
 }
 
-/// Return every cached block to the operating system; the bytes freed.
+/// Drop blocks unused for [`KEEP_FOR`] (every solve calls this, so a program
+/// that goes on with small solves after a large one gives the memory back).
+fn expire() {
+    let gone = {
+        let mut cache = lock();
+        if cache.free.is_empty() {
+            return;
+        }
+        cache.trim(Instant::now(), RETAIN)
+    };
+    drop(gone);
+}
+
+/// Free every cached block; the bytes the cache held (the allocator may keep
+/// part of it for the process rather than return it to the system).
 #[pyfunction]
 pub fn release_buffers() -> usize {
     let gone = {
