@@ -91,19 +91,15 @@ pub fn choose_basis(
             continue;
         }
         if best != row {
-            for k in 0..s {
-                basis_stoich.swap(row * s + k, best * s + k);
-            }
-            for k in 0..dim {
-                transform.swap(row * dim + k, best * dim + k);
-            }
+            swap_rows(basis_stoich, s, row, best);
+            swap_rows(transform, dim, row, best);
         }
         let inv = 1.0 / basis_stoich[row * s + species];
-        for k in 0..s {
-            basis_stoich[row * s + k] *= inv;
+        for v in &mut basis_stoich[row * s..(row + 1) * s] {
+            *v *= inv;
         }
-        for k in 0..dim {
-            transform[row * dim + k] *= inv;
+        for v in &mut transform[row * dim..(row + 1) * dim] {
+            *v *= inv;
         }
         basis_stoich[row * s + species] = 1.0;
         for r in 0..dim {
@@ -112,11 +108,13 @@ pub fn choose_basis(
             }
             let factor = basis_stoich[r * s + species];
             if factor != 0.0 {
-                for k in 0..s {
-                    basis_stoich[r * s + k] -= factor * basis_stoich[row * s + k];
+                let (target, pivot) = two_rows(basis_stoich, s, r, row);
+                for (t, p) in target.iter_mut().zip(pivot) {
+                    *t -= factor * p;
                 }
-                for k in 0..dim {
-                    transform[r * dim + k] -= factor * transform[row * dim + k];
+                let (target, pivot) = two_rows(transform, dim, r, row);
+                for (t, p) in target.iter_mut().zip(pivot) {
+                    *t -= factor * p;
                 }
                 basis_stoich[r * s + species] = 0.0;
             }
@@ -132,6 +130,25 @@ pub fn choose_basis(
         }
     }
     (row == dim).then_some(examined)
+}
+
+/// Rows `a` (mutable) and `b` (`a != b`) of a row-major matrix of `width` columns.
+#[inline(always)]
+fn two_rows(m: &mut [f64], width: usize, a: usize, b: usize) -> (&mut [f64], &[f64]) {
+    if a < b {
+        let (head, tail) = m.split_at_mut(b * width);
+        (&mut head[a * width..(a + 1) * width], &tail[..width])
+    } else {
+        let (head, tail) = m.split_at_mut(a * width);
+        (&mut tail[..width], &head[b * width..(b + 1) * width])
+    }
+}
+
+/// Swap rows `a < b` of a row-major matrix of `width` columns.
+#[inline(always)]
+fn swap_rows(m: &mut [f64], width: usize, a: usize, b: usize) {
+    let (head, tail) = m.split_at_mut(b * width);
+    head[a * width..(a + 1) * width].swap_with_slice(&mut tail[..width]);
 }
 
 #[cfg(test)]

@@ -162,10 +162,20 @@ struct Scratch<'a> {
     trial: &'a mut [f64],
     trial_ln: &'a mut [f64],
     change: &'a mut [f64],
+    /// Per component species (the first `S - dim` entries): its chemical
+    /// potential term and its 1 / n, gathered once per use.
+    comp_mu: &'a mut [f64],
+    comp_w: &'a mut [f64],
     order: &'a mut [usize],
     pivot_of: &'a mut [usize],
+    /// The species that are no basis reaction's pivot, in index order.
+    components: &'a mut [usize],
     pivots: &'a mut [usize],
     basis_stoich: &'a mut [f64],
+    /// `basis_stoich` restricted to the component columns (`dim x (S - dim)`):
+    /// each basis reaction holds its pivot with coefficient 1 and no other
+    /// pivot, so these columns are all the rest of it.
+    comp_stoich: &'a mut [f64],
     transform: &'a mut [f64],
     ln_k_face: &'a mut [f64],
     ln_k_basis: &'a mut [f64],
@@ -200,7 +210,7 @@ pub struct Workspace {
 }
 
 /// Number of per-species `f64` arrays in a [`Scratch`].
-const SPECIES_ARRAYS: usize = 6;
+const SPECIES_ARRAYS: usize = 8;
 /// Number of per-reaction `f64` arrays in a [`Scratch`].
 const REACTION_ARRAYS: usize = 12;
 
@@ -210,11 +220,11 @@ impl Workspace {
         let r = system.n_reactions();
         Workspace {
             species: vec![0.0; SPECIES_ARRAYS * s],
-            species_idx: vec![0; 2 * s],
+            species_idx: vec![0; 3 * s],
             reactions: vec![0.0; REACTION_ARRAYS * r],
             reactions_idx: vec![0; r],
             flags: vec![false; 2 * r],
-            by_species: vec![0.0; r * s],
+            by_species: vec![0.0; 2 * r * s],
             square: vec![0.0; 2 * r * r],
             n_species: s,
             n_reactions: r,
@@ -223,9 +233,10 @@ impl Workspace {
 
     fn scratch(&mut self) -> Scratch<'_> {
         let (s, r) = (self.n_species, self.n_reactions);
-        let [amounts, ln_amount, inv_amount, trial, trial_ln, change] =
+        let [amounts, ln_amount, inv_amount, trial, trial_ln, change, comp_mu, comp_w] =
             split_n::<SPECIES_ARRAYS, _>(&mut self.species, s);
-        let [order, pivot_of] = split_n::<2, _>(&mut self.species_idx, s);
+        let [order, pivot_of, components] = split_n::<3, _>(&mut self.species_idx, s);
+        let [basis_stoich, comp_stoich] = split_n::<2, _>(&mut self.by_species, r * s);
         let [ln_k_face, ln_k_basis, residual, trial_residual, step, du, scale, gas_change, liquid_change, basis_step, face_step, extents] =
             split_n::<REACTION_ARRAYS, _>(&mut self.reactions, r);
         let [on_log_path, frozen] = split_n::<2, _>(&mut self.flags, r);
@@ -237,10 +248,14 @@ impl Workspace {
             trial,
             trial_ln,
             change,
+            comp_mu,
+            comp_w,
             order,
             pivot_of,
+            components,
             pivots: &mut self.reactions_idx,
-            basis_stoich: &mut self.by_species,
+            basis_stoich,
+            comp_stoich,
             transform,
             ln_k_face,
             ln_k_basis,
@@ -335,14 +350,15 @@ pub(crate) fn solve_fixed<const R: usize, const S: usize, const G: bool>(
     extents_out: &mut [f64],
 ) -> (Status, u32) {
     let mut species = [[0.0; S]; SPECIES_ARRAYS];
-    let mut species_idx = [[0usize; S]; 2];
+    let mut species_idx = [[0usize; S]; 3];
     let mut reactions = [[0.0; R]; REACTION_ARRAYS];
     let mut pivots = [0usize; R];
     let mut flags = [[false; R]; 2];
-    let mut by_species = [[0.0; S]; R];
+    let mut by_species = [[[0.0; S]; R]; 2];
     let mut square = [[[0.0; R]; R]; 2];
-    let [amounts, ln_amount, inv_amount, trial, trial_ln, change] = &mut species;
-    let [order, pivot_of] = &mut species_idx;
+    let [amounts, ln_amount, inv_amount, trial, trial_ln, change, comp_mu, comp_w] = &mut species;
+    let [order, pivot_of, components] = &mut species_idx;
+    let [basis_stoich, comp_stoich] = &mut by_species;
     let [ln_k_face, ln_k_basis, residual, trial_residual, step, du, scale, gas_change, liquid_change, basis_step, face_step, extents] =
         &mut reactions;
     let [on_log_path, frozen] = &mut flags;
@@ -354,10 +370,14 @@ pub(crate) fn solve_fixed<const R: usize, const S: usize, const G: bool>(
         trial,
         trial_ln,
         change,
+        comp_mu,
+        comp_w,
         order,
         pivot_of,
+        components,
         pivots: &mut pivots,
-        basis_stoich: by_species.as_flattened_mut(),
+        basis_stoich: basis_stoich.as_flattened_mut(),
+        comp_stoich: comp_stoich.as_flattened_mut(),
         transform: transform.as_flattened_mut(),
         ln_k_face,
         ln_k_basis,
@@ -550,6 +570,11 @@ fn run(
     let mut ln_totals = totals.map(|n| if n > 0.0 { n.ln() } else { 0.0 });
 
     let basis_stoich = &mut sc.basis_stoich[..dim * s];
+    // Each basis reaction is its pivot species plus some of the `nc`
+    // components (see `comp_stoich`): the loops below visit only those.
+    let nc = s - dim;
+    let comp_stoich = &mut sc.comp_stoich[..dim * nc];
+    let components = &mut sc.components[..nc];
     let transform = &mut sc.transform[..dim * dim];
     let hessian = &mut sc.hessian[..dim * dim];
     let mut basis_ready = false;
@@ -558,9 +583,22 @@ fn run(
     let mut iterations = 0;
     loop {
         // 1. The per-case stoichiometric basis, re-derived only when the
-        //    abundance order changes within the part that chose it.
+        //    abundance order changes within the part that chose it, and
+        //    then only if the `dim` least abundant species are no longer
+        //    the pivots (the same pivots in another order give the same
+        //    reactions, in another order).
         let first_moved = sort_by_amount(amounts, &mut sc.order[..s]);
-        if first_moved < basis_prefix || !basis_ready {
+        if basis_ready && first_moved < basis_prefix {
+            if sc.order[..dim]
+                .iter()
+                .all(|&i| sc.pivot_of[i] != usize::MAX)
+            {
+                basis_prefix = dim;
+            } else {
+                basis_ready = false;
+            }
+        }
+        if !basis_ready {
             residual_known = false;
             match choose_basis(
                 &face.stoich,
@@ -574,6 +612,19 @@ fn run(
             ) {
                 Some(examined) => basis_prefix = examined,
                 None => return (Status::Stalled, iterations),
+            }
+            let mut c = 0;
+            for i in 0..s {
+                if sc.pivot_of[i] == usize::MAX {
+                    components[c] = i;
+                    c += 1;
+                }
+            }
+            debug_assert_eq!(c, nc);
+            for j in 0..dim {
+                for c in 0..nc {
+                    comp_stoich[j * nc + c] = basis_stoich[j * s + components[c]];
+                }
             }
             for j in 0..dim {
                 let mut v = 0.0;
@@ -598,17 +649,25 @@ fn run(
         // 2. Residuals ln Q - ln K of the basis reactions (already known from
         //    the line search when the basis has not changed).
         let mut worst = 0.0_f64;
+        if !residual_known {
+            for c in 0..nc {
+                let i = components[c];
+                sc.comp_mu[c] = sc.ln_amount[i] - ln_totals[phase_of(i)];
+            }
+        }
         for j in 0..dim {
             let res = if residual_known {
                 sc.residual[j]
             } else {
-                let row = &basis_stoich[j * s..(j + 1) * s];
-                let mut res = sc.gas_change[j] * ln_pressure - sc.ln_k_basis[j];
+                let row = &comp_stoich[j * nc..(j + 1) * nc];
+                let p = sc.pivots[j];
+                let mut res = sc.gas_change[j] * ln_pressure - sc.ln_k_basis[j]
+                    + (sc.ln_amount[p] - ln_totals[phase_of(p)]);
                 // No test for zero coefficients: species absent from a reaction
                 // carry a finite log (0 for unreachable ones), and a branch per
                 // term costs more than the multiplication.
-                for i in 0..s {
-                    res += row[i] * (sc.ln_amount[i] - ln_totals[phase_of(i)]);
+                for c in 0..nc {
+                    res += row[c] * sc.comp_mu[c];
                 }
                 sc.residual[j] = res;
                 res
@@ -646,12 +705,20 @@ fn run(
         } else {
             0.0
         };
+        for c in 0..nc {
+            sc.comp_w[c] = sc.inv_amount[components[c]];
+        }
         for j in 0..dim {
+            let row_j = &comp_stoich[j * nc..(j + 1) * nc];
             for k in j..dim {
+                let row_k = &comp_stoich[k * nc..(k + 1) * nc];
                 let mut v = -sc.gas_change[j] * sc.gas_change[k] * inv_gas
                     - sc.liquid_change[j] * sc.liquid_change[k] * inv_liquid;
-                for i in 0..s {
-                    v += basis_stoich[j * s + i] * basis_stoich[k * s + i] * sc.inv_amount[i];
+                for c in 0..nc {
+                    v += row_j[c] * row_k[c] * sc.comp_w[c];
+                }
+                if j == k {
+                    v += sc.inv_amount[sc.pivots[j]];
                 }
                 if sc.frozen[j] || sc.frozen[k] {
                     v = if j == k { 1.0 } else { 0.0 };
@@ -697,22 +764,19 @@ fn run(
         if slope.is_nan() || slope >= 0.0 {
             return (Status::Stalled, iterations);
         }
-        for i in 0..s {
-            let pivot_row = sc.pivot_of[i];
-            let lin = if pivot_row != usize::MAX {
-                if sc.on_log_path[pivot_row] {
-                    continue;
-                }
-                sc.step[pivot_row]
-            } else {
-                let mut lin = 0.0;
-                for j in 0..dim {
-                    lin += basis_stoich[j * s + i] * sc.step[j];
-                }
-                lin
-            };
+        for j in 0..dim {
+            let lin = sc.step[j];
+            if !sc.on_log_path[j] && lin < 0.0 {
+                alpha_max = alpha_max.min(TO_BOUNDARY * amounts[sc.pivots[j]] / -lin);
+            }
+        }
+        for c in 0..nc {
+            let mut lin = 0.0;
+            for j in 0..dim {
+                lin += comp_stoich[j * nc + c] * sc.step[j];
+            }
             if lin < 0.0 {
-                alpha_max = alpha_max.min(TO_BOUNDARY * amounts[i] / -lin);
+                alpha_max = alpha_max.min(TO_BOUNDARY * amounts[components[c]] / -lin);
             }
         }
 
@@ -732,21 +796,21 @@ fn run(
                 sc.basis_step[j] = d;
                 first_order += sc.residual[j] * d;
             }
+            for j in 0..dim {
+                sc.change[sc.pivots[j]] = sc.basis_step[j];
+            }
+            for c in 0..nc {
+                let mut d = 0.0;
+                for j in 0..dim {
+                    d += comp_stoich[j * nc + c] * sc.basis_step[j];
+                }
+                sc.change[components[c]] = d;
+            }
             let mut feasible = true;
             let mut largest_relative = 0.0_f64;
             trial_totals = [0.0; N_PHASES];
             for i in 0..s {
-                let pivot_row = sc.pivot_of[i];
-                let d = if pivot_row != usize::MAX {
-                    sc.basis_step[pivot_row]
-                } else {
-                    let mut d = 0.0;
-                    for j in 0..dim {
-                        d += basis_stoich[j * s + i] * sc.basis_step[j];
-                    }
-                    d
-                };
-                sc.change[i] = d;
+                let d = sc.change[i];
                 let new = amounts[i] + d;
                 if d != 0.0 {
                     // (false for NaN as well)
@@ -766,11 +830,17 @@ fn run(
                 trial_ln_totals = trial_totals.map(|n| if n > 0.0 { n.ln() } else { 0.0 });
                 // Directional derivative of g along the path at the trial point.
                 let mut derivative = 0.0;
+                for c in 0..nc {
+                    let i = components[c];
+                    sc.comp_mu[c] = sc.trial_ln[i] - trial_ln_totals[phase_of(i)];
+                }
                 for j in 0..dim {
-                    let row = &basis_stoich[j * s..(j + 1) * s];
-                    let mut res = sc.gas_change[j] * ln_pressure - sc.ln_k_basis[j];
-                    for i in 0..s {
-                        res += row[i] * (sc.trial_ln[i] - trial_ln_totals[phase_of(i)]);
+                    let row = &comp_stoich[j * nc..(j + 1) * nc];
+                    let p = sc.pivots[j];
+                    let mut res = sc.gas_change[j] * ln_pressure - sc.ln_k_basis[j]
+                        + (sc.trial_ln[p] - trial_ln_totals[phase_of(p)]);
+                    for c in 0..nc {
+                        res += row[c] * sc.comp_mu[c];
                     }
                     sc.trial_residual[j] = res;
                     let velocity = if sc.on_log_path[j] {
