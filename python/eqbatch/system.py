@@ -536,8 +536,9 @@ class ReactionSystem:
             Pressure, bar. Defaults to ``P0``.
         tol : float, default 1e-10
             Convergence: ``|ln Q - ln K| <= tol`` for every reaction of an
-            independent set: the reactions as given (small all-gas systems,
-            while every species holds at least 1e-9 of the gas), otherwise
+            independent set: the reactions as given (all-gas systems of up to
+            20 reactions and 28 species, solved in batches, while every
+            species holds at least 1e-9 of the gas), otherwise
             the same reactions rewritten per case in terms of the most
             abundant species, which keeps trace species precise.
         max_iter : int, default 200

@@ -9,7 +9,7 @@
 //! * [`face`]: which species a feed can reach (the zero-pattern analysis);
 //! * [`basis`]: the per-case stoichiometric basis that keeps trace species precise;
 //! * [`solver`]: the damped Newton solve of one case;
-//! * [`lanes`]: the batch path for small all-gas systems, eight cases per vector group;
+//! * [`lanes`]: the batch path for all-gas systems, eight cases per vector group;
 //! * [`batch`]: the parallel batch driver;
 //! * [`sensitivity`]: exact derivatives of converged cases;
 //! * [`lp`], [`linalg`]: the small numerical kernels they share.
