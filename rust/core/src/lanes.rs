@@ -319,6 +319,13 @@ fn solve_group<const R: usize, const S: usize, const EXACT: bool>(
     let mut ln_total = [0.0; LANES];
     let mut residual = [[0.0_f64; LANES]; R];
     let mut iterations = [0u32; LANES];
+    // Work arrays that live across iterations (with capacity sizes they are
+    // too large to clear at every step): only their first `r` or `s` rows are
+    // used, each written before it is read.
+    let mut hess = [[[0.0; LANES]; R]; R];
+    let mut change = [[0.0; LANES]; S];
+    let mut trial = [[0.0; LANES]; S];
+    let mut trial_ln = [[0.0; LANES]; S];
     let mut next = 0;
 
     loop {
@@ -458,7 +465,6 @@ fn solve_group<const R: usize, const S: usize, const EXACT: bool>(
         }
 
         // Newton system per lane: H step = -residual, by L D L^T.
-        let mut hess = [[[0.0; LANES]; R]; R];
         for j in 0..r {
             for k in j..r {
                 let mm = moles[j] * moles[k];
@@ -490,7 +496,9 @@ fn solve_group<const R: usize, const S: usize, const EXACT: bool>(
         for l in 0..LANES {
             good[l] &= slope[l] < 0.0;
         }
-        let mut change = [[0.0; LANES]; S];
+        for row in &mut change[..s] {
+            *row = [0.0; LANES];
+        }
         let mut alpha = [1.0_f64; LANES];
         for i in 0..s {
             for j in 0..r {
@@ -522,11 +530,10 @@ fn solve_group<const R: usize, const S: usize, const EXACT: bool>(
             if !pending.iter().any(|&p| p) {
                 break;
             }
-            let mut trial = [[0.0; LANES]; S];
             let mut trial_total = [0.0; LANES];
             let mut lowest = [f64::INFINITY; LANES];
             let mut largest = [0.0_f64; LANES];
-            let mut trial_ln = ln_n;
+            trial_ln[..s].copy_from_slice(&ln_n[..s]);
             for i in 0..s {
                 for l in 0..LANES {
                     let d = alpha[l] * change[i][l];
