@@ -508,7 +508,6 @@ def main(argv: list[str] | None = None) -> int:
         "(5.27 iterations) |",
         "| parallel zero-pattern scan, word compare of pattern keys, 256-case lane tasks | "
         "about 5 % on two threads |",
-        "",
         "| general path: loops over the component columns of the basis reactions only (each "
         "holds its pivot with coefficient 1 and no other pivot), basis kept while its pivots are "
         "still the least abundant species, row operations on slices | workload (c) at 10 "

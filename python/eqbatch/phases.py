@@ -153,9 +153,7 @@ def repair_vanished_phases(system, result) -> None:
                 continue
             result.amounts[k] = amounts
             result.extents[k] = xi
-            totals = {p: amounts[phases == p].sum() for p in ("gas", "liquid")}
-            result.mole_fractions[k] = [
-                amounts[i] / totals[p] if totals[p] > 0 else 0.0 for i, p in enumerate(phases)
-            ]
             result.status[k] = status
             break
+    # Mole fractions follow from the repaired amounts when first read.
+    result.mole_fractions = None

@@ -123,7 +123,8 @@ class EquilibriumResult:
         return self._mole_fractions
 
     @mole_fractions.setter
-    def mole_fractions(self, value: np.ndarray) -> None:
+    def mole_fractions(self, value: np.ndarray | None) -> None:
+        # None: computed again from the amounts when next read.
         self._mole_fractions = value
 
     def __len__(self) -> int:

@@ -15,7 +15,7 @@ use rayon::prelude::*;
 use crate::error::CoreError;
 use crate::face::{analyse, Face, FaceError};
 use crate::lanes::{lane_kernel_for, LaneCase};
-use crate::solver::{kernel_for, solve_case, FixedKernel, SolveOptions, Workspace};
+use crate::solver::{kernel_for, solve_on_face, FixedKernel, SolveOptions, Workspace};
 use crate::status::Status;
 use crate::system::{Phase, System, N_PHASES};
 
@@ -279,14 +279,23 @@ pub fn solve_batch(
         return Ok(());
     }
     let serial = threads == Some(1) || n <= CHUNK;
-    let faces = if serial {
-        faces_for(system, inputs, feed_rows, false)
-    } else {
-        let mut table = None;
-        on_threads(threads, || {
-            table = Some(faces_for(system, inputs, feed_rows, true))
-        })?;
-        table.unwrap_or_default()
+    // One pool for the whole call (`None`: rayon's global pool).
+    let pool = if serial { None } else { pool_for(threads)? };
+    let faces = match &pool {
+        Some(pool) => pool.install(|| faces_for(system, inputs, feed_rows, true)),
+        None => faces_for(system, inputs, feed_rows, !serial),
+    };
+    // A case's inputs, broadcast rows included.
+    let case_inputs = |case: usize| {
+        (
+            feed_rows.row(inputs.feed, case),
+            k_rows.row(inputs.ln_k, case),
+            p_rows.row(inputs.pressure, case)[0],
+            inputs
+                .start
+                .zip(start_rows)
+                .map(|(x0, rows)| rows.row(x0, case)),
+        )
     };
     let gas_only = system.phases().iter().all(|&p| p == Phase::Gas);
     let kernel = kernel_for(r, s, gas_only);
@@ -347,10 +356,7 @@ pub fn solve_batch(
             let mut cases: Vec<LaneCase> = Vec::with_capacity(n_local);
             let mut eligible = [false; LANE_CHUNK];
             for local in 0..n_local {
-                let case = chunk * chunk_len + local;
-                let feed = feed_rows.row(inputs.feed, case);
-                let ln_k = k_rows.row(inputs.ln_k, case);
-                let pressure = p_rows.row(inputs.pressure, case)[0];
+                let (feed, ln_k, pressure, start) = case_inputs(chunk * chunk_len + local);
                 if !case_is_valid(feed, ln_k, pressure) {
                     continue;
                 }
@@ -360,10 +366,7 @@ pub fn solve_batch(
                         cases.push(LaneCase {
                             row: local,
                             feed,
-                            start: inputs
-                                .start
-                                .zip(start_rows)
-                                .map(|(x0, rows)| rows.row(x0, case)),
+                            start,
                             ln_k,
                             pressure,
                             face,
@@ -377,14 +380,7 @@ pub fn solve_batch(
                 let a = &mut amounts[local * s..(local + 1) * s];
                 let e = &mut extents[local * r..(local + 1) * r];
                 if !eligible[local] {
-                    let case = chunk * chunk_len + local;
-                    let feed = feed_rows.row(inputs.feed, case);
-                    let ln_k = k_rows.row(inputs.ln_k, case);
-                    let pressure = p_rows.row(inputs.pressure, case)[0];
-                    let start = inputs
-                        .start
-                        .zip(start_rows)
-                        .map(|(x0, rows)| rows.row(x0, case));
+                    let (feed, ln_k, pressure, start) = case_inputs(chunk * chunk_len + local);
                     outcome[local] = ws.solve(
                         system, &faces, feed, ln_k, pressure, start, options, kernel, a, e,
                     );
@@ -401,14 +397,7 @@ pub fn solve_batch(
         }
         let mut previous_converged = false;
         for local in 0..status.len() {
-            let case = chunk * chunk_len + local;
-            let feed = feed_rows.row(inputs.feed, case);
-            let ln_k = k_rows.row(inputs.ln_k, case);
-            let pressure = p_rows.row(inputs.pressure, case)[0];
-            let start = inputs
-                .start
-                .zip(start_rows)
-                .map(|(x0, rows)| rows.row(x0, case));
+            let (feed, ln_k, pressure, start) = case_inputs(chunk * chunk_len + local);
             let chained = options.chain && start.is_none() && previous_converged;
             let amounts = &mut amounts[local * s..(local + 1) * s];
             // The cases before this one in the chunk are finished: a chained
@@ -507,31 +496,37 @@ pub fn solve_batch(
             }
         }
     };
-    let spread = |workers: usize| workers.min(work.len()).max(1);
+    // The caller and up to `workers - 1` pool threads drain the chunks.
+    let workers = pool
+        .as_ref()
+        .map_or_else(rayon::current_num_threads, |p| p.current_num_threads())
+        .min(work.len())
+        .max(1);
+    match &pool {
+        Some(pool) => pool.in_place_scope(|scope| spread(scope, workers, &drain)),
+        None => rayon::in_place_scope(|scope| spread(scope, workers, &drain)),
+    }
+    Ok(())
+}
+
+/// Run `drain` on `workers - 1` threads of `scope`'s pool and on the caller.
+fn spread<'scope>(scope: &rayon::Scope<'scope>, workers: usize, drain: &'scope (impl Fn() + Sync)) {
+    for _ in 1..workers {
+        scope.spawn(move |_| drain());
+    }
+    drain();
+}
+
+/// A pool of `k` threads for `Some(k)`; `None` for rayon's global pool.
+fn pool_for(threads: Option<usize>) -> Result<Option<rayon::ThreadPool>, CoreError> {
     match threads {
         Some(0) => Err(CoreError::BadOption("threads must be at least 1".into())),
-        Some(k) => {
-            let pool = rayon::ThreadPoolBuilder::new()
-                .num_threads(k)
-                .build()
-                .map_err(|e| CoreError::BadOption(format!("cannot start {k} threads: {e}")))?;
-            pool.in_place_scope(|scope| {
-                for _ in 1..spread(k) {
-                    scope.spawn(|_| drain());
-                }
-                drain();
-            });
-            Ok(())
-        }
-        None => {
-            rayon::in_place_scope(|scope| {
-                for _ in 1..spread(rayon::current_num_threads()) {
-                    scope.spawn(|_| drain());
-                }
-                drain();
-            });
-            Ok(())
-        }
+        Some(k) => rayon::ThreadPoolBuilder::new()
+            .num_threads(k)
+            .build()
+            .map(Some)
+            .map_err(|e| CoreError::BadOption(format!("cannot start {k} threads: {e}"))),
+        None => Ok(None),
     }
 }
 
@@ -541,21 +536,11 @@ pub(crate) fn on_threads(
     threads: Option<usize>,
     work: impl FnOnce() + Send,
 ) -> Result<(), CoreError> {
-    match threads {
-        Some(0) => Err(CoreError::BadOption("threads must be at least 1".into())),
-        Some(k) => {
-            let pool = rayon::ThreadPoolBuilder::new()
-                .num_threads(k)
-                .build()
-                .map_err(|e| CoreError::BadOption(format!("cannot start {k} threads: {e}")))?;
-            pool.install(work);
-            Ok(())
-        }
-        None => {
-            work();
-            Ok(())
-        }
+    match pool_for(threads)? {
+        Some(pool) => pool.install(work),
+        None => work(),
     }
+    Ok(())
 }
 
 /// One thread's state: its workspace and its place in the face table.
@@ -590,24 +575,19 @@ impl ChunkState {
             return (Status::InvalidInput, 0);
         }
         match self.faces.face(faces, feed) {
-            Some(Ok(face)) => match kernel {
-                // Specialised kernels run on full faces only (no unreachable species).
-                Some(kernel) if face.dim == system.n_reactions() => kernel(
-                    system, face, feed, ln_k, pressure, start, options, amounts, extents,
-                ),
-                _ => solve_case(
-                    system,
-                    face,
-                    feed,
-                    ln_k,
-                    pressure,
-                    start,
-                    options,
-                    &mut self.workspace,
-                    amounts,
-                    extents,
-                ),
-            },
+            Some(Ok(face)) => solve_on_face(
+                system,
+                face,
+                feed,
+                ln_k,
+                pressure,
+                start,
+                options,
+                kernel,
+                &mut self.workspace,
+                amounts,
+                extents,
+            ),
             _ => (Status::Infeasible, 0),
         }
     }

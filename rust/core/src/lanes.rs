@@ -38,7 +38,7 @@
 use crate::face::Face;
 use crate::ln::ln_normal;
 use crate::solver::{
-    for_small_systems, interior_start, solve_case, solve_fixed, sufficient_decrease, warm_start,
+    for_small_systems, interior_start, kernel_for, solve_on_face, sufficient_decrease, warm_start,
     SolveOptions, Workspace, MODEL_TRUST, PHI_SERIES,
 };
 use crate::status::Status;
@@ -291,7 +291,9 @@ fn solve_group<const R: usize, const S: usize, const EXACT: bool>(
         (system.n_reactions(), system.n_species())
     };
     assert!(r <= R && s <= S, "system larger than the kernel's capacity");
-    // Workspace of the general solve, for hand-backs of non-exact kernels.
+    // Hand-backs: the specialised solve for this size if there is one, else
+    // the general one in a workspace made on first use.
+    let fixed = kernel_for(r, s, true);
     let mut workspace: Option<Workspace> = None;
     // Full faces share the reactions as given (identity basis).
     let mut nu = [[0.0; S]; R];
@@ -375,32 +377,19 @@ fn solve_group<const R: usize, const S: usize, const EXACT: bool>(
                         };
                         let amounts = &mut amounts_out[case.row * s..(case.row + 1) * s];
                         let extents = &mut extents_out[case.row * r..(case.row + 1) * r];
-                        let (status, more) = if EXACT {
-                            solve_fixed::<R, S, true>(
-                                system,
-                                case.face,
-                                case.feed,
-                                case.ln_k,
-                                case.pressure,
-                                Some(&here[..r]),
-                                &rest,
-                                amounts,
-                                extents,
-                            )
-                        } else {
-                            solve_case(
-                                system,
-                                case.face,
-                                case.feed,
-                                case.ln_k,
-                                case.pressure,
-                                Some(&here[..r]),
-                                &rest,
-                                workspace.get_or_insert_with(|| Workspace::new(system)),
-                                amounts,
-                                extents,
-                            )
-                        };
+                        let (status, more) = solve_on_face(
+                            system,
+                            case.face,
+                            case.feed,
+                            case.ln_k,
+                            case.pressure,
+                            Some(&here[..r]),
+                            &rest,
+                            fixed,
+                            workspace.get_or_insert_with(|| Workspace::new(system)),
+                            amounts,
+                            extents,
+                        );
                         out[case.row] = (status, used + more);
                     }
                     Lane::Idle => {}
@@ -720,7 +709,7 @@ mod tests {
     use super::*;
     use crate::face::analyse;
     use crate::fixtures::reforming;
-    use crate::solver::kernel_for;
+    use crate::solver::solve_case;
 
     /// 29 cases (not a multiple of the lane count): the benchmark's ranges
     /// (Xu-Froment ln K, from memory) plus constants far enough out that

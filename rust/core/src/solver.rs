@@ -338,7 +338,7 @@ pub type FixedKernel = fn(
 ) -> (Status, u32);
 
 #[allow(clippy::too_many_arguments)]
-pub(crate) fn solve_fixed<const R: usize, const S: usize, const G: bool>(
+fn solve_fixed<const R: usize, const S: usize, const G: bool>(
     system: &System,
     face: &Face,
     feed: &[f64],
@@ -401,6 +401,33 @@ pub(crate) fn solve_fixed<const R: usize, const S: usize, const G: bool>(
     amounts_out.copy_from_slice(&sc.amounts[..S]);
     extents_out.copy_from_slice(&sc.extents[..R]);
     out
+}
+
+/// One valid case on its face: the specialised `kernel` where there is one
+/// and the face is full (no unreachable species), else the general path in
+/// `ws`; the same results either way.
+#[allow(clippy::too_many_arguments)]
+pub(crate) fn solve_on_face(
+    system: &System,
+    face: &Face,
+    feed: &[f64],
+    ln_k: &[f64],
+    pressure: f64,
+    start: Option<&[f64]>,
+    options: &SolveOptions,
+    kernel: Option<FixedKernel>,
+    ws: &mut Workspace,
+    amounts: &mut [f64],
+    extents: &mut [f64],
+) -> (Status, u32) {
+    match kernel {
+        Some(kernel) if face.dim == system.n_reactions() => kernel(
+            system, face, feed, ln_k, pressure, start, options, amounts, extents,
+        ),
+        _ => solve_case(
+            system, face, feed, ln_k, pressure, start, options, ws, amounts, extents,
+        ),
+    }
 }
 
 /// Every (reactions, species) pair with specialised kernels: the small
@@ -507,6 +534,42 @@ pub(crate) fn interior_start(
     }
     for j in 0..r {
         extents[j] = t * face.direction[j];
+    }
+}
+
+/// `ln Q - ln K` of every basis reaction (into `out`) at the point whose
+/// logarithms are `ln_n`, with phase totals `ln_totals`: the reaction's pivot
+/// term, then its component terms (gathered into `mu` first). No test for
+/// zero coefficients: species absent from a reaction carry a finite log (0
+/// for unreachable ones), and a branch per term costs more than the
+/// multiplication.
+#[inline(always)]
+#[allow(clippy::too_many_arguments)]
+fn basis_residuals(
+    out: &mut [f64],
+    mu: &mut [f64],
+    ln_n: &[f64],
+    ln_totals: &[f64; N_PHASES],
+    phase_of: impl Fn(usize) -> usize,
+    pivots: &[usize],
+    components: &[usize],
+    comp_stoich: &[f64],
+    gas_change: &[f64],
+    ln_k_basis: &[f64],
+    ln_pressure: f64,
+) {
+    let nc = components.len();
+    for (m, &i) in mu.iter_mut().zip(components) {
+        *m = ln_n[i] - ln_totals[phase_of(i)];
+    }
+    for (j, res) in out.iter_mut().enumerate() {
+        let p = pivots[j];
+        let mut v =
+            gas_change[j] * ln_pressure - ln_k_basis[j] + (ln_n[p] - ln_totals[phase_of(p)]);
+        for (c, m) in comp_stoich[j * nc..(j + 1) * nc].iter().zip(mu.iter()) {
+            v += c * m;
+        }
+        *res = v;
     }
 }
 
@@ -650,28 +713,22 @@ fn run(
         //    the line search when the basis has not changed).
         let mut worst = 0.0_f64;
         if !residual_known {
-            for c in 0..nc {
-                let i = components[c];
-                sc.comp_mu[c] = sc.ln_amount[i] - ln_totals[phase_of(i)];
-            }
+            basis_residuals(
+                &mut sc.residual[..dim],
+                &mut sc.comp_mu[..nc],
+                sc.ln_amount,
+                &ln_totals,
+                phase_of,
+                &sc.pivots[..dim],
+                components,
+                comp_stoich,
+                &sc.gas_change[..dim],
+                &sc.ln_k_basis[..dim],
+                ln_pressure,
+            );
         }
         for j in 0..dim {
-            let res = if residual_known {
-                sc.residual[j]
-            } else {
-                let row = &comp_stoich[j * nc..(j + 1) * nc];
-                let p = sc.pivots[j];
-                let mut res = sc.gas_change[j] * ln_pressure - sc.ln_k_basis[j]
-                    + (sc.ln_amount[p] - ln_totals[phase_of(p)]);
-                // No test for zero coefficients: species absent from a reaction
-                // carry a finite log (0 for unreachable ones), and a branch per
-                // term costs more than the multiplication.
-                for c in 0..nc {
-                    res += row[c] * sc.comp_mu[c];
-                }
-                sc.residual[j] = res;
-                res
-            };
+            let res = sc.residual[j];
             let sp = sc.pivots[j];
             // Only a minor species of its phase is held at the floor: when a
             // whole phase shrinks there (a phase that should vanish), its
@@ -829,20 +886,22 @@ fn run(
             if feasible {
                 trial_ln_totals = trial_totals.map(|n| if n > 0.0 { n.ln() } else { 0.0 });
                 // Directional derivative of g along the path at the trial point.
+                basis_residuals(
+                    &mut sc.trial_residual[..dim],
+                    &mut sc.comp_mu[..nc],
+                    sc.trial_ln,
+                    &trial_ln_totals,
+                    phase_of,
+                    &sc.pivots[..dim],
+                    components,
+                    comp_stoich,
+                    &sc.gas_change[..dim],
+                    &sc.ln_k_basis[..dim],
+                    ln_pressure,
+                );
                 let mut derivative = 0.0;
-                for c in 0..nc {
-                    let i = components[c];
-                    sc.comp_mu[c] = sc.trial_ln[i] - trial_ln_totals[phase_of(i)];
-                }
                 for j in 0..dim {
-                    let row = &comp_stoich[j * nc..(j + 1) * nc];
-                    let p = sc.pivots[j];
-                    let mut res = sc.gas_change[j] * ln_pressure - sc.ln_k_basis[j]
-                        + (sc.trial_ln[p] - trial_ln_totals[phase_of(p)]);
-                    for c in 0..nc {
-                        res += row[c] * sc.comp_mu[c];
-                    }
-                    sc.trial_residual[j] = res;
+                    let res = sc.trial_residual[j];
                     let velocity = if sc.on_log_path[j] {
                         sc.trial[sc.pivots[j]] * sc.du[j]
                     } else {

@@ -40,29 +40,30 @@ pub const KEEP_FOR: Duration = Duration::from_secs(30);
 struct Cache {
     /// Free blocks, oldest first, with the time each was freed.
     free: Vec<(Vec<u64>, Instant)>,
-    held: usize,
 }
 
-static CACHE: Mutex<Cache> = Mutex::new(Cache {
-    free: Vec::new(),
-    held: 0,
-});
+static CACHE: Mutex<Cache> = Mutex::new(Cache { free: Vec::new() });
 
 fn bytes_of(block: &[u64]) -> usize {
     std::mem::size_of_val(block)
 }
 
 impl Cache {
-    /// Blocks to free (outside the lock): those unused for too long, then
-    /// the oldest until the cache is within `limit`.
-    fn trim(&mut self, now: Instant, limit: usize) -> Vec<Vec<u64>> {
+    /// Bytes held (a handful of blocks at most).
+    fn held(&self) -> usize {
+        self.free.iter().map(|(block, _)| bytes_of(block)).sum()
+    }
+
+    /// Blocks to free (outside the lock): those unused for [`KEEP_FOR`], then
+    /// the oldest until the cache holds at most [`RETAIN`] bytes.
+    fn trim(&mut self, now: Instant) -> Vec<Vec<u64>> {
+        let mut held = self.held();
         let mut gone = Vec::new();
         let mut k = 0;
         while k < self.free.len() {
-            let old = now.duration_since(self.free[k].1) > KEEP_FOR;
-            if old || self.held > limit {
+            if now.duration_since(self.free[k].1) > KEEP_FOR || held > RETAIN {
                 let (block, _) = self.free.remove(k);
-                self.held -= bytes_of(&block);
+                held -= bytes_of(&block);
                 gone.push(block);
             } else {
                 k += 1;
@@ -79,9 +80,7 @@ impl Cache {
         let k = (0..self.free.len())
             .filter(|&k| fits(self.free[k].0.len()))
             .min_by_key(|&k| self.free[k].0.len())?;
-        let (block, _) = self.free.remove(k);
-        self.held -= bytes_of(&block);
-        Some(block)
+        Some(self.free.remove(k).0)
     }
 }
 
@@ -94,17 +93,9 @@ fn lock() -> std::sync::MutexGuard<'static, Cache> {
 /// A block of at least `words` words: from the cache when one fits, else
 /// fresh and zeroed. Blocks keep their full length (the array uses a prefix).
 fn block(words: usize) -> PyResult<Vec<u64>> {
-    let now = Instant::now();
-    let (found, gone) = {
-        let mut cache = lock();
-        let found = cache.take(words);
-        (found, cache.trim(now, RETAIN))
-    };
-    drop(gone);
-    match found {
-        Some(block) => Ok(block),
-        None => fresh(words),
-    }
+    let found = lock().take(words);
+    expire();
+    found.map_or_else(|| fresh(words), Ok)
 }
 
 /// Zeroed memory straight from the allocator (`calloc`: pages the system
@@ -159,17 +150,10 @@ pub struct OutputBlock {
 impl Drop for OutputBlock {
     fn drop(&mut self) {
         let block = std::mem::take(&mut self.words);
-        if bytes_of(&block) > RETAIN {
-            return;
+        if bytes_of(&block) <= RETAIN {
+            lock().free.push((block, Instant::now()));
+            expire();
         }
-        let now = Instant::now();
-        let gone = {
-            let mut cache = lock();
-            cache.held += bytes_of(&block);
-            cache.free.push((block, now));
-            cache.trim(now, RETAIN)
-        };
-        drop(gone);
     }
 }
 
@@ -212,16 +196,11 @@ where
     }
 }
 
-/// Drop blocks unused for [`KEEP_FOR`] (every solve calls this, so a program
-/// that goes on with small solves after a large one gives the memory back).
+/// Drop blocks unused for [`KEEP_FOR`] and any beyond [`RETAIN`] (every
+/// solve calls this, so a program that goes on with small solves after a
+/// large one gives the memory back). Blocks are freed outside the lock.
 fn expire() {
-    let gone = {
-        let mut cache = lock();
-        if cache.free.is_empty() {
-            return;
-        }
-        cache.trim(Instant::now(), RETAIN)
-    };
+    let gone = lock().trim(Instant::now());
     drop(gone);
 }
 
@@ -229,18 +208,13 @@ fn expire() {
 /// part of it for the process rather than return it to the system).
 #[pyfunction]
 pub fn release_buffers() -> usize {
-    let gone = {
-        let mut cache = lock();
-        let held = cache.held;
-        cache.held = 0;
-        (std::mem::take(&mut cache.free), held)
-    };
-    gone.1
+    let gone = std::mem::take(&mut lock().free);
+    gone.iter().map(|(block, _)| bytes_of(block)).sum()
 }
 
 /// `(blocks, bytes)` in the cache now (for tests and curious users).
 #[pyfunction]
 pub fn cached_buffers() -> (usize, usize) {
     let cache = lock();
-    (cache.free.len(), cache.held)
+    (cache.free.len(), cache.held())
 }
