@@ -10,7 +10,7 @@ from pathlib import Path
 import pytest
 
 README = Path(__file__).resolve().parents[1] / "README.md"
-MODULES = ["eqbatch", "eqbatch.system", "eqbatch.equations", "eqbatch.kdata"]
+MODULES = ["eqbatch", "eqbatch.system", "eqbatch.equations", "eqbatch.kdata", "eqbatch.compounds"]
 
 
 @pytest.mark.parametrize("name", MODULES)

@@ -10,6 +10,23 @@ from conftest import conservation_basis, log_residuals
 from test_reference import random_system
 
 
+def random_two_phase_batch(rng, liquid_share: float, cases: int, decades: float):
+    """A random system (test_reference.random_system) with some species liquid,
+    and ``cases`` random feeds (some zeros), ln K (+-20 around random species
+    data) and pressures; None if the phases make the system invalid."""
+    A, names, eqs, mu = random_system(rng)
+    phases = {n: "liquid" for n in names if rng.uniform() < liquid_share}
+    try:
+        system = eqbatch.ReactionSystem(names, eqs, phases=phases)
+    except eqbatch.SystemDefinitionError:
+        return None
+    feed = rng.uniform(0, 2, (cases, len(names))) * (rng.uniform(size=(cases, len(names))) < 0.6)
+    feed[feed.sum(1) == 0, 0] = 1.0
+    lnK = -(system.stoich @ mu)[None, :] + rng.normal(0, 20, (cases, system.n_reactions))
+    P = 10 ** rng.uniform(-decades, decades, cases)
+    return system, feed, lnK, P
+
+
 @pytest.mark.parametrize("K", [0.5, 1.0, 1.9])
 def test_condensate_above_its_dew_point_is_absent(K: float) -> None:
     # V (gas) = L (liquid, alone in its phase), inert I: y_V = P0 / (K P) would need
@@ -35,17 +52,11 @@ def test_random_two_phase_systems_converge_and_are_right() -> None:
     rng = np.random.default_rng(123)
     total = converged = 0
     for _ in range(60):
-        A, names, eqs, mu = random_system(rng)
-        phases = {n: "liquid" for n in names if rng.uniform() < 0.3}
-        try:
-            system = eqbatch.ReactionSystem(names, eqs, phases=phases)
-        except eqbatch.SystemDefinitionError:
+        batch = random_two_phase_batch(rng, liquid_share=0.3, cases=100, decades=2)
+        if batch is None:
             continue
-        n = 100
-        feed = rng.uniform(0, 2, (n, len(names))) * (rng.uniform(size=(n, len(names))) < 0.6)
-        feed[feed.sum(1) == 0, 0] = 1.0
-        lnk = -(system.stoich @ mu)[None, :] + rng.normal(0, 20, (n, system.n_reactions))
-        P = 10 ** rng.uniform(-2, 2, n)
+        system, feed, lnk, P = batch
+        n = len(P)
         res = system.solve(feed, lnK=lnk, P=P)
         total += n
         converged += int(res.converged.sum())
@@ -59,3 +70,166 @@ def test_random_two_phase_systems_converge_and_are_right() -> None:
     # Honest statuses for the rest: a few cases where a phase shrinks to the float
     # floor without the absent-phase solution being stable are reported stalled.
     assert converged / total > 0.99
+
+
+# --- an empty phase must be stable, and repaired cases must be honest -------------
+
+
+def gibbs(system, amounts: np.ndarray, lnK: np.ndarray, P: float) -> float:
+    """G/RT of amounts, with standard potentials g solving nu g = -ln K (any
+    solution gives the same differences between states of one feed)."""
+    from scipy.special import xlogy
+
+    g = -np.linalg.lstsq(system.stoich, lnK, rcond=None)[0]
+    phases = np.array(system.phases)
+    total = float(amounts @ g)
+    for phase in ("gas", "liquid"):
+        part = amounts[phases == phase]
+        size = part.sum()
+        if size > 0:
+            total += float(np.sum(xlogy(part, part / size)))
+            if phase == "gas":
+                total += size * np.log(P / system.P0)
+    return total
+
+
+def scipy_minimum(system, feed: np.ndarray, lnK: np.ndarray, P: float, rng) -> float:
+    """The smallest G/RT found by SLSQP over the extents under n >= 0, from the
+    feed and from random feasible starts (independent of eqbatch)."""
+    from scipy.optimize import linprog, minimize
+
+    nu = system.stoich
+    R = nu.shape[0]
+    cons = {"type": "ineq", "fun": lambda x: feed + nu.T @ x, "jac": lambda x: nu.T}
+    starts = [np.zeros(R)]
+    for _ in range(2):  # vertices of the feasible extents in random directions
+        sol = linprog(rng.normal(size=R), A_ub=-nu.T, b_ub=feed, bounds=[(-50, 50)] * R, method="highs")
+        if sol.success:
+            starts.append(0.5 * sol.x)
+    g = -np.linalg.lstsq(nu, lnK, rcond=None)[0]
+    phases = np.array(system.phases)
+
+    def slope(x):  # d(G/RT)/d xi = nu (g + ln a)
+        n = np.maximum(feed + nu.T @ x, 1e-300)
+        ln_a = np.log(n)
+        for phase in ("gas", "liquid"):
+            mask = phases == phase
+            ln_a[mask] -= np.log(n[mask].sum())
+            if phase == "gas":
+                ln_a[mask] += np.log(P / system.P0)
+        return nu @ (g + ln_a)
+
+    best = gibbs(system, feed, lnK, P)
+    for x0 in starts:
+        sol = minimize(
+            lambda x: gibbs(system, np.maximum(feed + nu.T @ x, 0.0), lnK, P),
+            x0,
+            jac=slope,
+            method="SLSQP",
+            constraints=[cons],
+            options={"ftol": 1e-14, "maxiter": 500},
+        )
+        amounts = feed + nu.T @ sol.x
+        if amounts.min() >= -1e-12 * feed.sum():  # only states that exist count
+            best = min(best, gibbs(system, np.maximum(amounts, 0.0), lnK, P))
+    return best
+
+
+def test_liquid_products_that_cannot_coexist_with_their_gas_form_completely() -> None:
+    # A = B + C with B and C the only liquid species: made from A they are always
+    # x_B = x_C = 1/2, so a_B a_C / a_A = 1/4 < K = e^5 while any A is left (A is
+    # alone in its gas, a_A = P/P0 = 1): the reaction runs to completion (closed form).
+    system = eqbatch.ReactionSystem(["A", "B", "C"], ["A = B + C"], phases={"B": "liquid", "C": "liquid"})
+    res = system.solve([1.0, 0.0, 0.0], lnK=[5.0])
+    assert res.status[0] == eqbatch.Status.CONVERGED
+    np.testing.assert_allclose(res.amounts[0], [0.0, 1.0, 1.0], atol=1e-14)
+    assert "the gas phase is absent" in res.message(0) and "cannot be formed" not in res.message(0)
+    # the products' Gibbs energy is the lower of the two states
+    lnK = np.array([5.0])
+    assert gibbs(system, res.amounts[0], lnK, 1.0) < gibbs(system, np.array([1.0, 0.0, 0.0]), lnK, 1.0)
+
+
+def test_methanol_and_water_condense_and_the_reaction_completes() -> None:
+    # CO2 + 3 H2 = CH3OH + H2O with both products liquid, ln K = 3.75, 50 bar: the
+    # gas keeps y_CO2 = 1/4, y_H2 = 3/4 and the liquid x = 1/2 each, so
+    # Q = (1/4) / ((1/4)(3/4)^3 50^4) = 3.8e-7 < K = 42.5 wherever the reaction
+    # stands: it runs until the gas is gone (closed form).
+    system = eqbatch.ReactionSystem(
+        ["CO2", "H2", "CH3OH", "H2O"],
+        ["CO2 + 3 H2 = CH3OH + H2O"],
+        phases={"CH3OH": "liquid", "H2O": "liquid"},
+    )
+    res = system.solve([1.0, 3.0, 0.0, 0.0], lnK=[3.75], P=50.0)
+    assert res.status[0] == eqbatch.Status.CONVERGED
+    np.testing.assert_allclose(res.amounts[0], [0.0, 0.0, 1.0, 1.0], atol=1e-14)
+
+
+def test_an_empty_phase_never_hides_a_lower_gibbs_energy() -> None:
+    # Random two-phase systems (ln K +-20): wherever eqbatch leaves a phase empty,
+    # no state that scipy's SLSQP finds has a lower Gibbs energy.
+    rng = np.random.default_rng(1)
+    empty = 0
+    for _ in range(40):
+        if empty >= 40:
+            break
+        batch = random_two_phase_batch(rng, liquid_share=0.4, cases=12, decades=1)
+        if batch is None or len(set(batch[0].phases)) < 2:
+            continue
+        system, feed, lnK, P = batch
+        res = system.solve(feed, lnK=lnK, P=P)
+        liquid = np.array(system.phases) == "liquid"
+        for k in np.flatnonzero(res.converged):
+            a = res.amounts[k]
+            if not (np.all(a[liquid] == 0) or np.all(a[~liquid] == 0)):
+                continue
+            empty += 1
+            ours = gibbs(system, a, lnK[k], P[k])
+            theirs = scipy_minimum(system, feed[k], lnK[k], P[k], rng)
+            assert ours <= theirs + 1e-7 * (1 + abs(theirs)), (system, feed[k], lnK[k], P[k])
+    assert empty >= 20
+
+
+def test_repaired_cases_honour_max_iter_and_count_their_iterations() -> None:
+    # A = B in the gas, A = L condensing: K_L = 0.5 < a_L / a_A = 3 at coexistence,
+    # so no liquid forms (the case first stalls as L shrinks, then is repaired).
+    system = eqbatch.ReactionSystem(["A", "B", "L"], ["A = B", "A = L"], phases={"L": "liquid"})
+    lnK = [np.log(2.0), np.log(0.5)]
+    res = system.solve([1.0, 0.0, 0.0], lnK=lnK)
+    assert res.status[0] == eqbatch.Status.CONVERGED
+    np.testing.assert_allclose(res.amounts[0], [1 / 3, 2 / 3, 0.0], rtol=1e-12)  # n_B / n_A = 2
+    stalled = system._core.solve(np.array([[1.0, 0.0, 0.0]]), np.array([lnK]), np.array([1.0]), 1, 1e-10, 200)
+    first = int(stalled[3][0])
+    assert stalled[2][0] != eqbatch.Status.CONVERGED
+    assert res.iterations[0] > first  # the repair's Newton steps are counted
+    # No budget left for the repair: the case is not passed off as converged.
+    limited = system.solve([1.0, 0.0, 0.0], lnK=lnK, max_iter=first)
+    assert not limited.converged[0]
+
+
+def test_repaired_cases_have_exact_derivatives() -> None:
+    system = eqbatch.ReactionSystem(["A", "B", "L", "I"], ["A = B", "A = L"], phases={"L": "liquid"})
+    lnK = np.array([np.log(2.0), np.log(0.5)])
+    feed = np.array([1.0, 0.0, 0.0, 0.5])
+    res = system.solve(feed, lnK=lnK, P=2.0, sensitivities=True)
+    assert res.status[0] == eqbatch.Status.CONVERGED and res.amounts[0, 2] == 0.0
+    for wrt in ("lnK", "P", "feed"):
+        assert np.all(np.isfinite(res.sensitivity(wrt)))
+    h = 1e-6
+    d_lnk = res.sensitivity("lnK")[0]
+    for j in range(2):
+        step = np.zeros(2)
+        step[j] = h
+        up = system.solve(feed, lnK=lnK + step, P=2.0, tol=1e-13).amounts[0]
+        down = system.solve(feed, lnK=lnK - step, P=2.0, tol=1e-13).amounts[0]
+        np.testing.assert_allclose(d_lnk[:, j], (up - down) / (2 * h), atol=1e-8)
+    for k in (0, 3):
+        step = np.zeros(4)
+        step[k] = h
+        up = system.solve(feed + step, lnK=lnK, P=2.0, tol=1e-13).amounts[0]
+        down = system.solve(feed - step, lnK=lnK, P=2.0, tol=1e-13).amounts[0]
+        np.testing.assert_allclose(res.sensitivity("feed")[0][:, k], (up - down) / (2 * h), atol=1e-8)
+    # the liquid L absent: the derivative by its feed moves it into the gas as A
+    step = np.zeros(4)
+    step[2] = h
+    up = system.solve(feed + step, lnK=lnK, P=2.0, tol=1e-13).amounts[0]
+    np.testing.assert_allclose(res.sensitivity("feed")[0][:, 2], (up - res.amounts[0]) / h, atol=1e-6)

@@ -16,7 +16,7 @@ from typing import Any
 import numpy as np
 
 from eqbatch.errors import CaseInputError
-from eqbatch.result import EquilibriumResult, Status
+from eqbatch.result import EnergyBalance, EquilibriumResult, Status
 
 
 def _enthalpy_data(system):
@@ -46,28 +46,38 @@ def adiabatic_solve(
     P: Any,
     *,
     tol: float = 1e-10,
-    max_iter: int = 60,
+    max_iter: int = 200,
     threads: int | None = None,
+    invalid: str = "mark",
+    x0: Any = None,
+    sensitivities: bool = False,
+    max_T_iter: int = 60,
     energy_tol: float = 1e-11,
 ) -> EquilibriumResult:
-    """See :meth:`ReactionSystem.solve` with ``adiabatic=True``."""
+    """See :meth:`ReactionSystem.solve` with ``adiabatic=True``. ``tol``,
+    ``max_iter`` and ``x0`` apply to every equilibrium solve inside (``x0`` to
+    the first), ``invalid="raise"`` raises on the first bad case, and
+    ``max_T_iter`` bounds the temperature iterations."""
     import warnings
 
     data, lo, hi = _enthalpy_data(system)
-    base = system.solve(feed, T=T, P=P, threads=threads, tol=tol)
+    options = {"threads": threads, "tol": tol, "max_iter": max_iter}
+    base = system.solve(feed, T=T, P=P, invalid=invalid, x0=x0, **options)
     n = len(base)
     feed_rows = np.asarray(base.feed)
     T_in = np.broadcast_to(np.asarray(base.T, dtype=float), (n,)).copy()
     P_rows = np.asarray(base.P, dtype=float)
+    bad = base.status == Status.INVALID_INPUT
+    newton = base.iterations.astype(np.int64)
+    T_steps = np.zeros(n, dtype=np.int64)
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")  # range warnings: the bracket keeps T inside
-        H_in = np.sum(feed_rows * _h(data, T_in), axis=1)
-        scale = np.sum(np.abs(feed_rows * _h(data, T_in)), axis=1) + 1.0
+        h_in = _h(data, np.where(bad, lo, T_in))
+        H_in = np.sum(feed_rows * h_in, axis=1)
+        scale = np.sum(np.abs(feed_rows * h_in), axis=1) + 1.0
 
         def residual(Tc, extents=None):
-            r = system.solve(
-                feed_rows, T=Tc, P=P_rows, threads=threads, tol=tol, sensitivities=True, x0=extents
-            )
+            r = system.solve(feed_rows, T=Tc, P=P_rows, sensitivities=True, x0=extents, **options)
             h = _h(data, Tc)
             f = np.sum(r.amounts * h, axis=1) - H_in
             df = np.sum(r.amounts * _cp(data, Tc), axis=1) + np.sum(h * r.sensitivity("T"), axis=1)
@@ -78,9 +88,11 @@ def adiabatic_solve(
         _, fa, _ = residual(a)
         _, fb, _ = residual(b)
         bracketed = np.isfinite(fa) & np.isfinite(fb) & (np.sign(fa) != np.sign(fb)) | (fa == 0) | (fb == 0)
-        Tc = np.clip(T_in, lo, hi)
-        res, f, df = residual(Tc)
-        for _ in range(max_iter):
+        bracketed &= ~bad
+        Tc = np.clip(np.where(bad, lo, T_in), lo, hi)
+        res, f, df = residual(Tc, base.extents)
+        newton += res.iterations
+        for _ in range(max_T_iter):
             done = ~bracketed | (np.abs(f) <= energy_tol * scale)
             if done.all():
                 break
@@ -90,26 +102,42 @@ def adiabatic_solve(
             a = np.where(below & ~done, np.maximum(a, Tc), a)
             b = np.where(~below & ~done, np.minimum(b, Tc), b)
             with np.errstate(divide="ignore", invalid="ignore"):
-                newton = Tc - f / df
-            inside = np.isfinite(newton) & (newton > a) & (newton < b)
-            Tn = np.where(inside, newton, 0.5 * (a + b))
+                step = Tc - f / df
+            inside = np.isfinite(step) & (step > a) & (step < b)
+            Tn = np.where(inside, step, 0.5 * (a + b))
             Tc = np.where(done, Tc, Tn)
             res, f, df = residual(Tc, res.extents)
+            newton += np.where(done, 0, res.iterations)
+            T_steps += ~done
     status = res.status.copy()
-    status[~bracketed & (status == Status.CONVERGED)] = Status.OUT_OF_RANGE
-    not_closed = bracketed & ~(np.abs(f) <= energy_tol * scale) & (status == Status.CONVERGED)
+    at_equilibrium = res.converged
+    status[~bracketed & at_equilibrium] = Status.OUT_OF_RANGE
+    not_closed = bracketed & ~(np.abs(f) <= energy_tol * scale) & at_equilibrium
     status[not_closed] = Status.ITERATION_LIMIT
+    amounts, extents = res.amounts, res.extents
+    if bad.any():
+        status[bad] = Status.INVALID_INPUT
+        amounts[bad] = np.nan
+        extents[bad] = np.nan
+        Tc = np.where(bad, np.nan, Tc)
     out = EquilibriumResult(
-        system,
-        res.amounts,
-        res.extents,
-        res.mole_fractions,
-        status,
-        res.iterations,
-        feed_rows,
-        P_rows,
-        Tc,
-        res.lnK,
+        system, amounts, extents, None, status, newton.astype(np.uint32), feed_rows, P_rows, Tc, res.lnK
     )
-    out._sens = res._sens
+    out.T_iterations = T_steps
+    out.absent_phase = res.absent_phase
+    if sensitivities:
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore")
+            T_safe = np.where(np.isfinite(Tc), Tc, lo)
+            out._sens = res._sens
+            out._energy = EnergyBalance(
+                h_out=_h(data, T_safe),
+                h_in=h_in,
+                cp_feed=np.sum(feed_rows * _cp(data, np.where(bad, lo, T_in)), axis=1),
+                cp_out=_cp(data, T_safe),
+                slope_out=system.dlnK_dT(T_safe),
+                T_in=T_in,
+            )
+        for array in out._sens:
+            array[~out.converged] = np.nan
     return out

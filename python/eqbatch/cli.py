@@ -85,14 +85,24 @@ def _cmd_solve(args: argparse.Namespace) -> int:
         feed, T=args.T, P=args.P, tol=args.tol, max_iter=args.max_iter, invalid="raise", **kwargs
     )
 
+    converged = bool(res.converged[0])
     conditions = []
     if args.adiabatic:
-        conditions.append(f"adiabatic, inlet {args.T:g} K, outlet T = {float(res.T[0]):.2f} K")
+        outlet = (
+            f"outlet T = {float(res.T[0]):.2f} K" if converged else "no equilibrium outlet temperature found"
+        )
+        conditions.append(f"adiabatic, inlet {args.T:g} K, {outlet}")
     elif args.T is not None:
         conditions.append(f"T = {args.T:g} K")
     conditions.append(f"P = {float(res.P[0]):g} bar")
     print(f"Equilibrium of {args.system}: {', '.join(conditions)} (P0 = {system.P0:g} bar)")
     print(res.message(0))
+    if not converged:
+        where = f" (at {float(res.T[0]):.2f} K)" if args.adiabatic and np.isfinite(res.T[0]) else ""
+        print(
+            f"NOT AN EQUILIBRIUM: the amounts below are the solver's last iterate{where}, "
+            "shown to help find the cause; do not use them as a result."
+        )
     print()
     feed_row = res.feed[0]
     rows = [
@@ -114,6 +124,9 @@ def _cmd_solve(args: argparse.Namespace) -> int:
     ]
     if conv:
         print(_table(["reactant", "conversion"], conv))
+        print()
+    if system.species_data:
+        print("\n".join(_species_data_lines(system, short=True)))
         print()
     print(CAUTION)
     return 0 if bool(res.converged[0]) else 1
@@ -259,6 +272,30 @@ def _cmd_plot(args: argparse.Namespace) -> int:
     return 0
 
 
+def _species_data_lines(system, *, short: bool = False) -> list[str]:
+    """Where each species' data come from (for the chemicals source: the
+    compound, its registry number and how it was found), their standard
+    pressure P_ref, and whether ln K was converted to P0; ``short`` keeps the
+    first clause of each source and leaves out the temperature range."""
+    if not system.species_data:
+        return []
+    gas = {name for name, phase in zip(system.species, system.phases) if phase == "gas"}
+    converted = any(d.P_ref != system.P0 for name, d in system.species_data.items() if name in gas)
+    lines = ["species data (each on its own standard pressure P_ref):"]
+    for name, data in system.species_data.items():
+        if short:
+            lines.append(f"  {name}: {data.source.split(';')[0]}; P_ref = {data.P_ref:g} bar")
+        else:
+            lo_t, hi_t = data.range
+            lines.append(f"  {name}: {data.source} ({lo_t:g}-{hi_t:g} K, P_ref = {data.P_ref:g} bar)")
+    if converted:
+        lines.append(
+            f"  ln K converted to P0 = {system.P0:g} bar: "
+            "ln K = ln K(data) - sum over gas species of nu ln(P0 / P_ref)"
+        )
+    return lines
+
+
 def _cmd_thermo(args: argparse.Namespace) -> int:
     from eqbatch.system import ReactionSystem
 
@@ -278,11 +315,8 @@ def _cmd_thermo(args: argparse.Namespace) -> int:
         print(_table(["T/K", "dH/(kJ/mol)", "dG/(kJ/mol)", "ln K"], rows))
         print()
     print(f"standard pressure P0 = {system.P0:g} bar")
-    if system.species_data:
-        print("species data:")
-        for name, data in system.species_data.items():
-            lo_t, hi_t = data.range
-            print(f"  {name}: {data.source} ({lo_t:g}-{hi_t:g} K)")
+    for line in _species_data_lines(system):
+        print(line)
     others = [label for label in system.labels if type(system.lnK_data.get(label)).__name__ != "ThermoLnK"]
     for label in others:
         data = system.lnK_data.get(label)

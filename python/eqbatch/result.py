@@ -33,6 +33,11 @@ class Status(IntEnum):
     #: Adiabatic solve: no outlet temperature within the species data's
     #: range balances the enthalpy; amounts are those at the range's edge.
     OUT_OF_RANGE = 5
+    #: At equilibrium, except that some species would lie below the smallest
+    #: amount float64 can follow (about 1e-305 mol): they are held there (an
+    #: upper bound) and the reactions that would push them lower are unmet.
+    #: Counted as converged (``result.converged``); ``message`` names them.
+    UNDERFLOW = 6
 
     @property
     def description(self) -> str:
@@ -46,7 +51,14 @@ _DESCRIPTIONS = {
     Status.INFEASIBLE: "infeasible: the extents are unbounded for this feed",
     Status.STALLED: "stalled: no further decrease of the Gibbs function",
     Status.OUT_OF_RANGE: "no adiabatic outlet temperature within the data's temperature range",
+    Status.UNDERFLOW: "converged, with species below float64's range held at about 1e-305 mol (upper bounds)",
 }
+
+#: Amounts at or below this are held at the core's float floor (1e-305).
+FLOAT_FLOOR = 1.0000001e-305
+
+#: Codes whose amounts are an equilibrium (``result.converged``).
+CONVERGED_CODES = (Status.CONVERGED, Status.UNDERFLOW)
 
 
 class EquilibriumResult:
@@ -86,6 +98,10 @@ class EquilibriumResult:
         "_T",
         "_lnK",
         "_sens",
+        "_T_eff",
+        "_energy",
+        "T_iterations",
+        "absent_phase",
     )
 
     def __init__(
@@ -112,6 +128,14 @@ class EquilibriumResult:
         self._T = T
         self._lnK = lnK
         self._sens: tuple[np.ndarray, np.ndarray, np.ndarray] | None = None
+        #: (N, R) temperature at which each reaction's K was taken (approach).
+        self._T_eff: np.ndarray | None = None
+        #: Enthalpy balance of an adiabatic solve (see :class:`EnergyBalance`).
+        self._energy: EnergyBalance | None = None
+        #: (N,) temperature iterations of an adiabatic solve, else None.
+        self.T_iterations: np.ndarray | None = None
+        #: case -> the phase found absent (and stable) at equilibrium.
+        self.absent_phase: dict[int, str] = {}
 
     @property
     def mole_fractions(self) -> np.ndarray:
@@ -155,25 +179,49 @@ class EquilibriumResult:
 
     @property
     def converged(self) -> np.ndarray:
-        """``(N,)`` bool: the case reached equilibrium."""
-        return self.status == Status.CONVERGED
+        """``(N,)`` bool: the case reached equilibrium (``Status.CONVERGED``,
+        or ``Status.UNDERFLOW`` where some species lie below float64's range)."""
+        return (self.status == Status.CONVERGED) | (self.status == Status.UNDERFLOW)
 
     def message(self, case: int = 0) -> str:
-        """A sentence on what happened to one case, naming any species that
-        the feed cannot reach (they are exactly zero at equilibrium)."""
+        """A sentence on what happened to one case: its status, the iterations
+        it took (for an adiabatic solve, temperature iterations and Newton
+        iterations in all), and any species that the feed cannot reach (they
+        are exactly zero at equilibrium) or that lie below float64's range."""
         st = Status(int(self.status[case]))
         text = f"case {case}: {st.description}"
-        if st in (Status.CONVERGED, Status.ITERATION_LIMIT, Status.STALLED):
-            count = int(self.iterations[case])
+        if st == Status.INVALID_INPUT or st == Status.INFEASIBLE:
+            return text
+        count = int(self.iterations[case])
+        newton = f"{count} Newton iteration{'' if count == 1 else 's'}"
+        if self.T_iterations is not None:
+            steps = int(self.T_iterations[case])
+            text += f" after {steps} temperature iteration{'' if steps == 1 else 's'} ({newton} in all)"
+            if st == Status.ITERATION_LIMIT:
+                text += "; the enthalpy balance did not close within the iteration limits"
+        else:
             text += f" after {count} iteration{'' if count == 1 else 's'}"
-            feed = self.feed[case]
-            zero = [
-                name
-                for k, name in enumerate(self.system.species)
-                if feed[k] == 0 and self.amounts[case, k] == 0 and self.system._reactive[k]
+        feed = self.feed[case]
+        absent = self.absent_phase.get(int(case))
+        zero = [
+            name
+            for k, name in enumerate(self.system.species)
+            if feed[k] == 0
+            and self.amounts[case, k] == 0
+            and self.system._reactive[k]
+            and self.system.phases[k] != absent
+        ]
+        if absent is not None:
+            text += f"; the {absent} phase is absent (it would not form: it is stable empty)"
+        if zero:
+            text += f"; {', '.join(zero)} cannot be formed from this feed (amount exactly 0)"
+        if st == Status.UNDERFLOW:
+            held = [
+                name for k, name in enumerate(self.system.species) if 0 < self.amounts[case, k] <= FLOAT_FLOOR
             ]
-            if zero:
-                text += f"; {', '.join(zero)} cannot be formed from this feed (amount exactly 0)"
+            text += (
+                f"; {', '.join(held) or 'some species'} would lie below 1e-305 mol (amount is an upper bound)"
+            )
         return text
 
     def summary(self) -> str:
@@ -200,49 +248,74 @@ class EquilibriumResult:
         wrt : {"lnK", "lnP", "P", "feed", "T"}
             ``"lnK"`` gives shape (N, S, R) (for ``of="extents"`` (N, R, R)),
             ``"feed"`` (N, S, S) (derivative by the feed of each species),
-            the others (N, S). ``"T"`` needs K(T) data in the system.
-        of : {"amounts", "mole_fractions", "extents"}
+            the others (N, S). ``"T"`` needs K(T) data in the system; with
+            ``approach=`` each reaction's d ln K / dT is taken at its own
+            approach temperature, and for an adiabatic solve ``"T"`` is the
+            inlet temperature.
+        of : {"amounts", "mole_fractions", "extents", "T"}
+            ``"T"`` is the temperature the equilibrium is at: for an
+            adiabatic solve the outlet temperature, whose derivatives have
+            shape (N,) for ``"T"``, ``"P"``, ``"lnP"``, (N, R) for ``"lnK"``
+            and (N, S) for ``"feed"``; for an isothermal solve it is the
+            given temperature (derivative 1 by ``"T"``, 0 by the rest).
 
         Returns
         -------
         ndarray
             Derivatives from the implicit function theorem applied to the
             converged Newton system; NaN for cases that did not converge.
-            Species the feed cannot form have zero derivatives.
+            Species the feed cannot form have zero derivatives. An adiabatic
+            solve's derivatives hold the enthalpy balance: the outlet
+            temperature moves with the input, and the amounts with it.
         """
-        if self._sens is None:
-            from eqbatch.errors import CaseInputError
+        from eqbatch.errors import CaseInputError
 
+        if self._sens is None:
             raise CaseInputError("derivatives were not computed: solve with sensitivities=True")
+        if of not in ("amounts", "mole_fractions", "extents", "T"):
+            raise ValueError(f"of must be 'amounts', 'mole_fractions', 'extents' or 'T', got {of!r}")
         d_lnk, d_lnp, d_feed = self._sens
+        n, S = self.amounts.shape
+        energy = self._energy
         if wrt == "lnK":
-            dn = d_lnk
-        elif wrt == "lnP":
-            dn = d_lnp
-        elif wrt == "P":
-            dn = d_lnp / self.P[:, None]
+            dn, dT = d_lnk, np.zeros((n, d_lnk.shape[2]))
+        elif wrt in ("lnP", "P"):
+            dn, dT = d_lnp, np.zeros(n)
         elif wrt == "feed":
-            dn = d_feed
+            dn, dT = d_feed, np.zeros((n, S))
         elif wrt == "T":
             if self._T is None:
-                from eqbatch.errors import CaseInputError
-
                 raise CaseInputError("no temperature was given to the solve: d/dT is undefined")
-            slope = self.system.dlnK_dT(self.T)
-            dn = np.einsum("nsr,nr->ns", d_lnk, slope)
+            if energy is None:
+                dn, dT = np.einsum("nsr,nr->ns", d_lnk, self._lnk_slope()), np.ones(n)
+            else:
+                dn, dT = np.zeros((n, S)), np.zeros(n)
         else:
             raise ValueError(f"wrt must be 'lnK', 'lnP', 'P', 'feed' or 'T', got {wrt!r}")
+        if energy is not None:
+            dn, dT = energy.hold(wrt, dn, d_lnk, d_lnp, d_feed, self.amounts)
+        if wrt == "P":
+            scale = 1.0 / self.P
+            dn = dn * scale[:, None]
+            dT = dT * scale
+        if of == "T":
+            return dT
         if of == "amounts":
             return dn
         if of == "mole_fractions":
             return self._fraction_derivative(dn)
-        if of == "extents":
-            nu = self.system.stoich
-            change = dn - np.eye(nu.shape[1])[None] if wrt == "feed" else dn
-            # n = n0 + nu^T xi with nu of full row rank: d xi = (nu nu^T)^-1 nu d(n - n0)
-            gram = nu @ nu.T
-            return np.einsum("rs,ns...->nr...", np.linalg.solve(gram, nu), change)
-        raise ValueError(f"of must be 'amounts', 'mole_fractions' or 'extents', got {of!r}")
+        nu = self.system.stoich
+        change = dn - np.eye(nu.shape[1])[None] if wrt == "feed" else dn
+        # n = n0 + nu^T xi with nu of full row rank: d xi = (nu nu^T)^-1 nu d(n - n0)
+        gram = nu @ nu.T
+        return np.einsum("rs,ns...->nr...", np.linalg.solve(gram, nu), change)
+
+    def _lnk_slope(self) -> np.ndarray:
+        """(N, R) d ln K / dT of the constants used: at the solve's
+        temperature, or at each reaction's approach temperature."""
+        if self._T_eff is not None:
+            return self.system.dlnK_dT_at(np.broadcast_to(self._T_eff, (len(self), self.system.n_reactions)))
+        return self.system.dlnK_dT(self.T)
 
     def _fraction_derivative(self, dn: np.ndarray) -> np.ndarray:
         phases = np.array(self.system.phases)
@@ -317,3 +390,46 @@ def mole_fractions_of(phases, amounts: np.ndarray) -> np.ndarray:
         y[np.isnan(total[:, 0])] = np.nan
         out[:, cols] = y
     return out
+
+
+class EnergyBalance:
+    """What an adiabatic solve's derivatives need: per case the species'
+    enthalpies at the outlet (``h_out``) and the inlet (``h_in``), J/mol,
+    the feed's heat capacity at the inlet (``cp_feed``, J/K), the heat
+    capacities at the outlet (``cp_out``), the outlet's ``d ln K / dT`` and
+    the inlet temperature.
+
+    The outlet temperature solves ``f = sum n_i h_i(T) - sum n0_i h_i(T_in) = 0``
+    with ``n`` at equilibrium at ``T``. For an input ``theta``,
+    ``dT/dtheta = -(df/dtheta) / (df/dT)`` with ``df/dT = sum n cp + sum h dn/dT``
+    (``dn/dT`` at fixed inputs); the amounts then move by
+    ``dn/dtheta + dn/dT dT/dtheta``.
+    """
+
+    __slots__ = ("h_out", "h_in", "cp_feed", "cp_out", "slope_out", "T_in")
+
+    def __init__(self, h_out, h_in, cp_feed, cp_out, slope_out, T_in) -> None:
+        self.h_out = h_out
+        self.h_in = h_in
+        self.cp_feed = cp_feed
+        self.cp_out = cp_out
+        self.slope_out = slope_out
+        self.T_in = T_in
+
+    def hold(self, wrt, dn, d_lnk, d_lnp, d_feed, amounts):
+        """Total derivatives ``(d n, d T_out)`` by ``wrt`` from the isothermal
+        ones ``dn`` (at the outlet temperature)."""
+        dn_dT = np.einsum("nsr,nr->ns", d_lnk, self.slope_out)
+        df_dT = np.sum(amounts * self.cp_out, axis=1) + np.sum(self.h_out * dn_dT, axis=1)
+        if wrt == "T":  # the inlet temperature: df/dT_in = -sum n0 cp(T_in)
+            dT = self.cp_feed / df_dT
+            return dn_dT * dT[:, None], dT
+        if wrt == "lnK":
+            dT = -np.einsum("ns,nsr->nr", self.h_out, dn) / df_dT[:, None]
+            return dn + dn_dT[:, :, None] * dT[:, None, :], dT
+        if wrt in ("lnP", "P"):
+            dT = -np.sum(self.h_out * dn, axis=1) / df_dT
+            return dn + dn_dT * dT[:, None], dT
+        # feed: df/dn0_k = sum_i h_out_i dn_i/dn0_k - h_in_k
+        dT = -(np.einsum("ns,nsk->nk", self.h_out, dn) - self.h_in) / df_dT[:, None]
+        return dn + dn_dT[:, :, None] * dT[:, None, :], dT

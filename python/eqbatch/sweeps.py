@@ -56,13 +56,17 @@ class SweepSummary:
 
     @property
     def converged(self) -> int:
-        return self.by_status.get("converged", 0)
+        """Rows at equilibrium (``Status.UNDERFLOW`` rows included)."""
+        return self.by_status.get("converged", 0) + self.by_status.get("underflow", 0)
 
     def line(self) -> str:
         rate = self.rows / self.seconds if self.seconds > 0 else float("inf")
-        others = ", ".join(f"{v:,} {k}" for k, v in sorted(self.by_status.items()) if k != "converged")
+        at_equilibrium = ("converged", "underflow")
+        others = ", ".join(f"{v:,} {k}" for k, v in sorted(self.by_status.items()) if k not in at_equilibrium)
+        held = self.by_status.get("underflow", 0)
         return (
             f"{self.rows:,} rows, {self.converged:,} converged"
+            + (f" ({held:,} with species below float64's range)" if held else "")
             + (f", not converged: {others}" if others else "")
             + f"; {self.seconds:.1f} s ({rate:,.0f} rows/s)"
         )

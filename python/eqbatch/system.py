@@ -45,6 +45,105 @@ def _rebuild_system(spec: dict) -> ReactionSystem:
     return ReactionSystem(spec.pop("species"), spec.pop("reactions"), **spec)
 
 
+#: Range of ``tol`` accepted by ``solve()``: above 1e-3 a case "converges" with
+#: its K off by more than 0.1 %; below 1e-15 the residual is under the rounding
+#: of ln K itself (about |ln K| x 2.2e-16), which no float64 iterate can meet.
+TOL_RANGE = (1e-15, 1e-3)
+
+
+def _float_column(column: Any) -> np.ndarray:
+    """A pandas or Arrow column as float64 with missing values as NaN (an
+    invalid case, not an error); anything else is left to ``np.asarray``."""
+    module = type(column).__module__
+    if module.startswith("pandas"):
+        try:
+            return column.to_numpy(dtype=np.float64, na_value=np.nan)
+        except (TypeError, ValueError):
+            return column.to_numpy()
+    if module.startswith("pyarrow"):
+        return column.to_numpy(zero_copy_only=False)
+    return column
+
+
+def _labelled(value: Any) -> tuple[list[Any], list[Any]] | None:
+    """Labels and columns of an input that carries labels, else None.
+
+    Labelled are: a mapping (label -> value(s)), a pandas Series (one case,
+    labels in the index), a pandas DataFrame, a numpy structured array and a
+    pyarrow Table or RecordBatch (one column per label, one row per case).
+    pandas objects whose labels are the default positions ``0..k-1`` carry no
+    labels and are read by position, as arrays are.
+    """
+    if isinstance(value, Mapping):
+        return list(value.keys()), list(value.values())
+    module = type(value).__module__
+    if isinstance(value, np.ndarray):
+        names = value.dtype.names
+        return None if names is None else (list(names), [value[name] for name in names])
+    if module.startswith("pandas"):
+        import pandas as pd
+
+        if isinstance(value, pd.Series):
+            axis, columns = value.index, None
+        elif isinstance(value, pd.DataFrame):
+            axis = value.columns
+            columns = [_float_column(value.iloc[:, k]) for k in range(value.shape[1])]
+        else:
+            return None
+        if isinstance(axis, pd.RangeIndex) and axis.start == 0 and axis.step == 1:
+            return None
+        if columns is None:
+            columns = list(_float_column(value))
+        return list(axis), columns
+    if module.startswith("pyarrow") and hasattr(value, "column_names"):
+        return list(value.column_names), [_float_column(c) for c in value.columns]
+    return None
+
+
+def _case_column(value: Any, name: str) -> np.ndarray:
+    """A per-case input (``P``, ``T``) as a contiguous float64 ``(N,)`` array.
+
+    Only a scalar, ``(1,)`` or ``(N,)`` is one value per case: a ``(N, 1)``
+    column or a ``(N, M)`` grid would broadcast to a grid under numpy's rules,
+    so it is refused rather than flattened.
+    """
+    if type(value) is float or type(value) is int:
+        return np.array([value], dtype=np.float64)
+    arr = np.asarray(value, dtype=np.float64)
+    if arr.ndim == 1:
+        return arr if arr.flags.c_contiguous else np.ascontiguousarray(arr)
+    if arr.ndim == 0:
+        return arr.reshape(1)
+    raise CaseInputError(
+        f"{name} must be a scalar or a 1-D array with one value per case; got shape {arr.shape} "
+        "(flatten a column with .ravel(); for a grid, flatten every input alike, e.g. from np.meshgrid)"
+    )
+
+
+def _bad_temperatures(T: np.ndarray) -> np.ndarray | None:
+    """Mask of the temperatures that are not positive and finite, or None if
+    all are (the common case, checked without allocating for one case)."""
+    if T.shape[0] == 1:
+        return None if 0.0 < T[0] < math.inf else np.ones(1, dtype=bool)
+    bad = ~((T > 0.0) & (T < math.inf))
+    return bad if bad.any() else None
+
+
+def _checked_tol(tol: Any) -> float:
+    """``tol`` as a float within :data:`TOL_RANGE`, else CaseInputError."""
+    lo, hi = TOL_RANGE
+    if type(tol) is float and lo <= tol <= hi:
+        return tol
+    valid = isinstance(tol, (int, float, np.integer, np.floating)) and not isinstance(tol, bool)
+    if not (valid and lo <= float(tol) <= hi):
+        raise CaseInputError(
+            f"tol must be a number from {lo:g} to {hi:g} (the largest |ln Q - ln K| accepted per "
+            f"reaction; {hi:g} already lets K be off by 0.1 %, and below {lo:g} float64 cannot "
+            f"resolve ln K); got {tol!r}"
+        )
+    return float(tol)
+
+
 class ReactionSystem:
     """Species in phases and the reactions between them.
 
@@ -71,14 +170,20 @@ class ReactionSystem:
         Default equilibrium constants: a constant ln K, or ln K as a function
         of temperature so that a case needs only ``T``.
     species_data : mapping species -> NASA7, Shomate or CpPolynomial, optional
-        Standard-state thermochemistry (on the system's ``P0``); every
-        reaction without explicit K data whose species all have data gets
-        ``ln K(T) = -dG(T) / (R T)`` from it. With ``reactions="auto"`` an
+        Standard-state thermochemistry, each on its own standard pressure
+        ``P_ref`` (1 bar by default); every reaction without explicit K data
+        whose species all have data gets ``ln K(T) = -dG(T) / (R T)`` from
+        it, converted to the system's ``P0`` (``- sum over gas species of
+        nu_i ln(P0 / P_ref_i)``). With ``reactions="auto"`` an
         independent reaction set is generated from the species' formulas.
     thermo : {"chemicals"}, optional
         Take the data of every species not in ``species_data`` from the
-        ``chemicals`` package (by name, else by formula); each species'
-        ``source`` records where its values came from.
+        ``chemicals`` package: by compound name first, else by formula (a
+        condensed structural formula such as ``C2H5OH`` is read as the
+        structure it writes; a formula that fits more than one compound
+        with data, such as ``C4H10``, is refused with the candidates
+        listed). Each species' ``source`` records the compound's name and
+        registry number and where its values came from.
 
     Raises
     ------
@@ -175,7 +280,10 @@ class ReactionSystem:
             if label not in self.lnK_data and all(name in self.species_data for name in coefs):
                 from eqbatch.thermo import ThermoLnK
 
-                self.lnK_data[label] = ThermoLnK(coefs, self.species_data)
+                # on the system's P0 (each data set keeps its own standard pressure)
+                self.lnK_data[label] = ThermoLnK(
+                    coefs, self.species_data, P0=self.P0, phases=dict(zip(self.species, self.phases))
+                )
         # What it takes to build the same system again (pickling, Dask workers).
         self._spec = {
             "species": list(self.species),
@@ -384,7 +492,7 @@ class ReactionSystem:
 
     def lnK(self, T: ArrayLike) -> np.ndarray:
         """``(N, R)`` ln K of every reaction at temperatures ``T`` (K) from the
-        system's K data.
+        system's K data; NaN rows where ``T`` is not positive and finite.
 
         Raises
         ------
@@ -400,10 +508,34 @@ class ReactionSystem:
                 f"reaction(s) {', '.join(map(repr, missing))} have no K data in the system; "
                 "give lnK=, K= or log10K= to solve()"
             )
+        bad = _bad_temperatures(T) if T.shape[0] else None
+        if bad is not None:
+            T = np.where(bad, np.nan, T)  # no extrapolation warning for a temperature that is not one
         out = np.empty((T.shape[0], self.n_reactions))
         for j, label in enumerate(self.labels):
             data = self.lnK_data[label]
             out[:, j] = data(T) if callable(data) else data
+        if bad is not None:
+            out[bad] = np.nan
+        return out
+
+    def lnK_at(self, T: ArrayLike) -> np.ndarray:
+        """``(N, R)`` ln K of each reaction at its own temperature: column
+        ``j`` of ``T`` (shape (N, R)) is the temperature of reaction ``j``
+        (an approach temperature, say)."""
+        T = np.asarray(T, dtype=np.float64)
+        out = np.empty(T.shape)
+        for j in range(self.n_reactions):
+            out[:, j] = self.lnK(T[:, j])[:, j]
+        return out
+
+    def dlnK_dT_at(self, T: ArrayLike) -> np.ndarray:
+        """``(N, R)`` d ln K / dT of each reaction at its own temperature
+        (column ``j`` of ``T``, as in :meth:`lnK_at`)."""
+        T = np.asarray(T, dtype=np.float64)
+        out = np.empty(T.shape)
+        for j in range(self.n_reactions):
+            out[:, j] = self.dlnK_dT(T[:, j])[:, j]
         return out
 
     def __reduce__(self):
@@ -422,15 +554,9 @@ class ReactionSystem:
                 return feed.reshape(1, -1) if feed.flags.c_contiguous else np.ascontiguousarray(feed)[None]
             if feed.ndim == 2 and feed.flags.c_contiguous:
                 return feed
-        if isinstance(feed, Mapping):
-            columns = {self.index(k): np.asarray(v, dtype=np.float64) for k, v in feed.items()}
-            n = max((c.size for c in columns.values()), default=1)
-            arr = np.zeros((n, self.n_species))
-            for k, col in columns.items():
-                if col.ndim > 1 or col.size not in (1, n):
-                    raise CaseInputError(f"feed[{self.species[k]!r}] must be a scalar or 1-D array")
-                arr[:, k] = col.reshape(-1)
-            return arr
+        labelled = _labelled(feed)
+        if labelled is not None:
+            return self._align(*labelled, "feed", self.species)
         arr = np.asarray(feed, dtype=np.float64)
         if arr.ndim == 1:
             arr = arr.reshape(1, -1)
@@ -441,12 +567,67 @@ class ReactionSystem:
             )
         return arr if arr.flags.c_contiguous else np.ascontiguousarray(arr)
 
+    def _align(self, labels: list[Any], columns: list[Any], name: str, names: Sequence[str]) -> np.ndarray:
+        """``(N, len(names))`` float64 from labelled columns, each put in the
+        column of its label (see :func:`_labelled`).
+
+        For the feed (``names`` is ``species``) a species without a label is
+        zero feed; ln K, K, log10K and x0 need every reaction label. Unknown
+        or repeated labels are refused, naming them and the valid ones.
+        """
+        is_feed = names is self.species
+        position = {label: k for k, label in enumerate(names)}
+        unknown = [label for label in labels if label not in position]
+        if unknown:
+            listed = ", ".join(map(repr, unknown))
+            hint = ""
+            if any(isinstance(label, (int, np.integer)) for label in unknown):
+                hint = "; integer labels other than the default 0..k-1 of pandas are not read as positions"
+            if is_feed:
+                verb = "is not a species" if len(unknown) == 1 else "are not species"
+                raise UnknownSpeciesError(
+                    f"{name}: {listed} {verb} of this system (species are {', '.join(names)}){hint}"
+                )
+            raise CaseInputError(
+                f"{name}: {listed} not reaction label(s) (labels are {', '.join(names)}){hint}"
+            )
+        if len(set(labels)) != len(labels):
+            twice = sorted({str(label) for label in labels if labels.count(label) > 1})
+            raise CaseInputError(f"{name}: {', '.join(twice)} given twice")
+        if not is_feed and len(labels) != len(names):
+            missing = [label for label in names if label not in labels]
+            raise CaseInputError(f"{name}: no value for reaction(s) {', '.join(missing)}")
+        values = []
+        for label, column in zip(labels, columns):
+            try:
+                col = np.asarray(column, dtype=np.float64)
+            except (TypeError, ValueError):
+                raise CaseInputError(f"{name}[{label!r}] is not a number: {column!r}") from None
+            if col.ndim > 1:
+                raise CaseInputError(
+                    f"{name}[{label!r}] must be a scalar or 1-D array (one value per case); "
+                    f"got shape {col.shape}"
+                )
+            values.append(col.reshape(-1))
+        n = max((v.size for v in values), default=1)
+        arr = np.zeros((n, len(names)))
+        for label, col in zip(labels, values):
+            if col.size not in (1, n):
+                raise CaseInputError(
+                    f"{name}[{label!r}] has {col.size} values but others have {n}; give 1 or {n}"
+                )
+            arr[:, position[label]] = col
+        return arr
+
     def _rows(self, value: Any, name: str, width: int) -> np.ndarray:
         if type(value) is np.ndarray and value.dtype == np.float64 and value.flags.c_contiguous:
             if value.ndim == 2 and value.shape[1] == width:
                 return value
             if value.ndim == 1 and width > 1 and value.shape[0] == width:
                 return value.reshape(1, -1)
+        labelled = _labelled(value)
+        if labelled is not None:
+            return self._align(*labelled, name, self.labels)
         arr = np.asarray(value, dtype=np.float64)
         if arr.ndim <= 1 and width == 1:
             arr = arr.reshape(-1, 1)
@@ -467,18 +648,6 @@ class ReactionSystem:
             raise CaseInputError(f"give only one of lnK=, K=, log10K= (got {', '.join(n for n, _ in given)})")
         if given:
             name, value = given[0]
-            if isinstance(value, Mapping):
-                missing = [lab for lab in self.labels if lab not in value]
-                if missing:
-                    raise CaseInputError(f"{name}: no value for reaction(s) {', '.join(missing)}")
-                unknown = [lab for lab in value if lab not in self.labels]
-                if unknown:
-                    raise CaseInputError(
-                        f"{name}: {', '.join(map(repr, unknown))} not reaction labels "
-                        f"(labels are {', '.join(self.labels)})"
-                    )
-                cols = np.broadcast_arrays(*[np.asarray(value[lab], dtype=np.float64) for lab in self.labels])
-                value = np.stack([c.reshape(-1) for c in cols], axis=1)
             arr = self._rows(value, name, self.n_reactions)
             if name == "K":
                 with np.errstate(divide="ignore", invalid="ignore"):
@@ -523,18 +692,24 @@ class ReactionSystem:
 
         Parameters
         ----------
-        feed : array_like, shape (N, S) or (S,), or mapping species -> amount(s)
-            Feed amounts, mol, in the order of ``species`` (missing species of
-            a mapping are zero).
-        lnK, K, log10K : array_like, shape (N, R) or (R,), or mapping label -> value(s), optional
+        feed : array_like, shape (N, S) or (S,), or labelled by species
+            Feed amounts, mol. Arrays are in the order of ``species``.
+            Labelled inputs are aligned by label: a mapping species ->
+            amount(s), a pandas Series (one case) or DataFrame (a column per
+            species), a numpy structured array or a pyarrow Table; missing
+            species are zero, unknown labels raise UnknownSpeciesError.
+        lnK, K, log10K : array_like, shape (N, R) or (R,), or labelled by reaction, optional
             Equilibrium constants on the system's standard pressure ``P0``;
-            give at most one. Without them, the system's K data are used
+            give at most one. Labelled inputs (as for ``feed``) need every
+            reaction label. Without them, the system's K data are used
             (evaluated at ``T`` when they depend on temperature).
         T : float or array_like, shape (N,), optional
-            Temperature, K, for K(T) data.
+            Temperature, K, for K(T) data. A case whose ``T`` is not positive
+            and finite is invalid input.
         P : float or array_like, shape (N,), optional
-            Pressure, bar. Defaults to ``P0``.
-        tol : float, default 1e-10
+            Pressure, bar. Defaults to ``P0``. Other shapes (a ``(N, 1)``
+            column, a grid) are refused, for ``T`` too.
+        tol : float, default 1e-10, from 1e-15 to 1e-3
             Convergence: ``|ln Q - ln K| <= tol`` for every reaction of an
             independent set: the reactions as given (all-gas systems of up to
             20 reactions and 28 species, solved in batches, while every
@@ -546,10 +721,10 @@ class ReactionSystem:
         threads : int, optional
             Worker threads (default: all cores). Results do not depend on it.
         invalid : {"mark", "raise"}, default "mark"
-            Bad cases (negative or NaN feed, zero total, bad ln K or P) get
+            Bad cases (negative or NaN feed, zero total, bad ln K, P or T) get
             ``Status.INVALID_INPUT`` and NaN outputs; ``"raise"`` raises
             :class:`InvalidCaseError` naming the first one instead.
-        x0 : array_like, shape (N, R) or (R,), optional
+        x0 : array_like, shape (N, R) or (R,), or labelled by reaction, optional
             Starting extents (a warm start, e.g. ``previous.extents``). Used
             where it puts every species that can be present above zero;
             elsewhere the default interior start is used. The equilibrium
@@ -559,8 +734,12 @@ class ReactionSystem:
             :meth:`EquilibriumResult.sensitivity`.
         approach : mapping label -> kelvin, optional
             Temperature approach to equilibrium per reaction (needs ``T`` and
-            K(T) data): the reaction is taken ``dT`` short of equilibrium, at
-            ``K(T - dT)`` if endothermic and ``K(T + dT)`` if exothermic.
+            K(T) data): the reaction is held ``dT`` short of equilibrium in
+            the direction it runs for that case (the sign of its extent at
+            equilibrium, found by a first solve), whichever way it is
+            written: at ``K(T - dT)`` if it runs endothermic (reforming) and
+            ``K(T + dT)`` if it runs exothermic (the shift). The temperature
+            of each reaction is kept for ``sensitivity("T")``.
         chain : bool, default False
             Start each case from the solution of the case before it (within
             fixed chunks of 64 cases, so results still do not depend on the
@@ -572,7 +751,13 @@ class ReactionSystem:
             temperature (``result.T``) at which the mixture is at equilibrium
             and its enthalpy equals the inlet's (needs species data for every
             species). ``Status.OUT_OF_RANGE`` where no temperature in the
-            data's range balances.
+            data's range balances. ``tol``, ``max_iter``, ``x0`` and
+            ``invalid`` apply as for an isothermal solve; derivatives hold
+            the enthalpy balance (``sensitivity("T")`` is by the inlet
+            temperature, ``sensitivity(wrt, of="T")`` gives the outlet
+            temperature's); ``result.T_iterations`` counts the temperature
+            iterations and ``result.iterations`` the Newton iterations of all
+            of them.
 
         Returns
         -------
@@ -592,31 +777,42 @@ class ReactionSystem:
                 )
             from eqbatch.adiabatic import adiabatic_solve
 
-            return adiabatic_solve(self, feed, T, P, tol=tol, threads=threads)
+            return adiabatic_solve(
+                self,
+                feed,
+                T,
+                P,
+                tol=tol,
+                max_iter=max_iter,
+                threads=threads,
+                invalid=invalid,
+                x0=x0,
+                sensitivities=sensitivities,
+            )
         feed_arr = self._feed_array(feed)
-        T_arr = None if T is None else np.atleast_1d(np.asarray(T, dtype=np.float64)).reshape(-1)
+        T_arr = None if T is None else _case_column(T, "T")
         if approach:
             if T_arr is None or lnK is not None or K is not None or log10K is not None:
                 raise CaseInputError("approach= needs T= and the system's K(T) data (not explicit constants)")
-            from eqbatch.thermo import approach_lnK
+            from eqbatch.thermo import check_approach
 
-            lnk_arr = approach_lnK(self, T_arr, approach)
-        else:
-            lnk_arr = self._lnk_array(lnK, K, log10K, T_arr)
-        if P is None:
-            p_arr = self._p0_row
-        elif type(P) is float or type(P) is int:
-            p_arr = np.array([P], dtype=np.float64)
-        else:
-            p_arr = np.asarray(P, dtype=np.float64).reshape(-1)
-            if not p_arr.flags.c_contiguous:
-                p_arr = np.ascontiguousarray(p_arr)
+            approach = check_approach(self, approach)
+        lnk_arr = self._lnk_array(lnK, K, log10K, T_arr)
+        p_arr = self._p0_row if P is None else _case_column(P, "P")
         rows = (feed_arr.shape[0], lnk_arr.shape[0], p_arr.shape[0], 1 if T_arr is None else T_arr.shape[0])
         n = max(rows)
         if n > 1:
             for name, count in zip(("feed", "equilibrium constants", "P", "T"), rows):
                 if count != n and count != 1:
                     raise CaseInputError(f"{name} has {count} cases but other inputs have {n}; give 1 or {n}")
+        bad_T = None if T_arr is None else _bad_temperatures(T_arr)
+        if bad_T is not None:
+            # The core does not see T: a NaN ln K makes it mark the case INVALID_INPUT.
+            # np.array copies, so the caller's ln K array is never written.
+            cases = max(lnk_arr.shape[0], bad_T.shape[0])
+            lnk_arr = np.array(np.broadcast_to(lnk_arr, (cases, self.n_reactions)))
+            lnk_arr[np.broadcast_to(bad_T, (cases,))] = np.nan
+        tol = _checked_tol(tol)
         if invalid not in ("mark", "raise"):
             raise CaseInputError(f"invalid must be 'mark' or 'raise', got {invalid!r}")
         if max_iter != 200 and not (isinstance(max_iter, (int, np.integer)) and max_iter >= 0):
@@ -626,6 +822,20 @@ class ReactionSystem:
         start = None if x0 is None else self._rows(x0, "x0", self.n_reactions)
         if start is not None and start.shape[0] not in (1, n):
             raise CaseInputError(f"x0 has {start.shape[0]} cases but other inputs have {n}; give 1 or {n}")
+        T_eff = None
+        if approach:
+            # The direction each reaction runs in, case by case, is that of its
+            # extent at equilibrium; the approach holds it short of that.
+            from eqbatch.thermo import approach_temperatures
+
+            _, eq_extents, _, _ = self._core.solve(
+                feed_arr, lnk_arr, p_arr, n, tol, max_iter, threads, start, chain
+            )
+            T_eff = approach_temperatures(self, T_arr, approach, np.sign(eq_extents))
+            lnk_arr = self.lnK_at(T_eff)
+            if bad_T is not None:
+                lnk_arr[np.broadcast_to(bad_T, (lnk_arr.shape[0],))] = np.nan
+            start = np.where(np.isfinite(eq_extents), eq_extents, 0.0)
         amounts, extents, status, iterations = self._core.solve(
             feed_arr, lnk_arr, p_arr, n, tol, max_iter, threads, start, chain
         )
@@ -633,21 +843,37 @@ class ReactionSystem:
         result = EquilibriumResult(
             self, amounts, extents, None, status, iterations, feed_arr, p_arr, T_arr, lnk_arr
         )
+        result._T_eff = T_eff
         if invalid == "raise" and (status == Status.INVALID_INPUT).any():
             k = int(np.flatnonzero(status == Status.INVALID_INPUT)[0])
-            why = self._why_invalid(result.feed[k], result.lnK[k], float(result.P[k]))
+            T_k = None if T_arr is None else float(T_arr[k if T_arr.shape[0] > 1 else 0])
+            why = self._why_invalid(result.feed[k], result.lnK[k], float(result.P[k]), T_k)
             raise InvalidCaseError(f"case {k}: {why}")
+        repaired = None
         if self._two_phase and (status == 1).any() | (status == 4).any():
             from eqbatch.phases import repair_vanished_phases
 
-            repair_vanished_phases(self, result)
+            repaired = repair_vanished_phases(self, result, tol=tol, max_iter=max_iter)
         if sensitivities:
             result._sens = self._core.sensitivities(feed_arr, p_arr, amounts, status, threads)
+            if repaired is not None and repaired.size:
+                # The core's derivatives assume every reachable species present.
+                from eqbatch.phases import active_set_sensitivities
+
+                d_lnk, d_lnp, d_feed = result._sens
+                for k in repaired:
+                    d_lnk[k], d_lnp[k], d_feed[k] = active_set_sensitivities(
+                        self, amounts[k], float(result.P[k])
+                    )
         return result
 
     def dlnK_dT(self, T: ArrayLike) -> np.ndarray:
-        """``(N, R)`` temperature derivative of ln K, 1/K, from the K(T) data."""
+        """``(N, R)`` temperature derivative of ln K, 1/K, from the K(T) data;
+        NaN rows where ``T`` is not positive and finite."""
         T = np.atleast_1d(np.asarray(T, dtype=np.float64))
+        bad = _bad_temperatures(T) if T.ndim == 1 and T.shape[0] else None
+        if bad is not None:
+            T = np.where(bad, np.nan, T)  # no extrapolation warning for a temperature that is not one
         out = np.zeros((T.shape[0], self.n_reactions))
         for j, label in enumerate(self.labels):
             data = self.lnK_data.get(label)
@@ -655,14 +881,19 @@ class ReactionSystem:
                 raise CaseInputError(f"reaction {label!r} has no K data: d ln K / dT is unknown")
             if callable(data):
                 out[:, j] = data.derivative(T)
+        if bad is not None:
+            out[bad] = np.nan
         return out
 
-    def _why_invalid(self, feed: np.ndarray, lnk: np.ndarray, P: float) -> str:
-        """Which rule of the core's input check a case broke (see Status.INVALID_INPUT)."""
+    def _why_invalid(self, feed: np.ndarray, lnk: np.ndarray, P: float, T: float | None = None) -> str:
+        """Which rule of the core's input check a case broke (see Status.INVALID_INPUT);
+        a bad ``T`` reaches the core as a NaN ln K, so it is named before ln K."""
         if not np.all(np.isfinite(feed) & (feed >= 0)):
             return f"the feed has a negative or non-finite amount: {feed.tolist()}"
         if not feed.sum() > 0:
             return "the total feed is zero"
+        if T is not None and not 0.0 < T < math.inf:
+            return f"the temperature {T} K is not positive and finite"
         if not np.all(np.isfinite(lnk)):
             return f"ln K is not finite: {dict(zip(self.labels, lnk.tolist()))}"
         return f"the pressure {P} bar is not positive and finite"

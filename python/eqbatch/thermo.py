@@ -3,7 +3,8 @@
 Three open, published forms of standard-state data are read, each giving the
 molar heat capacity, the enthalpy on the formation scale (``H(298.15 K) =
 dfH``, so elements in their reference state have zero) and the absolute
-entropy, all at the standard pressure of the data:
+entropy, all at the standard pressure of the data, ``P_ref`` (1 bar, the
+standard of current tables, unless the data say otherwise):
 
 * :class:`NASA7`: the 7-coefficient two-range polynomials of the NASA Glenn
   database (B. J. McBride, M. J. Zehe and S. Gordon, NASA TP-2002-211556);
@@ -14,11 +15,16 @@ entropy, all at the standard pressure of the data:
   Prausnitz and J. P. O'Connell, *The Properties of Gases and Liquids*.
 
 A reaction's ``ln K(T) = -dG(T) / (R T)`` with ``dG = sum nu_i (h_i - T s_i)``;
-its temperature derivative is ``dH / (R T^2)`` (van 't Hoff).
+its temperature derivative is ``dH / (R T^2)`` (van 't Hoff). The constant is
+put on the system's standard pressure ``P0``: a gas species' standard Gibbs
+energy at ``P0`` is the data's plus ``R T ln(P0 / P_ref)``, so
+``ln K(P0) = ln K(data) - sum over gas species of nu_i ln(P0 / P_ref_i)``
+(liquid species' activities are mole fractions, with no pressure term).
 """
 
 from __future__ import annotations
 
+import math
 import warnings
 from collections.abc import Mapping, Sequence
 from dataclasses import dataclass
@@ -45,6 +51,18 @@ def _range_warning(obj: Any, T: np.ndarray, lo: float, hi: float, what: str) -> 
         )
 
 
+def _check_p_ref(data: Any) -> None:
+    try:
+        ok = float(data.P_ref) > 0 and math.isfinite(float(data.P_ref))
+    except (TypeError, ValueError):
+        ok = False
+    if not ok:
+        raise SystemDefinitionError(
+            f"{type(data).__name__} P_ref (the data's standard pressure) must be a positive pressure in bar, "
+            f"got {data.P_ref!r}"
+        )
+
+
 @dataclass(frozen=True)
 class NASA7:
     """NASA 7-coefficient polynomials: ``low`` for ``T_min <= T < T_mid`` and
@@ -59,10 +77,13 @@ class NASA7:
     T_min: float = 200.0
     T_max: float = 3500.0
     source: str = "NASA 7-coefficient polynomials (given)"
+    #: Standard pressure of the data, bar (1 bar for the NASA Glenn database).
+    P_ref: float = 1.0
 
     def __post_init__(self) -> None:
         if len(self.low) != 7 or len(self.high) != 7:
             raise SystemDefinitionError("NASA7 needs 7 coefficients for each of the low and high ranges")
+        _check_p_ref(self)
 
     def _coef(self, T: np.ndarray) -> np.ndarray:
         _range_warning(self, T, self.T_min, self.T_max, self.source)
@@ -112,10 +133,13 @@ class Shomate:
 
     ranges: tuple[tuple[float, ...], ...]
     source: str = "Shomate coefficients (given)"
+    #: Standard pressure of the data, bar (1 bar in the NIST Chemistry WebBook).
+    P_ref: float = 1.0
 
     def __post_init__(self) -> None:
         if not self.ranges or any(len(r) != 10 for r in self.ranges):
             raise SystemDefinitionError("Shomate needs (T_min, T_max, A, B, C, D, E, F, G, H) per range")
+        _check_p_ref(self)
 
     def _coef(self, T: np.ndarray) -> np.ndarray:
         table = np.array(sorted(self.ranges))
@@ -174,6 +198,11 @@ class CpPolynomial:
     T_min: float = 200.0
     T_max: float = 1500.0
     source: str = "Cp polynomial (given)"
+    #: Standard pressure of ``S298``, bar.
+    P_ref: float = 1.0
+
+    def __post_init__(self) -> None:
+        _check_p_ref(self)
 
     def _a(self, T: np.ndarray) -> np.ndarray:
         _range_warning(self, T, self.T_min, self.T_max, self.source)
@@ -214,14 +243,34 @@ SpeciesData = NASA7 | Shomate | CpPolynomial
 
 class ThermoLnK:
     """``ln K(T)`` of one reaction from its species' data (callable on arrays),
-    with ``derivative(T) = dH / (R T^2)``."""
+    on the standard pressure ``P0`` (bar) of the system, with
+    ``derivative(T) = dH / (R T^2)``.
 
-    def __init__(self, coefficients: Mapping[str, float], data: Mapping[str, SpeciesData]) -> None:
+    Each data set is on its own standard pressure ``P_ref``; gas species (all
+    species unless ``phases`` says otherwise) add ``-nu_i ln(P0 / P_ref_i)``
+    to ``ln K``, a constant in ``T`` (so ``dH`` and the derivative do not
+    change); species in any other phase add nothing."""
+
+    def __init__(
+        self,
+        coefficients: Mapping[str, float],
+        data: Mapping[str, SpeciesData],
+        P0: float = 1.0,
+        phases: Mapping[str, str] | None = None,
+    ) -> None:
         self.terms = [(float(c), data[name]) for name, c in coefficients.items()]
+        self.P0 = float(P0)
+        #: ``ln K(P0) - ln K(data)``: the change of standard pressure of the gas species.
+        self.ln_k_shift = -sum(
+            float(c) * math.log(self.P0 / float(data[name].P_ref))
+            for name, c in coefficients.items()
+            if (phases or {}).get(name, "gas") == "gas"
+        )
 
     def dG(self, T) -> np.ndarray:
+        """Standard reaction Gibbs energy on ``P0``, J/mol."""
         T = np.asarray(T, dtype=float)
-        return sum(c * (d.h(T) - T * d.s(T)) for c, d in self.terms)
+        return sum(c * (d.h(T) - T * d.s(T)) for c, d in self.terms) - R * T * self.ln_k_shift
 
     def dH(self, T) -> np.ndarray:
         T = np.asarray(T, dtype=float)
@@ -236,14 +285,29 @@ class ThermoLnK:
         return self.dH(T) / (R * T * T)
 
 
+_TABLE_KEYS = ("nasa7", "shomate", "cp_poly", "source", "P_ref")
+
+
 def species_data_from_table(name: str, table: Mapping[str, Any]) -> SpeciesData:
     """One species' data from a system-file table: exactly one of ``nasa7``,
-    ``shomate`` or ``cp_poly``, optionally with ``source``."""
+    ``shomate`` or ``cp_poly``, optionally with ``source`` and ``P_ref`` (the
+    data's standard pressure, bar; default 1)."""
+    unknown = sorted(set(table) - set(_TABLE_KEYS))
+    if unknown:
+        raise SystemDefinitionError(
+            f"species_data.{name}: unknown key(s) {unknown}; valid are {', '.join(_TABLE_KEYS)}"
+        )
     keys = [k for k in ("nasa7", "shomate", "cp_poly") if k in table]
     if len(keys) != 1:
         raise SystemDefinitionError(f"species_data.{name}: give exactly one of nasa7, shomate, cp_poly")
     value = table[keys[0]]
     source = str(table.get("source", f"{keys[0]} data for {name} (system file)"))
+    try:
+        p_ref = float(table.get("P_ref", 1.0))
+    except (TypeError, ValueError):
+        raise SystemDefinitionError(
+            f"species_data.{name}.P_ref: the data's standard pressure in bar, got {table['P_ref']!r}"
+        ) from None
     try:
         if keys[0] == "nasa7":
             return NASA7(
@@ -253,13 +317,14 @@ def species_data_from_table(name: str, table: Mapping[str, Any]) -> SpeciesData:
                 float(value.get("T_min", 200.0)),
                 float(value.get("T_max", 3500.0)),
                 source,
+                p_ref,
             )
         if keys[0] == "shomate":
             ranges = tuple(
                 tuple(float(r[k]) for k in ("T_min", "T_max", "A", "B", "C", "D", "E", "F", "G", "H"))
                 for r in value
             )
-            return Shomate(ranges, source)
+            return Shomate(ranges, source, p_ref)
         return CpPolynomial(
             tuple(float(x) for x in value["a"]),
             float(value["dHf"]),
@@ -267,6 +332,7 @@ def species_data_from_table(name: str, table: Mapping[str, Any]) -> SpeciesData:
             float(value.get("T_min", 200.0)),
             float(value.get("T_max", 1500.0)),
             source,
+            p_ref,
         )
     except (KeyError, TypeError, ValueError) as err:
         raise SystemDefinitionError(f"species_data.{name}.{keys[0]}: malformed ({err})") from None
@@ -341,23 +407,60 @@ def independent_reactions(species: Sequence[str], formulas: Mapping[str, dict[st
     return equations
 
 
-def approach_lnK(system, T: np.ndarray, approach: Mapping[str, float]) -> np.ndarray:
-    """ln K with a temperature approach to equilibrium per reaction: a
-    reaction given ``dT >= 0`` is taken to stop short of equilibrium, at the
-    constant of ``T - dT`` if it is endothermic (dH > 0, as steam reforming)
-    and of ``T + dT`` if exothermic (as the shift): the design-practice
-    convention that the outlet is "``dT`` away from equilibrium"."""
-    T = np.atleast_1d(np.asarray(T, dtype=float))
-    out = system.lnK(T)
+def check_approach(system, approach: Mapping[str, float]) -> dict[str, float]:
+    """``approach`` as ``{label: dT}`` with known labels, K(T) data and
+    finite ``dT >= 0`` (K), else CaseInputError."""
+    from eqbatch.errors import CaseInputError
+
+    out = {}
     for label, dT in approach.items():
         if label not in system.labels:
-            raise SystemDefinitionError(f"approach: {label!r} is not a reaction label")
-        j = system.labels.index(label)
-        data = system.lnK_data[label]
-        slope = data.derivative(T) if hasattr(data, "derivative") else np.zeros_like(T)
-        shifted = T - np.sign(slope) * float(dT)
-        out[:, j] = data(shifted) if callable(data) else data
+            raise CaseInputError(
+                f"approach: {label!r} is not a reaction label (labels are {', '.join(system.labels)})"
+            )
+        if not callable(system.lnK_data.get(label)):
+            raise CaseInputError(f"approach: reaction {label!r} has no K(T) data to take an approach on")
+        try:
+            value = float(dT)
+        except (TypeError, ValueError):
+            raise CaseInputError(
+                f"approach[{label!r}] must be a temperature difference in K, got {dT!r}"
+            ) from None
+        if not (0.0 <= value < math.inf):
+            raise CaseInputError(
+                f"approach[{label!r}] = {dT!r}: an approach is a distance from equilibrium, "
+                "finite and not negative (K)"
+            )
+        out[label] = value
     return out
+
+
+def approach_temperatures(
+    system, T: np.ndarray, approach: Mapping[str, float], direction: np.ndarray
+) -> np.ndarray:
+    """``(N, R)`` temperature at which each reaction's K is taken: ``T`` for
+    reactions without an approach; for a reaction given ``dT`` (K), the
+    temperature ``dT`` away from ``T`` on the side that holds it short of
+    equilibrium in the direction it runs (``direction``, the sign of its
+    extent per case, ``(N, R)``). A reaction running forward stops short
+    with a smaller K, one running backward with a larger one, so the shift
+    is ``-sign(d ln K / dT) * direction * dT``: ``T - dT`` for steam
+    reforming run forward (endothermic), ``T + dT`` for the shift run
+    forward (exothermic), and ``T - dT`` again for methanation written
+    forward but run backward in a reformer. This is the design-practice
+    reading of an approach temperature: the outlet is "``dT`` away from
+    equilibrium"."""
+    direction = np.asarray(direction, dtype=float)
+    T = np.asarray(T, dtype=float).reshape(-1)
+    n = max(T.shape[0], direction.shape[0])
+    T_eff = np.array(np.broadcast_to(T[:, None], (n, system.n_reactions)))
+    direction = np.broadcast_to(direction, (n, system.n_reactions))
+    T_rows = np.broadcast_to(T, (n,))
+    for label, dT in approach.items():
+        j = system.labels.index(label)
+        slope = system.lnK_data[label].derivative(T_rows)
+        T_eff[:, j] = T_rows - np.sign(slope) * np.nan_to_num(direction[:, j]) * dT
+    return T_eff
 
 
 def equilibrium_temperature(
@@ -414,46 +517,43 @@ def chemicals_data(name: str, formula: str | None = None) -> CpPolynomial:
     ideal-gas heat-capacity polynomial of Poling, Prausnitz and O'Connell,
     *The Properties of Gases and Liquids* (its table's validity range), with
     the formation enthalpy and entropy at 298.15 K from the package's first
-    ranked source for each (recorded in ``source``)."""
+    ranked source for each, on a 1 bar standard state.
+
+    The compound is found by name first, then from the formula: a condensed
+    structural formula (``C2H5OH``) is read as the structure it writes, and a
+    formula that fits more than one compound with data (``C4H10``) is refused
+    with the candidates listed (see :mod:`eqbatch.compounds`). ``source``
+    records the compound's name and registry number, how it was found, and
+    where each value came from."""
     try:
-        from chemicals import CAS_from_any
         from chemicals.heat_capacity import Cp_data_Poling
         from chemicals.reaction import Hfg, Hfg_methods, S0g, S0g_methods
     except ImportError:
         raise SystemDefinitionError(
             "thermo='chemicals' needs the chemicals package: pip install chemicals"
         ) from None
-    cas = None
-    for key in (name, formula):
-        if not key:
-            continue
-        try:
-            cas = CAS_from_any(key)
-            break
-        except Exception:  # chemicals raises ValueError and others for unknown names
-            continue
-    if cas is None:
-        raise SystemDefinitionError(
-            f"thermo='chemicals': no compound found for species {name!r}"
-            + (f" (formula {formula})" if formula else "")
-        )
+    from eqbatch.compounds import identify
+
+    def has_data(cas: str) -> bool:
+        return cas in Cp_data_Poling.index and bool(Hfg_methods(cas)) and bool(S0g_methods(cas))
+
+    compound = identify(name, formula, has_data)
+    cas = compound.cas
+    what = f"species {name!r} = {compound.label()}"
     if cas not in Cp_data_Poling.index:
-        raise SystemDefinitionError(
-            f"thermo='chemicals': no ideal-gas Cp polynomial for {name!r} (CAS {cas})"
-        )
+        raise SystemDefinitionError(f"thermo='chemicals': no ideal-gas Cp polynomial for {what}")
     h_methods, s_methods = Hfg_methods(cas), S0g_methods(cas)
     if not h_methods or not s_methods:
-        raise SystemDefinitionError(
-            f"thermo='chemicals': no formation enthalpy or entropy for {name!r} (CAS {cas})"
-        )
+        raise SystemDefinitionError(f"thermo='chemicals': no formation enthalpy or entropy for {what}")
     hf = Hfg(cas, method=h_methods[0])
     s0 = S0g(cas, method=s_methods[0])
     row = Cp_data_Poling.loc[cas]
     a = tuple(float(row[k]) for k in ("a0", "a1", "a2", "a3", "a4"))
     t_min, t_max = float(row["Tmin"]), float(row["Tmax"])
     source = (
-        f"chemicals {cas}: Cp/R polynomial of Poling, Prausnitz and O'Connell ({t_min:g}-{t_max:g} K); "
+        f"chemicals: {compound.name}, CAS {cas} ({compound.how}); "
+        f"Cp/R polynomial of Poling, Prausnitz and O'Connell ({t_min:g}-{t_max:g} K); "
         f"dfH(298.15 K) = {hf / 1000:.3f} kJ/mol ({h_methods[0]}); "
-        f"S(298.15 K) = {s0:.2f} J/mol/K ({s_methods[0]})"
+        f"S(298.15 K) = {s0:.2f} J/mol/K ({s_methods[0]}); ideal gas at 1 bar"
     )
-    return CpPolynomial(a=a, dHf=hf / 1000.0, S298=s0, T_min=t_min, T_max=t_max, source=source)
+    return CpPolynomial(a=a, dHf=hf / 1000.0, S298=s0, T_min=t_min, T_max=t_max, source=source, P_ref=1.0)

@@ -417,7 +417,7 @@ pub fn solve_batch(
             );
             status[local] = st as u8;
             iterations[local] = it;
-            previous_converged = st == Status::Converged;
+            previous_converged = st.is_converged();
             finish(amounts, extents, y, st);
         }
     };

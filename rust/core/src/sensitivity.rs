@@ -34,7 +34,9 @@ pub struct SensitivityOutputs<'a> {
 
 const CHUNK: usize = 64;
 
-/// Derivatives of every converged case; other cases get NaN.
+/// Derivatives of every converged case (an [`Status::Underflow`] case
+/// included: a species held at the float floor has derivatives of its own
+/// size, zero in float64); other cases get NaN.
 pub fn sensitivities_batch(
     system: &System,
     inputs: &BatchInputs,
@@ -75,7 +77,8 @@ pub fn sensitivities_batch(
             let dp = &mut dp[local * s..(local + 1) * s];
             let df = &mut df[local * s * s..(local + 1) * s * s];
             let feed = feed_rows.row(inputs.feed, case);
-            let ok = status[case] == Status::Converged as u8
+            let ok = (status[case] == Status::Converged as u8
+                || status[case] == Status::Underflow as u8)
                 && match cursor.face(&faces, feed) {
                     Some(Ok(face)) => {
                         let n_case = &amounts[case * s..(case + 1) * s];

@@ -83,19 +83,14 @@ const LN_MINOR_SHARE: f64 = -4.605_170_185_988_091;
 pub(crate) const MODEL_TRUST: f64 = 0.1;
 /// Backtracking halvings before a case is declared stalled.
 const MAX_BACKTRACKS: u32 = 60;
-/// `ln` of the share of its phase below which float64 can no longer follow a
-/// species down (1e-280; the normal range ends near 2e-308). A species this
-/// far below its phase total that equilibrium would push lower still is held
-/// where it is and its reaction counts as satisfied; its amount is then an
-/// upper bound.
-const LN_FLOOR_SHARE: f64 = -644.720_826_038_332_8;
-/// `ln` of the absolute companion of the floor for tiny phase totals (1e-295).
-const LN_FLOOR_ABS: f64 = -679.259_602_433_243_3;
-
-/// `ln` of the smallest amount the solver follows in a phase with `ln` total `ln_total`.
-fn ln_floor(ln_total: f64) -> f64 {
-    (LN_FLOOR_SHARE + ln_total).max(LN_FLOOR_ABS)
-}
+/// `ln` of the smallest amount the solver follows (1e-305 mol, in any
+/// amount unit): float64's normal range ends near 2.2e-308, and the margin
+/// keeps `1/n` and the Hessian entries built from it finite. A minor species
+/// at this floor that equilibrium would push lower still is held there, its
+/// reaction is left out of the convergence test, and the case ends
+/// [`Status::Underflow`] instead of converged: its amount is then an upper
+/// bound.
+const LN_FLOOR: f64 = -702.288_453_363_184;
 
 /// `phi(x) = (1 + x) ln(1 + x) - x`, accurate for small `x` (where the
 /// direct formula cancels) by its series `sum_{k>=2} (-1)^k x^k / (k (k-1))`.
@@ -166,6 +161,10 @@ struct Scratch<'a> {
     /// potential term and its 1 / n, gathered once per use.
     comp_mu: &'a mut [f64],
     comp_w: &'a mut [f64],
+    /// Per component species: its amount when every pivot is zero,
+    /// `n0_c - sum_j B[j, c] n0_pivot(j)`, a conserved quantity of the
+    /// current basis computed from the feed (see [`run`]).
+    comp_base: &'a mut [f64],
     order: &'a mut [usize],
     pivot_of: &'a mut [usize],
     /// The species that are no basis reaction's pivot, in index order.
@@ -210,7 +209,7 @@ pub struct Workspace {
 }
 
 /// Number of per-species `f64` arrays in a [`Scratch`].
-const SPECIES_ARRAYS: usize = 8;
+const SPECIES_ARRAYS: usize = 9;
 /// Number of per-reaction `f64` arrays in a [`Scratch`].
 const REACTION_ARRAYS: usize = 12;
 
@@ -233,7 +232,7 @@ impl Workspace {
 
     fn scratch(&mut self) -> Scratch<'_> {
         let (s, r) = (self.n_species, self.n_reactions);
-        let [amounts, ln_amount, inv_amount, trial, trial_ln, change, comp_mu, comp_w] =
+        let [amounts, ln_amount, inv_amount, trial, trial_ln, change, comp_mu, comp_w, comp_base] =
             split_n::<SPECIES_ARRAYS, _>(&mut self.species, s);
         let [order, pivot_of, components] = split_n::<3, _>(&mut self.species_idx, s);
         let [basis_stoich, comp_stoich] = split_n::<2, _>(&mut self.by_species, r * s);
@@ -250,6 +249,7 @@ impl Workspace {
             change,
             comp_mu,
             comp_w,
+            comp_base,
             order,
             pivot_of,
             components,
@@ -356,7 +356,8 @@ fn solve_fixed<const R: usize, const S: usize, const G: bool>(
     let mut flags = [[false; R]; 2];
     let mut by_species = [[[0.0; S]; R]; 2];
     let mut square = [[[0.0; R]; R]; 2];
-    let [amounts, ln_amount, inv_amount, trial, trial_ln, change, comp_mu, comp_w] = &mut species;
+    let [amounts, ln_amount, inv_amount, trial, trial_ln, change, comp_mu, comp_w, comp_base] =
+        &mut species;
     let [order, pivot_of, components] = &mut species_idx;
     let [basis_stoich, comp_stoich] = &mut by_species;
     let [ln_k_face, ln_k_basis, residual, trial_residual, step, du, scale, gas_change, liquid_change, basis_step, face_step, extents] =
@@ -372,6 +373,7 @@ fn solve_fixed<const R: usize, const S: usize, const G: bool>(
         change,
         comp_mu,
         comp_w,
+        comp_base,
         order,
         pivot_of,
         components,
@@ -537,6 +539,45 @@ pub(crate) fn interior_start(
     }
 }
 
+/// The change and new amount of one component on a trial step.
+///
+/// Written through the user's reactions, a component's amount is a running
+/// sum `n0 + sum(nu * xi)` whose absolute error (about 1e-16 of the feed)
+/// swamps a component that has itself become a trace (three trace products
+/// and two reactions: one of them must be a component). Its amount is instead
+/// `base + sum_j B[j, c] n_pivot(j)` with `base` the conserved quantity of the
+/// basis computed once from the feed (exactly zero when the feed holds none
+/// of the species involved), so it inherits the relative precision of the
+/// pivots. Where that sum is not positive (a `base` lost to round-off in the
+/// feed), the running sum is used. `column` holds the component's
+/// coefficients at stride `nc`; a `NaN` base marks a component no basis
+/// reaction touches.
+#[inline(always)]
+fn component_update(
+    base: f64,
+    column: &[f64],
+    nc: usize,
+    pivots: &[usize],
+    trial: &[f64],
+    basis_step: &[f64],
+    amount: f64,
+) -> (f64, f64) {
+    let mut linear = 0.0;
+    let mut conserved = base;
+    for (j, (&p, &step)) in pivots.iter().zip(basis_step).enumerate() {
+        let coef = column[j * nc];
+        linear += coef * step;
+        conserved += coef * trial[p];
+    }
+    if base.is_nan() || linear == 0.0 {
+        (0.0, amount)
+    } else if conserved > 0.0 && conserved < f64::INFINITY {
+        (conserved - amount, conserved)
+    } else {
+        (linear, amount + linear)
+    }
+}
+
 /// `ln Q - ln K` of every basis reaction (into `out`) at the point whose
 /// logarithms are `ln_n`, with phase totals `ln_totals`: the reaction's pivot
 /// term, then its component terms (gathered into `mu` first). No test for
@@ -644,6 +685,9 @@ fn run(
     let mut basis_prefix = 0;
     let mut residual_known = false;
     let mut iterations = 0;
+    // Some species is held at the float floor with its reaction unmet
+    // (set at every convergence test).
+    let mut held;
     loop {
         // 1. The per-case stoichiometric basis, re-derived only when the
         //    abundance order changes within the part that chose it, and
@@ -689,6 +733,42 @@ fn run(
                     comp_stoich[j * nc + c] = basis_stoich[j * s + components[c]];
                 }
             }
+            // Components from the conserved quantities of this basis and the
+            // pivots (see `component_update`): a trace component then keeps
+            // the relative precision of the pivots it is made of.
+            let mut moved = false;
+            for c in 0..nc {
+                let i = components[c];
+                let mut base = feed[i];
+                let mut touched = false;
+                for j in 0..dim {
+                    let coef = comp_stoich[j * nc + c];
+                    if coef != 0.0 {
+                        touched = true;
+                        base -= coef * feed[sc.pivots[j]];
+                    }
+                }
+                sc.comp_base[c] = if touched { base } else { f64::NAN };
+                if touched {
+                    let mut v = base;
+                    for j in 0..dim {
+                        v += comp_stoich[j * nc + c] * amounts[sc.pivots[j]];
+                    }
+                    if v > 0.0 && v < f64::INFINITY && v != amounts[i] {
+                        amounts[i] = v;
+                        sc.ln_amount[i] = v.ln();
+                        sc.inv_amount[i] = 1.0 / v;
+                        moved = true;
+                    }
+                }
+            }
+            if moved {
+                totals = [0.0; N_PHASES];
+                for i in 0..s {
+                    totals[phase_of(i)] += amounts[i];
+                }
+                ln_totals = totals.map(|n| if n > 0.0 { n.ln() } else { 0.0 });
+            }
             for j in 0..dim {
                 let mut v = 0.0;
                 for k in 0..dim {
@@ -712,6 +792,7 @@ fn run(
         // 2. Residuals ln Q - ln K of the basis reactions (already known from
         //    the line search when the basis has not changed).
         let mut worst = 0.0_f64;
+        held = false;
         if !residual_known {
             basis_residuals(
                 &mut sc.residual[..dim],
@@ -735,10 +816,12 @@ fn run(
             // species keep their share and the case must not pass as converged.
             let ln_total = ln_totals[phase_of(sp)];
             sc.frozen[j] = res > 0.0
-                && sc.ln_amount[sp] <= ln_floor(ln_total) + 1e-6
+                && sc.ln_amount[sp] <= LN_FLOOR + 1e-6
                 && sc.ln_amount[sp] - ln_total <= LN_MINOR_SHARE;
             if !sc.frozen[j] {
                 worst = worst.max(res.abs());
+            } else if res > options.tol {
+                held = true;
             }
         }
         if !worst.is_finite() {
@@ -812,7 +895,7 @@ fn run(
                 }
             } else {
                 // Nor shrink below what float64 can follow.
-                let depth = ln_floor(ln_totals[phase_of(sp)]) - sc.ln_amount[sp];
+                let depth = LN_FLOOR - sc.ln_amount[sp];
                 if depth < 0.0 && depth > du {
                     alpha_max = alpha_max.min(depth / du);
                 }
@@ -854,21 +937,30 @@ fn run(
                 first_order += sc.residual[j] * d;
             }
             for j in 0..dim {
-                sc.change[sc.pivots[j]] = sc.basis_step[j];
+                let p = sc.pivots[j];
+                sc.change[p] = sc.basis_step[j];
+                sc.trial[p] = amounts[p] + sc.basis_step[j];
             }
             for c in 0..nc {
-                let mut d = 0.0;
-                for j in 0..dim {
-                    d += comp_stoich[j * nc + c] * sc.basis_step[j];
-                }
-                sc.change[components[c]] = d;
+                let i = components[c];
+                let (change, new) = component_update(
+                    sc.comp_base[c],
+                    &comp_stoich[c..],
+                    nc,
+                    &sc.pivots[..dim],
+                    sc.trial,
+                    &sc.basis_step[..dim],
+                    amounts[i],
+                );
+                sc.change[i] = change;
+                sc.trial[i] = new;
             }
             let mut feasible = true;
             let mut largest_relative = 0.0_f64;
             trial_totals = [0.0; N_PHASES];
             for i in 0..s {
                 let d = sc.change[i];
-                let new = amounts[i] + d;
+                let new = if d != 0.0 { sc.trial[i] } else { amounts[i] };
                 if d != 0.0 {
                     // (false for NaN as well)
                     if !(new > 0.0 && new < f64::INFINITY) {
@@ -962,7 +1054,11 @@ fn run(
         }
         iterations += 1;
     }
-    (Status::Converged, iterations)
+    if held {
+        (Status::Underflow, iterations)
+    } else {
+        (Status::Converged, iterations)
+    }
 }
 
 #[cfg(test)]
@@ -1051,6 +1147,36 @@ mod tests {
             assert!((major - 1.0).abs() < 1e-15);
             assert!(it < 30, "{it} iterations");
         }
+    }
+
+    #[test]
+    fn trace_component_keeps_its_balance_with_the_trace_pivots() {
+        // Steam at 298 K: 2 H2 + O2 = 2 H2O (ln K 184.42), H2 + O2 = 2 OH
+        // (ln K -27.66); species H2 O2 H2O OH, feed pure H2O. Three trace
+        // species and two reactions, so one trace is a component; the
+        // balances of the feed fix H2 = 2 O2 + OH / 2 exactly. A 50-digit
+        // reference gives H2 = 2.528e-27 and O2 = 1.264e-27 (the values of
+        // the issue that reported the fault, from an independent mpmath solve).
+        let nu = vec![-2.0, -1.0, 2.0, 0.0, -1.0, -1.0, 0.0, 2.0];
+        let (n, st, _) = solve(nu, 2, &[0.0, 0.0, 1.0, 0.0], &[184.42, -27.66], 1.0);
+        assert_eq!(st, Status::Converged);
+        let (h2, o2, oh) = (n[0], n[1], n[3]);
+        assert!(((h2 - (2.0 * o2 + 0.5 * oh)) / h2).abs() < 1e-12, "{n:?}");
+        assert!((h2 / 2.528e-27 - 1.0).abs() < 1e-3, "{h2:e}");
+        assert!((o2 / 1.264e-27 - 1.0).abs() < 1e-3, "{o2:e}");
+    }
+
+    #[test]
+    fn species_below_the_float_floor_make_the_case_underflow() {
+        // A = B: n_B / n_A = K (closed form). exp(-800) is below float64;
+        // exp(-690) = 2.6e-300 is inside it.
+        let (n, st, _) = solve(vec![-1.0, 1.0], 1, &[1.0, 0.0], &[-800.0], 1.0);
+        assert_eq!(st, Status::Underflow);
+        assert!(st.is_converged());
+        assert!(n[1] > 0.0 && n[1] <= 1.000_001e-305, "{:e}", n[1]);
+        let (n, st, _) = solve(vec![-1.0, 1.0], 1, &[1.0, 0.0], &[-690.0], 1.0);
+        assert_eq!(st, Status::Converged);
+        assert!((n[1] / (-690.0_f64).exp() - 1.0).abs() < 1e-9, "{:e}", n[1]);
     }
 
     #[test]

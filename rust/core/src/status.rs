@@ -21,12 +21,21 @@ pub enum Status {
     /// the tolerance was met (the limit of float64 for this case); the amounts
     /// are the last iterate.
     Stalled = 4,
+    /// Adiabatic solve: no outlet temperature within the species data's
+    /// range balances the enthalpy (set by the Python layer, which runs the
+    /// energy balance; listed here so that every code has one home).
+    OutOfRange = 5,
+    /// At equilibrium except that some species would lie below the smallest
+    /// amount float64 can follow (about 1e-305): they are held there, so
+    /// their amounts are upper bounds, and the reactions that would push
+    /// them lower are not met. Every other species and reaction is converged.
+    Underflow = 6,
 }
 
 impl Status {
-    /// Whether the case reached equilibrium.
+    /// Whether the case reached equilibrium (as far as float64 can hold it).
     pub fn is_converged(self) -> bool {
-        self == Status::Converged
+        matches!(self, Status::Converged | Status::Underflow)
     }
 
     /// A short human-readable description.
@@ -37,6 +46,8 @@ impl Status {
             Status::InvalidInput => "invalid input",
             Status::Infeasible => "infeasible: extents unbounded for this feed",
             Status::Stalled => "stalled: no further decrease of the Gibbs function",
+            Status::OutOfRange => "no adiabatic outlet temperature within the data's range",
+            Status::Underflow => "converged; some species lie below float64's range (upper bounds)",
         }
     }
 }

@@ -1,0 +1,661 @@
+"""Which compound a species is, for data sources keyed by compound (the
+``chemicals`` package).
+
+A species is named in one of three ways, and each is read for what it says:
+
+* a compound name or registry number (``ethanol``, ``isobutane``, ``EtOH``,
+  ``64-17-5``): looked up by name in the package's identifier database;
+* a condensed structural formula (``C2H5OH``, ``CH3CH2OH``, ``CH3COOH``,
+  ``(CH3)2CHOH``): read as a structure (heavy atoms, their hydrogens and
+  which atoms are bonded; a group such as ``C2H5`` or ``C3H7`` stands for
+  any group of that composition) and matched against the structures of the
+  compounds of that molecular formula, so ``C2H5OH`` is ethanol, never its
+  isomer dimethyl ether;
+* a molecular formula, every element once (``C6H6``, ``C4H10``, ``H2O``).
+
+A formula names a compound when exactly one compound with data fits it.
+Where several do (``C4H10``: butane and isobutane; ``C3H7OH``: 1-propanol
+and 2-propanol), nothing is guessed: the error lists them and says how to
+choose.
+"""
+
+from __future__ import annotations
+
+import functools
+import itertools
+import re
+from collections import Counter
+from collections.abc import Callable, Iterator
+from dataclasses import dataclass
+
+from eqbatch.equations import ELEMENTS
+from eqbatch.errors import SystemDefinitionError
+
+# Normal valences (bond-order sums) of the elements structural formulas use.
+_VALENCES = {
+    "H": (1,),
+    "B": (3,),
+    "C": (4,),
+    "Si": (4,),
+    "N": (3, 5),
+    "P": (3, 5),
+    "O": (2,),
+    "S": (2, 4, 6),
+    "Se": (2, 4, 6),
+    "F": (1,),
+    "Cl": (1,),
+    "Br": (1,),
+    "I": (1,),
+}
+
+
+@dataclass(frozen=True)
+class Compound:
+    """A compound of the identifier database and how a species led to it."""
+
+    name: str
+    cas: str
+    formula: str  # molecular formula, Hill order
+    smiles: str
+    how: str
+
+    def label(self) -> str:
+        return f"{self.name} ({self.cas})"
+
+
+# --- structures -------------------------------------------------------------------
+
+
+@dataclass(frozen=True)
+class _Graph:
+    """Heavy atoms as (element, attached hydrogens) and their neighbours."""
+
+    atoms: tuple[tuple[str, int], ...]
+    neighbours: tuple[frozenset[int], ...]
+
+
+_SMILES = re.compile(
+    r"\[([^\]]*)\]|(Br|Cl|B|C|N|O|P|S|F|I)|(se|as|[bcnops])|([-=#$:/\\])|(\()|(\))|%(\d\d)|(\d)|(\.)"
+)
+_BRACKET = re.compile(
+    r"^(\d*)([A-Z][a-z]?|se|as|[bcnops])(@{1,2}|@[A-Z]{2}\d+)?(?:H(\d*))?(?:[+-]+\d*)?(?::\d+)?$"
+)
+_BOND_ORDER = {"-": 1, "/": 1, "\\": 1, "=": 2, "#": 3, "$": 4, ":": 1}
+
+
+def graph_from_smiles(smiles: str) -> _Graph:
+    """The constitution (heavy atoms, hydrogens, connectivity) of a SMILES
+    string, with hydrogens implied by the normal valences (OpenSMILES rules;
+    an aromatic atom counts one more bond). Raises ``ValueError`` for what it
+    does not read."""
+    elements: list[str] = []
+    hydrogens: list[int | None] = []  # None: implied by valence
+    aromatic: list[bool] = []
+    used: list[int] = []
+    links: list[set[int]] = []
+    branches: list[int | None] = []
+    rings: dict[str, tuple[int, str | None]] = {}
+    previous: int | None = None
+    bond: str | None = None
+    pos = 0
+
+    def connect(a: int, b: int, symbol: str | None) -> None:
+        order = _BOND_ORDER[symbol] if symbol else 1
+        used[a] += order
+        used[b] += order
+        links[a].add(b)
+        links[b].add(a)
+
+    for match in _SMILES.finditer(smiles):
+        if match.start() != pos:
+            raise ValueError(f"cannot read SMILES {smiles!r}")
+        pos = match.end()
+        bracket, organic, arom, bond_symbol, opening, closing, ring2, ring1, dot = match.groups()
+        if bracket is not None or organic or arom:
+            if bracket is not None:
+                parts = _BRACKET.match(bracket)
+                if not parts:
+                    raise ValueError(f"cannot read SMILES atom [{bracket}]")
+                symbol = parts.group(2)
+                h = 0 if parts.group(4) is None else int(parts.group(4) or 1)
+            else:
+                symbol, h = organic or arom, None
+            elements.append(symbol.capitalize())
+            hydrogens.append(h)
+            aromatic.append(symbol.islower())
+            used.append(0)
+            links.append(set())
+            atom = len(elements) - 1
+            if previous is not None:
+                connect(previous, atom, bond)
+            previous, bond = atom, None
+        elif bond_symbol:
+            bond = bond_symbol
+        elif opening:
+            branches.append(previous)
+        elif closing:
+            if not branches:
+                raise ValueError(f"unbalanced parenthesis in SMILES {smiles!r}")
+            previous = branches.pop()
+        elif ring2 or ring1:
+            key = ring2 or ring1
+            if previous is None:
+                raise ValueError(f"ring closure without an atom in SMILES {smiles!r}")
+            if key in rings:
+                other, symbol = rings.pop(key)
+                connect(other, previous, bond or symbol)
+            else:
+                rings[key] = (previous, bond)
+            bond = None
+        elif dot:
+            previous = None
+    if pos != len(smiles) or rings or branches or not elements:
+        raise ValueError(f"cannot read SMILES {smiles!r}")
+    for k, h in enumerate(hydrogens):
+        if h is None:
+            load = used[k] + (1 if aromatic[k] else 0)
+            fits = [v for v in _VALENCES.get(elements[k], ()) if v >= load]
+            hydrogens[k] = fits[0] - load if fits else 0
+    # explicit hydrogen atoms ([2H], [H]) bonded to one heavy atom count as its hydrogens
+    heavy = [k for k, e in enumerate(elements) if not (e == "H" and len(links[k]) == 1)]
+    counts = [int(h or 0) for h in hydrogens]
+    for k, e in enumerate(elements):
+        if e == "H" and len(links[k]) == 1:
+            counts[next(iter(links[k]))] += 1 + counts[k]
+    index = {k: i for i, k in enumerate(heavy)}
+    return _Graph(
+        tuple((elements[k], counts[k]) for k in heavy),
+        tuple(frozenset(index[n] for n in links[k] if n in index) for k in heavy),
+    )
+
+
+# --- condensed structural formulas ---------------------------------------------------
+
+_CONDENSED = re.compile(r"([A-Z][a-z]?)(\d*)|(\()|\)(\d*)|([-=#])")
+
+# A unit: ("atom", element, count, hydrogens) or ("group", units, count).
+Unit = tuple
+
+
+def _items(text: str) -> list[list]:
+    """Atoms ``["atom", element, count]`` and parenthesised groups
+    ``["group", items, count]`` of a formula such as ``CH3CH(OH)CH3``
+    (bond marks ``-``, ``=``, ``#`` between them only separate them);
+    ``ValueError`` if ``text`` is not one."""
+    stack: list[list[list]] = [[]]
+    pos = 0
+    bond_open = True  # no bond mark first, twice, or before a closing parenthesis
+    for match in _CONDENSED.finditer(text):
+        if match.start() != pos:
+            raise ValueError(text)
+        pos = match.end()
+        element, digits, opening, closing, bond = match.groups()
+        if bond:
+            if bond_open:
+                raise ValueError(text)
+            bond_open = True
+            continue
+        if element:
+            if element not in ELEMENTS or digits.startswith("0"):
+                raise ValueError(text)
+            stack[-1].append(["atom", element, int(digits or 1)])
+            bond_open = False
+        elif opening:
+            stack.append([])
+            bond_open = False
+        else:
+            inner = stack.pop() if len(stack) > 1 else None
+            if not inner or bond_open or (closing or "").startswith("0"):
+                raise ValueError(text)
+            stack[-1].append(["group", inner, int(closing or 1)])
+    if pos != len(text) or len(stack) != 1 or not stack[0] or bond_open:
+        raise ValueError(text)
+    return stack[0]
+
+
+def _attach_hydrogens(items: list[list]) -> list[Unit]:
+    """Hydrogens belong to the heavy atom before them (``CH3``, ``OH``), or
+    after them at the start (``HCOOH``, ``HOCH2CH2OH``)."""
+    units: list[list] = []
+    leading = 0
+    for item in items:
+        if item[0] == "atom" and item[1] == "H":
+            if units and units[-1][0] == "atom":
+                units[-1][3] += item[2]
+            elif not units:
+                leading += item[2]
+            else:
+                raise ValueError("hydrogen after a group")
+        elif item[0] == "atom":
+            units.append(["atom", item[1], item[2], leading])
+            leading = 0
+        else:
+            units.append(["group", _attach_hydrogens(item[1]), item[2]])
+            if leading:
+                raise ValueError("hydrogen before a group")
+    if leading or not units:
+        raise ValueError("hydrogen without a heavy atom")
+    return [tuple(u) for u in units]
+
+
+def _element_counts(items: list[list], times: int = 1, into: Counter | None = None) -> Counter:
+    into = Counter() if into is None else into
+    for item in items:
+        if item[0] == "atom":
+            into[item[1]] += item[2] * times
+        else:
+            _element_counts(item[1], times * item[2], into)
+    return into
+
+
+def _is_molecular(text: str) -> bool:
+    """Every element once, no parentheses or bond marks: ``C2H6O``, not ``C2H5OH``."""
+    symbols = [m.group(1) for m in _CONDENSED.finditer(text)]
+    return None not in symbols and len(symbols) == len(set(symbols))
+
+
+# A node: ("atom", element, hydrogens) or ("blob", ((element, count), ...)).
+# A reading: (nodes, edges, current node, nodes waiting for the next node).
+_Reading = tuple
+
+
+def _node(unit: Unit) -> tuple:
+    _, element, count, h = unit
+    if count == 1:
+        return ("atom", element, h)
+    return ("blob", tuple(sorted((Counter({element: count}) + Counter({"H": h})).items())))
+
+
+def _fits_valence(nodes: tuple, edges: tuple, k: int) -> bool:
+    if nodes[k][0] != "atom":
+        return True
+    _, element, h = nodes[k]
+    degree = sum(k in e for e in edges)
+    return h + degree <= max(_VALENCES[element])
+
+
+def _add(reading: _Reading, sub_nodes: tuple, sub_edges: tuple) -> tuple[tuple, tuple, int]:
+    nodes, edges, _, _ = reading
+    offset = len(nodes)
+    shifted = tuple((a + offset, b + offset) for a, b in sub_edges)
+    return nodes + sub_nodes, edges + shifted, offset
+
+
+def _walk(units: list[Unit], reading: _Reading) -> Iterator[_Reading]:
+    """Every reading of ``units`` continuing ``reading``: each atom, group or
+    composition group either continues the chain or hangs from the atom
+    before it (before any atom: waits for the next one, as in
+    ``(CH3)2CHOH``); readings that exceed a valence are dropped."""
+    if not units:
+        yield reading
+        return
+    unit, rest = units[0], units[1:]
+    if unit[0] == "atom":
+        pieces, copies = [((_node(unit),), (), 0)], 1
+    else:
+        sub = _walk(list(unit[1]), ((), (), None, ()))
+        pieces, copies = [(n, e, end) for n, e, end, waiting in sub if not waiting], unit[2]
+    # only a parenthesised group waits for the atom after it; a first atom starts the chain
+    options = (True,) if unit[0] == "atom" and reading[2] is None else (True, False)
+    for sub_nodes, sub_edges, sub_end in pieces:
+        for chained in options:
+            state, ok = reading, True
+            for _ in range(copies):
+                _, _, current, waiting = state
+                nodes, edges, first = _add(state, sub_nodes, sub_edges)
+                if current is not None:
+                    links: tuple = ((current, first),)
+                elif chained:
+                    links, waiting = tuple((w, first) for w in waiting), ()
+                else:
+                    links = ()
+                edges = edges + links
+                ok = ok and all(_fits_valence(nodes, edges, k) for link in links for k in link)
+                if chained:
+                    state = (nodes, edges, first + sub_end, waiting)
+                elif current is None:
+                    state = (nodes, edges, None, waiting + (first,))
+                else:
+                    state = (nodes, edges, current, waiting)
+            if ok:
+                yield from _walk(rest, state)
+
+
+def _merge_blobs(nodes: tuple, edges: tuple) -> tuple[list, list[tuple[Counter, Counter]]]:
+    """Explicit atoms, their bonds, and the composition groups merged where
+    adjacent, each with its composition and the atoms it is bonded to."""
+    atoms = [k for k, n in enumerate(nodes) if n[0] == "atom"]
+    blob_ids = [k for k, n in enumerate(nodes) if n[0] == "blob"]
+    parent = {k: k for k in blob_ids}
+
+    def root(k: int) -> int:
+        while parent[k] != k:
+            k = parent[k]
+        return k
+
+    for a, b in edges:
+        if a in parent and b in parent:
+            parent[root(a)] = root(b)
+    groups: dict[int, tuple[Counter, Counter]] = {}
+    for k in blob_ids:
+        comp, _ = groups.setdefault(root(k), (Counter(), Counter()))
+        comp.update(dict(nodes[k][1]))
+    for a, b in edges:
+        for blob, atom in ((a, b), (b, a)):
+            if blob in parent and atom not in parent:
+                groups[root(blob)][1][atom] += 1
+    return atoms, list(groups.values())
+
+
+def _valid(nodes: tuple, edges: tuple) -> bool:
+    """Whether raising bond orders can give every explicit atom a normal valence."""
+    atoms = [k for k, n in enumerate(nodes) if n[0] == "atom"]
+    degree = Counter()
+    for a, b in edges:
+        degree[a] += 1
+        degree[b] += 1
+    options = []
+    for k in atoms:
+        _, element, h = nodes[k]
+        free = sorted({v - h - degree[k] for v in _VALENCES[element] if v - h - degree[k] >= 0})
+        if not free:
+            return False
+        options.append(free)
+    extra = [2] * len(edges)  # a bond can become at most triple
+
+    def saturate(free: dict[int, int]) -> bool:
+        atom = next((k for k, f in free.items() if f > 0), None)
+        if atom is None:
+            return True
+        for e, (a, b) in enumerate(edges):
+            if atom not in (a, b) or not extra[e]:
+                continue
+            other = b if a == atom else a
+            if nodes[other][0] == "atom" and not free[other] > 0:
+                continue
+            extra[e] -= 1
+            free[atom] -= 1
+            if nodes[other][0] == "atom":
+                free[other] -= 1
+            done = saturate(free)
+            extra[e] += 1
+            free[atom] += 1
+            if nodes[other][0] == "atom":
+                free[other] += 1
+            if done:
+                return True
+        return False
+
+    return any(saturate(dict(zip(atoms, choice))) for choice in itertools.product(*options))
+
+
+@functools.lru_cache(maxsize=256)
+def structure_readings(text: str) -> tuple | None:
+    """The readings of a condensed structural formula (``None`` if ``text``
+    is not a formula or uses elements without a normal valence here)."""
+    try:
+        items = _items(text)
+        units = _attach_hydrogens(items)
+    except ValueError:
+        return None
+    if set(_element_counts(items)) - set(_VALENCES):
+        return None
+    out = []
+    for nodes, edges, _, waiting in _walk(units, ((), (), None, ())):
+        if waiting or not _valid(nodes, edges):
+            continue
+        atoms, blobs = _merge_blobs(nodes, edges)
+        pattern = (
+            tuple(nodes[k][1:] for k in atoms),
+            frozenset((atoms.index(a), atoms.index(b)) for a, b in edges if a in atoms and b in atoms),
+            tuple((comp, frozenset(atoms.index(k) for k in anchors)) for comp, anchors in blobs),
+        )
+        if pattern not in out:
+            out.append(pattern)
+    return tuple(out)
+
+
+def _matches(pattern: tuple, graph: _Graph) -> bool:
+    """Whether ``graph`` has the structure ``pattern``: its explicit atoms
+    bonded exactly as written, and the rest split into groups of the
+    written compositions, each bonded (once or more) to the atoms it is
+    written beside and to no other."""
+    atoms, bonds, blobs = pattern
+    if len(atoms) + sum(n for comp, _ in blobs for e, n in comp.items() if e != "H") != len(graph.atoms):
+        return False
+    adjacent = {k: set() for k in range(len(atoms))}
+    for a, b in bonds:
+        adjacent[a].add(b)
+        adjacent[b].add(a)
+    # fewest bonds of each atom: its written neighbours and one bond to each group beside it
+    least = {k: len(adjacent[k]) + sum(k in anchors for _, anchors in blobs) for k in adjacent}
+    open_ended = {k for k in adjacent if least[k] > len(adjacent[k])}
+    order: list[int] = []
+    for start in range(len(atoms)):  # breadth first, so neighbours are placed early
+        if start in order:
+            continue
+        queue = [start]
+        while queue:
+            k = queue.pop(0)
+            if k not in order:
+                order.append(k)
+                queue.extend(sorted(adjacent[k] - set(order)))
+    image: dict[int, int] = {}
+
+    def rest_fits() -> bool:
+        taken = set(image.values())
+        rest = [g for g in range(len(graph.atoms)) if g not in taken]
+        seen: set[int] = set()
+        pieces = []
+        for g in rest:
+            if g in seen:
+                continue
+            piece, stack = [], [g]
+            seen.add(g)
+            while stack:
+                x = stack.pop()
+                piece.append(x)
+                for y in graph.neighbours[x]:
+                    if y not in taken and y not in seen:
+                        seen.add(y)
+                        stack.append(y)
+            comp = Counter()
+            for x in piece:
+                element, h = graph.atoms[x]
+                comp[element] += 1
+                if h:
+                    comp["H"] += h
+            back = {v: k for k, v in image.items()}
+            anchors = frozenset(back[y] for x in piece for y in graph.neighbours[x] if y in back)
+            pieces.append((comp, anchors))
+
+        def assign(i: int, left: list[tuple[Counter, frozenset]]) -> bool:
+            if i == len(pieces):
+                return all(not comp and not anchors for comp, anchors in left)
+            comp, anchors = pieces[i]
+            for j, (need, need_anchors) in enumerate(left):
+                if all(need[e] >= n for e, n in comp.items()) and anchors <= blobs[j][1]:
+                    left2 = list(left)
+                    left2[j] = (need - comp, need_anchors - anchors)
+                    if assign(i + 1, left2):
+                        return True
+            return False
+
+        return assign(0, [(Counter(comp), anchors) for comp, anchors in blobs])
+
+    def place(i: int) -> bool:
+        if i == len(order):
+            return rest_fits()
+        k = order[i]
+        for g, (element, h) in enumerate(graph.atoms):
+            if g in image.values() or (element, h) != atoms[k]:
+                continue
+            bonds_g = len(graph.neighbours[g])
+            if bonds_g < least[k] or (k not in open_ended and bonds_g != least[k]):
+                continue
+            if any((image[q] in graph.neighbours[g]) != (q in adjacent[k]) for q in image):
+                continue
+            image[k] = g
+            if place(i + 1):
+                return True
+            del image[k]
+        return False
+
+    return place(0)
+
+
+def fits_structure(smiles: str, readings: tuple) -> bool | None:
+    """Whether a compound (by its SMILES) has one of the structures read from
+    a formula; ``None`` when its SMILES cannot be read here.
+
+    Examples
+    --------
+    >>> ethyl_alcohol = structure_readings("C2H5OH")
+    >>> fits_structure("CCO", ethyl_alcohol), fits_structure("COC", ethyl_alcohol)  # ethanol, dimethyl ether
+    (True, False)
+    >>> propanol = structure_readings("C3H7OH")  # propyl or isopropyl
+    >>> [fits_structure(s, propanol) for s in ("CCCO", "CC(C)O", "CCOC")]
+    [True, True, False]
+    """
+    try:
+        graph = graph_from_smiles(smiles)
+    except ValueError:
+        return None
+    return any(_matches(pattern, graph) for pattern in readings)
+
+
+# --- the identifier database ---------------------------------------------------------
+
+
+@functools.lru_cache(maxsize=1)
+def _compounds_by_formula() -> dict[str, list]:
+    from chemicals.identifiers import get_pubchem_db
+
+    index: dict[str, list] = {}
+    for meta in get_pubchem_db():  # iterating loads the whole database once
+        index.setdefault(meta.formula, []).append(meta)
+    return index
+
+
+def _compound(meta, how: str) -> Compound:
+    from chemicals.identifiers import int_to_CAS
+
+    cas = int_to_CAS(meta.CAS) if isinstance(meta.CAS, int) else str(meta.CAS)
+    return Compound(str(meta.common_name), cas, str(meta.formula), str(meta.smiles), how)
+
+
+def _hill(counts: Counter) -> str:
+    from chemicals.elements import atoms_to_Hill
+
+    return atoms_to_Hill(dict(counts))
+
+
+def _read_formula(text: str) -> tuple[str, tuple | None] | None:
+    """``(Hill formula, structure readings or None for a molecular formula)``,
+    or ``None`` if ``text`` is not a formula."""
+    try:
+        counts = _element_counts(_items(text))
+    except ValueError:
+        return None
+    readings = None if _is_molecular(text) else structure_readings(text)
+    return _hill(counts), (readings or None)
+
+
+def _by_formula(text: str, has_data: Callable[[str], bool]) -> tuple[str, object]:
+    hill, readings = _read_formula(text)  # type: ignore[misc]
+    pool = [_compound(meta, "") for meta in _compounds_by_formula().get(hill, [])]
+    if readings is None:
+        fitting = [(c, True) for c in pool]
+        how = f"the only compound of formula {text if _is_molecular(text) else hill} with data in chemicals"
+    else:
+        fitting = [(c, fit) for c in pool if (fit := fits_structure(c.smiles, readings)) is not False]
+        how = f"structural formula {text}"
+    with_data = sorted((c for c, _ in fitting if has_data(c.cas)), key=lambda c: c.name)
+    if len(with_data) == 1:
+        c = with_data[0]
+        return "resolved", Compound(c.name, c.cas, c.formula, c.smiles, how)
+    if with_data:
+        return "ambiguous", (text, hill, with_data)
+    known = sorted((c for c, fit in fitting if fit), key=lambda c: c.name)
+    return ("nodata", (text, hill, known)) if known else ("none", (text, hill, pool))
+
+
+def _by_name(text: str) -> tuple[str, object]:
+    from chemicals.elements import serialize_formula
+    from chemicals.identifiers import CAS_from_any, get_pubchem_db, search_chemical
+
+    try:
+        meta = search_chemical(CAS_from_any(text))
+    except Exception:  # chemicals raises ValueError and others for unknown names
+        return "none", None
+    try:
+        as_formula = serialize_formula(text)
+    except Exception:
+        as_formula = None
+    if as_formula == meta.formula and not get_pubchem_db().search_name(text):
+        # the package read the text as a molecular formula and took one compound of that formula
+        return "none", None
+    return "resolved", _compound(meta, f"found by name {text!r}")
+
+
+def _consistent(compound: Compound, text: str) -> bool:
+    read = _read_formula(text)
+    if read is None:
+        return True
+    hill, readings = read
+    if hill != compound.formula:
+        return False
+    return readings is None or fits_structure(compound.smiles, readings) is not False
+
+
+def identify(species: str, formula: str | None, has_data: Callable[[str], bool]) -> Compound:
+    """The compound a species is, from its name and its formula (if given),
+    name first (see the module notes); ``has_data(cas)`` says which
+    compounds the data source can serve.
+
+    Raises
+    ------
+    SystemDefinitionError
+        No compound fits; more than one compound with data fits a formula
+        (the message lists them); or the name and the formula disagree.
+    """
+    texts = [species] + ([formula] if formula and formula != species else [])
+    found: Compound | None = None
+    failures = []
+    for text in texts:
+        kind, detail = _by_formula(text, has_data) if _read_formula(text) else _by_name(text)
+        if kind == "resolved":
+            found = detail  # type: ignore[assignment]
+            break
+        failures.append((kind, detail))
+    prefix = f"thermo='chemicals': species {species!r}"
+    if found is None:
+        for kind in ("ambiguous", "nodata"):
+            for k, detail in failures:
+                if k != kind:
+                    continue
+                text, hill, compounds = detail  # type: ignore[misc]
+                listed = ", ".join(c.label() for c in compounds)
+                if kind == "ambiguous":
+                    example = compounds[0].name.replace(" ", "_")
+                    raise SystemDefinitionError(
+                        f"{prefix}: {text} fits more than one compound with data: {listed}. Choose one: "
+                        f"name the species by its compound name with its formula (e.g. species "
+                        f"{example!r} with formulas={{{example!r}: {hill!r}}}), or give species_data "
+                        f"for {species!r}"
+                    )
+                raise SystemDefinitionError(
+                    f"{prefix}: {text} is {listed}, for which chemicals has no ideal-gas heat capacity, "
+                    f"formation enthalpy and entropy; give species_data for {species!r}"
+                )
+        raise SystemDefinitionError(
+            f"thermo='chemicals': no compound found for species {species!r}"
+            + (f" (formula {formula})" if formula else "")
+        )
+    for text in texts:
+        if not _consistent(found, text):
+            raise SystemDefinitionError(
+                f"{prefix} is {found.label()}, formula {found.formula} ({found.how}), which does not fit "
+                f"{text!r}; rename the species, correct its formula, or give species_data"
+            )
+    return found

@@ -1,0 +1,183 @@
+"""Approach to equilibrium and adiabatic solves: the direction a reaction runs,
+derivatives that hold the enthalpy balance, and the options a caller gives.
+
+Check values are independent computations in the test: central finite
+differences of the solve itself, and the same physics written another way
+(a named reaction against its generated reverse)."""
+
+from __future__ import annotations
+
+import numpy as np
+import pytest
+from eqbatch import InvalidCaseError, ReactionSystem, Status
+from eqbatch.cli import main
+from eqbatch.demo import reformer_feed, reformer_system
+from eqbatch.thermo import CpPolynomial, equilibrium_temperature
+
+
+@pytest.fixture(scope="module")
+def reformer() -> ReactionSystem:
+    return reformer_system()
+
+
+# --- adiabatic derivatives --------------------------------------------------------
+
+
+def _adiabatic(system, feed, T, P):
+    return system.solve(feed, T=T, P=P, adiabatic=True, tol=1e-13)
+
+
+def test_adiabatic_derivatives_by_inlet_temperature_and_pressure(reformer) -> None:
+    # A pre-reformer bed: 700 K inlet, 30 bar, steam to carbon 3.
+    feed = reformer_feed(3.0)[0]
+    res = reformer.solve(feed, T=700.0, P=30.0, adiabatic=True, sensitivities=True, tol=1e-13)
+    assert res.converged[0], res.message(0)
+    h = 0.05
+    up, down = _adiabatic(reformer, feed, 700.0 + h, 30.0), _adiabatic(reformer, feed, 700.0 - h, 30.0)
+    fd_n = (up.amounts[0] - down.amounts[0]) / (2 * h)
+    fd_T = float(up.T[0] - down.T[0]) / (2 * h)
+    np.testing.assert_allclose(res.sensitivity("T")[0], fd_n, rtol=1e-4, atol=1e-9)
+    assert res.sensitivity("T", of="T")[0] == pytest.approx(fd_T, rel=1e-4)
+    hp = 0.03
+    up, down = _adiabatic(reformer, feed, 700.0, 30.0 + hp), _adiabatic(reformer, feed, 700.0, 30.0 - hp)
+    np.testing.assert_allclose(
+        res.sensitivity("P")[0], (up.amounts[0] - down.amounts[0]) / (2 * hp), rtol=1e-4, atol=1e-9
+    )
+    assert res.sensitivity("P", of="T")[0] == pytest.approx(float(up.T[0] - down.T[0]) / (2 * hp), rel=1e-4)
+    assert res.sensitivity("lnP", of="T")[0] == pytest.approx(30.0 * res.sensitivity("P", of="T")[0])
+
+
+def test_adiabatic_derivatives_by_the_feed(reformer) -> None:
+    feed = reformer_feed(3.0)[0]
+    res = reformer.solve(feed, T=750.0, P=25.0, adiabatic=True, sensitivities=True, tol=1e-13)
+    d_feed = res.sensitivity("feed")[0]
+    d_T = res.sensitivity("feed", of="T")[0]
+    assert d_feed.shape == (6, 6) and d_T.shape == (6,)
+    for k in (0, 1):  # methane and steam
+        step = np.zeros(6)
+        step[k] = 1e-4
+        up, down = (
+            _adiabatic(reformer, feed + step, 750.0, 25.0),
+            _adiabatic(reformer, feed - step, 750.0, 25.0),
+        )
+        np.testing.assert_allclose(
+            d_feed[:, k], (up.amounts[0] - down.amounts[0]) / 2e-4, rtol=1e-4, atol=1e-8
+        )
+        assert d_T[k] == pytest.approx(float(up.T[0] - down.T[0]) / 2e-4, rel=1e-4)
+
+
+def test_outlet_temperature_derivative_by_lnK_has_one_column_per_reaction(reformer) -> None:
+    feed = reformer_feed(3.0)[0]
+    res = reformer.solve(feed, T=750.0, P=25.0, adiabatic=True, sensitivities=True)
+    d_T = res.sensitivity("lnK", of="T")
+    assert d_T.shape == (1, 2)
+    # More reforming (endothermic) cools the outlet: a larger K of reforming
+    # lowers the outlet temperature (the sign every reformer engineer expects).
+    assert d_T[0, 0] < 0
+    # Isothermal: the temperature is the input itself.
+    iso = reformer.solve(feed, T=750.0, P=25.0, sensitivities=True)
+    assert iso.sensitivity("T", of="T")[0] == 1.0
+    assert np.all(iso.sensitivity("lnK", of="T") == 0.0)
+
+
+# --- approach ---------------------------------------------------------------------
+
+
+def test_temperature_derivative_with_approach_uses_the_approach_temperature(reformer) -> None:
+    feed = reformer_feed(3.0)[0]
+    approach = {"reforming": 20.0, "shift": 10.0}
+    res = reformer.solve(feed, T=1000.0, P=20.0, approach=approach, sensitivities=True, tol=1e-13)
+    h = 0.01
+    up = reformer.solve(feed, T=1000.0 + h, P=20.0, approach=approach, tol=1e-13).amounts[0]
+    down = reformer.solve(feed, T=1000.0 - h, P=20.0, approach=approach, tol=1e-13).amounts[0]
+    np.testing.assert_allclose(res.sensitivity("T")[0], (up - down) / (2 * h), rtol=1e-6, atol=1e-12)
+
+
+def test_approach_holds_a_reaction_short_whichever_way_it_is_written(reformer) -> None:
+    # The generated set writes methanation (CO + 3 H2 = CH4 + H2O), which runs
+    # backwards in a reformer. An approach on it must give what the same
+    # approach on reforming written forwards gives.
+    auto = ReactionSystem(reformer.species, "auto", species_data=reformer.species_data)
+    methanation = next(label for label, row in zip(auto.labels, auto.stoich) if row[auto.index("CH4")] > 0)
+    feed, T, P = reformer_feed(3.0)[0], 1050.0, 20.0
+    at_equilibrium = reformer.solve(feed, T=T, P=P).conversion("CH4")[0]
+    named = reformer.solve(feed, T=T, P=P, approach={"reforming": 10.0}).conversion("CH4")[0]
+    generated = auto.solve(feed, T=T, P=P, approach={methanation: 10.0}).conversion("CH4")[0]
+    assert named < at_equilibrium
+    assert generated == pytest.approx(named, rel=1e-9)
+
+
+def test_approach_follows_each_case_direction() -> None:
+    # The same shift reaction run forwards (CO + H2O fed) and backwards (CO2 + H2
+    # fed) in one batch: each case stops 20 K short in its own direction, so the
+    # measured composition's equilibrium temperature is T + 20 K for the
+    # exothermic forward run and T - 20 K for the endothermic backward run.
+    base = reformer_system()
+    species = ["CO", "H2O", "CO2", "H2"]
+    s = ReactionSystem(
+        species, {"shift": "CO + H2O = CO2 + H2"}, species_data={k: base.species_data[k] for k in species}
+    )
+    feed = np.array([[1.0, 1.0, 0.0, 0.0], [0.0, 0.0, 1.0, 1.0]])
+    res = s.solve(feed, T=700.0, P=10.0, approach={"shift": 20.0})
+    eq = s.solve(feed, T=700.0, P=10.0)
+    assert res.amounts[0, 2] < eq.amounts[0, 2]  # less CO2 made forwards
+    assert res.amounts[1, 0] < eq.amounts[1, 0]  # less CO made backwards
+    T_eq = equilibrium_temperature(s, res.amounts, P=10.0)[:, 0]
+    np.testing.assert_allclose(T_eq, [720.0, 680.0], atol=1e-6)
+
+
+# --- adiabatic options and messages -------------------------------------------------
+
+
+def test_adiabatic_solve_honours_invalid_max_iter_and_x0(reformer) -> None:
+    feed = reformer_feed(3.0)[0]
+    bad = feed.copy()
+    bad[0] = -1.0
+    with pytest.raises(InvalidCaseError, match="case 1"):
+        reformer.solve([feed, bad], T=750.0, P=25.0, adiabatic=True, invalid="raise")
+    res = reformer.solve([feed, feed], T=[750.0, -5.0], P=25.0, adiabatic=True)
+    assert res.status[0] == Status.CONVERGED
+    assert res.status[1] == Status.INVALID_INPUT and np.all(np.isnan(res.amounts[1]))
+    assert np.isnan(res.T[1])
+    limited = reformer.solve(feed, T=750.0, P=25.0, adiabatic=True, max_iter=1)
+    assert not limited.converged[0]
+    plain = reformer.solve(feed, T=750.0, P=25.0, adiabatic=True)
+    warm = reformer.solve(feed, T=750.0, P=25.0, adiabatic=True, x0=plain.extents)
+    assert warm.iterations[0] < plain.iterations[0]
+    np.testing.assert_allclose(warm.T, plain.T, rtol=1e-9)
+
+
+def test_adiabatic_message_counts_temperature_iterations(reformer) -> None:
+    res = reformer.solve(reformer_feed(3.0)[0], T=750.0, P=25.0, adiabatic=True)
+    steps = int(res.T_iterations[0])
+    assert steps >= 1
+    assert f"after {steps} temperature iteration" in res.message(0)
+    assert f"({int(res.iterations[0])} Newton iterations in all)" in res.message(0)
+
+
+def test_failed_adiabatic_case_says_so_on_the_solve_screen(tmp_path, capsys) -> None:
+    # A = B releasing 60 kJ/mol with data only up to 700 K: from 650 K no outlet
+    # inside the data's range balances the enthalpy.
+    path = tmp_path / "hot.toml"
+    path.write_text(
+        'species = ["A", "B"]\n'
+        '[[reactions]]\nlabel = "r"\nequation = "A = B"\n'
+        "[species_data.A]\ncp_poly = { a = [4.0], dHf = 0.0, S298 = 200.0, T_max = 700.0 }\n"
+        "[species_data.B]\ncp_poly = { a = [4.0], dHf = -60.0, S298 = 200.0, T_max = 700.0 }\n"
+    )
+    data = {
+        "A": CpPolynomial(a=(4.0,), dHf=0.0, S298=200.0, T_max=700.0),
+        "B": CpPolynomial(a=(4.0,), dHf=-60.0, S298=200.0, T_max=700.0),
+    }
+    assert (
+        ReactionSystem(["A", "B"], ["A = B"], species_data=data)
+        .solve([1.0, 0.0], T=650.0, adiabatic=True)
+        .status[0]
+        == Status.OUT_OF_RANGE
+    )
+    code = main(["solve", str(path), "--feed", "A=1", "--T", "650", "--adiabatic"])
+    out = capsys.readouterr().out
+    assert code == 1
+    assert "no equilibrium outlet temperature found" in out
+    assert "outlet T =" not in out
+    assert "NOT AN EQUILIBRIUM" in out
