@@ -8,7 +8,7 @@
 
 use std::collections::HashMap;
 use std::sync::atomic::{AtomicUsize, Ordering};
-use std::sync::Mutex;
+use std::sync::{Arc, Mutex};
 
 use rayon::prelude::*;
 
@@ -517,17 +517,30 @@ fn spread<'scope>(scope: &rayon::Scope<'scope>, workers: usize, drain: &'scope (
     drain();
 }
 
-/// A pool of `k` threads for `Some(k)`; `None` for rayon's global pool.
-fn pool_for(threads: Option<usize>) -> Result<Option<rayon::ThreadPool>, CoreError> {
-    match threads {
-        Some(0) => Err(CoreError::BadOption("threads must be at least 1".into())),
-        Some(k) => rayon::ThreadPoolBuilder::new()
-            .num_threads(k)
-            .build()
-            .map(Some)
-            .map_err(|e| CoreError::BadOption(format!("cannot start {k} threads: {e}"))),
-        None => Ok(None),
+/// Pools of a given size, built once per process and kept: building a pool
+/// starts its threads (tens of microseconds each), more than a small batch
+/// takes to solve. A handful of sizes at most are ever asked for.
+static POOLS: Mutex<Vec<(usize, Arc<rayon::ThreadPool>)>> = Mutex::new(Vec::new());
+
+/// A pool of `k` threads for `Some(k)` (built on first use, then reused);
+/// `None` for rayon's global pool.
+fn pool_for(threads: Option<usize>) -> Result<Option<Arc<rayon::ThreadPool>>, CoreError> {
+    let k = match threads {
+        Some(0) => return Err(CoreError::BadOption("threads must be at least 1".into())),
+        Some(k) => k,
+        None => return Ok(None),
+    };
+    let mut pools = POOLS.lock().unwrap_or_else(|poisoned| poisoned.into_inner());
+    if let Some((_, pool)) = pools.iter().find(|(size, _)| *size == k) {
+        return Ok(Some(Arc::clone(pool)));
     }
+    let pool = rayon::ThreadPoolBuilder::new()
+        .num_threads(k)
+        .build()
+        .map_err(|e| CoreError::BadOption(format!("cannot start {k} threads: {e}")))?;
+    let pool = Arc::new(pool);
+    pools.push((k, Arc::clone(&pool)));
+    Ok(Some(pool))
 }
 
 /// Run `work` on rayon's global pool (`None`: all cores) or on a pool of

@@ -115,59 +115,96 @@ pub fn lane_kernel_for(r: usize, s: usize) -> Option<LaneKernel> {
 fn dispatch<const R: usize, const S: usize, const EXACT: bool>() -> LaneKernel {
     #[cfg(target_arch = "x86_64")]
     {
-        if std::arch::is_x86_feature_detected!("avx512f")
-            && std::arch::is_x86_feature_detected!("avx512dq")
-            && std::arch::is_x86_feature_detected!("avx512vl")
-            && std::arch::is_x86_feature_detected!("fma")
-        {
+        if x86::Avx512::detect().is_some() {
             return x86::solve_avx512::<R, S, EXACT>;
         }
-        if std::arch::is_x86_feature_detected!("avx2") && std::arch::is_x86_feature_detected!("fma")
-        {
+        if x86::Avx2::detect().is_some() {
             return x86::solve_avx2::<R, S, EXACT>;
         }
     }
     solve_group::<R, S, EXACT>
 }
 
-/// A safe entry point `$entry` to the lane kernel compiled with the target
-/// features `$features` (the unsafe inner function `$inner`).
-#[cfg(target_arch = "x86_64")]
-macro_rules! with_features {
-    ($features:literal, $inner:ident, $entry:ident) => {
-        #[target_feature(enable = $features)]
-        unsafe fn $inner<const R: usize, const S: usize, const EXACT: bool>(
-            system: &System,
-            cases: &[LaneCase],
-            options: &SolveOptions,
-            amounts: &mut [f64],
-            extents: &mut [f64],
-            out: &mut [(Status, u32)],
-        ) {
-            solve_group::<R, S, EXACT>(system, cases, options, amounts, extents, out)
+/// Which vector instructions the lane kernels use on this processor
+/// (`"avx512"`, `"avx2"` or `"portable"`), for benchmarks and reports.
+pub fn vector_path() -> &'static str {
+    #[cfg(target_arch = "x86_64")]
+    {
+        if x86::Avx512::detect().is_some() {
+            return "avx512";
         }
-
-        pub(super) fn $entry<const R: usize, const S: usize, const EXACT: bool>(
-            system: &System,
-            cases: &[LaneCase],
-            options: &SolveOptions,
-            amounts: &mut [f64],
-            extents: &mut [f64],
-            out: &mut [(Status, u32)],
-        ) {
-            // SAFETY: `dispatch` hands out this function only after checking
-            // that the processor has every feature `$inner` is compiled for.
-            unsafe { $inner::<R, S, EXACT>(system, cases, options, amounts, extents, out) }
+        if x86::Avx2::detect().is_some() {
+            return "avx2";
         }
-    };
+    }
+    "portable"
 }
 
+/// The only `unsafe` of the crate: entering the lane kernel compiled with
+/// extra target features. Each feature set has a token type that only its
+/// run-time detection can make, and the unsafe inner function takes the
+/// token, so it cannot be reached on a processor without the features.
 #[cfg(target_arch = "x86_64")]
 mod x86 {
     use super::*;
 
-    with_features!("avx512f,avx512dq,avx512vl,avx2,fma", avx512, solve_avx512);
-    with_features!("avx2,fma", avx2, solve_avx2);
+    /// A safe entry point `$entry` to the lane kernel compiled with the
+    /// target features `$features` (the unsafe inner function `$inner`),
+    /// entered only with the token `$token` that proves them present.
+    macro_rules! with_features {
+        ($features:literal, $token:ident, $inner:ident, $entry:ident, [$($detect:tt),*]) => {
+            /// Proof that the processor has the features of one lane kernel.
+            #[derive(Clone, Copy)]
+            pub(super) struct $token(());
+
+            impl $token {
+                /// The token, if the processor has every feature.
+                pub(super) fn detect() -> Option<Self> {
+                    (true $(&& std::arch::is_x86_feature_detected!($detect))*).then_some($token(()))
+                }
+            }
+
+            #[target_feature(enable = $features)]
+            unsafe fn $inner<const R: usize, const S: usize, const EXACT: bool>(
+                _proof: $token,
+                system: &System,
+                cases: &[LaneCase],
+                options: &SolveOptions,
+                amounts: &mut [f64],
+                extents: &mut [f64],
+                out: &mut [(Status, u32)],
+            ) {
+                solve_group::<R, S, EXACT>(system, cases, options, amounts, extents, out)
+            }
+
+            pub(super) fn $entry<const R: usize, const S: usize, const EXACT: bool>(
+                system: &System,
+                cases: &[LaneCase],
+                options: &SolveOptions,
+                amounts: &mut [f64],
+                extents: &mut [f64],
+                out: &mut [(Status, u32)],
+            ) {
+                match $token::detect() {
+                    // SAFETY: the token exists only where run-time detection
+                    // found every feature `$inner` is compiled for.
+                    Some(proof) => unsafe {
+                        $inner::<R, S, EXACT>(proof, system, cases, options, amounts, extents, out)
+                    },
+                    None => solve_group::<R, S, EXACT>(system, cases, options, amounts, extents, out),
+                }
+            }
+        };
+    }
+
+    with_features!(
+        "avx512f,avx512dq,avx512vl,avx2,fma",
+        Avx512,
+        avx512,
+        solve_avx512,
+        ["avx512f", "avx512dq", "avx512vl", "avx2", "fma"]
+    );
+    with_features!("avx2,fma", Avx2, avx2, solve_avx2, ["avx2", "fma"]);
 }
 
 /// Where a lane stands.
