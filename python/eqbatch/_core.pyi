@@ -31,6 +31,7 @@ class System:
         npt.NDArray[np.float64],
         npt.NDArray[np.uint8],
         npt.NDArray[np.uint32],
+        npt.NDArray[np.uint8],
     ]: ...
     def sensitivities(
         self,
@@ -38,5 +39,6 @@ class System:
         pressure: npt.NDArray[np.float64],
         amounts: npt.NDArray[np.float64],
         status: npt.NDArray[np.uint8],
+        absent: npt.NDArray[np.uint8] | None = None,
         threads: int | None = None,
     ) -> tuple[npt.NDArray[np.float64], npt.NDArray[np.float64], npt.NDArray[np.float64]]: ...

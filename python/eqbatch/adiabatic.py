@@ -124,7 +124,7 @@ def adiabatic_solve(
         system, amounts, extents, None, status, newton.astype(np.uint32), feed_rows, P_rows, Tc, res.lnK
     )
     out.T_iterations = T_steps
-    out.absent_phase = res.absent_phase
+    out.absent = res.absent
     if sensitivities:
         with warnings.catch_warnings():
             warnings.simplefilter("ignore")

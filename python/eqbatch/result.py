@@ -54,6 +54,9 @@ _DESCRIPTIONS = {
     Status.UNDERFLOW: "converged, with species below float64's range held at about 1e-305 mol (upper bounds)",
 }
 
+#: Phase names by bit of the core's mask of absent phases.
+PHASE_BITS = ("gas", "liquid")
+
 #: Amounts at or below this are held at the core's float floor (1e-305).
 FLOAT_FLOOR = 1.0000001e-305
 
@@ -101,7 +104,7 @@ class EquilibriumResult:
         "_T_eff",
         "_energy",
         "T_iterations",
-        "absent_phase",
+        "absent",
     )
 
     def __init__(
@@ -134,8 +137,9 @@ class EquilibriumResult:
         self._energy: EnergyBalance | None = None
         #: (N,) temperature iterations of an adiabatic solve, else None.
         self.T_iterations: np.ndarray | None = None
-        #: case -> the phase found absent (and stable) at equilibrium.
-        self.absent_phase: dict[int, str] = {}
+        #: (N,) uint8 mask of the phases found absent (and stable) at
+        #: equilibrium: bit 0 the gas, bit 1 the liquid (see ``absent_phases``).
+        self.absent: np.ndarray | None = None
 
     @property
     def mole_fractions(self) -> np.ndarray:
@@ -202,17 +206,17 @@ class EquilibriumResult:
         else:
             text += f" after {count} iteration{'' if count == 1 else 's'}"
         feed = self.feed[case]
-        absent = self.absent_phase.get(int(case))
+        absent = self.absent_phases(case)
         zero = [
             name
             for k, name in enumerate(self.system.species)
             if feed[k] == 0
             and self.amounts[case, k] == 0
             and self.system._reactive[k]
-            and self.system.phases[k] != absent
+            and self.system.phases[k] not in absent
         ]
-        if absent is not None:
-            text += f"; the {absent} phase is absent (it would not form: it is stable empty)"
+        for phase in absent:
+            text += f"; the {phase} phase is absent (it would not form: it is stable empty)"
         if zero:
             text += f"; {', '.join(zero)} cannot be formed from this feed (amount exactly 0)"
         if st == Status.UNDERFLOW:
@@ -223,6 +227,15 @@ class EquilibriumResult:
                 f"; {', '.join(held) or 'some species'} would lie below 1e-305 mol (amount is an upper bound)"
             )
         return text
+
+    def absent_phases(self, case: int = 0) -> list[str]:
+        """The phases of one case found absent at equilibrium because they
+        would not form (a condensate above its dew point, say): the solve
+        tried them absent and checked that they are stable empty."""
+        if self.absent is None:
+            return []
+        mask = int(self.absent[case])
+        return [name for bit, name in enumerate(PHASE_BITS) if mask >> bit & 1]
 
     def summary(self) -> str:
         """Counts of cases by status, e.g. ``'998 converged, 2 invalid input'``."""

@@ -828,15 +828,13 @@ class ReactionSystem:
             # extent at equilibrium; the approach holds it short of that.
             from eqbatch.thermo import approach_temperatures
 
-            _, eq_extents, _, _ = self._core.solve(
-                feed_arr, lnk_arr, p_arr, n, tol, max_iter, threads, start, chain
-            )
+            eq_extents = self._core.solve(feed_arr, lnk_arr, p_arr, n, tol, max_iter, threads, start, chain)[1]
             T_eff = approach_temperatures(self, T_arr, approach, np.sign(eq_extents))
             lnk_arr = self.lnK_at(T_eff)
             if bad_T is not None:
                 lnk_arr[np.broadcast_to(bad_T, (lnk_arr.shape[0],))] = np.nan
             start = np.where(np.isfinite(eq_extents), eq_extents, 0.0)
-        amounts, extents, status, iterations = self._core.solve(
+        amounts, extents, status, iterations, absent = self._core.solve(
             feed_arr, lnk_arr, p_arr, n, tol, max_iter, threads, start, chain
         )
         # Mole fractions are computed when first read (41 % less fresh memory per case).
@@ -844,27 +842,14 @@ class ReactionSystem:
             self, amounts, extents, None, status, iterations, feed_arr, p_arr, T_arr, lnk_arr
         )
         result._T_eff = T_eff
+        result.absent = absent
         if invalid == "raise" and (status == Status.INVALID_INPUT).any():
             k = int(np.flatnonzero(status == Status.INVALID_INPUT)[0])
             T_k = None if T_arr is None else float(T_arr[k if T_arr.shape[0] > 1 else 0])
             why = self._why_invalid(result.feed[k], result.lnK[k], float(result.P[k]), T_k)
             raise InvalidCaseError(f"case {k}: {why}")
-        repaired = None
-        if self._two_phase and (status == 1).any() | (status == 4).any():
-            from eqbatch.phases import repair_vanished_phases
-
-            repaired = repair_vanished_phases(self, result, tol=tol, max_iter=max_iter)
         if sensitivities:
-            result._sens = self._core.sensitivities(feed_arr, p_arr, amounts, status, threads)
-            if repaired is not None and repaired.size:
-                # The core's derivatives assume every reachable species present.
-                from eqbatch.phases import active_set_sensitivities
-
-                d_lnk, d_lnp, d_feed = result._sens
-                for k in repaired:
-                    d_lnk[k], d_lnp[k], d_feed[k] = active_set_sensitivities(
-                        self, amounts[k], float(result.P[k])
-                    )
+            result._sens = self._core.sensitivities(feed_arr, p_arr, amounts, status, absent, threads)
         return result
 
     def dlnK_dT(self, T: ArrayLike) -> np.ndarray:

@@ -43,6 +43,7 @@ fn main() {
         mole_fractions: None,
         status: &mut status,
         iterations: &mut iterations,
+        absent: None,
     };
     let start = Instant::now();
     solve_batch(

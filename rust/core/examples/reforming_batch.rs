@@ -48,6 +48,7 @@ fn main() {
         mole_fractions: Some(&mut fractions),
         status: &mut status,
         iterations: &mut iterations,
+        absent: None,
     };
     let start = Instant::now();
     // CHAIN=1 in the environment: chained starts (each case from its predecessor).

@@ -15,6 +15,7 @@ use rayon::prelude::*;
 use crate::error::CoreError;
 use crate::face::{analyse, Face, FaceError};
 use crate::lanes::{lane_kernel_for, LaneCase};
+use crate::presence;
 use crate::solver::{kernel_for, solve_on_face, FixedKernel, SolveOptions, Workspace};
 use crate::status::Status;
 use crate::system::{Phase, System, N_PHASES};
@@ -57,6 +58,9 @@ pub struct BatchOutputs<'a> {
     pub status: &'a mut [u8],
     /// Newton iterations taken (`n_cases`).
     pub iterations: &'a mut [u32],
+    /// Per case, the phases found absent and stable ([`crate::presence`]),
+    /// one bit per phase index ([`crate::presence::phase_bit`]), when wanted.
+    pub absent: Option<&'a mut [u8]>,
 }
 
 /// Where a broadcastable input's row for case `k` starts.
@@ -317,46 +321,47 @@ pub fn solve_batch(
         CHUNK
     };
 
-    let finish =
-        |amounts: &mut [f64], extents: &mut [f64], fractions: Option<&mut [f64]>, st: Status| {
-            let bad = st == Status::InvalidInput || st == Status::Infeasible;
-            if bad {
-                amounts.fill(f64::NAN);
-                extents.fill(f64::NAN);
-            }
-            let Some(fractions) = fractions else {
-                return;
-            };
-            if bad {
-                fractions.fill(f64::NAN);
-                return;
-            }
-            let mut totals = [0.0; N_PHASES];
-            for (i, phase) in system.phases().iter().enumerate() {
-                totals[phase.index()] += amounts[i];
-            }
-            for (i, phase) in system.phases().iter().enumerate() {
-                let total = totals[phase.index()];
-                fractions[i] = if total > 0.0 { amounts[i] / total } else { 0.0 };
-            }
+    let finish = |out: CaseOut, st: Status, absent: u8| {
+        let bad = st == Status::InvalidInput || st == Status::Infeasible;
+        if bad {
+            out.amounts.fill(f64::NAN);
+            out.extents.fill(f64::NAN);
+        }
+        if let Some(mask) = out.absent {
+            *mask = absent;
+        }
+        let Some(fractions) = out.fractions else {
+            return;
         };
+        if bad {
+            fractions.fill(f64::NAN);
+            return;
+        }
+        let mut totals = [0.0; N_PHASES];
+        for (i, phase) in system.phases().iter().enumerate() {
+            totals[phase.index()] += out.amounts[i];
+        }
+        for (i, phase) in system.phases().iter().enumerate() {
+            let total = totals[phase.index()];
+            fractions[i] = if total > 0.0 {
+                out.amounts[i] / total
+            } else {
+                0.0
+            };
+        }
+    };
 
-    let run_chunk = |ws: &mut ChunkState,
-                     chunk: usize,
-                     amounts: &mut [f64],
-                     extents: &mut [f64],
-                     mut fractions: Option<&mut [f64]>,
-                     status: &mut [u8],
-                     iterations: &mut [u32]| {
+    let run_chunk = |ws: &mut ChunkState, chunk: Chunk| {
+        let Chunk { index, mut out } = chunk;
+        let n_local = out.status.len();
         if let Some(lane_kernel) = lane_kernel {
             // Eligible cases (valid, on a full face) to the lanes; the rest
             // one at a time. Which path a case takes depends on its own
             // inputs only.
-            let n_local = status.len();
             let mut cases: Vec<LaneCase> = Vec::with_capacity(n_local);
             let mut eligible = [false; LANE_CHUNK];
             for local in 0..n_local {
-                let (feed, ln_k, pressure, start) = case_inputs(chunk * chunk_len + local);
+                let (feed, ln_k, pressure, start) = case_inputs(index * chunk_len + local);
                 if !case_is_valid(feed, ln_k, pressure) {
                     continue;
                 }
@@ -375,82 +380,77 @@ pub fn solve_batch(
                 }
             }
             let mut outcome = [(Status::InvalidInput, 0); LANE_CHUNK];
-            lane_kernel(system, &cases, options, amounts, extents, &mut outcome);
+            lane_kernel(
+                system,
+                &cases,
+                options,
+                out.amounts,
+                out.extents,
+                &mut outcome,
+            );
             for local in 0..n_local {
-                let a = &mut amounts[local * s..(local + 1) * s];
-                let e = &mut extents[local * r..(local + 1) * r];
+                let case = out.case(local, s, r);
+                let mut absent = 0;
                 if !eligible[local] {
-                    let (feed, ln_k, pressure, start) = case_inputs(chunk * chunk_len + local);
-                    outcome[local] = ws.solve(
-                        system, &faces, feed, ln_k, pressure, start, options, kernel, a, e,
+                    let (feed, ln_k, pressure, start) = case_inputs(index * chunk_len + local);
+                    let (st, it, mask) = ws.solve(
+                        system,
+                        &faces,
+                        feed,
+                        ln_k,
+                        pressure,
+                        start,
+                        options,
+                        kernel,
+                        case.amounts,
+                        case.extents,
                     );
+                    outcome[local] = (st, it);
+                    absent = mask;
                 }
                 let (st, it) = outcome[local];
-                status[local] = st as u8;
-                iterations[local] = it;
-                let y = fractions
-                    .as_deref_mut()
-                    .map(|y| &mut y[local * s..(local + 1) * s]);
-                finish(a, e, y, st);
+                *case.status = st as u8;
+                *case.iterations = it;
+                finish(case, st, absent);
             }
             return;
         }
         let mut previous_converged = false;
-        for local in 0..status.len() {
-            let (feed, ln_k, pressure, start) = case_inputs(chunk * chunk_len + local);
+        for local in 0..n_local {
+            let (feed, ln_k, pressure, start) = case_inputs(index * chunk_len + local);
             let chained = options.chain && start.is_none() && previous_converged;
-            let amounts = &mut amounts[local * s..(local + 1) * s];
             // The cases before this one in the chunk are finished: a chained
             // start reads the previous case's extents from the output.
-            let (before, current) = extents.split_at_mut(local * r);
-            let extents = &mut current[..r];
+            let (case, before) = out.case_after(local, s, r);
             let start = if chained {
                 Some(&before[(local - 1) * r..])
             } else {
                 start
             };
-            let y = fractions
-                .as_deref_mut()
-                .map(|y| &mut y[local * s..(local + 1) * s]);
-            let (st, it) = ws.solve(
-                system, &faces, feed, ln_k, pressure, start, options, kernel, amounts, extents,
+            let (st, it, absent) = ws.solve(
+                system,
+                &faces,
+                feed,
+                ln_k,
+                pressure,
+                start,
+                options,
+                kernel,
+                case.amounts,
+                case.extents,
             );
-            status[local] = st as u8;
-            iterations[local] = it;
+            *case.status = st as u8;
+            *case.iterations = it;
             previous_converged = st.is_converged();
-            finish(amounts, extents, y, st);
+            finish(case, st, absent);
         }
     };
 
-    // The mole-fraction output, when there is one, cut like the others.
-    let n_chunks = n.div_ceil(chunk_len);
-    fn fraction_chunks(
-        y: Option<&mut [f64]>,
-        len: usize,
-        n_chunks: usize,
-    ) -> Vec<Option<&mut [f64]>> {
-        match y {
-            Some(y) => y.chunks_mut(len).map(Some).collect(),
-            None => (0..n_chunks).map(|_| None).collect(),
-        }
-    }
+    let chunks = Chunk::split(outputs, chunk_len, s, r);
     if serial {
         let mut state = ChunkState::new(system);
-        let ys = fraction_chunks(
-            outputs.mole_fractions.as_deref_mut(),
-            chunk_len * s,
-            n_chunks,
-        );
-        for (chunk, ((((a, e), y), st), it)) in outputs
-            .amounts
-            .chunks_mut(chunk_len * s)
-            .zip(outputs.extents.chunks_mut(chunk_len * r))
-            .zip(ys)
-            .zip(outputs.status.chunks_mut(chunk_len))
-            .zip(outputs.iterations.chunks_mut(chunk_len))
-            .enumerate()
-        {
-            run_chunk(&mut state, chunk, a, e, y, st, it);
+        for chunk in chunks {
+            run_chunk(&mut state, chunk);
         }
         return Ok(());
     }
@@ -459,29 +459,7 @@ pub fn solve_batch(
     // tens of microseconds, as much as a thousand cases on the lane path).
     // Chunks are handed out in order from a shared counter; which thread
     // solves a chunk does not change its results.
-    let ys = fraction_chunks(
-        outputs.mole_fractions.as_deref_mut(),
-        chunk_len * s,
-        n_chunks,
-    );
-    type Work<'w> = (
-        usize,
-        &'w mut [f64],
-        &'w mut [f64],
-        Option<&'w mut [f64]>,
-        &'w mut [u8],
-        &'w mut [u32],
-    );
-    let work: Vec<Mutex<Option<Work>>> = outputs
-        .amounts
-        .chunks_mut(chunk_len * s)
-        .zip(outputs.extents.chunks_mut(chunk_len * r))
-        .zip(ys)
-        .zip(outputs.status.chunks_mut(chunk_len))
-        .zip(outputs.iterations.chunks_mut(chunk_len))
-        .enumerate()
-        .map(|(chunk, ((((a, e), y), st), it))| Mutex::new(Some((chunk, a, e, y, st, it))))
-        .collect();
+    let work: Vec<Mutex<Option<Chunk>>> = chunks.into_iter().map(|c| Mutex::new(Some(c))).collect();
     let next = AtomicUsize::new(0);
     let drain = || {
         let mut state = ChunkState::new(system);
@@ -491,8 +469,8 @@ pub fn solve_batch(
                 break;
             };
             let item = slot.lock().ok().and_then(|mut taken| taken.take());
-            if let Some((chunk, a, e, y, st, it)) = item {
-                run_chunk(&mut state, chunk, a, e, y, st, it);
+            if let Some(chunk) = item {
+                run_chunk(&mut state, chunk);
             }
         }
     };
@@ -530,7 +508,9 @@ fn pool_for(threads: Option<usize>) -> Result<Option<Arc<rayon::ThreadPool>>, Co
         Some(k) => k,
         None => return Ok(None),
     };
-    let mut pools = POOLS.lock().unwrap_or_else(|poisoned| poisoned.into_inner());
+    let mut pools = POOLS
+        .lock()
+        .unwrap_or_else(|poisoned| poisoned.into_inner());
     if let Some((_, pool)) = pools.iter().find(|(size, _)| *size == k) {
         return Ok(Some(Arc::clone(pool)));
     }
@@ -554,6 +534,94 @@ pub(crate) fn on_threads(
         None => work(),
     }
     Ok(())
+}
+
+/// The outputs of one chunk of consecutive cases (its rows of every output
+/// array), and which chunk it is.
+struct Chunk<'w> {
+    index: usize,
+    out: ChunkOut<'w>,
+}
+
+struct ChunkOut<'w> {
+    amounts: &'w mut [f64],
+    extents: &'w mut [f64],
+    fractions: Option<&'w mut [f64]>,
+    absent: Option<&'w mut [u8]>,
+    status: &'w mut [u8],
+    iterations: &'w mut [u32],
+}
+
+/// The outputs of one case.
+struct CaseOut<'c> {
+    amounts: &'c mut [f64],
+    extents: &'c mut [f64],
+    fractions: Option<&'c mut [f64]>,
+    absent: Option<&'c mut u8>,
+    status: &'c mut u8,
+    iterations: &'c mut u32,
+}
+
+impl<'w> Chunk<'w> {
+    /// Cut every output into chunks of `len` cases.
+    fn split(outputs: &'w mut BatchOutputs, len: usize, s: usize, r: usize) -> Vec<Chunk<'w>> {
+        let n_chunks = outputs.status.len().div_ceil(len);
+        let mut fractions: Vec<Option<&'w mut [f64]>> = match outputs.mole_fractions.as_deref_mut()
+        {
+            Some(y) => y.chunks_mut(len * s).map(Some).collect(),
+            None => (0..n_chunks).map(|_| None).collect(),
+        };
+        let mut absent: Vec<Option<&'w mut [u8]>> = match outputs.absent.as_deref_mut() {
+            Some(mask) => mask.chunks_mut(len).map(Some).collect(),
+            None => (0..n_chunks).map(|_| None).collect(),
+        };
+        outputs
+            .amounts
+            .chunks_mut(len * s)
+            .zip(outputs.extents.chunks_mut(len * r))
+            .zip(outputs.status.chunks_mut(len))
+            .zip(outputs.iterations.chunks_mut(len))
+            .enumerate()
+            .map(
+                |(index, (((amounts, extents), status), iterations))| Chunk {
+                    index,
+                    out: ChunkOut {
+                        amounts,
+                        extents,
+                        fractions: fractions[index].take(),
+                        absent: absent[index].take(),
+                        status,
+                        iterations,
+                    },
+                },
+            )
+            .collect()
+    }
+}
+
+impl ChunkOut<'_> {
+    /// The outputs of the chunk's case `local`.
+    fn case(&mut self, local: usize, s: usize, r: usize) -> CaseOut<'_> {
+        self.case_after(local, s, r).0
+    }
+
+    /// The outputs of case `local`, and the extents of the cases before it
+    /// (finished: a chained start reads them).
+    fn case_after(&mut self, local: usize, s: usize, r: usize) -> (CaseOut<'_>, &[f64]) {
+        let (before, current) = self.extents.split_at_mut(local * r);
+        let case = CaseOut {
+            amounts: &mut self.amounts[local * s..(local + 1) * s],
+            extents: &mut current[..r],
+            fractions: self
+                .fractions
+                .as_deref_mut()
+                .map(|y| &mut y[local * s..(local + 1) * s]),
+            absent: self.absent.as_deref_mut().map(|m| &mut m[local]),
+            status: &mut self.status[local],
+            iterations: &mut self.iterations[local],
+        };
+        (case, before)
+    }
 }
 
 /// One thread's state: its workspace and its place in the face table.
@@ -583,25 +651,46 @@ impl ChunkState {
         kernel: Option<FixedKernel>,
         amounts: &mut [f64],
         extents: &mut [f64],
-    ) -> (Status, u32) {
+    ) -> (Status, u32, u8) {
         if !case_is_valid(feed, ln_k, pressure) {
-            return (Status::InvalidInput, 0);
+            return (Status::InvalidInput, 0, 0);
         }
-        match self.faces.face(faces, feed) {
-            Some(Ok(face)) => solve_on_face(
-                system,
-                face,
-                feed,
-                ln_k,
-                pressure,
-                start,
-                options,
-                kernel,
-                &mut self.workspace,
-                amounts,
-                extents,
+        let Some(Ok(face)) = self.faces.face(faces, feed) else {
+            return (Status::Infeasible, 0, 0);
+        };
+        let (status, iterations) = solve_on_face(
+            system,
+            face,
+            feed,
+            ln_k,
+            pressure,
+            start,
+            options,
+            kernel,
+            &mut self.workspace,
+            amounts,
+            extents,
+        );
+        if !presence::worth_retrying(system, status) {
+            return (status, iterations, 0);
+        }
+        match presence::solve_with_a_phase_absent(
+            system,
+            feed,
+            ln_k,
+            pressure,
+            options,
+            iterations,
+            &mut self.workspace,
+            amounts,
+            extents,
+        ) {
+            Some(absent) => (
+                absent.status,
+                iterations + absent.iterations,
+                presence::phase_bit(absent.phase),
             ),
-            _ => (Status::Infeasible, 0),
+            None => (status, iterations, 0),
         }
     }
 }
@@ -638,6 +727,7 @@ mod tests {
             mole_fractions: Some(&mut y),
             status: &mut st,
             iterations: &mut it,
+            absent: None,
         };
         solve_batch(sys, &inputs, &mut out, &SolveOptions::default(), threads).unwrap();
         (amounts, st)
@@ -758,6 +848,7 @@ mod tests {
                     mole_fractions: with_fractions.then_some(&mut fractions[..]),
                     status: &mut st,
                     iterations: &mut it,
+                    absent: None,
                 };
                 let options = SolveOptions {
                     max_iter,
@@ -802,6 +893,7 @@ mod tests {
             mole_fractions: Some(&mut y),
             status: &mut st,
             iterations: &mut it,
+            absent: None,
         };
         assert!(matches!(
             solve_batch(&sys, &inputs, &mut out, &SolveOptions::default(), None),

@@ -47,20 +47,33 @@ pub enum FaceError {
 /// Analyse a zero pattern: `zero_feed[i]` is true where species `i` has zero
 /// feed. Inert species are ignored.
 pub fn analyse(system: &System, zero_feed: &[bool]) -> Result<Face, FaceError> {
+    analyse_with(system, zero_feed, &vec![false; system.n_species()])
+}
+
+/// [`analyse`] with some zero-feed species `forbidden` to form at all (the
+/// species of a phase held absent, see [`crate::presence`]): they are
+/// unreachable by decree, and the face keeps them at zero.
+pub fn analyse_with(
+    system: &System,
+    zero_feed: &[bool],
+    forbidden: &[bool],
+) -> Result<Face, FaceError> {
     let s = system.n_species();
     let r = system.n_reactions();
     let nu = system.stoich();
     let zero: Vec<usize> = (0..s)
-        .filter(|&i| zero_feed[i] && system.is_reactive(i))
+        .filter(|&i| (zero_feed[i] || forbidden[i]) && system.is_reactive(i))
         .collect();
+    let banned: Vec<usize> = zero.iter().copied().filter(|&k| forbidden[k]).collect();
     let mut unreachable = vec![false; s];
     let mut direction = vec![0.0; r];
     if !zero.is_empty() {
         // Variables: p (r), q (r), support s_k (|zero|), all >= 0; d = p - q.
-        // Rows: s_k - (nu^T d)_k <= 0 ; s_k <= 1.   Maximise sum s_k.
+        // Rows: s_k - (nu^T d)_k <= 0 ; s_k <= 1 ; (nu^T d)_k <= 0 for a
+        // forbidden k (it may not form).   Maximise sum s_k.
         let nz = zero.len();
         let n_var = 2 * r + nz;
-        let m = 2 * nz;
+        let m = 2 * nz + banned.len();
         let mut a = vec![0.0; m * n_var];
         let mut b = vec![0.0; m];
         for (row, &k) in zero.iter().enumerate() {
@@ -71,6 +84,13 @@ pub fn analyse(system: &System, zero_feed: &[bool]) -> Result<Face, FaceError> {
             a[row * n_var + 2 * r + row] = 1.0;
             a[(nz + row) * n_var + 2 * r + row] = 1.0;
             b[nz + row] = 1.0;
+        }
+        for (extra, &k) in banned.iter().enumerate() {
+            let row = 2 * nz + extra;
+            for j in 0..r {
+                a[row * n_var + j] = nu[j * s + k];
+                a[row * n_var + r + j] = -nu[j * s + k];
+            }
         }
         let mut c = vec![0.0; n_var];
         for v in c[2 * r..].iter_mut() {
@@ -83,7 +103,7 @@ pub fn analyse(system: &System, zero_feed: &[bool]) -> Result<Face, FaceError> {
         for (row, &k) in zero.iter().enumerate() {
             // The optimum puts every reachable species at support 1 (directions
             // add, and d is unbounded), so 0.5 separates the two sets robustly.
-            unreachable[k] = x[2 * r + row] < 0.5;
+            unreachable[k] = x[2 * r + row] < 0.5 || forbidden[k];
         }
         for j in 0..r {
             direction[j] = x[j] - x[r + j];

@@ -8,6 +8,7 @@
 //! * [`system`]: the validated reaction system and its structural checks;
 //! * [`face`]: which species a feed can reach (the zero-pattern analysis);
 //! * [`basis`]: the per-case stoichiometric basis that keeps trace species precise;
+//! * [`presence`]: phases that are absent at equilibrium (tried absent, kept if stable);
 //! * [`solver`]: the damped Newton solve of one case;
 //! * [`lanes`]: the batch path for all-gas systems, eight cases per vector group;
 //! * [`batch`]: the parallel batch driver;
@@ -26,6 +27,7 @@ pub mod lanes;
 pub mod linalg;
 mod ln;
 pub mod lp;
+pub mod presence;
 pub mod sensitivity;
 pub mod solver;
 pub mod status;

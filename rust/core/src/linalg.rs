@@ -156,6 +156,63 @@ fn forward_back(l: &[f64], x: &mut [f64], n: usize) {
     }
 }
 
+/// A solution of `A x = b` (`a` is `rows x cols`, row-major) by Gauss-Jordan
+/// elimination with partial pivoting, free variables set to zero; `None`
+/// if the system is inconsistent (a residual above 1e-8 of the largest
+/// entry of `b`, or of 1). Pivots below 1e-12 of the largest entry of `a`
+/// count as zero.
+pub fn particular_solution(a: &[f64], b: &[f64], rows: usize, cols: usize) -> Option<Vec<f64>> {
+    let mut m = a.to_vec();
+    let mut rhs = b.to_vec();
+    let scale = m
+        .iter()
+        .fold(0.0_f64, |acc, v| acc.max(v.abs()))
+        .max(1e-300);
+    let rhs_scale = rhs.iter().fold(0.0_f64, |acc, v| acc.max(v.abs())).max(1.0);
+    let eps = 1e-12 * scale;
+    let mut pivots = Vec::new();
+    let mut row = 0;
+    for col in 0..cols {
+        if row == rows {
+            break;
+        }
+        let (best, best_abs) = (row..rows)
+            .map(|r| (r, m[r * cols + col].abs()))
+            .fold((row, -1.0), |acc, v| if v.1 > acc.1 { v } else { acc });
+        if best_abs <= eps {
+            continue;
+        }
+        for k in 0..cols {
+            m.swap(row * cols + k, best * cols + k);
+        }
+        rhs.swap(row, best);
+        let inv = 1.0 / m[row * cols + col];
+        for k in 0..cols {
+            m[row * cols + k] *= inv;
+        }
+        rhs[row] *= inv;
+        for r in 0..rows {
+            let factor = m[r * cols + col];
+            if r != row && factor != 0.0 {
+                for k in 0..cols {
+                    m[r * cols + k] -= factor * m[row * cols + k];
+                }
+                rhs[r] -= factor * rhs[row];
+            }
+        }
+        pivots.push(col);
+        row += 1;
+    }
+    if rhs[row..].iter().any(|v| v.abs() > 1e-8 * rhs_scale) {
+        return None;
+    }
+    let mut x = vec![0.0; cols];
+    for (r, &col) in pivots.iter().enumerate() {
+        x[col] = rhs[r];
+    }
+    Some(x)
+}
+
 /// A basis of the null space of the `rows x cols` matrix `m` (row-major):
 /// returns `(basis, k)` with `basis` a `cols x k` row-major matrix whose
 /// columns span `{x : m x = 0}`. Reduced row-echelon form with partial

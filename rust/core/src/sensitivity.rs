@@ -16,8 +16,10 @@ use rayon::prelude::*;
 use crate::basis::{choose_basis, sort_by_amount};
 use crate::batch::{faces_for, on_threads, BatchInputs, FaceCursor, Rows, TINY_FEED};
 use crate::error::CoreError;
-use crate::face::Face;
+use crate::face::{analyse_with, Face};
+use crate::linalg::particular_solution;
 use crate::linalg::solve_spd;
+use crate::presence::phase_bit;
 use crate::status::Status;
 use crate::system::{Phase, System};
 
@@ -36,12 +38,17 @@ const CHUNK: usize = 64;
 
 /// Derivatives of every converged case (an [`Status::Underflow`] case
 /// included: a species held at the float floor has derivatives of its own
-/// size, zero in float64); other cases get NaN.
+/// size, zero in float64); other cases get NaN. `absent` is the solve's
+/// per-case mask of phases found absent ([`crate::presence`]): those
+/// phases stay absent under small changes, and a fed species of one moves
+/// onto the present species where the reactions can take it.
+#[allow(clippy::too_many_arguments)]
 pub fn sensitivities_batch(
     system: &System,
     inputs: &BatchInputs,
     amounts: &[f64],
     status: &[u8],
+    absent: Option<&[u8]>,
     out: &mut SensitivityOutputs,
     threads: Option<usize>,
 ) -> Result<(), CoreError> {
@@ -51,6 +58,7 @@ pub fn sensitivities_batch(
     Rows::check("pressure", inputs.pressure.len(), 1, n)?;
     if amounts.len() != n * s
         || status.len() != n
+        || absent.is_some_and(|a| a.len() != n)
         || out.d_ln_k.len() != n * s * r
         || out.d_ln_p.len() != n * s
         || out.d_feed.len() != n * s * s
@@ -77,14 +85,39 @@ pub fn sensitivities_batch(
             let dp = &mut dp[local * s..(local + 1) * s];
             let df = &mut df[local * s * s..(local + 1) * s * s];
             let feed = feed_rows.row(inputs.feed, case);
-            let ok = (status[case] == Status::Converged as u8
-                || status[case] == Status::Underflow as u8)
-                && match cursor.face(&faces, feed) {
-                    Some(Ok(face)) => {
-                        let n_case = &amounts[case * s..(case + 1) * s];
-                        case_sensitivities(system, face, n_case, &mut scratch, dk, dp, df)
+            let n_case = &amounts[case * s..(case + 1) * s];
+            let converged =
+                status[case] == Status::Converged as u8 || status[case] == Status::Underflow as u8;
+            let mask = absent.map_or(0, |a| a[case]);
+            let ok = converged
+                && if mask != 0 {
+                    // The face of the equilibrium with the phase held absent.
+                    let held: Vec<bool> = system
+                        .phases()
+                        .iter()
+                        .map(|&p| mask & phase_bit(p) != 0)
+                        .collect();
+                    let zero: Vec<bool> = n_case.iter().map(|&v| v <= 0.0).collect();
+                    match analyse_with(system, &zero, &held) {
+                        Ok(face) => case_sensitivities(
+                            system,
+                            &face,
+                            Some(&held),
+                            n_case,
+                            &mut scratch,
+                            dk,
+                            dp,
+                            df,
+                        ),
+                        Err(_) => false,
                     }
-                    _ => false,
+                } else {
+                    match cursor.face(&faces, feed) {
+                        Some(Ok(face)) => {
+                            case_sensitivities(system, face, None, n_case, &mut scratch, dk, dp, df)
+                        }
+                        _ => false,
+                    }
                 };
             if !ok {
                 dk.fill(f64::NAN);
@@ -116,6 +149,8 @@ struct Scratch {
     scale: Vec<f64>,
     gas: Vec<f64>,
     liquid: Vec<f64>,
+    /// The feed change of one species, moved onto present species.
+    moved: Vec<f64>,
 }
 
 impl Scratch {
@@ -132,6 +167,7 @@ impl Scratch {
             scale: vec![0.0; r],
             gas: vec![0.0; r],
             liquid: vec![0.0; r],
+            moved: vec![0.0; s],
         }
     }
 }
@@ -139,9 +175,11 @@ impl Scratch {
 /// Derivatives of one converged case. Returns `false` if the Newton system
 /// is singular.
 #[allow(clippy::too_many_arguments)]
+#[allow(clippy::too_many_arguments)]
 fn case_sensitivities(
     system: &System,
     face: &Face,
+    absent: Option<&[bool]>,
     amounts: &[f64],
     sc: &mut Scratch,
     d_ln_k: &mut [f64],
@@ -254,23 +292,75 @@ fn case_sensitivities(
     if !solve_into(sc, &mut |i, v| d_ln_p[i] = v) {
         return false;
     }
-    // Feed of species k: dF_b/d n0_k = nu_b[:, k] / n_k - d_phase(k) / N_phase(k).
+    // Feed of species k: the added amount `m` (e_k, or for a species of an
+    // absent phase e_k moved onto the present species by the reactions where
+    // they can take it) changes the residuals by
+    // dF_b = sum_i m_i (nu_b[:, i] / n_i - d_phase(i) / N_phase(i)).
+    let mut moved = std::mem::take(&mut sc.moved);
     for k in 0..s {
-        let unreachable = face.unreachable[k] || amounts[k] < TINY_FEED;
+        moved.fill(0.0);
+        moved[k] = 1.0;
+        if absent.is_some_and(|a| a[k]) && !move_onto_present(system, face, &mut moved) {
+            continue; // no reaction takes it: it stays where it is added
+        }
         for j in 0..dim {
-            let own = if unreachable {
-                0.0
-            } else {
-                sc.basis_stoich[j * s + k] / amounts[k]
-            };
-            let dilution = match phases[k] {
-                Phase::Gas => sc.gas[j] * inv_gas,
-                Phase::Liquid => sc.liquid[j] * inv_liquid,
-            };
-            sc.rhs[j] = -(own - dilution);
+            let mut v = 0.0;
+            for i in 0..s {
+                let m = moved[i];
+                if m == 0.0 {
+                    continue;
+                }
+                let unreachable = face.unreachable[i] || amounts[i] < TINY_FEED;
+                let own = if unreachable {
+                    0.0
+                } else {
+                    sc.basis_stoich[j * s + i] / amounts[i]
+                };
+                let dilution = match phases[i] {
+                    Phase::Gas => sc.gas[j] * inv_gas,
+                    Phase::Liquid => sc.liquid[j] * inv_liquid,
+                };
+                v += m * (own - dilution);
+            }
+            sc.rhs[j] = -v;
+        }
+        for i in 0..s {
+            d_feed[i * s + k] = moved[i];
         }
         if !solve_into(sc, &mut |i, v| d_feed[i * s + k] += v) {
+            sc.moved = moved;
             return false;
+        }
+    }
+    sc.moved = moved;
+    true
+}
+
+/// Move one mole of a species of an absent phase onto the species present
+/// (`moved` holds `e_k` and receives `e_k + nu^T d` with every species the
+/// face holds at zero back at zero), by extents `d` that exist when the
+/// reactions can take it; `false` if they cannot.
+fn move_onto_present(system: &System, face: &Face, moved: &mut [f64]) -> bool {
+    let (s, r) = (system.n_species(), system.n_reactions());
+    let nu = system.stoich();
+    let held: Vec<usize> = (0..s).filter(|&i| face.unreachable[i]).collect();
+    let mut a = vec![0.0; held.len() * r];
+    let mut b = vec![0.0; held.len()];
+    for (row, &i) in held.iter().enumerate() {
+        for j in 0..r {
+            a[row * r + j] = nu[j * s + i];
+        }
+        b[row] = -moved[i];
+    }
+    let Some(d) = particular_solution(&a, &b, held.len(), r) else {
+        return false;
+    };
+    for i in 0..s {
+        for j in 0..r {
+            moved[i] += nu[j * s + i] * d[j];
+        }
+        if face.unreachable[i] || moved[i].abs() < 1e-14 {
+            moved[i] = 0.0;
         }
     }
     true

@@ -19,6 +19,7 @@ type Solved<'py> = (
     Bound<'py, PyArray2<f64>>,
     Bound<'py, PyArray1<u8>>,
     Bound<'py, PyArray1<u32>>,
+    Bound<'py, PyArray1<u8>>,
 );
 
 type Sensitivities<'py> = (
@@ -71,8 +72,10 @@ impl PySystem {
 
     /// Solve `n_cases` cases. `feed` (1 or N, S), `ln_k` (1 or N, R) and
     /// `pressure` (1 or N) must be C-contiguous float64. Returns
-    /// `(amounts, extents, status, iterations)`; mole fractions are left to
-    /// the caller (computed on demand, which saves their memory in batches).
+    /// `(amounts, extents, status, iterations, absent)`, `absent` the
+    /// per-case mask of phases found absent (bit 0 gas, bit 1 liquid);
+    /// mole fractions are left to the caller (computed on demand, which
+    /// saves their memory in batches).
     #[pyo3(signature = (feed, ln_k, pressure, n_cases, tol, max_iter, threads=None, start=None, chain=false))]
     #[allow(clippy::too_many_arguments)]
     fn solve<'py>(
@@ -95,6 +98,7 @@ impl PySystem {
         let extents = output::<f64, _>(py, [n_cases, r])?;
         let status = output::<u8, _>(py, n_cases)?;
         let iterations = output::<u32, _>(py, n_cases)?;
+        let absent = output::<u8, _>(py, n_cases)?;
         {
             let feed = feed.as_slice()?;
             let ln_k = ln_k.as_slice()?;
@@ -103,17 +107,14 @@ impl PySystem {
                 Some(x0) => Some(x0.as_slice()?),
                 None => None,
             };
-            // SAFETY: the four output arrays were created just above, are
-            // C-contiguous, and no other reference to them exists until they
-            // are returned, so these are the only views of their memory.
-            let (a, e, st, it) = unsafe {
-                (
-                    amounts.as_slice_mut()?,
-                    extents.as_slice_mut()?,
-                    status.as_slice_mut()?,
-                    iterations.as_slice_mut()?,
-                )
-            };
+            let (mut a, mut e) = (amounts.readwrite(), extents.readwrite());
+            let (mut st, mut it, mut ab) = (
+                status.readwrite(),
+                iterations.readwrite(),
+                absent.readwrite(),
+            );
+            let (a, e) = (a.as_slice_mut()?, e.as_slice_mut()?);
+            let (st, it, ab) = (st.as_slice_mut()?, it.as_slice_mut()?, ab.as_slice_mut()?);
             let inputs = BatchInputs {
                 n_cases,
                 feed,
@@ -134,17 +135,20 @@ impl PySystem {
                     mole_fractions: None,
                     status: st,
                     iterations: it,
+                    absent: Some(ab),
                 };
                 solve_batch(system, &inputs, &mut outputs, &options, threads)
             })
             .map_err(to_py)?;
         }
-        Ok((amounts, extents, status, iterations))
+        Ok((amounts, extents, status, iterations, absent))
     }
 
     /// Exact derivatives of converged cases: returns `(d n / d ln K (N, S, R),
     /// d n / d ln P (N, S), d n / d n0 (N, S, S))`; other cases are NaN.
-    #[pyo3(signature = (feed, pressure, amounts, status, threads=None))]
+    /// `absent` is the solve's mask of absent phases.
+    #[pyo3(signature = (feed, pressure, amounts, status, absent=None, threads=None))]
+    #[allow(clippy::too_many_arguments)]
     fn sensitivities<'py>(
         &self,
         py: Python<'py>,
@@ -152,6 +156,7 @@ impl PySystem {
         pressure: PyReadonlyArray1<'py, f64>,
         amounts: PyReadonlyArray2<'py, f64>,
         status: PyReadonlyArray1<'py, u8>,
+        absent: Option<PyReadonlyArray1<'py, u8>>,
         threads: Option<usize>,
     ) -> PyResult<Sensitivities<'py>> {
         let s = self.inner.n_species();
@@ -165,15 +170,13 @@ impl PySystem {
             let pressure = pressure.as_slice()?;
             let amounts = amounts.as_slice()?;
             let status = status.as_slice()?;
-            // SAFETY: the three arrays were created just above and are not
-            // shared until returned.
-            let (dk, dp, df) = unsafe {
-                (
-                    d_ln_k.as_slice_mut()?,
-                    d_ln_p.as_slice_mut()?,
-                    d_feed.as_slice_mut()?,
-                )
+            let absent = match &absent {
+                Some(mask) => Some(mask.as_slice()?),
+                None => None,
             };
+            let (mut dk, mut dp, mut df) =
+                (d_ln_k.readwrite(), d_ln_p.readwrite(), d_feed.readwrite());
+            let (dk, dp, df) = (dk.as_slice_mut()?, dp.as_slice_mut()?, df.as_slice_mut()?);
             let system = &self.inner;
             py.detach(move || {
                 let inputs = BatchInputs {
@@ -188,7 +191,7 @@ impl PySystem {
                     d_ln_p: dp,
                     d_feed: df,
                 };
-                sensitivities_batch(system, &inputs, amounts, status, &mut out, threads)
+                sensitivities_batch(system, &inputs, amounts, status, absent, &mut out, threads)
             })
             .map_err(to_py)?;
         }
