@@ -450,7 +450,8 @@ mod tests {
     fn free_composition_of_the_absent_phase_is_minimised() {
         // A = B + C with B and C liquid fixes only a_B a_C = K a_A; the most
         // favourable composition has x_B = x_C, so the smallest sum is
-        // 2 sqrt(K a_A) (closed form): with a_A = 1 and K = 1/16 it is 1/2.
+        // 2 sqrt(K a_A) (closed form): 2 for K = 1 (the liquid would form),
+        // 1/2 for K = 1/16 (stable empty; the search may stop anywhere below 1).
         let s = System::new(
             vec![-1.0, 1.0, 1.0],
             1,
@@ -460,14 +461,18 @@ mod tests {
         )
         .unwrap();
         let face = analyse(&s, &[false, true, true]).unwrap();
-        let sum = implied_fraction_sum(
-            &s,
-            &face,
-            &[1.0, 0.0, 0.0],
-            &[(1.0_f64 / 16.0).ln()],
-            1.0,
-            &[false, true, true],
-        );
-        assert!((sum - 0.5).abs() < 1e-9, "{sum}");
+        let sum = |ln_k: f64| {
+            implied_fraction_sum(
+                &s,
+                &face,
+                &[1.0, 0.0, 0.0],
+                &[ln_k],
+                1.0,
+                &[false, true, true],
+            )
+        };
+        assert!((sum(0.0) - 2.0).abs() < 1e-9, "{}", sum(0.0));
+        let stable = sum((1.0_f64 / 16.0).ln());
+        assert!((0.5 - 1e-9..=1.0).contains(&stable), "{stable}");
     }
 }

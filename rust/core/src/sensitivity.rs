@@ -175,7 +175,6 @@ impl Scratch {
 /// Derivatives of one converged case. Returns `false` if the Newton system
 /// is singular.
 #[allow(clippy::too_many_arguments)]
-#[allow(clippy::too_many_arguments)]
 fn case_sensitivities(
     system: &System,
     face: &Face,
