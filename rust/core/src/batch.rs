@@ -16,7 +16,7 @@ use crate::error::CoreError;
 use crate::face::{analyse, Face, FaceError};
 use crate::lanes::{lane_kernel_for, LaneCase};
 use crate::presence;
-use crate::solver::{kernel_for, solve_on_face, FixedKernel, SolveOptions, Workspace};
+use crate::solver::{kernel_for, solve_on_face, Case, FixedKernel, SolveOptions, Workspace};
 use crate::status::Status;
 use crate::system::{Phase, System, N_PHASES};
 
@@ -658,13 +658,16 @@ impl ChunkState {
         let Some(Ok(face)) = self.faces.face(faces, feed) else {
             return (Status::Infeasible, 0, 0);
         };
-        let (status, iterations) = solve_on_face(
-            system,
+        let case = Case {
             face,
             feed,
             ln_k,
             pressure,
             start,
+        };
+        let (status, iterations) = solve_on_face(
+            system,
+            &case,
             options,
             kernel,
             &mut self.workspace,

@@ -39,7 +39,7 @@ use crate::face::Face;
 use crate::ln::ln_normal;
 use crate::solver::{
     for_small_systems, interior_start, kernel_for, solve_on_face, sufficient_decrease, warm_start,
-    SolveOptions, Workspace, MODEL_TRUST, PHI_SERIES,
+    Case, SolveOptions, Workspace, MODEL_TRUST, PHI_SERIES,
 };
 use crate::status::Status;
 use crate::system::System;
@@ -79,6 +79,19 @@ pub struct LaneCase<'a> {
     pub ln_k: &'a [f64],
     pub pressure: f64,
     pub face: &'a Face,
+}
+
+impl<'a> LaneCase<'a> {
+    /// The case for the scalar solve, starting from `start`.
+    fn scalar(&self, start: Option<&'a [f64]>) -> Case<'a> {
+        Case {
+            face: self.face,
+            feed: self.feed,
+            ln_k: self.ln_k,
+            pressure: self.pressure,
+            start,
+        }
+    }
 }
 
 /// Solve a list of cases, [`LANES`] at a time (a lane that finishes takes
@@ -416,11 +429,7 @@ fn solve_group<const R: usize, const S: usize, const EXACT: bool>(
                         let extents = &mut extents_out[case.row * r..(case.row + 1) * r];
                         let (status, more) = solve_on_face(
                             system,
-                            case.face,
-                            case.feed,
-                            case.ln_k,
-                            case.pressure,
-                            Some(&here[..r]),
+                            &case.scalar(Some(&here[..r])),
                             &rest,
                             fixed,
                             workspace.get_or_insert_with(|| Workspace::new(system)),
@@ -812,7 +821,14 @@ mod tests {
             .zip(&faces)
             .map(|((feed, ln_k, p), face)| {
                 let (mut a, mut e) = ([0.0; 6], [0.0; 2]);
-                let (st, _) = general(&sys, face, feed, ln_k, *p, None, &options, &mut a, &mut e);
+                let case = Case {
+                    face,
+                    feed,
+                    ln_k,
+                    pressure: *p,
+                    start: None,
+                };
+                let (st, _) = general(&sys, &case, &options, &mut a, &mut e);
                 assert_eq!(st, Status::Converged);
                 (a, e)
             })
@@ -919,9 +935,14 @@ mod tests {
             .enumerate()
             .map(|(k, ((feed, ln_k, p), face))| {
                 let (mut a, mut e) = (vec![0.0; s], vec![0.0; r]);
-                let (st, _) = solve_case(
-                    &sys, face, feed, ln_k, *p, None, &options, &mut ws, &mut a, &mut e,
-                );
+                let case = Case {
+                    face,
+                    feed,
+                    ln_k,
+                    pressure: *p,
+                    start: None,
+                };
+                let (st, _) = solve_case(&sys, &case, &options, &mut ws, &mut a, &mut e);
                 assert_eq!(st, Status::Converged, "case {k}");
                 (a, e)
             })

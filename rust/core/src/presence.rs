@@ -26,7 +26,7 @@
 use crate::face::{analyse_with, Face};
 use crate::linalg::{null_space, particular_solution, solve_spd_scaled};
 use crate::lp::{maximize, LpOutcome};
-use crate::solver::{solve_case, SolveOptions, Workspace};
+use crate::solver::{solve_case, Case, SolveOptions, Workspace};
 use crate::status::Status;
 use crate::system::{Phase, System};
 
@@ -102,13 +102,16 @@ pub fn solve_with_a_phase_absent(
             trial_extents.fill(0.0);
             (Status::Converged, 0)
         } else {
-            solve_case(
-                system,
-                &face,
-                &shifted,
+            let case = Case {
+                face: &face,
+                feed: &shifted,
                 ln_k,
                 pressure,
-                None,
+                start: None,
+            };
+            solve_case(
+                system,
+                &case,
                 &budget,
                 ws,
                 &mut trial_amounts,

@@ -364,3 +364,190 @@ fn move_onto_present(system: &System, face: &Face, moved: &mut [f64]) -> bool {
     }
     true
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::batch::{solve_batch, BatchOutputs};
+    use crate::fixtures::reforming;
+    use crate::solver::SolveOptions;
+    use crate::system::Phase;
+
+    /// Amounts of one case, solved tightly (for finite differences).
+    fn amounts(system: &System, feed: &[f64], ln_k: &[f64], pressure: f64) -> (Vec<f64>, Vec<u8>) {
+        let (s, r) = (system.n_species(), system.n_reactions());
+        let (mut n, mut xi, mut st, mut it, mut ab) =
+            (vec![0.0; s], vec![0.0; r], vec![0u8], vec![0u32], vec![0u8]);
+        let inputs = BatchInputs {
+            n_cases: 1,
+            feed,
+            ln_k,
+            pressure: &[pressure],
+            start: None,
+        };
+        let mut out = BatchOutputs {
+            amounts: &mut n,
+            extents: &mut xi,
+            mole_fractions: None,
+            status: &mut st,
+            iterations: &mut it,
+            absent: Some(&mut ab),
+        };
+        let options = SolveOptions {
+            tol: 1e-14,
+            ..SolveOptions::default()
+        };
+        solve_batch(system, &inputs, &mut out, &options, Some(1)).unwrap();
+        assert!(Status::Converged as u8 == st[0] || Status::Underflow as u8 == st[0]);
+        (n, ab)
+    }
+
+    /// Analytic derivatives of one case against central differences of the
+    /// solve itself (an independent computation: no derivative code).
+    fn check(system: &System, feed: &[f64], ln_k: &[f64], pressure: f64, rtol: f64) {
+        let (s, r) = (system.n_species(), system.n_reactions());
+        let (n, absent) = amounts(system, feed, ln_k, pressure);
+        let (mut dk, mut dp, mut df) = (vec![0.0; s * r], vec![0.0; s], vec![0.0; s * s]);
+        let inputs = BatchInputs {
+            n_cases: 1,
+            feed,
+            ln_k,
+            pressure: &[pressure],
+            start: None,
+        };
+        let mut out = SensitivityOutputs {
+            d_ln_k: &mut dk,
+            d_ln_p: &mut dp,
+            d_feed: &mut df,
+        };
+        let status = [Status::Converged as u8];
+        sensitivities_batch(
+            system,
+            &inputs,
+            &n,
+            &status,
+            Some(&absent),
+            &mut out,
+            Some(1),
+        )
+        .unwrap();
+        // Finite differences of a solve to 1e-14 relative carry noise of
+        // about 1e-9 of each amount: the absolute slack is per species, so a
+        // trace species' derivative is still checked against its own size.
+        let close = |i: usize, analytic: f64, numeric: f64, what: &str| {
+            let slack = 1e-7 * n[i].abs();
+            assert!(
+                (analytic - numeric).abs() <= rtol * analytic.abs() + slack,
+                "{what}, species {i}: analytic {analytic:e}, numeric {numeric:e}"
+            );
+        };
+        let h = 1e-5;
+        for k in 0..r {
+            let (mut up, mut down) = (ln_k.to_vec(), ln_k.to_vec());
+            up[k] += h;
+            down[k] -= h;
+            let (a, b) = (
+                amounts(system, feed, &up, pressure).0,
+                amounts(system, feed, &down, pressure).0,
+            );
+            for i in 0..s {
+                close(i, dk[i * r + k], (a[i] - b[i]) / (2.0 * h), "d n / d ln K");
+            }
+        }
+        let (a, b) = (
+            amounts(system, feed, ln_k, pressure * h.exp()).0,
+            amounts(system, feed, ln_k, pressure * (-h).exp()).0,
+        );
+        for i in 0..s {
+            close(i, dp[i], (a[i] - b[i]) / (2.0 * h), "d n / d ln P");
+        }
+        for k in 0..s {
+            if feed[k] < 10.0 * h {
+                continue; // a one-sided change of the zero pattern
+            }
+            let (mut up, mut down) = (feed.to_vec(), feed.to_vec());
+            up[k] += h;
+            down[k] -= h;
+            let (a, b) = (
+                amounts(system, &up, ln_k, pressure).0,
+                amounts(system, &down, ln_k, pressure).0,
+            );
+            for i in 0..s {
+                close(i, df[i * s + k], (a[i] - b[i]) / (2.0 * h), "d n / d n0");
+            }
+        }
+    }
+
+    #[test]
+    fn reforming_derivatives_match_finite_differences() {
+        // CH4 H2O CO H2 CO2 N2 at 10 bar; every species fed.
+        check(
+            &reforming(),
+            &[1.0, 3.0, 0.1, 0.2, 0.05, 0.3],
+            &[2.0, 0.5],
+            10.0,
+            1e-6,
+        );
+    }
+
+    #[test]
+    fn trace_species_derivatives_keep_relative_precision() {
+        // ln K of reforming -40: CO and H2 are traces of 1e-8 and below; their
+        // derivatives are of their own size and must still match.
+        check(
+            &reforming(),
+            &[1.0, 3.0, 0.0, 0.0, 0.0, 0.1],
+            &[-40.0, 1.0],
+            2.0,
+            1e-5,
+        );
+    }
+
+    #[test]
+    fn two_phase_derivatives_match_finite_differences() {
+        // V = L condensing beside an inert gas with K = 3 (liquid present),
+        // and A = B in the gas.
+        let nu = vec![-1.0, 1.0, 0.0, 0.0, 0.0, 0.0, 0.0, -1.0, 1.0, 0.0];
+        let phases = vec![
+            Phase::Gas,
+            Phase::Liquid,
+            Phase::Gas,
+            Phase::Gas,
+            Phase::Gas,
+        ];
+        let sys = System::new(nu, 2, 5, phases, 1.0).unwrap();
+        check(
+            &sys,
+            &[1.0, 0.2, 1.0, 0.5, 0.1],
+            &[3.0_f64.ln(), 0.3],
+            1.0,
+            1e-6,
+        );
+    }
+
+    #[test]
+    fn absent_phase_derivatives_match_finite_differences() {
+        // The same with K = 0.2: the liquid L would need y_V = 1/(K P) > 1, so
+        // it is absent, and the fed L evaporates (its feed derivative moves it
+        // onto V through the reaction).
+        let nu = vec![-1.0, 1.0, 0.0, 0.0, 0.0, 0.0, 0.0, -1.0, 1.0, 0.0];
+        let phases = vec![
+            Phase::Gas,
+            Phase::Liquid,
+            Phase::Gas,
+            Phase::Gas,
+            Phase::Gas,
+        ];
+        let sys = System::new(nu, 2, 5, phases, 1.0).unwrap();
+        let (n, absent) = amounts(&sys, &[1.0, 0.2, 1.0, 0.5, 0.1], &[0.2_f64.ln(), 0.3], 1.0);
+        assert_eq!(n[1], 0.0);
+        assert_eq!(absent[0], crate::presence::phase_bit(Phase::Liquid));
+        check(
+            &sys,
+            &[1.0, 0.2, 1.0, 0.5, 0.1],
+            &[0.2_f64.ln(), 0.3],
+            1.0,
+            1e-6,
+        );
+    }
+}

@@ -70,6 +70,33 @@ impl Default for SolveOptions {
     }
 }
 
+/// One case on its face: the inputs every solve path takes (assumed valid:
+/// the batch driver checks them).
+#[derive(Clone, Copy, Debug)]
+pub struct Case<'a> {
+    /// The zero-pattern face of the feed ([`crate::face`]).
+    pub face: &'a Face,
+    /// Feed amounts (S).
+    pub feed: &'a [f64],
+    /// ln K of the system's reactions (R).
+    pub ln_k: &'a [f64],
+    /// Pressure, bar.
+    pub pressure: f64,
+    /// Starting extents (R), used where they put every species that can be
+    /// present above zero.
+    pub start: Option<&'a [f64]>,
+}
+
+/// The sizes a solve works with: at run time on the general path, compile
+/// time constants in the specialised kernels (so that loops unroll).
+#[derive(Clone, Copy, Debug)]
+struct Sizes {
+    species: usize,
+    reactions: usize,
+    /// Dimension of the face (free reaction combinations).
+    dim: usize,
+}
+
 /// Fraction-to-boundary factor for species on the straight-line path: a
 /// step may remove at most this fraction of what is left.
 const TO_BOUNDARY: f64 = 0.99;
@@ -300,14 +327,9 @@ fn split_n<const N: usize, T>(data: &mut [T], len: usize) -> [&mut [T]; N] {
 /// predicted decrease). Otherwise the exact change `r . dxi + sum h - sum h`
 /// decides (Armijo). The logarithms of the trial point are those of the
 /// next iteration, so an accepted step costs one set of logarithms.
-#[allow(clippy::too_many_arguments)]
 pub fn solve_case(
     system: &System,
-    face: &Face,
-    feed: &[f64],
-    ln_k: &[f64],
-    pressure: f64,
-    start: Option<&[f64]>,
+    case: &Case,
     options: &SolveOptions,
     ws: &mut Workspace,
     amounts: &mut [f64],
@@ -315,9 +337,12 @@ pub fn solve_case(
 ) -> (Status, u32) {
     let (s, r) = (system.n_species(), system.n_reactions());
     let mut sc = ws.scratch();
-    let out = run(
-        system, face, feed, ln_k, pressure, start, options, &mut sc, s, r, face.dim, false,
-    );
+    let sizes = Sizes {
+        species: s,
+        reactions: r,
+        dim: case.face.dim,
+    };
+    let out = run(system, case, options, &mut sc, sizes, false);
     amounts.copy_from_slice(&sc.amounts[..s]);
     extents.copy_from_slice(&sc.extents[..r]);
     out
@@ -325,26 +350,11 @@ pub fn solve_case(
 
 /// A solve specialised to `R` reactions and `S` species on a full face
 /// (no unreachable species), with stack working memory: see [`kernel_for`].
-pub type FixedKernel = fn(
-    &System,
-    &Face,
-    &[f64],
-    &[f64],
-    f64,
-    Option<&[f64]>,
-    &SolveOptions,
-    &mut [f64],
-    &mut [f64],
-) -> (Status, u32);
+pub type FixedKernel = fn(&System, &Case, &SolveOptions, &mut [f64], &mut [f64]) -> (Status, u32);
 
-#[allow(clippy::too_many_arguments)]
 fn solve_fixed<const R: usize, const S: usize, const G: bool>(
     system: &System,
-    face: &Face,
-    feed: &[f64],
-    ln_k: &[f64],
-    pressure: f64,
-    start: Option<&[f64]>,
+    case: &Case,
     options: &SolveOptions,
     amounts_out: &mut [f64],
     extents_out: &mut [f64],
@@ -397,9 +407,12 @@ fn solve_fixed<const R: usize, const S: usize, const G: bool>(
         face_step,
         extents,
     };
-    let out = run(
-        system, face, feed, ln_k, pressure, start, options, &mut sc, S, R, R, G,
-    );
+    let sizes = Sizes {
+        species: S,
+        reactions: R,
+        dim: R,
+    };
+    let out = run(system, case, options, &mut sc, sizes, G);
     amounts_out.copy_from_slice(&sc.amounts[..S]);
     extents_out.copy_from_slice(&sc.extents[..R]);
     out
@@ -408,14 +421,9 @@ fn solve_fixed<const R: usize, const S: usize, const G: bool>(
 /// One valid case on its face: the specialised `kernel` where there is one
 /// and the face is full (no unreachable species), else the general path in
 /// `ws`; the same results either way.
-#[allow(clippy::too_many_arguments)]
 pub(crate) fn solve_on_face(
     system: &System,
-    face: &Face,
-    feed: &[f64],
-    ln_k: &[f64],
-    pressure: f64,
-    start: Option<&[f64]>,
+    case: &Case,
     options: &SolveOptions,
     kernel: Option<FixedKernel>,
     ws: &mut Workspace,
@@ -423,12 +431,10 @@ pub(crate) fn solve_on_face(
     extents: &mut [f64],
 ) -> (Status, u32) {
     match kernel {
-        Some(kernel) if face.dim == system.n_reactions() => kernel(
-            system, face, feed, ln_k, pressure, start, options, amounts, extents,
-        ),
-        _ => solve_case(
-            system, face, feed, ln_k, pressure, start, options, ws, amounts, extents,
-        ),
+        Some(kernel) if case.face.dim == system.n_reactions() => {
+            kernel(system, case, options, amounts, extents)
+        }
+        _ => solve_case(system, case, options, ws, amounts, extents),
     }
 }
 
@@ -616,21 +622,26 @@ fn basis_residuals(
 
 /// Interior start, then damped Newton iterations; see the module docs.
 #[inline(always)]
-#[allow(clippy::too_many_arguments)]
 fn run(
     system: &System,
-    face: &Face,
-    feed: &[f64],
-    ln_k: &[f64],
-    pressure: f64,
-    start: Option<&[f64]>,
+    case: &Case,
     options: &SolveOptions,
     sc: &mut Scratch,
-    s: usize,
-    r: usize,
-    dim: usize,
+    sizes: Sizes,
     gas_only: bool,
 ) -> (Status, u32) {
+    let Sizes {
+        species: s,
+        reactions: r,
+        dim,
+    } = sizes;
+    let Case {
+        face,
+        feed,
+        ln_k,
+        pressure,
+        start,
+    } = *case;
     let phases = &system.phases()[..s];
     // With `gas_only` a compile-time constant, every phase lookup folds away.
     let phase_of = |i: usize| if gas_only { 0 } else { phases[i].index() };
@@ -1083,21 +1094,17 @@ mod tests {
         let options = SolveOptions::default();
         let mut ws = Workspace::new(&sys);
         let (mut amounts, mut extents) = (vec![0.0; s], vec![0.0; r]);
-        let (st, it) = solve_case(
-            &sys,
-            &face,
+        let case = Case {
+            face: &face,
             feed,
             ln_k,
-            p,
-            None,
-            &options,
-            &mut ws,
-            &mut amounts,
-            &mut extents,
-        );
+            pressure: p,
+            start: None,
+        };
+        let (st, it) = solve_case(&sys, &case, &options, &mut ws, &mut amounts, &mut extents);
         if let Some(kernel) = kernel_for(r, s, true) {
             let (mut a2, mut e2) = (vec![0.0; s], vec![0.0; r]);
-            let (st2, it2) = kernel(&sys, &face, feed, ln_k, p, None, &options, &mut a2, &mut e2);
+            let (st2, it2) = kernel(&sys, &case, &options, &mut a2, &mut e2);
             assert_eq!((st, it), (st2, it2));
             let bits = |v: &[f64]| v.iter().map(|x| x.to_bits()).collect::<Vec<_>>();
             assert_eq!(bits(&amounts), bits(&a2));
