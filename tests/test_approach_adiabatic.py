@@ -181,3 +181,31 @@ def test_failed_adiabatic_case_says_so_on_the_solve_screen(tmp_path, capsys) -> 
     assert "no equilibrium outlet temperature found" in out
     assert "outlet T =" not in out
     assert "NOT AN EQUILIBRIUM" in out
+
+
+def test_a_reaction_already_within_its_approach_is_held_at_the_feed() -> None:
+    # A = B (exothermic, ln K = -5 + 2000/T) runs backwards at 500 K from
+    # A : B = 0.7 : 0.3 (K(500) = e^-1 < 0.3/0.7); at the approach temperature
+    # 450 K, K = e^-0.56 > 0.3/0.7, which it could only reach by running
+    # forwards, against the direction any reaction runs. It stays at the feed.
+    from eqbatch import LnKFunction
+
+    s = ReactionSystem(
+        ["A", "B", "L"],
+        ["A = B", "A = L"],
+        phases={"L": "liquid"},
+        lnK={"r1": LnKFunction(a=-5, b=2000), "r2": LnKFunction(a=-8, b=2500)},
+    )
+    eq = s.solve([0.7, 0.3, 0.0], T=500.0)
+    assert eq.extents[0, 0] < 0  # backwards at equilibrium
+    res = s.solve([0.7, 0.3, 0.0], T=500.0, approach={"r1": 50.0}, sensitivities=True)
+    assert res.converged[0]
+    assert res.extents[0, 0] == 0.0 and res.held[0, 0]
+    np.testing.assert_allclose(res.amounts[0], [0.7, 0.3, 0.0], rtol=1e-12)
+    assert "r1 held at zero extent" in res.message(0)
+    # Held under small changes: its ln K has no effect, and the derivatives are finite.
+    assert np.all(res.sensitivity("lnK")[0][:, 0] == 0.0)
+    assert np.all(np.isfinite(res.sensitivity("feed")))
+    # A smaller approach leaves it running backwards, short of equilibrium.
+    short = s.solve([0.7, 0.3, 0.0], T=500.0, approach={"r1": 5.0})
+    assert eq.extents[0, 0] < short.extents[0, 0] < 0 and not short.held[0, 0]

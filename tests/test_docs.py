@@ -10,7 +10,14 @@ from pathlib import Path
 import pytest
 
 README = Path(__file__).resolve().parents[1] / "README.md"
-MODULES = ["eqbatch", "eqbatch.system", "eqbatch.equations", "eqbatch.kdata", "eqbatch.compounds"]
+MODULES = [
+    "eqbatch",
+    "eqbatch.system",
+    "eqbatch.equations",
+    "eqbatch.kdata",
+    "eqbatch.compounds",
+    "eqbatch.hazards",
+]
 
 
 @pytest.mark.parametrize("name", MODULES)

@@ -204,3 +204,12 @@ def test_tolerance_within_the_range_is_accepted(tol) -> None:
     assert res.converged[0]
     # closed form n_B = K / (1 + K); the residual ln(n_B / n_A) - ln K is within tol
     assert abs(math.log(res.amounts[0, 1] / res.amounts[0, 0]) - 0.5) <= max(tol, 1e-15)
+
+
+@pytest.mark.parametrize("max_iter", [99_999_999_999, -1, 2.5, True])
+def test_max_iter_outside_what_the_core_counts_is_refused(max_iter) -> None:
+    # The core counts iterations in 32 bits: a larger budget is refused by name,
+    # not passed on as an overflow.
+    system = eqbatch.ReactionSystem(["A", "B"], ["A = B"])
+    with pytest.raises(eqbatch.CaseInputError, match="max_iter"):
+        system.solve([1.0, 0.0], lnK=[0.0], max_iter=max_iter)

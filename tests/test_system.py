@@ -202,5 +202,7 @@ def test_missing_system_file(tmp_path) -> None:
 def test_range_warning_for_extrapolated_correlation() -> None:
     fn = eqbatch.LnKFunction(a=1.0, b=-100.0, T_min=500.0, T_max=900.0)
     system = eqbatch.ReactionSystem(["A", "B"], ["A = B"], lnK={"r1": fn})
-    with pytest.warns(UserWarning, match="outside the fitted range 500-900 K"):
+    with pytest.warns(
+        eqbatch.ExtrapolationWarning, match="ln K of 'r1' extrapolated .*correlation valid 500-900 K"
+    ):
         system.solve([1.0, 0.0], T=1200.0)

@@ -299,7 +299,9 @@ def test_chemicals_source_records_provenance_and_warns_outside_range(tmp_path) -
     s = chem(["N2", "H2", "NH3"], "0.5 N2 + 1.5 H2 = NH3")
     source = s.species_data["NH3"].source
     assert "Poling, Prausnitz and O'Connell" in source and "50-1000 K" in source and "ATCT" in source
-    with pytest.warns(UserWarning, match="outside the data's range"):
+    with pytest.warns(
+        eqbatch.ExtrapolationWarning, match=r"species data of 'NH3' \(chemicals: ammonia.*50-1000 K"
+    ):
         s.lnK(1200.0)
     # user data override the source species by species
     own = CpPolynomial(a=(4.0,), dHf=-46.0, S298=192.0, source="my own NH3")

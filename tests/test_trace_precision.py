@@ -138,3 +138,23 @@ def test_converged_cases_meet_every_reaction(liquid: bool) -> None:
         for k in np.flatnonzero(res.status == Status.UNDERFLOW):
             assert res.amounts[k].min() <= 1.0000001e-305
     assert seen > 500
+
+
+@pytest.mark.parametrize(
+    ("species", "equations", "feed", "lnK"),
+    [
+        # Stoichiometric CO + 3 H2 in decimals: 0.1 and 0.3 are not exact in
+        # binary, and the difference of the nearest doubles (1e-17) is the whole
+        # trace of CO left at equilibrium.
+        (["CO", "H2", "CH4", "H2O"], ["CO + 3 H2 = CH4 + H2O"], [0.1, 0.3, 0.0, 0.0], [150.0]),
+        (["CO", "H2", "CH4", "H2O"], ["CO + 3 H2 = CH4 + H2O"], [0.7, 2.1, 0.0, 0.0], [150.0]),
+        (STEAM[0], STEAM[1], [0.1, 0.05, 0.0, 1e-30], STEAM_LNK),
+    ],
+)
+def test_decimal_stoichiometric_feeds_keep_their_traces(species, equations, feed, lnK) -> None:
+    system = eqbatch.ReactionSystem(species, equations)
+    res = system.solve(feed, lnK=lnK, P=1.0)
+    assert res.status[0] == Status.CONVERGED, res.message(0)
+    # The reference takes the same doubles as exact inputs (50+ digits).
+    reference = as_floats(equilibrium(system.stoich, feed, lnK, 1.0, guess=res.amounts[0]))
+    np.testing.assert_allclose(res.amounts[0], reference, rtol=1e-8, atol=0)

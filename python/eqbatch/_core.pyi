@@ -4,6 +4,10 @@ import numpy as np
 import numpy.typing as npt
 
 __version__: str
+#: The smallest amount the solver follows (mol, any amount unit).
+FLOAT_FLOOR: float
+#: (code, name, description) of every status, in code order.
+STATUS_TABLE: list[tuple[int, str, str]]
 
 class StoichiometryError(ValueError):
     """args: (kind, reaction, indices, coefficients); kind is one of

@@ -2,22 +2,68 @@
 
 ``eqbatch solve SYSTEM.toml --feed CH4=1,H2O=3 --T 900 --P 10`` prints the
 equilibrium of one case; ``eqbatch demo`` runs the built-in demonstration.
-Errors print one line on standard error and exit with status 2.
+Errors print one line on standard error and exit with status 2; a case that
+did not converge exits 1; a reader that closes the pipe early (``| head``)
+ends the command quietly with status 141 (128 + SIGPIPE, what a shell reports
+for tools stopped by a closed pipe). Warnings print one line each on
+standard error (``eqbatch: warning: ...``), extrapolation once per data set
+with the count over the whole command, and not at all under ``--quiet``.
 """
 
 from __future__ import annotations
 
 import argparse
+import contextlib
+import os
 import sys
-from collections.abc import Sequence
+import warnings
+from collections.abc import Iterator, Sequence
 
 import numpy as np
 
 from eqbatch.errors import EqbatchError
+from eqbatch.system import MAX_ITER
 
 
 class _UsageError(EqbatchError):
     pass
+
+
+#: Most temperatures `eqbatch thermo` tabulates.
+MAX_THERMO_ROWS = 10_000
+
+
+def _one_line(text: object) -> str:
+    return " ".join(str(text).split())
+
+
+def _show_warning(message, category, filename, lineno, file=None, line=None) -> None:
+    print(f"eqbatch: warning: {_one_line(message)}", file=sys.stderr)
+
+
+@contextlib.contextmanager
+def warnings_to_stderr(quiet: bool = False) -> Iterator[None]:
+    """Warnings of a command as one line each on standard error
+    (``eqbatch: warning: ...``), without Python's file and code lines.
+    Extrapolated data (:class:`~eqbatch.ExtrapolationWarning`) are added up
+    over everything the command solves and printed at its end, one line per
+    data set: ``ln K of 'reforming' extrapolated for 12 of 1,000 cases (T
+    1310-1400 K; correlation valid 600-1300 K)``. ``quiet`` prints none.
+    :func:`main` wraps every command in it, with ``quiet`` from the
+    command's ``--quiet`` option where it has one."""
+    from eqbatch.kdata import collect_extrapolation
+
+    with warnings.catch_warnings():
+        if quiet:
+            warnings.simplefilter("ignore")
+        warnings.showwarning = _show_warning
+        with collect_extrapolation() as log:
+            try:
+                yield
+            finally:
+                if not quiet:
+                    for warning in log.as_warnings():
+                        _show_warning(warning, type(warning), "", 0)
 
 
 def _pairs(values: Sequence[str] | None, what: str) -> dict[str, float]:
@@ -67,8 +113,13 @@ def _system_and_feed(args: argparse.Namespace):
 
 
 def _cmd_solve(args: argparse.Namespace) -> int:
-    from eqbatch.demo import CAUTION
+    from eqbatch.hazards import caution
 
+    if not 0 <= args.max_iter <= MAX_ITER:
+        raise _UsageError(
+            f"--max-iter must be an integer from 0 to {MAX_ITER} (Newton iterations per case), "
+            f"got {args.max_iter}"
+        )
     system, feed = _system_and_feed(args)
     k_opts = [
         (n, _pairs(v, "--" + n)) for n, v in (("lnK", args.lnK), ("K", args.K), ("log10K", args.log10K))
@@ -117,18 +168,21 @@ def _cmd_solve(args: argparse.Namespace) -> int:
     ]
     print(_table(["reaction", "equation", "ln K", "extent/mol"], rows))
     print()
-    conv = [
-        [name, f"{100 * float(res.conversion(name)[0]):.4g} %"]
-        for name in system.reactants()
+    # every fed species that reacts, on whichever side its reactions write it
+    conversions = [
+        (name, 100 * float(res.conversion(name)[0]))
+        for name in system.reacting_species()
         if feed_row[system.index(name)] > 0
     ]
-    if conv:
-        print(_table(["reactant", "conversion"], conv))
+    if conversions:
+        print(_table(["fed species", "conversion"], [[name, f"{c:.4g} %"] for name, c in conversions]))
+        if any(c < 0 for _, c in conversions):
+            print("(a negative conversion is net production: the equilibrium holds more than was fed)")
         print()
     if system.species_data:
         print("\n".join(_species_data_lines(system, short=True)))
         print()
-    print(CAUTION)
+    print(caution(system))
     return 0 if bool(res.converged[0]) else 1
 
 
@@ -136,10 +190,22 @@ def _cmd_uncertainty(args: argparse.Namespace) -> int:
     from pathlib import Path
 
     from eqbatch import plots
-    from eqbatch.demo import CAUTION
+    from eqbatch.hazards import caution
+    from eqbatch.plots import parse_output
     from eqbatch.uncertainty import monte_carlo
 
     system, feed = _system_and_feed(args)
+    limits = []
+    for text in args.limit or []:
+        op = next((op for op in (">=", "<=") if op in text), None)
+        name, _, number = text.partition(op or "=")
+        try:
+            value = float(number)
+        except ValueError:
+            op = None
+        if op is None:
+            raise _UsageError(f"--limit must look like conversion_CH4>=0.9, got {text!r}")
+        limits.append((name.strip(), op, value))
     sig = [
         (n, _pairs(v, "--" + n.replace("_", "-")))
         for n, v in (
@@ -166,41 +232,34 @@ def _cmd_uncertainty(args: argparse.Namespace) -> int:
         f"Monte Carlo on ln K for {args.system}: {mc.samples:,} samples (seed {args.seed}), "
         f"{100 * mc.converged.mean():.2f} % converged"
     )
+    outputs = args.output or [f"y_{system.species[int(np.argmax(mc.nominal.mole_fractions[0]))]}"]
+    for name in outputs + [name for name, _, _ in limits]:
+        mc._position(*parse_output(name))  # an unknown output is refused before anything is printed
     print(
         "ln K standard deviations: "
         + ", ".join(f"{label} {s:.3g}" for label, s in zip(system.labels, np.sqrt(np.diag(mc.covariance))))
     )
-    for of, title in (("mole_fractions", "Mole fractions"), ("conversion", "Conversion of reactants")):
+    for of, title in (("mole_fractions", "Mole fractions"), ("conversion", "Conversion of fed species")):
         summ = mc.summary(of)
         if summ.names:
             print(f"\n{title}")
             print(summ.table())
-    outputs = args.output or [f"y_{system.species[int(np.argmax(mc.nominal.mole_fractions[0]))]}"]
-    from eqbatch.plots import parse_output
-
     for name in outputs:
         of, what = parse_output(name)
         rows = mc.ranking(of, what)
         print(f"\nWhich reaction matters for {name} (share of variance: first order / sampled)")
         for label, first, sampled in rows:
             print(f"  {label:<16} {100 * first:6.1f} %  {100 * sampled:6.1f} %")
-    for text in args.limit or []:
-        for op in (">=", "<="):
-            if op in text:
-                name, value = text.split(op)
-                of, what = parse_output(name.strip())
-                kw = {"at_least" if op == ">=" else "at_most": float(value)}
-                p, se = mc.probability(of, what, **kw)
-                print(f"\nP({name.strip()} {op} {float(value):g}) = {p:.4f} +- {se:.4f}")
-                break
-        else:
-            raise _UsageError(f"--limit must look like conversion_CH4>=0.9, got {text!r}")
+    for name, op, value in limits:
+        of, what = parse_output(name)
+        p, se = mc.probability(of, what, **{"at_least" if op == ">=" else "at_most": value})
+        print(f"\nP({name} {op} {value:g}) = {p:.4f} +- {se:.4f}")
     folder = Path(args.plots)
     folder.mkdir(parents=True, exist_ok=True)
     hist = plots.histogram(mc, outputs, folder / "histogram.png")
     torn = plots.tornado(mc, outputs[0], folder / "tornado.png")
     print(f"\nwrote {hist} and {torn}\n")
-    print(CAUTION)
+    print(caution(system))
     return 0
 
 
@@ -298,14 +357,13 @@ def _species_data_lines(system, *, short: bool = False) -> list[str]:
 
 def _cmd_thermo(args: argparse.Namespace) -> int:
     from eqbatch.system import ReactionSystem
+    from eqbatch.thermo import R
 
+    lo, hi, count = _temperature_range(args.T)
     system = ReactionSystem.from_toml(args.system)
-    try:
-        lo, hi, count = (float(x) for x in args.T.split(":"))
-    except ValueError:
-        raise _UsageError(f"--T takes LOW:HIGH:COUNT in kelvin, got {args.T!r}") from None
-    T = np.linspace(lo, hi, int(count))
-    lnk, dH, dG = system.lnK(T), system.dH(T), system.dG(T)
+    T = np.linspace(lo, hi, count)
+    lnk, dH = system.lnK(T), system.dH(T)
+    dG = -R * T[:, None] * lnk  # as system.dG(T), without evaluating the data twice
     for j, (label, eq) in enumerate(zip(system.labels, system.equations)):
         print(f"{label}: {eq}")
         rows = [
@@ -325,9 +383,30 @@ def _cmd_thermo(args: argparse.Namespace) -> int:
     return 0
 
 
+def _temperature_range(text: str) -> tuple[float, float, int]:
+    """``--T LOW:HIGH:COUNT`` of `eqbatch thermo`, checked."""
+    usage = f"--T takes LOW:HIGH:COUNT (kelvin, kelvin, how many), got {text!r}"
+    parts = text.split(":")
+    if len(parts) != 3:
+        raise _UsageError(usage)
+    try:
+        lo, hi, count = (float(x) for x in parts)
+    except ValueError:
+        raise _UsageError(usage) from None
+    if not (0 < lo < np.inf and 0 < hi < np.inf):
+        raise _UsageError(f"--T {text!r}: LOW and HIGH must be positive, finite temperatures in kelvin")
+    if not (count.is_integer() and 1 <= count <= MAX_THERMO_ROWS):
+        raise _UsageError(f"--T {text!r}: COUNT must be an integer from 1 to {MAX_THERMO_ROWS:,}")
+    return lo, hi, int(count)
+
+
 def _cmd_demo(args: argparse.Namespace) -> int:
     from eqbatch.demo import run
 
+    if args.cases < 1:
+        raise _UsageError(
+            f"--cases must be a positive integer (the size of the timed batch), got {args.cases}"
+        )
     return run(cases=args.cases, threads=args.threads, save_system=args.save_system, out=args.out)
 
 
@@ -457,13 +536,37 @@ def _parser() -> argparse.ArgumentParser:
     return parser
 
 
+def _stdout_to_devnull() -> None:
+    """After a closed pipe: send what is still buffered for standard output
+    (flushed at exit) nowhere, so Python prints no second error."""
+    try:
+        devnull = os.open(os.devnull, os.O_WRONLY)
+        os.dup2(devnull, sys.stdout.fileno())
+        os.close(devnull)
+    except (OSError, ValueError, AttributeError):  # no file descriptor (captured output)
+        pass
+
+
 def main(argv: Sequence[str] | None = None) -> int:
+    """Run one command; the exit status: 0 done, 1 a case did not converge,
+    2 an error (one line on standard error), 130 interrupted, 141 the reader
+    closed the pipe."""
     parser = _parser()
     args = parser.parse_args(argv)
     try:
-        return int(args.run(args))
-    except (EqbatchError, OSError) as err:
-        print(f"eqbatch: error: {err}", file=sys.stderr)
+        with warnings_to_stderr(quiet=bool(getattr(args, "quiet", False))):
+            code = int(args.run(args))
+            sys.stdout.flush()  # a closed pipe shows here, not at exit
+        return code
+    except BrokenPipeError:
+        _stdout_to_devnull()
+        return 141
+    except (EqbatchError, OSError, ValueError) as err:
+        # ValueError: a bad value that a check above the engine did not catch
+        print(f"eqbatch: error: {_one_line(err)}", file=sys.stderr)
+        return 2
+    except MemoryError as err:
+        print(f"eqbatch: error: not enough memory: {_one_line(err) or 'allocation failed'}", file=sys.stderr)
         return 2
     except KeyboardInterrupt:
         print("eqbatch: interrupted", file=sys.stderr)

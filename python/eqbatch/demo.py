@@ -15,12 +15,11 @@ from pathlib import Path
 
 import numpy as np
 
+from eqbatch.hazards import caution
 from eqbatch.system import ReactionSystem
 
-CAUTION = (
-    "Equilibrium is a thermodynamic limit, not a reactor design. Hydrogen, methane and carbon\n"
-    "monoxide are flammable and toxic at pressure: defer to local codes and licensed engineers."
-)
+#: The general caution (no species named); commands print ``caution(system)``.
+CAUTION = caution()
 
 
 def system_file_text() -> str:
@@ -49,6 +48,10 @@ def run(
     save_system: str | None = None,
     out: str | None = "eqbatch-demo",
 ) -> int:
+    if isinstance(cases, bool) or not (isinstance(cases, (int, np.integer)) and cases >= 1):
+        from eqbatch.errors import CaseInputError
+
+        raise CaseInputError(f"cases (the size of the timed batch) must be a positive integer, got {cases!r}")
     system = reformer_system()
     if save_system:
         Path(save_system).write_text(system_file_text())
@@ -98,7 +101,7 @@ def run(
     swept_ok = True
     if out:
         swept_ok = _sweep_and_plot(system, Path(out), threads)
-    print(CAUTION)
+    print(caution(system))
     return 0 if bool(res.converged.all() and big.converged.all()) and swept_ok else 1
 
 

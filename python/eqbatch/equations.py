@@ -57,13 +57,44 @@ def parse_formula(text: str) -> dict[str, int] | None:
     return counts
 
 
+#: Stoichiometric coefficients accepted, by magnitude. Beyond them float64
+#: cannot hold a reaction's amounts and ln Q together (1e300 A = B, or 1e-7 A
+#: = B, whose extent would reach 1e7 per mol of A): scale the equation.
+COEFFICIENT_RANGE = (1e-6, 1e6)
+
+
 def _parse_coefficient(text: str) -> Fraction:
+    """The coefficient as written, exactly (``2.0000004`` is not ``2``)."""
     if "/" in text:
         num, den = text.split("/")
         if int(den) == 0:
             raise ZeroDivisionError
         return Fraction(int(num), int(den))
-    return Fraction(text).limit_denominator(10**6)
+    value, (lo, hi) = float(text), COEFFICIENT_RANGE
+    # Out of range: a stand-in that the caller refuses, naming the text as
+    # written (the exact value of "1e999999999" would take gigabytes).
+    if value > hi:
+        return Fraction(2 * int(hi))
+    if value < lo:
+        positive = any(digit in "123456789" for digit in text.lower().partition("e")[0])
+        return Fraction(lo) / 2 if positive else Fraction(0)
+    return Fraction(text)
+
+
+def _check_coefficient(coef: Fraction, written: str, name: str, label: str, net: bool = False) -> None:
+    lo, hi = COEFFICIENT_RANGE
+    if coef <= 0 and not net:
+        raise EquationSyntaxError(f"reaction {label!r}: coefficient of {name!r} must be positive")
+    if not lo <= abs(coef) <= hi:
+        kind, hint = (
+            ("net coefficient", f"{name!r} is on both sides and nearly cancels")
+            if net
+            else ("coefficient", "scale the equation (divide or multiply every coefficient alike)")
+        )
+        raise EquationSyntaxError(
+            f"reaction {label!r}: {kind} {written} of {name!r} is outside the accepted magnitudes "
+            f"{lo:g} to {hi:g}; {hint}"
+        )
 
 
 def _split_terms(side: str, known: set[str]) -> list[str]:
@@ -115,7 +146,7 @@ def parse_equation(equation: str, species: Sequence[str], label: str) -> dict[st
     for sign, side in ((-1, sides[0]), (1, sides[1])):
         for term in _split_terms(side, known):
             if term in known:
-                coef, name = Fraction(1), term
+                coef, name, written = Fraction(1), term, "1"
             else:
                 match = _COEF.match(term)
                 if not match:
@@ -129,15 +160,17 @@ def parse_equation(equation: str, species: Sequence[str], label: str) -> dict[st
                     raise EquationSyntaxError(
                         f"reaction {label!r}: bad coefficient {match.group(1)!r} in {term!r}"
                     ) from None
-                name = match.group(2).strip()
+                name, written = match.group(2).strip(), match.group(1)
                 if name not in known:
                     raise UnknownSpeciesError(
                         f"reaction {label!r}: {name!r} is not a species of this system "
                         f"(species are {', '.join(species)})"
                     )
-            if coef <= 0:
-                raise EquationSyntaxError(f"reaction {label!r}: coefficient of {name!r} must be positive")
+            _check_coefficient(coef, written, name, label)
             net[name] = net.get(name, Fraction(0)) + sign * coef
+    for name, c in net.items():
+        if c != 0:
+            _check_coefficient(c, f"{float(c):g}", name, label, net=True)
     result = {name: float(c) for name, c in net.items() if c != 0}
     if not result:
         raise EquationSyntaxError(f"reaction {label!r}: {equation!r} changes nothing")

@@ -13,13 +13,138 @@ constants). Many published correlations take this form with only ``a`` and
 
 from __future__ import annotations
 
+import contextlib
 import math
+import os
+import sys
+import threading
 import warnings
+from collections.abc import Iterator
 from dataclasses import dataclass
 
 import numpy as np
 
+from eqbatch.errors import ExtrapolationWarning
+
 LN10 = math.log(10.0)
+
+_PACKAGE = os.path.dirname(os.path.abspath(__file__)) + os.sep
+
+
+class _Quiet(threading.local):
+    depth = 0
+
+
+_quiet = _Quiet()
+_collectors: list[ExtrapolationLog] = []
+
+
+@contextlib.contextmanager
+def quiet_ranges() -> Iterator[None]:
+    """Evaluate data without reporting extrapolation (in this thread): the
+    system reports it once per call, per reaction or species data set,
+    after evaluating every reaction."""
+    _quiet.depth += 1
+    try:
+        yield
+    finally:
+        _quiet.depth -= 1
+
+
+class ExtrapolationLog:
+    """Extrapolation reported while collecting (see :func:`collect_extrapolation`),
+    per data set and call: cases outside the range, cases evaluated, and the
+    extremes of the temperatures outside."""
+
+    def __init__(self) -> None:
+        self._calls: dict[tuple, list[tuple[int, int, float, float]]] = {}
+
+    def add(self, key: tuple, call: tuple[int, int, float, float], revises: bool = False) -> None:
+        """Record one call; ``revises``: it re-evaluates the cases of the data
+        set's previous call (an approach solve takes each reaction's K again at
+        its approach temperature), which it replaces rather than adds to."""
+        calls = self._calls.setdefault(key, [])
+        if revises and calls:
+            calls[-1] = call
+        else:
+            calls.append(call)
+
+    def as_warnings(self) -> list[ExtrapolationWarning]:
+        """One warning per data set that was extrapolated, in the order first
+        seen, with the counts added up over its calls."""
+        out = []
+        for (subject, valid, what, unit, tail), calls in self._calls.items():
+            count = sum(c[0] for c in calls)
+            if count:
+                cases = sum(c[1] for c in calls)
+                low, high = min(c[2] for c in calls), max(c[3] for c in calls)
+                out.append(ExtrapolationWarning(subject, count, cases, low, high, valid, what, unit, tail))
+        return out
+
+
+@contextlib.contextmanager
+def collect_extrapolation() -> Iterator[ExtrapolationLog]:
+    """Collect extrapolation instead of warning each time, so that a run of
+    many solves (a sweep) can say once per data set how many of all its cases
+    were outside the range. Where the warning filters in force ignore
+    :class:`ExtrapolationWarning` (``simplefilter("ignore")``), nothing is
+    collected either."""
+    log = ExtrapolationLog()
+    _collectors.append(log)
+    try:
+        yield log
+    finally:
+        _collectors.remove(log)
+
+
+def _ignored() -> bool:
+    """Whether the first warning filter on the category alone ignores ExtrapolationWarning."""
+    for action, message, category, module, lineno in warnings.filters:
+        if message is None and module is None and not lineno and issubclass(ExtrapolationWarning, category):
+            return action == "ignore"
+    return False
+
+
+def report_extrapolation(
+    subject: str,
+    T: np.ndarray,
+    lo: float,
+    hi: float,
+    *,
+    what: str = "data",
+    unit: str = "case",
+    tail: str = "",
+    revises: bool = False,
+) -> None:
+    """Warn (:class:`ExtrapolationWarning`) if some of the temperatures ``T``
+    (K; shape (N,), or (N, k) where a case is outside if any of its k is) lie
+    outside ``lo``-``hi``; NaN is not a temperature and is not counted. The
+    warning points at the first caller outside eqbatch. While collecting,
+    every call is logged instead (``revises``: see :meth:`ExtrapolationLog.add`)."""
+    if _quiet.depth:
+        return
+    T = np.asarray(T, dtype=np.float64)
+    with np.errstate(invalid="ignore"):
+        outside_values = (T < lo) | (T > hi)
+    outside = outside_values if T.ndim < 2 else outside_values.any(axis=1)
+    count = int(np.count_nonzero(outside))
+    cases = int(T.shape[0]) if T.ndim else 1
+    if not count and not _collectors:
+        return
+    low, high = (
+        (float(T[outside_values].min()), float(T[outside_values].max())) if count else (math.inf, -math.inf)
+    )
+    if _collectors:
+        if not _ignored():
+            for log in _collectors:
+                log.add((subject, (lo, hi), what, unit, tail), (count, cases, low, high), revises)
+        return
+    level, frame = 2, sys._getframe(1)
+    while frame is not None and frame.f_code.co_filename.startswith(_PACKAGE):
+        frame, level = frame.f_back, level + 1
+    warnings.warn(
+        ExtrapolationWarning(subject, count, cases, low, high, (lo, hi), what, unit, tail), stacklevel=level
+    )
 
 
 @dataclass(frozen=True)
@@ -27,7 +152,8 @@ class LnKFunction:
     """``ln K(T) = a + b/T + c ln T + d T + e T**2`` (T in kelvin).
 
     ``T_min`` and ``T_max`` (optional) are the range the correlation was
-    fitted over; evaluating outside it warns once per function.
+    fitted over; evaluating outside it warns (:class:`~eqbatch.ExtrapolationWarning`,
+    through a system naming the reaction and counting the cases).
 
     Examples
     --------
@@ -63,18 +189,43 @@ class LnKFunction:
         with np.errstate(divide="ignore", invalid="ignore"):
             return -self.b / (T * T) + self.c / T + self.d + 2.0 * self.e * T
 
-    def _check_range(self, T: np.ndarray) -> None:
+    def __post_init__(self) -> None:
+        from eqbatch.errors import SystemDefinitionError
+
+        for name in ("T_min", "T_max"):
+            value = getattr(self, name)
+            if value is None:
+                continue
+            try:
+                ok = not isinstance(value, bool) and 0.0 <= float(value) < math.inf
+            except (TypeError, ValueError):
+                ok = False
+            if not ok:
+                raise SystemDefinitionError(
+                    f"ln K(T) correlation: {name} = {value!r} must be a temperature in K "
+                    "(finite, not negative)"
+                )
+        if self.T_min is not None and self.T_max is not None and not self.T_min < self.T_max:
+            raise SystemDefinitionError(
+                f"ln K(T) correlation: T_min = {self.T_min:g} K must be below T_max = {self.T_max:g} K "
+                "(the range the correlation was fitted over)"
+            )
+
+    @property
+    def valid_range(self) -> tuple[float, float] | None:
+        """``(T_min, T_max)`` in K with an open end as infinity, or None without a range."""
         if self.T_min is None and self.T_max is None:
-            return
-        lo = -np.inf if self.T_min is None else self.T_min
-        hi = np.inf if self.T_max is None else self.T_max
-        finite = T[np.isfinite(T)]
-        if finite.size and (finite.min() < lo or finite.max() > hi) and not _warned.get(id(self)):
-            _warned[id(self)] = True
-            warnings.warn(
-                f"temperature outside the fitted range {lo:g}-{hi:g} K of ln K(T) = "
-                f"{self.describe()}; the values are extrapolated",
-                stacklevel=3,
+            return None
+        return (
+            -math.inf if self.T_min is None else self.T_min,
+            math.inf if self.T_max is None else self.T_max,
+        )
+
+    def _check_range(self, T: np.ndarray) -> None:
+        bounds = self.valid_range
+        if bounds is not None:
+            report_extrapolation(
+                f"ln K(T) = {self.describe()}", T, *bounds, what="correlation", unit="temperature"
             )
 
     def scaled(self, factor: float) -> LnKFunction:
@@ -95,9 +246,6 @@ class LnKFunction:
             if coef:
                 parts.append(f"{coef:+g}{term}")
         return " ".join(parts)
-
-
-_warned: dict[int, bool] = {}
 
 
 def as_lnk_data(value: object, label: str, kind: str = "lnK") -> float | LnKFunction:
@@ -121,13 +269,19 @@ def as_lnk_data(value: object, label: str, kind: str = "lnK") -> float | LnKFunc
                 "valid are a, b, c, d, e (ln K = a + b/T + c ln T + d T + e T^2), T_min, T_max"
             )
         try:
+            if any(isinstance(v, bool) for v in value.values()):
+                raise TypeError
             fn = LnKFunction(**{k: float(v) for k, v in value.items()})
+        except SystemDefinitionError as err:
+            raise SystemDefinitionError(f"reaction {label!r}: {kind}: {err}") from None
         except (TypeError, ValueError):
             raise SystemDefinitionError(
                 f"reaction {label!r}: {kind} coefficients must be numbers, got {value!r}"
             ) from None
         return fn.scaled(factor)
     try:
+        if isinstance(value, bool):
+            raise TypeError  # TOML's true is not 1.0
         number = float(value)  # type: ignore[arg-type]
     except (TypeError, ValueError):
         raise SystemDefinitionError(

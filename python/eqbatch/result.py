@@ -7,6 +7,8 @@ from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
+from eqbatch import _core
+
 if TYPE_CHECKING:
     from eqbatch.system import ReactionSystem
 
@@ -23,7 +25,8 @@ class Status(IntEnum):
     #: (feasible, conserving) iterate.
     ITERATION_LIMIT = 1
     #: Negative or non-finite feed, zero total feed, non-finite ln K, or a
-    #: non-positive or non-finite pressure; every output of the case is NaN.
+    #: non-positive or non-finite pressure or temperature; every output of
+    #: the case is NaN.
     INVALID_INPUT = 2
     #: No equilibrium exists for the feed (the extents are unbounded).
     INFEASIBLE = 3
@@ -44,21 +47,18 @@ class Status(IntEnum):
         return _DESCRIPTIONS[self]
 
 
-_DESCRIPTIONS = {
-    Status.CONVERGED: "converged",
-    Status.ITERATION_LIMIT: "iteration limit reached before convergence",
-    Status.INVALID_INPUT: "invalid input (negative/NaN feed, zero total, bad ln K or pressure)",
-    Status.INFEASIBLE: "infeasible: the extents are unbounded for this feed",
-    Status.STALLED: "stalled: no further decrease of the Gibbs function",
-    Status.OUT_OF_RANGE: "no adiabatic outlet temperature within the data's temperature range",
-    Status.UNDERFLOW: "converged, with species below float64's range held at about 1e-305 mol (upper bounds)",
-}
+# Names and descriptions come from the core's one status table; the members
+# above spell the same codes out for readers and type checkers.
+_DESCRIPTIONS = {Status(code): text for code, _, text in _core.STATUS_TABLE}
+if [(int(m), m.name) for m in Status] != [(code, name) for code, name, _ in _core.STATUS_TABLE]:
+    raise ImportError("eqbatch.Status does not match the compiled core's status table: rebuild the extension")
 
 #: Phase names by bit of the core's mask of absent phases.
 PHASE_BITS = ("gas", "liquid")
 
-#: Amounts at or below this are held at the core's float floor (1e-305).
-FLOAT_FLOOR = 1.0000001e-305
+#: Amounts at or below this are held at (or fell below) the core's float
+#: floor, the smallest amount it follows.
+FLOAT_FLOOR = _core.FLOAT_FLOOR * (1 + 1e-9)
 
 #: Codes whose amounts are an equilibrium (``result.converged``).
 CONVERGED_CODES = (Status.CONVERGED, Status.UNDERFLOW)
@@ -105,6 +105,7 @@ class EquilibriumResult:
         "_energy",
         "T_iterations",
         "absent",
+        "held",
     )
 
     def __init__(
@@ -140,6 +141,9 @@ class EquilibriumResult:
         #: (N,) uint8 mask of the phases found absent (and stable) at
         #: equilibrium: bit 0 the gas, bit 1 the liquid (see ``absent_phases``).
         self.absent: np.ndarray | None = None
+        #: (N, R) bool, with ``approach=``: reactions held at zero extent
+        #: because the feed is already within their approach of equilibrium.
+        self.held: np.ndarray | None = None
 
     @property
     def mole_fractions(self) -> np.ndarray:
@@ -185,7 +189,7 @@ class EquilibriumResult:
     def converged(self) -> np.ndarray:
         """``(N,)`` bool: the case reached equilibrium (``Status.CONVERGED``,
         or ``Status.UNDERFLOW`` where some species lie below float64's range)."""
-        return (self.status == Status.CONVERGED) | (self.status == Status.UNDERFLOW)
+        return np.isin(self.status, CONVERGED_CODES)
 
     def message(self, case: int = 0) -> str:
         """A sentence on what happened to one case: its status, the iterations
@@ -217,6 +221,12 @@ class EquilibriumResult:
         ]
         for phase in absent:
             text += f"; the {phase} phase is absent (it would not form: it is stable empty)"
+        if self.held is not None and self.held[case].any():
+            labels = [lab for lab, h in zip(self.system.labels, self.held[case]) if h]
+            text += (
+                f"; {', '.join(labels)} held at zero extent (the feed is already within "
+                "the approach to equilibrium)"
+            )
         if zero:
             text += f"; {', '.join(zero)} cannot be formed from this feed (amount exactly 0)"
         if st == Status.UNDERFLOW:

@@ -20,7 +20,7 @@ from eqbatch.errors import (
     UnboundedReactionsError,
     UnknownSpeciesError,
 )
-from eqbatch.kdata import LN10, LnKFunction, as_lnk_data
+from eqbatch.kdata import LN10, LnKFunction, as_lnk_data, quiet_ranges, report_extrapolation
 from eqbatch.result import EquilibriumResult, Status
 
 #: Phase names accepted in ``phases=`` and system files, with their core codes.
@@ -49,6 +49,9 @@ def _rebuild_system(spec: dict) -> ReactionSystem:
 #: its K off by more than 0.1 %; below 1e-15 the residual is under the rounding
 #: of ln K itself (about |ln K| x 2.2e-16), which no float64 iterate can meet.
 TOL_RANGE = (1e-15, 1e-3)
+
+#: Largest ``max_iter`` (the core counts iterations in 32 bits).
+MAX_ITER = 2**32 - 1
 
 
 def _float_column(column: Any) -> np.ndarray:
@@ -242,7 +245,11 @@ class ReactionSystem:
                 )
         self.labels, self.equations = self._read_reactions(reactions)
         self.phases: tuple[str, ...] = self._read_phases(phases)
+        if not isinstance(check_balance, (bool, np.bool_)):
+            raise SystemDefinitionError(f"check_balance must be True or False, got {check_balance!r}")
         try:
+            if isinstance(P0, (bool, np.bool_)):
+                raise TypeError  # True is not a pressure, though float(True) is 1.0
             self.P0 = float(P0)
         except (TypeError, ValueError):
             raise SystemDefinitionError(f"P0 must be a pressure in bar, got {P0!r}") from None
@@ -298,12 +305,18 @@ class ReactionSystem:
         self._constant_lnk = self._constant_row()
         self._p0_row = np.array([self.P0])
         self._two_phase = len(set(self.phases)) > 1
+        self._range_checks = self._ranges()
 
     # ----------------------------------------------------------------- set-up
 
     def _read_reactions(self, reactions: Any) -> tuple[tuple[str, ...], tuple[str, ...]]:
         if isinstance(reactions, str):
             reactions = [reactions]
+        if not isinstance(reactions, Iterable):
+            raise SystemDefinitionError(
+                "reactions must be a list of equations, a mapping label -> equation, a list of "
+                f"(label, equation) or 'auto'; got {reactions!r}"
+            )
         if isinstance(reactions, Mapping):
             pairs = [(str(k), v) for k, v in reactions.items()]
         else:
@@ -423,7 +436,50 @@ class ReactionSystem:
                 raise SystemDefinitionError(
                     f"species_data[{name!r}] must be NASA7, Shomate or CpPolynomial data"
                 )
+            spans = [out[name].range]
+            if isinstance(out[name], Shomate):
+                spans += [(r[0], r[1]) for r in out[name].ranges]
+            elif isinstance(out[name], NASA7):
+                spans += [(out[name].T_min, out[name].T_mid), (out[name].T_mid, out[name].T_max)]
+            for lo, hi in spans:
+                if not (0.0 <= lo < hi < math.inf):
+                    raise SystemDefinitionError(
+                        f"species_data.{name}: temperature range {lo:g}-{hi:g} K is empty or inverted "
+                        "(each T_min must be below its T_max, and a NASA7 T_mid between them)"
+                    )
         return out
+
+    def _ranges(self) -> list[tuple[str, float, float, str, str, list[int]]]:
+        """What :meth:`lnK` checks for extrapolation: per ln K(T) correlation
+        with a fitted range and per species data set used by some reaction,
+        ``(subject, T_min, T_max, what, tail, reaction indices)``."""
+        from eqbatch.thermo import ThermoLnK
+
+        checks = []
+        from_data: dict[str, list[int]] = {}
+        for j, label in enumerate(self.labels):
+            data = self.lnK_data.get(label)
+            if isinstance(data, LnKFunction) and data.valid_range is not None:
+                checks.append((f"ln K of {label!r}", *data.valid_range, "correlation", "", [j]))
+            elif isinstance(data, ThermoLnK):
+                for k in np.flatnonzero(self.stoich[j]):
+                    from_data.setdefault(self.species[k], []).append(j)
+        for name in self.species:
+            if name in from_data:
+                data, used = self.species_data[name], from_data[name]
+                subject = f"species data of {name!r} ({data.source.split(';')[0]})"
+                tail = ", in ln K of " + ", ".join(repr(self.labels[j]) for j in used)
+                checks.append((subject, *map(float, data.range), "data", tail, used))
+        return checks
+
+    def _report_ranges(self, T: np.ndarray, by_reaction: bool = False) -> None:
+        """Warn once per data set evaluated outside its range at ``T`` (K):
+        ``(N,)`` for every reaction, or with ``by_reaction`` ``(N, R)`` (column
+        ``j`` is reaction ``j``'s temperature: an approach solve's second
+        evaluation of the same cases, which a collecting CLI counts once)."""
+        for subject, lo, hi, what, tail, used in self._range_checks:
+            T_used = T[:, used] if by_reaction else T
+            report_extrapolation(subject, T_used, lo, hi, what=what, tail=tail, revises=by_reaction)
 
     def dG(self, T: ArrayLike) -> np.ndarray:
         """``(N, R)`` standard reaction Gibbs energy, J/mol, at ``T`` (K)."""
@@ -485,6 +541,14 @@ class ReactionSystem:
         """Species consumed by at least one reaction as written."""
         return [s for k, s in enumerate(self.species) if np.any(self.stoich[:, k] < 0)]
 
+    def reacting_species(self) -> list[str]:
+        """Species in at least one reaction, on either side: those whose
+        conversion means something (an inert keeps its feed). A generated
+        reaction may write a fed species as a product (methane in
+        ``CO + 3 H2 = CH4 + H2O``); its conversion is still defined, and
+        negative where the equilibrium makes more of it than was fed."""
+        return [s for k, s in enumerate(self.species) if self._reactive[k]]
+
     @property
     def needs_T(self) -> bool:
         """Whether some reaction's K is a function of temperature."""
@@ -512,9 +576,10 @@ class ReactionSystem:
         if bad is not None:
             T = np.where(bad, np.nan, T)  # no extrapolation warning for a temperature that is not one
         out = np.empty((T.shape[0], self.n_reactions))
-        for j, label in enumerate(self.labels):
-            data = self.lnK_data[label]
-            out[:, j] = data(T) if callable(data) else data
+        with quiet_ranges():  # reported below, once per data set with the count of cases
+            for j in range(self.n_reactions):
+                out[:, j] = self._lnk_column(j, T)
+        self._report_ranges(T)
         if bad is not None:
             out[bad] = np.nan
         return out
@@ -525,18 +590,34 @@ class ReactionSystem:
         (an approach temperature, say)."""
         T = np.asarray(T, dtype=np.float64)
         out = np.empty(T.shape)
-        for j in range(self.n_reactions):
-            out[:, j] = self.lnK(T[:, j])[:, j]
+        with quiet_ranges(), np.errstate(invalid="ignore"):
+            for j in range(self.n_reactions):
+                column = T[:, j]
+                out[:, j] = self._lnk_column(
+                    j, np.where((column > 0.0) & (column < math.inf), column, np.nan)
+                )
+        with np.errstate(invalid="ignore"):
+            self._report_ranges(np.where((T > 0.0) & (T < math.inf), T, np.nan), by_reaction=True)
         return out
 
     def dlnK_dT_at(self, T: ArrayLike) -> np.ndarray:
         """``(N, R)`` d ln K / dT of each reaction at its own temperature
         (column ``j`` of ``T``, as in :meth:`lnK_at`)."""
         T = np.asarray(T, dtype=np.float64)
-        out = np.empty(T.shape)
-        for j in range(self.n_reactions):
-            out[:, j] = self.dlnK_dT(T[:, j])[:, j]
+        out = np.zeros(T.shape)
+        with quiet_ranges():
+            for j, label in enumerate(self.labels):
+                data = self.lnK_data.get(label)
+                if data is None:
+                    raise CaseInputError(f"reaction {label!r} has no K data: d ln K / dT is unknown")
+                if callable(data):
+                    out[:, j] = data.derivative(T[:, j])
         return out
+
+    def _lnk_column(self, j: int, T: np.ndarray) -> np.ndarray:
+        """ln K of reaction ``j`` at temperatures ``T`` (1-D), from its K data."""
+        data = self.lnK_data[self.labels[j]]
+        return data(T) if callable(data) else np.full(T.shape, float(data))
 
     def __reduce__(self):
         return (_rebuild_system, (self._spec,))
@@ -557,6 +638,8 @@ class ReactionSystem:
         labelled = _labelled(feed)
         if labelled is not None:
             return self._align(*labelled, "feed", self.species)
+        if np.iscomplexobj(feed):
+            raise CaseInputError("feed has complex values; amounts must be real numbers (mol)")
         arr = np.asarray(feed, dtype=np.float64)
         if arr.ndim == 1:
             arr = arr.reshape(1, -1)
@@ -599,6 +682,8 @@ class ReactionSystem:
             raise CaseInputError(f"{name}: no value for reaction(s) {', '.join(missing)}")
         values = []
         for label, column in zip(labels, columns):
+            if np.iscomplexobj(column):
+                raise CaseInputError(f"{name}[{label!r}] is complex; give real numbers: {column!r}")
             try:
                 col = np.asarray(column, dtype=np.float64)
             except (TypeError, ValueError):
@@ -717,7 +802,9 @@ class ReactionSystem:
             the same reactions rewritten per case in terms of the most
             abundant species, which keeps trace species precise.
         max_iter : int, default 200
-            Newton iterations per case.
+            Newton iterations per case and attempt (a multi-phase case retried
+            with a phase absent gets a second budget; ``result.iterations``
+            counts both).
         threads : int, optional
             Worker threads (default: all cores). Results do not depend on it.
         invalid : {"mark", "raise"}, default "mark"
@@ -738,8 +825,10 @@ class ReactionSystem:
             the direction it runs for that case (the sign of its extent at
             equilibrium, found by a first solve), whichever way it is
             written: at ``K(T - dT)`` if it runs endothermic (reforming) and
-            ``K(T + dT)`` if it runs exothermic (the shift). The temperature
-            of each reaction is kept for ``sensitivity("T")``.
+            ``K(T + dT)`` if it runs exothermic (the shift). A reaction whose
+            feed is already within its approach of equilibrium is held at
+            zero extent (``result.held``). The temperature of each reaction
+            is kept for ``sensitivity("T")``.
         chain : bool, default False
             Start each case from the solution of the case before it (within
             fixed chunks of 64 cases, so results still do not depend on the
@@ -774,6 +863,11 @@ class ReactionSystem:
             if T is None or lnK is not None or K is not None or log10K is not None or approach:
                 raise CaseInputError(
                     "adiabatic=True takes the inlet temperature T= and species data, nothing else"
+                )
+            if chain:
+                raise CaseInputError(
+                    "chain=True does not apply to adiabatic=True (each case's temperature "
+                    "iterations already start from its own previous solution)"
                 )
             from eqbatch.adiabatic import adiabatic_solve
 
@@ -815,33 +909,51 @@ class ReactionSystem:
         tol = _checked_tol(tol)
         if invalid not in ("mark", "raise"):
             raise CaseInputError(f"invalid must be 'mark' or 'raise', got {invalid!r}")
-        if max_iter != 200 and not (isinstance(max_iter, (int, np.integer)) and max_iter >= 0):
-            raise CaseInputError(f"max_iter must be a non-negative integer, got {max_iter!r}")
+        if max_iter != 200 and not (
+            isinstance(max_iter, (int, np.integer))
+            and not isinstance(max_iter, bool)
+            and 0 <= max_iter <= MAX_ITER
+        ):
+            raise CaseInputError(f"max_iter must be an integer from 0 to {MAX_ITER:,}, got {max_iter!r}")
         if threads is not None and not (isinstance(threads, (int, np.integer)) and threads >= 1):
             raise CaseInputError(f"threads must be a positive integer, got {threads!r}")
         start = None if x0 is None else self._rows(x0, "x0", self.n_reactions)
         if start is not None and start.shape[0] not in (1, n):
             raise CaseInputError(f"x0 has {start.shape[0]} cases but other inputs have {n}; give 1 or {n}")
-        T_eff = None
+        held = T_eff = None
         if approach:
-            # The direction each reaction runs in, case by case, is that of its
-            # extent at equilibrium; the approach holds it short of that.
-            from eqbatch.thermo import approach_temperatures
+            from eqbatch import approach as approach_module
 
-            eq_extents = self._core.solve(feed_arr, lnk_arr, p_arr, n, tol, max_iter, threads, start, chain)[1]
-            T_eff = approach_temperatures(self, T_arr, approach, np.sign(eq_extents))
-            lnk_arr = self.lnK_at(T_eff)
-            if bad_T is not None:
-                lnk_arr[np.broadcast_to(bad_T, (lnk_arr.shape[0],))] = np.nan
-            start = np.where(np.isfinite(eq_extents), eq_extents, 0.0)
-        amounts, extents, status, iterations, absent = self._core.solve(
-            feed_arr, lnk_arr, p_arr, n, tol, max_iter, threads, start, chain
-        )
+            assert T_arr is not None  # checked above
+            solved = approach_module.solve(
+                self,
+                approach,
+                feed_arr,
+                lnk_arr,
+                T_arr,
+                p_arr,
+                n,
+                (tol, max_iter, threads, start, chain),
+                bad_T,
+            )
+            amounts, extents, status, iterations, absent = (
+                solved.amounts,
+                solved.extents,
+                solved.status,
+                solved.iterations,
+                solved.absent,
+            )
+            lnk_arr, T_eff, held = solved.lnK, solved.T_eff, solved.held
+        else:
+            amounts, extents, status, iterations, absent = self._core.solve(
+                feed_arr, lnk_arr, p_arr, n, tol, max_iter, threads, start, chain
+            )
         # Mole fractions are computed when first read (41 % less fresh memory per case).
         result = EquilibriumResult(
             self, amounts, extents, None, status, iterations, feed_arr, p_arr, T_arr, lnk_arr
         )
         result._T_eff = T_eff
+        result.held = held
         result.absent = absent
         if invalid == "raise" and (status == Status.INVALID_INPUT).any():
             k = int(np.flatnonzero(status == Status.INVALID_INPUT)[0])
@@ -850,6 +962,10 @@ class ReactionSystem:
             raise InvalidCaseError(f"case {k}: {why}")
         if sensitivities:
             result._sens = self._core.sensitivities(feed_arr, p_arr, amounts, status, absent, threads)
+            if held is not None and held.any():
+                from eqbatch import approach as approach_module
+
+                approach_module.held_sensitivities(self, result, held, threads)
         return result
 
     def dlnK_dT(self, T: ArrayLike) -> np.ndarray:
@@ -865,7 +981,8 @@ class ReactionSystem:
             if data is None:
                 raise CaseInputError(f"reaction {label!r} has no K data: d ln K / dT is unknown")
             if callable(data):
-                out[:, j] = data.derivative(T)
+                with quiet_ranges():  # ln K at the same temperatures reports extrapolation
+                    out[:, j] = data.derivative(T)
         if bad is not None:
             out[bad] = np.nan
         return out

@@ -73,6 +73,13 @@ def load_system(path: str | os.PathLike[str]):  # -> ReactionSystem
         raise SystemFileError(f"{name}: no such file") from None
     except tomllib.TOMLDecodeError as err:
         raise SystemFileError(f"{name}: not valid TOML: {err}") from None
+    except UnicodeDecodeError as err:
+        raise SystemFileError(
+            f"{name}: not UTF-8 text (TOML files are UTF-8): byte {err.object[err.start]:#04x} "
+            f"at offset {err.start} cannot be decoded; save the file as UTF-8"
+        ) from None
+    except RecursionError:
+        raise SystemFileError(f"{name}: not valid TOML: arrays or tables nested too deeply") from None
     except OSError as err:
         raise SystemFileError(f"{name}: cannot read: {err.strerror}") from None
 
@@ -116,6 +123,9 @@ def load_system(path: str | os.PathLike[str]):  # -> ReactionSystem
     for key in ("phases", "formulas"):
         if key in doc and not isinstance(doc[key], dict):
             raise fail(f"[{key}] must be a table of species = value")
+    check_balance = doc.get("check_balance", True)
+    if not isinstance(check_balance, bool):
+        raise fail(f"check_balance must be true or false (a TOML boolean, unquoted), got {check_balance!r}")
     try:
         return ReactionSystem(
             species,
@@ -123,7 +133,7 @@ def load_system(path: str | os.PathLike[str]):  # -> ReactionSystem
             phases=doc.get("phases"),
             formulas=doc.get("formulas"),
             P0=doc.get("P0", 1.0),
-            check_balance=bool(doc.get("check_balance", True)),
+            check_balance=check_balance,
             lnK=lnk or None,
             species_data=species_data,
             thermo=_thermo_source(doc, fail),

@@ -33,22 +33,18 @@ from typing import Any
 import numpy as np
 
 from eqbatch.errors import SystemDefinitionError
+from eqbatch.kdata import report_extrapolation
 
 #: Molar gas constant, J/(mol K) (CODATA 2018).
 R = 8.314462618
 T_REF = 298.15
 
-_warned: set[int] = set()
-
 
 def _range_warning(obj: Any, T: np.ndarray, lo: float, hi: float, what: str) -> None:
-    finite = T[np.isfinite(T)]
-    if finite.size and (finite.min() < lo or finite.max() > hi) and id(obj) not in _warned:
-        _warned.add(id(obj))
-        warnings.warn(
-            f"{what}: temperature outside the data's range {lo:g}-{hi:g} K; the values are extrapolated",
-            stacklevel=4,
-        )
+    """Species data used on their own (not through a system, which names the
+    species and counts cases once per call): an ExtrapolationWarning naming
+    the data's source and how many of the temperatures were outside."""
+    report_extrapolation(what, T, float(lo), float(hi), unit="temperature")
 
 
 def _check_p_ref(data: Any) -> None:

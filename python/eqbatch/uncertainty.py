@@ -57,7 +57,7 @@ def lnK_covariance(
             raise CaseInputError("species_dG_sigma needs the temperature T (K)")
         var = np.zeros(system.n_species)
         for name, sigma in species_dG_sigma.items():
-            var[system.index(name)] = float(sigma) ** 2
+            var[system.index(name)] = _sigma(sigma, "species_dG_sigma", name) ** 2
         if correlation is not None:
             raise CaseInputError(
                 "species Gibbs energies are taken as independent; correlation= does not apply"
@@ -77,6 +77,19 @@ def lnK_covariance(
     return sigma[:, None] * C * sigma[None, :]
 
 
+def _sigma(value: Any, name: str, label: str) -> float:
+    """One standard deviation as a float, refused unless finite and not negative."""
+    try:
+        sigma = float(value)
+    except (TypeError, ValueError):
+        sigma = math.nan
+    if isinstance(value, bool) or not 0.0 <= sigma < math.inf:
+        raise CaseInputError(
+            f"{name}[{label!r}] = {value!r}: a standard deviation must be a finite number, not negative"
+        )
+    return sigma
+
+
 def _per_reaction(system: ReactionSystem, values: Any, name: str) -> np.ndarray:
     if isinstance(values, Mapping):
         out = np.zeros(system.n_reactions)
@@ -85,16 +98,14 @@ def _per_reaction(system: ReactionSystem, values: Any, name: str) -> np.ndarray:
                 raise CaseInputError(
                     f"{name}: {label!r} is not a reaction label ({', '.join(system.labels)})"
                 )
-            out[system.labels.index(label)] = float(v)
+            out[system.labels.index(label)] = _sigma(v, name, label)
         return out
     arr = np.asarray(values, dtype=float).reshape(-1)
     if arr.size == 1:
         arr = np.full(system.n_reactions, arr[0])
     if arr.size != system.n_reactions:
         raise CaseInputError(f"{name} needs one value per reaction ({', '.join(system.labels)})")
-    if np.any(arr < 0):
-        raise CaseInputError(f"{name} must be non-negative")
-    return arr
+    return np.array([_sigma(v, name, label) for v, label in zip(arr.tolist(), system.labels)])
 
 
 def _sqrt_psd(cov: np.ndarray) -> np.ndarray:
@@ -212,13 +223,22 @@ class MonteCarloResult:
         if of == "extents":
             return extents, tuple(self.system.labels)
         if of == "conversion":
-            names = self._reactants()
+            names = self._converted()
             idx = [self.system.index(s) for s in names]
             return 1.0 - amounts[:, idx] / self.feed[idx], names
         raise CaseInputError(f"of must be 'amounts', 'mole_fractions', 'extents' or 'conversion', got {of!r}")
 
-    def _reactants(self) -> tuple[str, ...]:
-        return tuple(s for s in self.system.reactants() if self.feed[self.system.index(s)] > 0)
+    def _converted(self) -> tuple[str, ...]:
+        """Fed species that take part in a reaction, on either side (a
+        negative conversion is net production)."""
+        return tuple(s for s in self.system.reacting_species() if self.feed[self.system.index(s)] > 0)
+
+    def _position(self, of: str, name: str) -> int:
+        """Column of ``name`` among the outputs ``of``, else CaseInputError listing them."""
+        _, names = self._values(of, self.amounts[:0], self.mole_fractions[:0], self.extents[:0])
+        if name not in names:
+            raise CaseInputError(f"{name!r} is not among the {of} outputs ({', '.join(names)})")
+        return names.index(name)
 
     def _output(self, of: str) -> tuple[np.ndarray, tuple[str, ...], np.ndarray]:
         """Samples, names and the first-order Jacobian (at nominal, by ln K) of an output."""
@@ -243,15 +263,14 @@ class MonteCarloResult:
     def nominal_value(self, of: str, name: str) -> float:
         """An output at the nominal ln K."""
         n = self.nominal
-        values, names = self._values(of, n.amounts, n.mole_fractions, n.extents)
-        return float(values[0, names.index(name)])
+        values, _ = self._values(of, n.amounts, n.mole_fractions, n.extents)
+        return float(values[0, self._position(of, name)])
 
     def values(self, of: str, name: str) -> np.ndarray:
         """``(samples,)`` samples of one output, e.g. ``values("conversion", "CH4")``."""
-        values, names, _ = self._output(of)
-        if name not in names:
-            raise CaseInputError(f"{name!r} is not among the {of} outputs ({', '.join(names)})")
-        return values[:, names.index(name)]
+        k = self._position(of, name)
+        values, _, _ = self._output(of)
+        return values[:, k]
 
     def probability(
         self, of: str, name: str, *, at_least: float | None = None, at_most: float | None = None
@@ -272,8 +291,8 @@ class MonteCarloResult:
         ``J_r (C J^T)_r / (J C J^T)``; the sampled one is the squared
         correlation of the output with that reaction's ln K (they agree when
         the response is linear and the constants independent)."""
-        values, names, jac = self._output(of)
-        k = names.index(name)
+        k = self._position(of, name)
+        values, _, jac = self._output(of)
         j = jac[k]
         total = float(j @ self.covariance @ j)
         first = (j * (self.covariance @ j)) / total if total > 0 else np.zeros_like(j)
@@ -291,8 +310,7 @@ class MonteCarloResult:
     def tornado(self, of: str, name: str) -> list[tuple[str, float, float]]:
         """Output at nominal ln K shifted by -1 and +1 standard deviation of
         each reaction in turn (full nonlinear solves): ``(label, low, high)``."""
-        _, names = self._values(of, self.amounts[:0], self.mole_fractions[:0], self.extents[:0])
-        k = names.index(name)
+        k = self._position(of, name)
         sigma = np.sqrt(np.diag(self.covariance))
         base = self.nominal.lnK[0]
         rows = []
@@ -353,6 +371,8 @@ def monte_carlo(
     >>> 0.4 < p < 0.9
     True
     """
+    if isinstance(samples, bool) or not (isinstance(samples, (int, np.integer)) and samples >= 1):
+        raise CaseInputError(f"samples must be a positive integer, got {samples!r}")
     nominal = system.solve(feed, lnK=lnK, T=T, P=P, sensitivities=True)
     if len(nominal) != 1:
         raise CaseInputError("monte_carlo takes one case; use monte_carlo_table for many")

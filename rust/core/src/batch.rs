@@ -679,19 +679,16 @@ impl ChunkState {
         }
         match presence::solve_with_a_phase_absent(
             system,
-            feed,
-            ln_k,
-            pressure,
+            &case,
             options,
-            iterations,
             &mut self.workspace,
             amounts,
             extents,
         ) {
-            Some(absent) => (
-                absent.status,
-                iterations + absent.iterations,
-                presence::phase_bit(absent.phase),
+            Some(repair) => (
+                repair.status,
+                iterations + repair.iterations,
+                repair.absent.map_or(0, presence::phase_bit),
             ),
             None => (status, iterations, 0),
         }

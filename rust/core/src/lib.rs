@@ -36,7 +36,7 @@ pub mod system;
 pub use batch::{solve_batch, BatchInputs, BatchOutputs};
 pub use error::CoreError;
 pub use sensitivity::{sensitivities_batch, SensitivityOutputs};
-pub use solver::SolveOptions;
+pub use solver::{SolveOptions, FLOAT_FLOOR};
 pub use status::Status;
 pub use system::{Phase, System};
 

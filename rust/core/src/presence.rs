@@ -11,8 +11,8 @@
 //!    programme; impossible if the phase holds something no reaction takes);
 //! 2. the reactions are restricted to the face that keeps the phase's
 //!    species at zero ([`crate::face::analyse_with`]) and the case is solved
-//!    there with the caller's tolerance and what is left of its iteration
-//!    budget;
+//!    there with the caller's tolerance and iteration limit (each attempt
+//!    gets `max_iter`);
 //! 3. the absent phase is accepted only if it is stable: no composition of it
 //!    that the reactions could form from the present species lowers the
 //!    Gibbs function ([`implied_fraction_sum`] at most one), the
@@ -40,13 +40,14 @@ const STABLE_SLACK: f64 = 1e-9;
 /// the common case, a gas that should vanish the rarer one.
 const ORDER: [Phase; 2] = [Phase::Liquid, Phase::Gas];
 
-/// A case solved with one phase absent.
-pub struct Absent {
+/// A case solved again after its first attempt stalled.
+pub struct Repair {
     pub status: Status,
-    /// Newton iterations of the solve on the reduced face.
+    /// Newton iterations of the second solve.
     pub iterations: u32,
-    /// The phase that is absent.
-    pub phase: Phase,
+    /// The phase found absent and stable; `None` where the phase turned out
+    /// to belong at equilibrium and the case was solved with it formed.
+    pub absent: Option<Phase>,
 }
 
 /// Bit of `phase` in the per-case mask of absent phases.
@@ -62,24 +63,29 @@ pub fn worth_retrying(system: &System, status: Status) -> bool {
         && system.phases().iter().any(|&p| p != system.phases()[0])
 }
 
-/// Try each phase absent (see the module docs); on success the amounts and
-/// extents are written and the outcome returned, otherwise the outputs are
-/// left as they were. `used` iterations of `options.max_iter` are spent.
-#[allow(clippy::too_many_arguments)]
+/// Try each phase absent (see the module docs) for `case` (its face and
+/// start are those of the first attempt, not used here); on success the
+/// amounts and extents are written and the outcome returned, otherwise the
+/// outputs are left as they were.
 pub fn solve_with_a_phase_absent(
     system: &System,
-    feed: &[f64],
-    ln_k: &[f64],
-    pressure: f64,
+    case: &Case,
     options: &SolveOptions,
-    used: u32,
     ws: &mut Workspace,
     amounts: &mut [f64],
     extents: &mut [f64],
-) -> Option<Absent> {
+) -> Option<Repair> {
+    let Case {
+        feed,
+        ln_k,
+        pressure,
+        ..
+    } = *case;
     let (s, r) = (system.n_species(), system.n_reactions());
+    // The caller's options for this attempt too (`max_iter` bounds each
+    // attempt: a case that ran out of iterations because a phase was
+    // vanishing slowly must still be able to find it absent).
     let budget = SolveOptions {
-        max_iter: options.max_iter.saturating_sub(used),
         chain: false,
         ..*options
     };
@@ -121,20 +127,39 @@ pub fn solve_with_a_phase_absent(
         if !status.is_converged() {
             continue;
         }
-        let fractions =
-            implied_fraction_sum(system, &face, &trial_amounts, ln_k, pressure, &absent);
-        if fractions > 1.0 + STABLE_SLACK {
-            continue;
-        }
-        amounts.copy_from_slice(&trial_amounts);
         for j in 0..r {
-            extents[j] = shift[j] + trial_extents[j];
+            trial_extents[j] += shift[j];
         }
-        return Some(Absent {
-            status,
-            iterations,
-            phase,
-        });
+        let implied = implied_phase(system, &face, &trial_amounts, ln_k, pressure, &absent);
+        if implied.sum <= 1.0 + STABLE_SLACK {
+            amounts.copy_from_slice(&trial_amounts);
+            extents.copy_from_slice(&trial_extents);
+            return Some(Repair {
+                status,
+                iterations,
+                absent: Some(phase),
+            });
+        }
+        // The phase would form: the first attempt lost it on the way (a whole
+        // phase shrinking to the float floor is where Newton's steps on the
+        // straight line stall). Start again from the equilibrium without it,
+        // plus a little of it in the composition the stability test found
+        // most favourable (as flash calculations introduce a new phase).
+        if let Some(more) = introduce(
+            system,
+            case,
+            &budget,
+            ws,
+            &trial_extents,
+            &implied,
+            (amounts, extents),
+        ) {
+            return Some(Repair {
+                status: more.0,
+                iterations: iterations + more.1,
+                absent: None,
+            });
+        }
     }
     None
 }
@@ -212,6 +237,29 @@ pub fn implied_fraction_sum(
     pressure: f64,
     absent: &[bool],
 ) -> f64 {
+    implied_phase(system, face, amounts, ln_k, pressure, absent).sum
+}
+
+/// What the stability test found for an absent phase.
+struct Implied {
+    /// Smallest sum of implied mole fractions (see [`implied_fraction_sum`]).
+    sum: f64,
+    /// Species of the phase (indices) and their mole fractions in the most
+    /// favourable composition (empty when the present species are not at
+    /// equilibrium).
+    species: Vec<usize>,
+    fractions: Vec<f64>,
+}
+
+/// [`implied_fraction_sum`] with the composition that attains it.
+fn implied_phase(
+    system: &System,
+    face: &Face,
+    amounts: &[f64],
+    ln_k: &[f64],
+    pressure: f64,
+    absent: &[bool],
+) -> Implied {
     let (s, r) = (system.n_species(), system.n_reactions());
     let nu = system.stoich();
     let phases = system.phases();
@@ -276,7 +324,12 @@ pub fn implied_fraction_sum(
         }
     }
     let Some(particular) = particular_solution(&a, &rhs, m, p) else {
-        return f64::INFINITY; // the present species are not at equilibrium
+        // the present species are not at equilibrium
+        return Implied {
+            sum: f64::INFINITY,
+            species: Vec::new(),
+            fractions: Vec::new(),
+        };
     };
     // Activities to mole fractions: a gas species' activity is y P / P0.
     let base: Vec<f64> = cols
@@ -291,14 +344,93 @@ pub fn implied_fraction_sum(
         })
         .collect();
     let (free, k) = null_space(&a, m, p, 1e-12);
-    smallest_log_sum_exp(&base, &free, k).exp()
+    let (value, fractions) = smallest_log_sum_exp(&base, &free, k);
+    Implied {
+        sum: value.exp(),
+        species: cols,
+        fractions,
+    }
+}
+
+/// Solve the case from the equilibrium found without the phase
+/// (`extents`), plus a small amount of the phase in the composition
+/// `implied` found, on the case's own face; `Some((status, iterations))`
+/// if that converges (outputs written), else `None` (outputs untouched).
+#[allow(clippy::too_many_arguments)]
+fn introduce(
+    system: &System,
+    case: &Case,
+    options: &SolveOptions,
+    ws: &mut Workspace,
+    extents: &[f64],
+    implied: &Implied,
+    (amounts_out, extents_out): (&mut [f64], &mut [f64]),
+) -> Option<(Status, u32)> {
+    let (s, r) = (system.n_species(), system.n_reactions());
+    let nu = system.stoich();
+    if implied.species.is_empty() {
+        return None;
+    }
+    // Extents that make one mole of the phase in that composition:
+    // (nu^T d)_i = x_i for its species.
+    let p = implied.species.len();
+    let mut a = vec![0.0; p * r];
+    let mut b = vec![0.0; p];
+    for (row, &i) in implied.species.iter().enumerate() {
+        for j in 0..r {
+            a[row * r + j] = nu[j * s + i];
+        }
+        b[row] = if case.face.unreachable[i] {
+            0.0
+        } else {
+            implied.fractions[row]
+        };
+    }
+    let unit = particular_solution(&a, &b, p, r)?;
+    let total: f64 = case.feed.iter().sum();
+    let mut start = vec![0.0; r];
+    let mut amounts = vec![0.0; s];
+    let mut extents_found = vec![0.0; r];
+    for eps in [1e-3, 1e-6, 1e-9] {
+        for j in 0..r {
+            start[j] = extents[j] + eps * total * unit[j];
+        }
+        // Strictly inside: every species the face lets be present is.
+        let inside = (0..s).all(|i| {
+            let v = case.feed[i] + (0..r).map(|j| nu[j * s + i] * start[j]).sum::<f64>();
+            case.face.unreachable[i] || !system.is_reactive(i) || v > 0.0
+        });
+        if !inside {
+            continue;
+        }
+        let again = Case {
+            start: Some(&start),
+            ..*case
+        };
+        let (status, iterations) = solve_case(
+            system,
+            &again,
+            options,
+            ws,
+            &mut amounts,
+            &mut extents_found,
+        );
+        if status.is_converged() {
+            amounts_out.copy_from_slice(&amounts);
+            extents_out.copy_from_slice(&extents_found);
+            return Some((status, iterations));
+        }
+        return None;
+    }
+    None
 }
 
 /// `min over v of ln sum_i exp(base_i + (Z v)_i)` for `Z` (`p x k`,
-/// row-major), by Newton's method with backtracking; stops as soon as the
-/// value is below zero (the caller only asks whether it exceeds zero), and
-/// returns `-inf` where the infimum is unbounded.
-fn smallest_log_sum_exp(base: &[f64], z: &[f64], k: usize) -> f64 {
+/// row-major), by Newton's method with backtracking, and the weights
+/// `exp(...) / sum` there; stops as soon as the value is below zero (the
+/// caller only asks whether it exceeds zero), and returns `-inf` where the
+/// infimum is unbounded.
+fn smallest_log_sum_exp(base: &[f64], z: &[f64], k: usize) -> (f64, Vec<f64>) {
     let p = base.len();
     let value = |v: &[f64], weights: &mut [f64]| -> f64 {
         let mut top = f64::NEG_INFINITY;
@@ -325,12 +457,12 @@ fn smallest_log_sum_exp(base: &[f64], z: &[f64], k: usize) -> f64 {
     let mut trial_weights = vec![0.0; p];
     let mut current = value(&v, &mut weights);
     if k == 0 {
-        return current;
+        return (current, weights);
     }
     let (mut grad, mut hess, mut scale) = (vec![0.0; k], vec![0.0; k * k], vec![0.0; k]);
     for _ in 0..200 {
         if current < -STABLE_SLACK {
-            return current;
+            return (current, weights);
         }
         // gradient Z^T w, Hessian Z^T (diag w - w w^T) Z
         let mut zw = vec![0.0; k];
@@ -348,7 +480,7 @@ fn smallest_log_sum_exp(base: &[f64], z: &[f64], k: usize) -> f64 {
         }
         let size: f64 = grad.iter().map(|g| g.abs()).fold(0.0, f64::max);
         if size < 1e-12 {
-            return current;
+            return (current, weights);
         }
         let mut step: Vec<f64> = grad.iter().map(|g| -g).collect();
         if !solve_spd_scaled(&mut hess, &mut step, &mut scale, k) {
@@ -370,13 +502,13 @@ fn smallest_log_sum_exp(base: &[f64], z: &[f64], k: usize) -> f64 {
             alpha *= 0.5;
         }
         if !moved {
-            return current;
+            return (current, weights);
         }
         if current < -700.0 {
-            return f64::NEG_INFINITY; // unbounded below: the phase cannot form
+            return (f64::NEG_INFINITY, weights); // unbounded below: the phase cannot form
         }
     }
-    current
+    (current, weights)
 }
 
 #[cfg(test)]
@@ -391,18 +523,23 @@ mod tests {
         feed: &[f64],
         ln_k: &[f64],
         pressure: f64,
-    ) -> (Option<Absent>, Vec<f64>) {
+    ) -> (Option<Repair>, Vec<f64>) {
         let s = feed.len();
         let sys = System::new(nu, r, s, phases, 1.0).unwrap();
         let mut ws = Workspace::new(&sys);
         let (mut n, mut xi) = (vec![f64::NAN; s], vec![0.0; r]);
-        let out = solve_with_a_phase_absent(
-            &sys,
+        let face = analyse(&sys, &vec![false; s]).unwrap();
+        let case = Case {
+            face: &face,
             feed,
             ln_k,
             pressure,
+            start: None,
+        };
+        let out = solve_with_a_phase_absent(
+            &sys,
+            &case,
             &SolveOptions::default(),
-            0,
             &mut ws,
             &mut n,
             &mut xi,
@@ -424,7 +561,7 @@ mod tests {
             1.0,
         );
         let out = out.expect("the gas can be absent");
-        assert_eq!(out.phase, Phase::Gas);
+        assert_eq!(out.absent, Some(Phase::Gas));
         assert_eq!(out.status, Status::Converged);
         assert_eq!(n, vec![0.0, 1.0, 1.0]);
     }

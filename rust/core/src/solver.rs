@@ -118,6 +118,8 @@ const MAX_BACKTRACKS: u32 = 60;
 /// [`Status::Underflow`] instead of converged: its amount is then an upper
 /// bound.
 const LN_FLOOR: f64 = -702.288_453_363_184;
+/// The smallest amount the solver follows, `exp(LN_FLOOR)`.
+pub const FLOAT_FLOOR: f64 = 1e-305;
 
 /// `phi(x) = (1 + x) ln(1 + x) - x`, accurate for small `x` (where the
 /// direct formula cancels) by its series `sum_{k>=2} (-1)^k x^k / (k (k-1))`.
@@ -545,22 +547,35 @@ pub(crate) fn interior_start(
     }
 }
 
+/// Share of its phase below which a component's amount is taken from the
+/// conserved quantities of the basis ([`component_update`]); above it the
+/// running sum is as precise, and cheaper.
+const TRACE_COMPONENT_SHARE: f64 = 1e-6;
+/// `comp_base` of a component whose conserved quantity has not been needed
+/// yet in this basis (it is computed when the component is first a trace).
+const NOT_YET: f64 = f64::INFINITY;
+/// Largest common denominator of a component's basis coefficients that
+/// [`conserved_base`] looks for (coefficients of integer reactions are
+/// ratios of small integers).
+const MAX_DENOMINATOR: u32 = 720;
+
 /// The change and new amount of one component on a trial step.
 ///
 /// Written through the user's reactions, a component's amount is a running
 /// sum `n0 + sum(nu * xi)` whose absolute error (about 1e-16 of the feed)
 /// swamps a component that has itself become a trace (three trace products
-/// and two reactions: one of them must be a component). Its amount is instead
-/// `base + sum_j B[j, c] n_pivot(j)` with `base` the conserved quantity of the
-/// basis computed once from the feed (exactly zero when the feed holds none
-/// of the species involved), so it inherits the relative precision of the
-/// pivots. Where that sum is not positive (a `base` lost to round-off in the
-/// feed), the running sum is used. `column` holds the component's
-/// coefficients at stride `nc`; a `NaN` base marks a component no basis
-/// reaction touches.
+/// and two reactions: one of them must be a component). A trace component
+/// (`trace`: below [`TRACE_COMPONENT_SHARE`] of its phase) takes its amount
+/// from `base + sum_j B[j, c] n_pivot(j)` instead, `base` the conserved
+/// quantity of the basis ([`conserved_base`]), so it inherits the relative
+/// precision of the pivots. Where that sum is not positive, the running sum
+/// is used. `column` holds the component's coefficients at stride `nc`; a
+/// `NaN` base marks a component no basis reaction touches.
+#[allow(clippy::too_many_arguments)]
 #[inline(always)]
 fn component_update(
     base: f64,
+    trace: bool,
     column: &[f64],
     nc: usize,
     pivots: &[usize],
@@ -569,19 +584,102 @@ fn component_update(
     amount: f64,
 ) -> (f64, f64) {
     let mut linear = 0.0;
-    let mut conserved = base;
-    for (j, (&p, &step)) in pivots.iter().zip(basis_step).enumerate() {
-        let coef = column[j * nc];
-        linear += coef * step;
-        conserved += coef * trial[p];
+    for (j, &step) in basis_step.iter().enumerate() {
+        linear += column[j * nc] * step;
     }
     if base.is_nan() || linear == 0.0 {
-        (0.0, amount)
-    } else if conserved > 0.0 && conserved < f64::INFINITY {
-        (conserved - amount, conserved)
-    } else {
-        (linear, amount + linear)
+        return (0.0, amount); // no basis reaction touches it
     }
+    if trace && base.is_finite() {
+        let mut conserved = base;
+        for (j, &p) in pivots.iter().enumerate() {
+            conserved += column[j * nc] * trial[p];
+        }
+        if conserved > 0.0 && conserved < f64::INFINITY {
+            return (conserved - amount, conserved);
+        }
+    }
+    (linear, amount + linear)
+}
+
+/// The conserved quantity `n0_c - sum_j B[j, c] n0_pivot(j)` of component
+/// `c` (feed index `i`, coefficients `column` at stride `nc`) in the
+/// current basis, or `NaN` if no basis reaction touches it.
+///
+/// It is often a difference of nearly equal feed amounts (a stoichiometric
+/// CO + 3 H2 feed written in decimals: 0.1 and 0.3 are not exact in binary,
+/// and their true difference of 1e-17 is the whole trace), so it is computed
+/// without cancellation error: the coefficients are scaled to integers
+/// (their common denominator, at most [`MAX_DENOMINATOR`]), every product
+/// and sum is carried exactly in two doubles (the error-free
+/// transformations of T. J. Dekker, "A floating-point technique for
+/// extending the available precision", Numer. Math. 18, 1971, and D. E.
+/// Knuth, TAOCP vol. 2), and the result is rounded once.
+fn conserved_base(feed: &[f64], i: usize, column: &[f64], nc: usize, pivots: &[usize]) -> f64 {
+    let dim = pivots.len();
+    if (0..dim).all(|j| column[j * nc] == 0.0) {
+        return f64::NAN;
+    }
+    // (Rounding by conversion to an integer: `f64::round` is a library call
+    // on processors without SSE4.1.)
+    let nearest = |v: f64| (v + 0.5 * v.signum()) as i64 as f64;
+    let near_integer = |v: f64| v.abs() < 1e15 && (v - nearest(v)).abs() <= 1e-9 * v.abs().max(1.0);
+    let scale = (1..=MAX_DENOMINATOR)
+        .map(f64::from)
+        .find(|&d| (0..dim).all(|j| near_integer(d * column[j * nc])));
+    let (d, integer) = match scale {
+        Some(d) => (d, true),
+        None => (1.0, false),
+    };
+    let (mut hi, mut lo) = two_product(d, feed[i]);
+    for (j, &p) in pivots.iter().enumerate() {
+        let c = d * column[j * nc];
+        let c = if integer { nearest(c) } else { c };
+        let (product, error) = two_product(-c, feed[p]);
+        let (sum, carry) = two_sum(hi, product);
+        hi = sum;
+        lo += carry + error;
+    }
+    let total = hi + lo;
+    if d == 1.0 {
+        return total;
+    }
+    // One division of the double-double by the integer d, rounded once.
+    let q = total / d;
+    let (qd, error) = two_product(q, d);
+    let remainder = ((hi - qd) - error) + lo;
+    q + remainder / d
+}
+
+/// `a + b = s + e` exactly (Knuth's two-sum).
+#[inline(always)]
+fn two_sum(a: f64, b: f64) -> (f64, f64) {
+    let s = a + b;
+    let bb = s - a;
+    (s, (a - (s - bb)) + (b - bb))
+}
+
+/// `a * b = p + e` exactly (Dekker's two-product with Veltkamp's split:
+/// plain multiplications, so it costs the same with or without a fused
+/// multiply-add unit, which `f64::mul_add` would otherwise call a library
+/// function for).
+#[inline(always)]
+fn two_product(a: f64, b: f64) -> (f64, f64) {
+    let p = a * b;
+    let (a_hi, a_lo) = split(a);
+    let (b_hi, b_lo) = split(b);
+    (
+        p,
+        ((a_hi * b_hi - p) + a_hi * b_lo + a_lo * b_hi) + a_lo * b_lo,
+    )
+}
+
+/// `a = hi + lo` with each half of 26 significant bits (Veltkamp).
+#[inline(always)]
+fn split(a: f64) -> (f64, f64) {
+    let c = 134_217_729.0 * a; // 2^27 + 1
+    let hi = c - (c - a);
+    (hi, a - hi)
 }
 
 /// `ln Q - ln K` of every basis reaction (into `out`) at the point whose
@@ -747,30 +845,32 @@ fn run(
             // Components from the conserved quantities of this basis and the
             // pivots (see `component_update`): a trace component then keeps
             // the relative precision of the pivots it is made of.
+            // (Computed when a component is first a trace: `NOT_YET`.)
             let mut moved = false;
             for c in 0..nc {
                 let i = components[c];
-                let mut base = feed[i];
-                let mut touched = false;
-                for j in 0..dim {
-                    let coef = comp_stoich[j * nc + c];
-                    if coef != 0.0 {
-                        touched = true;
-                        base -= coef * feed[sc.pivots[j]];
+                let touched = (0..dim).any(|j| comp_stoich[j * nc + c] != 0.0);
+                let trace = amounts[i] < TRACE_COMPONENT_SHARE * totals[phase_of(i)];
+                sc.comp_base[c] = match (touched, trace) {
+                    (false, _) => f64::NAN,
+                    (true, false) => NOT_YET,
+                    (true, true) => {
+                        conserved_base(feed, i, &comp_stoich[c..], nc, &sc.pivots[..dim])
                     }
+                };
+                let base = sc.comp_base[c];
+                if !trace || !base.is_finite() {
+                    continue;
                 }
-                sc.comp_base[c] = if touched { base } else { f64::NAN };
-                if touched {
-                    let mut v = base;
-                    for j in 0..dim {
-                        v += comp_stoich[j * nc + c] * amounts[sc.pivots[j]];
-                    }
-                    if v > 0.0 && v < f64::INFINITY && v != amounts[i] {
-                        amounts[i] = v;
-                        sc.ln_amount[i] = v.ln();
-                        sc.inv_amount[i] = 1.0 / v;
-                        moved = true;
-                    }
+                let mut v = base;
+                for j in 0..dim {
+                    v += comp_stoich[j * nc + c] * amounts[sc.pivots[j]];
+                }
+                if v > 0.0 && v < f64::INFINITY && v != amounts[i] {
+                    amounts[i] = v;
+                    sc.ln_amount[i] = v.ln();
+                    sc.inv_amount[i] = 1.0 / v;
+                    moved = true;
                 }
             }
             if moved {
@@ -954,8 +1054,14 @@ fn run(
             }
             for c in 0..nc {
                 let i = components[c];
+                let trace = amounts[i] < TRACE_COMPONENT_SHARE * totals[phase_of(i)];
+                if trace && sc.comp_base[c] == NOT_YET {
+                    sc.comp_base[c] =
+                        conserved_base(feed, i, &comp_stoich[c..], nc, &sc.pivots[..dim]);
+                }
                 let (change, new) = component_update(
                     sc.comp_base[c],
+                    trace,
                     &comp_stoich[c..],
                     nc,
                     &sc.pivots[..dim],
@@ -1171,6 +1277,24 @@ mod tests {
         assert!(((h2 - (2.0 * o2 + 0.5 * oh)) / h2).abs() < 1e-12, "{n:?}");
         assert!((h2 / 2.528e-27 - 1.0).abs() < 1e-3, "{h2:e}");
         assert!((o2 / 1.264e-27 - 1.0).abs() < 1e-3, "{o2:e}");
+    }
+
+    #[test]
+    fn the_floor_and_its_logarithm_agree() {
+        assert!((FLOAT_FLOOR.ln() - LN_FLOOR).abs() < 1e-12);
+    }
+
+    #[test]
+    fn conserved_base_is_exact_for_decimal_feeds() {
+        // CO + 3 H2 = CH4 + H2O with H2 the pivot: CO = base + H2 / 3 with
+        // base = n0_CO - n0_H2 / 3. For the binary numbers nearest 0.1 and 0.3,
+        // 3602879701896397 / 2^55 and 5404319552844595 / 2^54, that is exactly
+        // (3 x 3602879701896397 - 2 x 5404319552844595) / (3 x 2^55) = 1 / (3 x 2^55).
+        let base = conserved_base(&[0.1, 0.3, 0.0, 0.0], 0, &[1.0 / 3.0], 1, &[1]);
+        let exact = 1.0 / (3.0 * 2.0_f64.powi(55));
+        assert!((base / exact - 1.0).abs() < 1e-15, "{base:e} vs {exact:e}");
+        // A component no basis reaction touches has none.
+        assert!(conserved_base(&[0.1, 0.3], 0, &[0.0], 1, &[1]).is_nan());
     }
 
     #[test]

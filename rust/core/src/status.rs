@@ -33,21 +33,64 @@ pub enum Status {
 }
 
 impl Status {
+    /// Every status, in code order: the table the Python package, the
+    /// command line and result files read.
+    pub const ALL: [Status; 7] = [
+        Status::Converged,
+        Status::IterationLimit,
+        Status::InvalidInput,
+        Status::Infeasible,
+        Status::Stalled,
+        Status::OutOfRange,
+        Status::Underflow,
+    ];
+
     /// Whether the case reached equilibrium (as far as float64 can hold it).
     pub fn is_converged(self) -> bool {
         matches!(self, Status::Converged | Status::Underflow)
+    }
+
+    /// The name users see (Python's `eqbatch.Status` members, result files).
+    pub fn name(self) -> &'static str {
+        match self {
+            Status::Converged => "CONVERGED",
+            Status::IterationLimit => "ITERATION_LIMIT",
+            Status::InvalidInput => "INVALID_INPUT",
+            Status::Infeasible => "INFEASIBLE",
+            Status::Stalled => "STALLED",
+            Status::OutOfRange => "OUT_OF_RANGE",
+            Status::Underflow => "UNDERFLOW",
+        }
     }
 
     /// A short human-readable description.
     pub fn describe(self) -> &'static str {
         match self {
             Status::Converged => "converged",
-            Status::IterationLimit => "iteration limit reached",
-            Status::InvalidInput => "invalid input",
-            Status::Infeasible => "infeasible: extents unbounded for this feed",
+            Status::IterationLimit => "iteration limit reached before convergence",
+            Status::InvalidInput => {
+                "invalid input (negative/NaN feed, zero total, bad ln K, pressure or temperature)"
+            }
+            Status::Infeasible => "infeasible: the extents are unbounded for this feed",
             Status::Stalled => "stalled: no further decrease of the Gibbs function",
-            Status::OutOfRange => "no adiabatic outlet temperature within the data's range",
-            Status::Underflow => "converged; some species lie below float64's range (upper bounds)",
+            Status::OutOfRange => {
+                "no adiabatic outlet temperature within the data's temperature range"
+            }
+            Status::Underflow => {
+                "converged, with species below float64's range held at about 1e-305 mol (upper bounds)"
+            }
+        }
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn the_table_is_in_code_order() {
+        for (code, status) in Status::ALL.iter().enumerate() {
+            assert_eq!(*status as usize, code);
         }
     }
 }

@@ -18,5 +18,12 @@ fn _core(m: &Bound<'_, PyModule>) -> PyResult<()> {
     m.add_function(wrap_pyfunction!(buffers::release_buffers, m)?)?;
     m.add_function(wrap_pyfunction!(buffers::cached_buffers, m)?)?;
     m.add("__version__", env!("CARGO_PKG_VERSION"))?;
+    m.add("FLOAT_FLOOR", eqbatch_core::FLOAT_FLOOR)?;
+    // The one status table: (code, name, description) per status.
+    let statuses: Vec<(u8, &str, &str)> = eqbatch_core::Status::ALL
+        .iter()
+        .map(|&st| (st as u8, st.name(), st.describe()))
+        .collect();
+    m.add("STATUS_TABLE", statuses)?;
     Ok(())
 }
