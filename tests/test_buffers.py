@@ -1,5 +1,6 @@
-"""Large output arrays reuse the memory of results already freed: the reuse
-must never show a stale value, nor take memory a live view still uses."""
+"""Output arrays: a caller's (``out=``) or those of a freed result of the same
+size, reused. The reuse must never show a stale value, nor take memory that a
+live view or variable still uses."""
 
 from __future__ import annotations
 
@@ -8,9 +9,9 @@ import gc
 import eqbatch
 import numpy as np
 import pytest
-from eqbatch import _core
+from eqbatch import outputs
 
-N = 300_000  # amounts 14.4 MB, extents 4.8 MB: both above the 4 MiB threshold
+N = 300_000  # amounts 14.4 MB, extents 4.8 MB: above the 4 MiB threshold
 
 
 def cases(seed: int, n: int = N) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
@@ -49,6 +50,11 @@ def in_pieces(system, feed, lnK, P, piece=2_000, **options):
     }
 
 
+def set_bytes(n: int) -> int:
+    """Bytes of one output set of the reforming system (6 species, 2 reactions)."""
+    return n * (6 * 8 + 2 * 8 + 1 + 4 + 1)
+
+
 @pytest.mark.parametrize(
     "options",
     [{}, {"threads": 1}, {"max_iter": 2}, {"x0": "previous"}],
@@ -63,12 +69,11 @@ def test_reused_output_memory_holds_only_the_new_results(reforming, options) -> 
         options = {"x0": np.nan_to_num(first.extents) * 0.5}
     del first
     gc.collect()
-    blocks, held = _core.cached_buffers()
-    assert blocks == 2 and held >= N * 8 * 8
+    assert outputs.kept() == (1, set_bytes(N))
 
     feed, lnK, P = cases(2)
     second = reforming.solve(feed, lnK=lnK, P=P, **options)
-    # The freed blocks were taken again (best fit: each by its own size).
+    # The freed set was taken again.
     assert (second.amounts.ctypes.data, second.extents.ctypes.data) == addresses
     fresh = in_pieces(reforming, feed, lnK, P, **options)
     assert (fresh["status"] == eqbatch.Status.INVALID_INPUT).sum() > 1_000
@@ -78,21 +83,23 @@ def test_reused_output_memory_holds_only_the_new_results(reforming, options) -> 
     assert second.amounts.flags.c_contiguous and second.amounts.flags.writeable
 
 
-def test_a_much_larger_block_is_not_taken(reforming) -> None:
-    eqbatch.release_memory()
-    feed, lnK, P = cases(7)
-    large = reforming.solve(feed, lnK=lnK, P=P)
-    address = large.amounts.ctypes.data
-    del large
-    gc.collect()
-    # Half the cases: the 14.4 MB block is twice what the 7.2 MB amounts need.
-    half = reforming.solve(feed[: N // 2], lnK=lnK[: N // 2], P=P[: N // 2])
-    assert half.amounts.ctypes.data != address
-    # 80 % of the cases: within 1.5x, so the block is used.
-    most = reforming.solve(feed[: 4 * N // 5], lnK=lnK[: 4 * N // 5], P=P[: 4 * N // 5])
-    assert most.amounts.ctypes.data == address
-    reference = in_pieces(reforming, feed[: 4 * N // 5], lnK[: 4 * N // 5], P[: 4 * N // 5])
-    assert np.array_equal(most.amounts, reference["amounts"], equal_nan=True)
+def test_out_writes_into_an_earlier_result(reforming) -> None:
+    feed, lnK, P = cases(8, 5_000)
+    first = reforming.solve(feed, lnK=lnK, P=P)
+    _ = first.mole_fractions  # computed, and must be forgotten
+    address = first.amounts.ctypes.data
+    feed2, lnK2, P2 = cases(9, 5_000)
+    second = reforming.solve(feed2, lnK=lnK2, P=P2, out=first)
+    assert second.amounts.ctypes.data == address
+    fresh = reforming.solve(feed2, lnK=lnK2, P=P2)
+    for name in ("amounts", "extents", "status", "iterations"):
+        assert np.array_equal(getattr(second, name), getattr(fresh, name), equal_nan=True), name
+    np.testing.assert_array_equal(first.mole_fractions, fresh.mole_fractions)  # recomputed
+    with pytest.raises(eqbatch.CaseInputError, match="out="):
+        reforming.solve(feed2[:10], lnK=lnK2[:10], P=P2[:10], out=first)
+    other = eqbatch.ReactionSystem(["A", "B"], ["A = B"])
+    with pytest.raises(eqbatch.CaseInputError, match="out="):
+        other.solve([1.0, 0.0], lnK=[0.0], out=first)
 
 
 def test_a_live_view_keeps_its_memory(reforming) -> None:
@@ -103,33 +110,38 @@ def test_a_live_view_keeps_its_memory(reforming) -> None:
     kept = view.copy()
     del result
     gc.collect()
-    # The view holds the amounts block; only the extents block was freed.
-    assert _core.cached_buffers() == (1, N * 2 * 8)
+    # The view holds the amounts: the set is not kept for reuse.
+    assert outputs.kept() == (0, 0)
     feed, lnK, P = cases(4)
     other = reforming.solve(feed, lnK=lnK, P=P)
     assert np.array_equal(view, kept, equal_nan=True)
     assert not np.shares_memory(other.amounts, view)
-    del view
-    gc.collect()
-    assert _core.cached_buffers() == (1, N * 6 * 8)  # now the amounts block is back
 
 
-def test_release_memory_empties_the_cache(reforming) -> None:
+def test_release_memory_empties_the_store_and_the_switch_stops_reuse(reforming) -> None:
     feed, lnK, P = cases(5)
     result = reforming.solve(feed, lnK=lnK, P=P)
     del result
     gc.collect()
-    held = _core.cached_buffers()[1]
-    assert held > 0
+    held = outputs.kept()[1]
+    assert held == set_bytes(N)
     assert eqbatch.release_memory() == held
-    assert _core.cached_buffers() == (0, 0)
+    assert outputs.kept() == (0, 0)
     assert eqbatch.release_memory() == 0
+    eqbatch.reuse_output_memory(False)
+    try:
+        result = reforming.solve(feed, lnK=lnK, P=P)
+        del result
+        gc.collect()
+        assert outputs.kept() == (0, 0)
+    finally:
+        eqbatch.reuse_output_memory(True)
 
 
-def test_only_large_outputs_use_the_cache(reforming) -> None:
+def test_only_large_outputs_are_kept(reforming) -> None:
+    eqbatch.release_memory()
     feed, lnK, P = cases(6)
-    result = reforming.solve(feed, lnK=lnK, P=P)
-    assert type(result.amounts.base).__name__ == "OutputBlock"  # 14.4 MB
-    assert result.status.flags.owndata  # 0.3 MB: numpy's own
     small = reforming.solve(feed[:1_000], lnK=lnK[:1_000], P=P[:1_000])
-    assert small.amounts.flags.owndata
+    del small
+    gc.collect()
+    assert outputs.kept() == (0, 0)

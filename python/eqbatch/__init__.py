@@ -14,7 +14,6 @@ Equilibrium is a thermodynamic limit, not a reactor design.
 """
 
 from eqbatch._core import __version__ as _core_version
-from eqbatch._core import release_buffers as _release_buffers
 from eqbatch.equations import parse_equation, parse_formula
 from eqbatch.errors import (
     AtomBalanceError,
@@ -30,25 +29,13 @@ from eqbatch.errors import (
     UnknownSpeciesError,
 )
 from eqbatch.kdata import LnKFunction
+from eqbatch.outputs import release_memory, reuse_output_memory
 from eqbatch.result import EquilibriumResult, Status
 from eqbatch.sweeps import SweepError, SweepSummary, sweep
 from eqbatch.system import ReactionSystem
 from eqbatch.uncertainty import MonteCarloResult, lnK_covariance, monte_carlo, monte_carlo_table
 
 __version__ = _core_version
-
-
-def release_memory() -> int:
-    """Return the output memory eqbatch keeps for reuse to the operating system.
-
-    Large result arrays (4 MiB and up) that Python has freed are kept, up to
-    1 GiB, so that the next large solve writes into memory the process already
-    holds instead of asking the system for fresh pages (which can cost more
-    than the solve). Blocks unused for 30 s are freed at the next solve; a
-    program that stops solving keeps them until it calls this or exits.
-    Returns the bytes the cache held.
-    """
-    return _release_buffers()
 
 
 __all__ = [
@@ -76,5 +63,6 @@ __all__ = [
     "parse_equation",
     "parse_formula",
     "release_memory",
+    "reuse_output_memory",
     "sweep",
 ]

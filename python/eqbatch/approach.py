@@ -52,10 +52,12 @@ def solve(
     n: int,
     options: tuple,
     bad_T: np.ndarray | None,
+    out: tuple | None = None,
 ) -> ApproachSolve:
     """Solve ``n`` cases with ``approach`` (``{label: dT}``, checked).
     ``lnK_eq`` are the equilibrium constants at ``T``; ``options`` the core's
-    ``(tol, max_iter, threads, start, chain)``."""
+    ``(tol, max_iter, threads, start, chain)``; ``out`` output arrays for the
+    final solve."""
     tol, max_iter, threads, start, chain = options
     core = system._core
     eq_extents = core.solve(feed, lnK_eq, P, n, tol, max_iter, threads, start, chain)[1]
@@ -65,7 +67,7 @@ def solve(
     if bad_T is not None:
         lnK[np.broadcast_to(bad_T, (lnK.shape[0],))] = np.nan
     warm = np.where(np.isfinite(eq_extents), eq_extents, 0.0)
-    outputs = list(core.solve(feed, lnK, P, n, tol, max_iter, threads, warm, chain))
+    outputs = list(core.solve(feed, lnK, P, n, tol, max_iter, threads, warm, chain, out))
     held = np.zeros((n, system.n_reactions), dtype=bool)
     approached = np.zeros(system.n_reactions, dtype=bool)
     for label in approach:

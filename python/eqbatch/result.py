@@ -7,7 +7,7 @@ from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
-from eqbatch import _core
+from eqbatch import _core, outputs
 
 if TYPE_CHECKING:
     from eqbatch.system import ReactionSystem
@@ -144,6 +144,22 @@ class EquilibriumResult:
         #: (N, R) bool, with ``approach=``: reactions held at zero extent
         #: because the feed is already within their approach of equilibrium.
         self.held: np.ndarray | None = None
+
+    def invalidate(self) -> None:
+        """Forget what was computed from the arrays (mole fractions,
+        derivatives): a later solve with ``out=`` this result overwrites them."""
+        self._mole_fractions = None
+        self._sens = None
+        self._energy = None
+
+    def __del__(self) -> None:
+        # A large output set that nothing else uses is kept for the next solve
+        # of its size (eqbatch.outputs); never an error at interpreter exit.
+        try:
+            if self.absent is not None:
+                outputs.give_back((self.amounts, self.extents, self.status, self.iterations, self.absent))
+        except Exception:  # noqa: BLE001 - a finaliser must not raise
+            pass
 
     @property
     def mole_fractions(self) -> np.ndarray:

@@ -10,7 +10,7 @@ from typing import Any
 
 import numpy as np
 
-from eqbatch import _core
+from eqbatch import _core, outputs
 from eqbatch.equations import check_atom_balance, parse_equation, parse_formula
 from eqbatch.errors import (
     CaseInputError,
@@ -769,6 +769,7 @@ class ReactionSystem:
         approach: Mapping[str, float] | None = None,
         adiabatic: bool = False,
         chain: bool = False,
+        out: EquilibriumResult | None = None,
     ) -> EquilibriumResult:
         """Equilibrium of every case.
 
@@ -835,6 +836,12 @@ class ReactionSystem:
             number of threads). Fewer iterations when neighbouring rows are
             alike (a sorted grid); more for unrelated rows. Results then
             depend, within ``tol``, on the order of the cases.
+        out : EquilibriumResult, optional
+            A result of an earlier solve of this system with as many cases:
+            its arrays receive this solve's outputs (no new memory; the earlier
+            result then shows the new values). Without it, large outputs
+            (4 MiB and up) reuse the arrays of a freed result of the same size
+            (see :func:`eqbatch.reuse_output_memory`).
         adiabatic : bool, default False
             ``T`` is the inlet temperature; find per case the outlet
             temperature (``result.T``) at which the mixture is at equilibrium
@@ -935,6 +942,7 @@ class ReactionSystem:
                 n,
                 (tol, max_iter, threads, start, chain),
                 bad_T,
+                self._outputs(out, n),
             )
             amounts, extents, status, iterations, absent = (
                 solved.amounts,
@@ -946,7 +954,7 @@ class ReactionSystem:
             lnk_arr, T_eff, held = solved.lnK, solved.T_eff, solved.held
         else:
             amounts, extents, status, iterations, absent = self._core.solve(
-                feed_arr, lnk_arr, p_arr, n, tol, max_iter, threads, start, chain
+                feed_arr, lnk_arr, p_arr, n, tol, max_iter, threads, start, chain, self._outputs(out, n)
             )
         # Mole fractions are computed when first read (41 % less fresh memory per case).
         result = EquilibriumResult(
@@ -967,6 +975,20 @@ class ReactionSystem:
 
                 approach_module.held_sensitivities(self, result, held, threads)
         return result
+
+    def _outputs(self, out: EquilibriumResult | None, n: int) -> tuple | None:
+        """Output arrays for a solve of ``n`` cases: those of ``out`` (an
+        earlier result of this system and size, overwritten), or a kept set
+        of a freed result of this size (see :mod:`eqbatch.outputs`)."""
+        if out is None:
+            return outputs.take(n, self.n_species, self.n_reactions)
+        if not isinstance(out, EquilibriumResult) or out.system is not self:
+            raise CaseInputError("out= must be a result of an earlier solve of this system")
+        if len(out) != n or out.absent is None:
+            raise CaseInputError(f"out= holds {len(out)} cases, this solve has {n}")
+        arrays = (out.amounts, out.extents, out.status, out.iterations, out.absent)
+        out.invalidate()  # its values are about to change
+        return arrays
 
     def dlnK_dT(self, T: ArrayLike) -> np.ndarray:
         """``(N, R)`` temperature derivative of ln K, 1/K, from the K(T) data;

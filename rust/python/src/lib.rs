@@ -2,7 +2,6 @@
 //! borrows numpy arrays, releases the interpreter lock, calls the core and
 //! maps core errors to exceptions; all logic lives in the core.
 
-mod buffers;
 mod error;
 mod system;
 
@@ -15,8 +14,6 @@ fn _core(m: &Bound<'_, PyModule>) -> PyResult<()> {
         "StoichiometryError",
         m.py().get_type::<error::StoichiometryError>(),
     )?;
-    m.add_function(wrap_pyfunction!(buffers::release_buffers, m)?)?;
-    m.add_function(wrap_pyfunction!(buffers::cached_buffers, m)?)?;
     m.add("__version__", env!("CARGO_PKG_VERSION"))?;
     m.add("FLOAT_FLOOR", eqbatch_core::FLOAT_FLOOR)?;
     // The one status table: (code, name, description) per status.

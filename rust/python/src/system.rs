@@ -11,7 +11,6 @@ use numpy::{
 use pyo3::exceptions::PyValueError;
 use pyo3::prelude::*;
 
-use crate::buffers::output;
 use crate::error::to_py;
 
 type Solved<'py> = (
@@ -27,6 +26,37 @@ type Sensitivities<'py> = (
     Bound<'py, PyArray2<f64>>,
     Bound<'py, PyArray3<f64>>,
 );
+
+/// A caller-given output array must have the batch's shape, be C-contiguous
+/// and writeable (its dtype is checked by the conversion).
+fn check_output<T: numpy::Element, D: numpy::ndarray::Dimension>(
+    array: &Bound<'_, numpy::PyArray<T, D>>,
+    shape: &[usize],
+    name: &str,
+) -> PyResult<()> {
+    if array.shape() != shape {
+        return Err(PyValueError::new_err(format!(
+            "out: {name} has shape {:?}, expected {shape:?}",
+            array.shape()
+        )));
+    }
+    if !array.is_c_contiguous() {
+        return Err(PyValueError::new_err(format!(
+            "out: {name} is not C-contiguous"
+        )));
+    }
+    Ok(())
+}
+
+/// Borrow an output array for writing (an error, not a panic, if it is
+/// read-only or already borrowed).
+fn writable<'py, T: numpy::Element, D: numpy::ndarray::Dimension>(
+    array: &Bound<'py, numpy::PyArray<T, D>>,
+) -> PyResult<numpy::PyReadwriteArray<'py, T, D>> {
+    array
+        .try_readwrite()
+        .map_err(|e| PyValueError::new_err(format!("out: {e}")))
+}
 
 #[pyclass(name = "System", module = "eqbatch._core", frozen)]
 pub struct PySystem {
@@ -76,7 +106,7 @@ impl PySystem {
     /// per-case mask of phases found absent (bit 0 gas, bit 1 liquid);
     /// mole fractions are left to the caller (computed on demand, which
     /// saves their memory in batches).
-    #[pyo3(signature = (feed, ln_k, pressure, n_cases, tol, max_iter, threads=None, start=None, chain=false))]
+    #[pyo3(signature = (feed, ln_k, pressure, n_cases, tol, max_iter, threads=None, start=None, chain=false, out=None))]
     #[allow(clippy::too_many_arguments)]
     fn solve<'py>(
         &self,
@@ -90,15 +120,28 @@ impl PySystem {
         threads: Option<usize>,
         start: Option<PyReadonlyArray2<'py, f64>>,
         chain: bool,
+        out: Option<Solved<'py>>,
     ) -> PyResult<Solved<'py>> {
         let s = self.inner.n_species();
         let r = self.inner.n_reactions();
-        // Large outputs reuse memory of results already freed (see buffers.rs).
-        let amounts = output::<f64, _>(py, [n_cases, s])?;
-        let extents = output::<f64, _>(py, [n_cases, r])?;
-        let status = output::<u8, _>(py, n_cases)?;
-        let iterations = output::<u32, _>(py, n_cases)?;
-        let absent = output::<u8, _>(py, n_cases)?;
+        // The caller's arrays (every value is overwritten), or new ones.
+        let (amounts, extents, status, iterations, absent) = match out {
+            Some(arrays) => {
+                check_output(&arrays.0, &[n_cases, s], "amounts")?;
+                check_output(&arrays.1, &[n_cases, r], "extents")?;
+                check_output(&arrays.2, &[n_cases], "status")?;
+                check_output(&arrays.3, &[n_cases], "iterations")?;
+                check_output(&arrays.4, &[n_cases], "absent")?;
+                arrays
+            }
+            None => (
+                PyArray2::zeros(py, [n_cases, s], false),
+                PyArray2::zeros(py, [n_cases, r], false),
+                PyArray1::zeros(py, n_cases, false),
+                PyArray1::zeros(py, n_cases, false),
+                PyArray1::zeros(py, n_cases, false),
+            ),
+        };
         {
             let feed = feed.as_slice()?;
             let ln_k = ln_k.as_slice()?;
@@ -107,11 +150,11 @@ impl PySystem {
                 Some(x0) => Some(x0.as_slice()?),
                 None => None,
             };
-            let (mut a, mut e) = (amounts.readwrite(), extents.readwrite());
+            let (mut a, mut e) = (writable(&amounts)?, writable(&extents)?);
             let (mut st, mut it, mut ab) = (
-                status.readwrite(),
-                iterations.readwrite(),
-                absent.readwrite(),
+                writable(&status)?,
+                writable(&iterations)?,
+                writable(&absent)?,
             );
             let (a, e) = (a.as_slice_mut()?, e.as_slice_mut()?);
             let (st, it, ab) = (st.as_slice_mut()?, it.as_slice_mut()?, ab.as_slice_mut()?);
