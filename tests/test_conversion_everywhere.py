@@ -100,3 +100,24 @@ def test_uncertainty_ranks_a_species_that_a_generated_reaction_makes(auto_file, 
     assert code == 0
     assert "Which reaction matters for conversion_CH4" in out and "P(conversion_CH4 >= 0.3)" in out
     assert "CH4" in _table(out[out.index("Conversion of fed species") :], "output")
+
+
+def test_sweep_writes_the_conversion_of_methane_under_generated_reactions(auto_file, tmp_path) -> None:
+    import pyarrow as pa
+    import pyarrow.parquet as pq
+
+    cases = tmp_path / "cases.parquet"
+    pq.write_table(
+        pa.table(
+            {"feed_CH4": [1.0, 1.0], "feed_H2O": [3.0, 2.5], "T_K": [1000.0, 1100.0], "P_bar": [20.0, 20.0]}
+        ),
+        cases,
+    )
+    out = tmp_path / "out.parquet"
+    system = eqbatch.ReactionSystem.from_toml(auto_file)
+    eqbatch.sweep(system, cases, out, quiet=True)
+    table = pq.read_table(out)
+    assert "conversion_CH4" in table.column_names
+    # The same conversion the result object computes for these cases.
+    res = system.solve({"CH4": [1.0, 1.0], "H2O": [3.0, 2.5]}, T=[1000.0, 1100.0], P=20.0)
+    np.testing.assert_allclose(table.column("conversion_CH4").to_numpy(), res.conversion("CH4"), rtol=1e-12)

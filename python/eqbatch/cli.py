@@ -264,7 +264,7 @@ def _cmd_uncertainty(args: argparse.Namespace) -> int:
 
 
 def _cmd_sweep(args: argparse.Namespace) -> int:
-    from eqbatch.demo import CAUTION
+    from eqbatch.hazards import caution
     from eqbatch.sweeps import sweep
     from eqbatch.system import ReactionSystem
 
@@ -279,17 +279,11 @@ def _cmd_sweep(args: argparse.Namespace) -> int:
         quiet=True if args.quiet else None,
         scheduler=args.scheduler,
         threads=args.threads,
+        allow_extra_columns=args.allow_extra_columns,
     )
-    print(
-        f"{args.output}: {summary.line()}"
-        + (
-            f" ({summary.resumed_batches} batches kept from the interrupted run)"
-            if summary.resumed_batches
-            else ""
-        )
-    )
+    print(f"{args.output}: {summary.line()}")
     if not args.quiet:
-        print(CAUTION)
+        print(caution(system))
     return 0
 
 
@@ -489,12 +483,21 @@ def _parser() -> argparse.ArgumentParser:
     sw.add_argument("input", help="Parquet file, or folder of Parquet files")
     sw.add_argument("output", help="output Parquet file (folder for a folder input)")
     sw.add_argument("--batch-size", type=int, default=65_536, help="rows per batch (bounds memory)")
-    sw.add_argument("--resume", action="store_true", help="continue an interrupted sweep")
+    sw.add_argument(
+        "--resume",
+        action="store_true",
+        help="continue an interrupted sweep (any batch size; keeps a folder's finished files)",
+    )
     sw.add_argument("--overwrite", action="store_true", help="replace an existing output")
     sw.add_argument("--quiet", action="store_true", help="no progress bar, no caution line")
     sw.add_argument("--threads", type=int, default=None, help="worker threads (default: all cores)")
     sw.add_argument(
         "--scheduler", metavar="ADDRESS", help="run a folder on a Dask cluster, one task per file"
+    )
+    sw.add_argument(
+        "--allow-extra-columns",
+        action="store_true",
+        help="pass feed_<x>/lnK_<x> columns that name no species or reaction through (default: refuse them)",
     )
     sw.set_defaults(run=_cmd_sweep)
 

@@ -95,5 +95,7 @@ def write_grid(path: str | os.PathLike[str], table: Any) -> None:
 
     path = os.fspath(path)
     tmp = os.path.join(os.path.dirname(os.path.abspath(path)), f".{os.path.basename(path)}.tmp")
-    pq.write_table(table, tmp)
+    pq.write_table(table, tmp, write_page_checksum=True)
+    with open(tmp, "rb") as written:
+        os.fsync(written.fileno())
     os.replace(tmp, path)

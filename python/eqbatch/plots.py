@@ -105,7 +105,7 @@ def result_plot(
     if missing:
         shown = ", ".join(n for n in names if not n.startswith("__"))
         raise CaseInputError(f"{path}: no column {', '.join(map(repr, missing))} (columns are {shown})")
-    table = pq.read_table(path, columns=cols)
+    table = pq.read_table(path, columns=cols, page_checksum_verification=True)
     data = {c: table.column(c).to_numpy(zero_copy_only=False).astype(float) for c in cols}
     plt = _pyplot()
     fig, ax = plt.subplots(figsize=size)
