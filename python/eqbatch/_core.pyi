@@ -37,6 +37,7 @@ class System:
         npt.NDArray[np.uint32],
         npt.NDArray[np.uint8],
     ]: ...
+    def mole_fractions(self, amounts: npt.NDArray[np.float64]) -> npt.NDArray[np.float64]: ...
     def sensitivities(
         self,
         feed: npt.NDArray[np.float64],

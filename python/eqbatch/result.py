@@ -167,7 +167,8 @@ class EquilibriumResult:
         empty phase, NaN for invalid or infeasible cases), computed from the
         amounts when first read."""
         if self._mole_fractions is None:
-            self._mole_fractions = mole_fractions_of(self.system.phases, self.amounts)
+            # (the core's one definition, also used for its batch outputs)
+            self._mole_fractions = self.system._core.mole_fractions(np.ascontiguousarray(self.amounts))
         return self._mole_fractions
 
     @mole_fractions.setter
@@ -412,23 +413,6 @@ class EquilibriumResult:
 
         cols = self.columns(inputs)
         return pa.table({k: pa.array(np.ascontiguousarray(v)) for k, v in cols.items()})
-
-
-def mole_fractions_of(phases, amounts: np.ndarray) -> np.ndarray:
-    """Mole fractions within each phase, as the core defines them: ``n_i / N``
-    of the species' phase, 0 where the phase is empty, NaN where the amounts are."""
-    amounts = np.asarray(amounts, dtype=np.float64)
-    phases = np.asarray(phases)
-    out = np.empty_like(amounts)
-    for phase in np.unique(phases):
-        cols = np.flatnonzero(phases == phase)
-        part = amounts[:, cols]
-        total = part.sum(axis=1, keepdims=True)
-        with np.errstate(invalid="ignore", divide="ignore"):
-            y = np.where(total > 0, part / np.where(total > 0, total, 1.0), 0.0)
-        y[np.isnan(total[:, 0])] = np.nan
-        out[:, cols] = y
-    return out
 
 
 class EnergyBalance:

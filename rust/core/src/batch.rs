@@ -20,6 +20,26 @@ use crate::solver::{kernel_for, solve_on_face, Case, FixedKernel, SolveOptions, 
 use crate::status::Status;
 use crate::system::{Phase, System, N_PHASES};
 
+/// Mole fraction of each species within its own phase, from one case's
+/// `amounts` (S): `n_i / N_phase`, 0 in an empty phase, NaN where the amounts
+/// are NaN. The one definition the batch outputs and the Python results use.
+pub fn mole_fractions(system: &System, amounts: &[f64], fractions: &mut [f64]) {
+    let mut totals = [0.0; N_PHASES];
+    for (i, phase) in system.phases().iter().enumerate() {
+        totals[phase.index()] += amounts[i];
+    }
+    for (i, phase) in system.phases().iter().enumerate() {
+        let total = totals[phase.index()];
+        fractions[i] = if total > 0.0 {
+            amounts[i] / total
+        } else if total.is_nan() {
+            f64::NAN
+        } else {
+            0.0
+        };
+    }
+}
+
 /// Cases per parallel task: large enough to amortise scheduling, small
 /// enough to balance cases of uneven cost.
 const CHUNK: usize = 64;
@@ -330,24 +350,8 @@ pub fn solve_batch(
         if let Some(mask) = out.absent {
             *mask = absent;
         }
-        let Some(fractions) = out.fractions else {
-            return;
-        };
-        if bad {
-            fractions.fill(f64::NAN);
-            return;
-        }
-        let mut totals = [0.0; N_PHASES];
-        for (i, phase) in system.phases().iter().enumerate() {
-            totals[phase.index()] += out.amounts[i];
-        }
-        for (i, phase) in system.phases().iter().enumerate() {
-            let total = totals[phase.index()];
-            fractions[i] = if total > 0.0 {
-                out.amounts[i] / total
-            } else {
-                0.0
-            };
+        if let Some(fractions) = out.fractions {
+            mole_fractions(system, out.amounts, fractions);
         }
     };
 

@@ -33,7 +33,7 @@ pub mod solver;
 pub mod status;
 pub mod system;
 
-pub use batch::{solve_batch, BatchInputs, BatchOutputs};
+pub use batch::{mole_fractions, solve_batch, BatchInputs, BatchOutputs};
 pub use error::CoreError;
 pub use sensitivity::{sensitivities_batch, SensitivityOutputs};
 pub use solver::{SolveOptions, FLOAT_FLOOR};

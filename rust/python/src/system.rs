@@ -1,8 +1,8 @@
 //! `eqbatch._core.System`: a validated reaction system and its batch solve.
 
 use eqbatch_core::{
-    sensitivities_batch, solve_batch, BatchInputs, BatchOutputs, Phase, SensitivityOutputs,
-    SolveOptions, System,
+    mole_fractions, sensitivities_batch, solve_batch, BatchInputs, BatchOutputs, Phase,
+    SensitivityOutputs, SolveOptions, System,
 };
 use numpy::{
     PyArray1, PyArray2, PyArray3, PyArrayMethods, PyReadonlyArray1, PyReadonlyArray2,
@@ -185,6 +185,36 @@ impl PySystem {
             .map_err(to_py)?;
         }
         Ok((amounts, extents, status, iterations, absent))
+    }
+
+    /// Mole fractions of `amounts` (N, S) within each species' phase (0 in
+    /// an empty phase, NaN where the amounts are NaN).
+    fn mole_fractions<'py>(
+        &self,
+        py: Python<'py>,
+        amounts: PyReadonlyArray2<'py, f64>,
+    ) -> PyResult<Bound<'py, PyArray2<f64>>> {
+        let s = self.inner.n_species();
+        let shape = amounts.shape();
+        if shape[1] != s {
+            return Err(PyValueError::new_err(format!(
+                "amounts have {} columns, the system {s} species",
+                shape[1]
+            )));
+        }
+        let fractions = PyArray2::<f64>::zeros(py, [shape[0], s], false);
+        {
+            let amounts = amounts.as_slice()?;
+            let mut out = writable(&fractions)?;
+            let out = out.as_slice_mut()?;
+            let system = &self.inner;
+            py.detach(move || {
+                for (row, y) in amounts.chunks(s).zip(out.chunks_mut(s)) {
+                    mole_fractions(system, row, y);
+                }
+            });
+        }
+        Ok(fractions)
     }
 
     /// Exact derivatives of converged cases: returns `(d n / d ln K (N, S, R),
