@@ -14,11 +14,12 @@ test:               ## the Python test-suite
 rust-test:          ## the core's unit tests
 	cargo test -p eqbatch-core
 
-lint:               ## formatting and lints, Rust and Python
+lint:               ## formatting, lints and types, Rust and Python
 	cargo fmt --all --check
 	cargo clippy --workspace --all-targets -- -D warnings
 	$(PYTHON) -m ruff check python tests bench examples
 	$(PYTHON) -m ruff format --check python tests bench examples
+	$(PYTHON) -m mypy python/eqbatch
 
 fmt:                ## apply the formatters
 	cargo fmt --all

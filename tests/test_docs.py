@@ -12,10 +12,23 @@ import pytest
 README = Path(__file__).resolve().parents[1] / "README.md"
 MODULES = [
     "eqbatch",
-    "eqbatch.system",
+    "eqbatch.errors",
+    "eqbatch.status",
     "eqbatch.equations",
     "eqbatch.kdata",
+    "eqbatch.speciesdata",
     "eqbatch.compounds",
+    "eqbatch.spec",
+    "eqbatch.definition",
+    "eqbatch.system_file",
+    "eqbatch.columns",
+    "eqbatch.outputs",
+    "eqbatch.result",
+    "eqbatch.approach",
+    "eqbatch.system",
+    "eqbatch.thermo",
+    "eqbatch.uncertainty",
+    "eqbatch.sweeps",
     "eqbatch.hazards",
 ]
 

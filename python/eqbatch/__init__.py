@@ -13,6 +13,11 @@ True
 Equilibrium is a thermodynamic limit, not a reactor design.
 """
 
+from __future__ import annotations
+
+import importlib
+from typing import TYPE_CHECKING, Any
+
 from eqbatch._core import __version__ as _core_version
 from eqbatch.equations import parse_equation, parse_formula
 from eqbatch.errors import (
@@ -30,12 +35,44 @@ from eqbatch.errors import (
 )
 from eqbatch.kdata import LnKFunction
 from eqbatch.outputs import release_memory, reuse_output_memory
-from eqbatch.result import EquilibriumResult, Status
-from eqbatch.sweeps import SweepError, SweepSummary, sweep
+from eqbatch.result import EquilibriumResult
+from eqbatch.status import Status
 from eqbatch.system import ReactionSystem
-from eqbatch.uncertainty import MonteCarloResult, lnK_covariance, monte_carlo, monte_carlo_table
+
+if TYPE_CHECKING:
+    from eqbatch import thermo as thermo
+    from eqbatch.sweeps import SweepError, SweepSummary, sweep
+    from eqbatch.uncertainty import MonteCarloResult, lnK_covariance, monte_carlo, monte_carlo_table
 
 __version__ = _core_version
+
+#: Names whose modules load when first used (the Parquet layer, the analyses
+#: and the thermochemistry functions): ``import eqbatch`` then loads only what
+#: a solve needs.
+_ON_FIRST_USE = {
+    "SweepError": "eqbatch.sweeps",
+    "SweepSummary": "eqbatch.sweeps",
+    "sweep": "eqbatch.sweeps",
+    "MonteCarloResult": "eqbatch.uncertainty",
+    "lnK_covariance": "eqbatch.uncertainty",
+    "monte_carlo": "eqbatch.uncertainty",
+    "monte_carlo_table": "eqbatch.uncertainty",
+}
+
+
+def __getattr__(name: str) -> Any:
+    if name == "thermo":
+        return importlib.import_module("eqbatch.thermo")
+    module = _ON_FIRST_USE.get(name)
+    if module is None:
+        raise AttributeError(f"module 'eqbatch' has no attribute {name!r}")
+    value = getattr(importlib.import_module(module), name)
+    globals()[name] = value
+    return value
+
+
+def __dir__() -> list[str]:
+    return sorted(set(globals()) | set(_ON_FIRST_USE) | {"thermo"})
 
 
 __all__ = [

@@ -30,6 +30,14 @@ class System:
         threads: int | None = None,
         start: npt.NDArray[np.float64] | None = None,
         chain: bool = False,
+        out: tuple[
+            npt.NDArray[np.float64],
+            npt.NDArray[np.float64],
+            npt.NDArray[np.uint8],
+            npt.NDArray[np.uint32],
+            npt.NDArray[np.uint8],
+        ]
+        | None = None,
     ) -> tuple[
         npt.NDArray[np.float64],
         npt.NDArray[np.float64],

@@ -7,19 +7,43 @@ by Newton's method with the exact derivative
 ``f'(T) = sum_i n_i c_p,i + sum_i h_i dn_i/dT`` (the equilibrium's temperature
 sensitivity), safeguarded by bisection inside the temperature range that all
 species' data cover, and warm-started from the previous iterate's extents.
+Each iteration is an isothermal solve of every case, given as ``solve``
+(:meth:`ReactionSystem.solve <eqbatch.ReactionSystem.solve>`).
 """
 
 from __future__ import annotations
 
-from typing import Any
+import warnings
+from collections.abc import Sequence
+from typing import Any, Protocol
 
 import numpy as np
 
 from eqbatch.errors import CaseInputError
 from eqbatch.result import EnergyBalance, EquilibriumResult, Status
+from eqbatch.spec import SystemSpec
+from eqbatch.speciesdata import SpeciesData
 
 
-def _enthalpy_data(system):
+class IsothermalSolve(Protocol):
+    """The isothermal batch solve each temperature iteration calls."""
+
+    def __call__(
+        self,
+        feed: Any,
+        *,
+        T: Any,
+        P: Any,
+        tol: float,
+        max_iter: int,
+        threads: int | None,
+        invalid: str = ...,
+        x0: Any = ...,
+        sensitivities: bool = ...,
+    ) -> EquilibriumResult: ...
+
+
+def _enthalpy_data(system: SystemSpec) -> tuple[list[SpeciesData], float, float]:
     missing = [s for s in system.species if s not in system.species_data]
     if missing:
         raise CaseInputError(
@@ -31,16 +55,17 @@ def _enthalpy_data(system):
     return data, lo, hi
 
 
-def _h(data, T: np.ndarray) -> np.ndarray:
+def _h(data: Sequence[SpeciesData], T: np.ndarray) -> np.ndarray:
     return np.column_stack([d.h(T) for d in data])
 
 
-def _cp(data, T: np.ndarray) -> np.ndarray:
+def _cp(data: Sequence[SpeciesData], T: np.ndarray) -> np.ndarray:
     return np.column_stack([d.cp(T) for d in data])
 
 
 def adiabatic_solve(
-    system,
+    system: SystemSpec,
+    solve: IsothermalSolve,
     feed: Any,
     T: Any,
     P: Any,
@@ -54,15 +79,17 @@ def adiabatic_solve(
     max_T_iter: int = 60,
     energy_tol: float = 1e-11,
 ) -> EquilibriumResult:
-    """See :meth:`ReactionSystem.solve` with ``adiabatic=True``. ``tol``,
-    ``max_iter`` and ``x0`` apply to every equilibrium solve inside (``x0`` to
-    the first), ``invalid="raise"`` raises on the first bad case, and
-    ``max_T_iter`` bounds the temperature iterations."""
-    import warnings
+    """The adiabatic outlet of every case (see :meth:`ReactionSystem.solve`
+    with ``adiabatic=True``).
 
+    ``solve`` is the system's isothermal solve; ``tol``, ``max_iter`` and
+    ``x0`` apply to every equilibrium solve inside (``x0`` to the first),
+    ``invalid="raise"`` raises on the first bad case, and ``max_T_iter``
+    bounds the temperature iterations.
+    """
     data, lo, hi = _enthalpy_data(system)
-    options = {"threads": threads, "tol": tol, "max_iter": max_iter}
-    base = system.solve(feed, T=T, P=P, invalid=invalid, x0=x0, **options)
+    options: dict[str, Any] = {"threads": threads, "tol": tol, "max_iter": max_iter}
+    base = solve(feed, T=T, P=P, invalid=invalid, x0=x0, **options)
     n = len(base)
     feed_rows = np.asarray(base.feed)
     T_in = np.broadcast_to(np.asarray(base.T, dtype=float), (n,)).copy()
@@ -76,8 +103,10 @@ def adiabatic_solve(
         H_in = np.sum(feed_rows * h_in, axis=1)
         scale = np.sum(np.abs(feed_rows * h_in), axis=1) + 1.0
 
-        def residual(Tc, extents=None):
-            r = system.solve(feed_rows, T=Tc, P=P_rows, sensitivities=True, x0=extents, **options)
+        def residual(
+            Tc: np.ndarray, extents: np.ndarray | None = None
+        ) -> tuple[EquilibriumResult, np.ndarray, np.ndarray]:
+            r = solve(feed_rows, T=Tc, P=P_rows, sensitivities=True, x0=extents, **options)
             h = _h(data, Tc)
             f = np.sum(r.amounts * h, axis=1) - H_in
             df = np.sum(r.amounts * _cp(data, Tc), axis=1) + np.sum(h * r.sensitivity("T"), axis=1)
@@ -126,6 +155,7 @@ def adiabatic_solve(
     out.T_iterations = T_steps
     out.absent = res.absent
     if sensitivities:
+        assert res._sens is not None  # every residual solve computes them
         with warnings.catch_warnings():
             warnings.simplefilter("ignore")
             T_safe = np.where(np.isfinite(Tc), Tc, lo)

@@ -7,7 +7,7 @@ the composition whose reforming quotient equals K at 15 K below the outlet
 temperature. Here each reaction given an approach ``dT`` gets the constant
 of the temperature ``dT`` away from ``T`` on the side that holds it short of
 equilibrium in the direction it runs at equilibrium in that case (see
-:func:`eqbatch.thermo.approach_temperatures`).
+:func:`approach_temperatures`).
 
 A reaction whose feed is already within its approach of equilibrium cannot
 reach that constant without running backwards, against the direction any
@@ -18,16 +18,28 @@ held reactions until no approached reaction runs against its direction.
 
 from __future__ import annotations
 
+import math
 from collections.abc import Mapping
-from typing import TYPE_CHECKING
+from typing import Any, NamedTuple
 
 import numpy as np
 
 from eqbatch import _core
-from eqbatch.thermo import approach_temperatures
+from eqbatch.errors import CaseInputError
+from eqbatch.outputs import Outputs
+from eqbatch.result import EquilibriumResult
+from eqbatch.spec import SystemSpec, compile_system
 
-if TYPE_CHECKING:
-    from eqbatch.system import ReactionSystem
+
+class CoreOptions(NamedTuple):
+    """The options of a core solve: ``tol``, ``max_iter``, ``threads``, the
+    starting extents and ``chain``."""
+
+    tol: float
+    max_iter: int
+    threads: int | None
+    start: np.ndarray | None
+    chain: bool
 
 
 class ApproachSolve:
@@ -35,31 +47,130 @@ class ApproachSolve:
     outputs, the constants used, each reaction's temperature (``T_eff``) and
     which reactions were held at zero extent (``held``, (N, R) bool)."""
 
-    def __init__(self, outputs, lnK, T_eff, held) -> None:
+    def __init__(self, outputs: Outputs, lnK: np.ndarray, T_eff: np.ndarray, held: np.ndarray) -> None:
         self.amounts, self.extents, self.status, self.iterations, self.absent = outputs
         self.lnK = lnK
         self.T_eff = T_eff
         self.held = held
 
 
+def check_approach(system: SystemSpec, approach: Mapping[str, Any]) -> dict[str, float]:
+    """``approach`` checked: known labels with K(T) data, each ``dT`` finite and not negative.
+
+    Parameters
+    ----------
+    system : SystemSpec or ReactionSystem
+    approach : mapping label -> kelvin
+
+    Returns
+    -------
+    dict of str to float
+
+    Raises
+    ------
+    CaseInputError
+        An unknown label, a reaction without K(T) data, or a ``dT`` that is
+        not a finite, non-negative number.
+
+    Examples
+    --------
+    >>> from eqbatch.demo import reformer_system
+    >>> check_approach(reformer_system(), {"reforming": 15})
+    {'reforming': 15.0}
+    """
+    out = {}
+    for label, dT in approach.items():
+        if label not in system.labels:
+            raise CaseInputError(
+                f"approach: {label!r} is not a reaction label (labels are {', '.join(system.labels)})"
+            )
+        if not callable(system.lnK_data.get(label)):
+            raise CaseInputError(f"approach: reaction {label!r} has no K(T) data to take an approach on")
+        try:
+            value = float(dT)
+        except (TypeError, ValueError):
+            raise CaseInputError(
+                f"approach[{label!r}] must be a temperature difference in K, got {dT!r}"
+            ) from None
+        if not (0.0 <= value < math.inf):
+            raise CaseInputError(
+                f"approach[{label!r}] = {dT!r}: an approach is a distance from equilibrium, "
+                "finite and not negative (K)"
+            )
+        out[label] = value
+    return out
+
+
+def approach_temperatures(
+    system: SystemSpec, T: Any, approach: Mapping[str, float], direction: Any
+) -> np.ndarray:
+    """The temperature at which each reaction's K is taken.
+
+    ``T`` for reactions without an approach; for a reaction given ``dT``
+    (K), the temperature ``dT`` away from ``T`` on the side that holds it
+    short of equilibrium in the direction it runs. A reaction running
+    forward stops short with a smaller K, one running backward with a
+    larger one, so the shift is ``-sign(d ln K / dT) * direction * dT``:
+    ``T - dT`` for steam reforming run forward (endothermic), ``T + dT`` for
+    the shift run forward (exothermic), and ``T - dT`` again for methanation
+    written forward but run backward in a reformer. This is the
+    design-practice reading of an approach temperature: the outlet is
+    "``dT`` away from equilibrium".
+
+    Parameters
+    ----------
+    system : SystemSpec or ReactionSystem
+    T : array_like, shape (N,)
+        Temperature, K.
+    approach : mapping label -> kelvin
+        Checked (see :func:`check_approach`).
+    direction : array_like, shape (N, R)
+        The sign of each reaction's extent at equilibrium, per case.
+
+    Returns
+    -------
+    ndarray, shape (N, R)
+
+    Examples
+    --------
+    >>> from eqbatch.demo import reformer_system
+    >>> both_forward = [[1, 1]]   # reforming (endothermic) and shift (exothermic) run forward
+    >>> approach_temperatures(reformer_system(), [1000.0], {"reforming": 15, "shift": 10}, both_forward)
+    array([[ 985., 1010.]])
+    """
+    direction = np.asarray(direction, dtype=float)
+    T = np.asarray(T, dtype=float).reshape(-1)
+    n = max(T.shape[0], direction.shape[0])
+    T_eff = np.array(np.broadcast_to(T[:, None], (n, system.n_reactions)))
+    direction = np.broadcast_to(direction, (n, system.n_reactions))
+    T_rows = np.broadcast_to(T, (n,))
+    for label, dT in approach.items():
+        j = system.labels.index(label)
+        data = system.lnK_data[label]
+        if not callable(data):
+            raise CaseInputError(f"approach: reaction {label!r} has no K(T) data to take an approach on")
+        slope = data.derivative(T_rows)
+        T_eff[:, j] = T_rows - np.sign(slope) * np.nan_to_num(direction[:, j]) * dT
+    return T_eff
+
+
 def solve(
-    system: ReactionSystem,
+    system: SystemSpec,
     approach: Mapping[str, float],
     feed: np.ndarray,
     lnK_eq: np.ndarray,
     T: np.ndarray,
     P: np.ndarray,
     n: int,
-    options: tuple,
+    options: CoreOptions,
     bad_T: np.ndarray | None,
-    out: tuple | None = None,
+    out: Outputs | None = None,
 ) -> ApproachSolve:
     """Solve ``n`` cases with ``approach`` (``{label: dT}``, checked).
-    ``lnK_eq`` are the equilibrium constants at ``T``; ``options`` the core's
-    ``(tol, max_iter, threads, start, chain)``; ``out`` output arrays for the
-    final solve."""
+    ``lnK_eq`` are the equilibrium constants at ``T``; ``options`` those of
+    the core; ``out`` output arrays for the final solve."""
     tol, max_iter, threads, start, chain = options
-    core = system._core
+    core = system._engine
     eq_extents = core.solve(feed, lnK_eq, P, n, tol, max_iter, threads, start, chain)[1]
     direction = np.sign(np.nan_to_num(eq_extents))
     T_eff = approach_temperatures(system, T, approach, direction)
@@ -67,32 +178,46 @@ def solve(
     if bad_T is not None:
         lnK[np.broadcast_to(bad_T, (lnK.shape[0],))] = np.nan
     warm = np.where(np.isfinite(eq_extents), eq_extents, 0.0)
-    outputs = list(core.solve(feed, lnK, P, n, tol, max_iter, threads, warm, chain, out))
+    solved = core.solve(feed, lnK, P, n, tol, max_iter, threads, warm, chain, out)
     held = np.zeros((n, system.n_reactions), dtype=bool)
     approached = np.zeros(system.n_reactions, dtype=bool)
     for label in approach:
         approached[system.labels.index(label)] = True
     for _ in range(system.n_reactions):
-        extents = outputs[1]
+        extents = solved[1]
         against = approached & (direction != 0) & (np.sign(extents) != direction) & ~held
         against &= np.isfinite(extents)
         cases = np.flatnonzero(against.any(axis=1))
         if cases.size == 0:
             break
         held[cases] |= against[cases]
-        _solve_held(system, cases, held, feed, lnK, P, tol, max_iter, outputs)
-    return ApproachSolve(tuple(outputs), lnK, T_eff, held)
+        _solve_held(system, cases, held, feed, lnK, P, tol, max_iter, solved)
+    return ApproachSolve(solved, lnK, T_eff, held)
 
 
 def _rows(array: np.ndarray, cases: np.ndarray) -> np.ndarray:
     return array[cases] if array.shape[0] > 1 else np.repeat(array, cases.size, axis=0)
 
 
-def _solve_held(system, cases, held, feed, lnK, P, tol, max_iter, outputs) -> None:
+def _without(system: SystemSpec, keep: np.ndarray) -> _core.System:
+    """The compiled system of the reactions ``keep`` (bool, (R,)) only."""
+    return compile_system(system.stoich[keep], system.phases, system.P0)
+
+
+def _solve_held(
+    system: SystemSpec,
+    cases: np.ndarray,
+    held: np.ndarray,
+    feed: np.ndarray,
+    lnK: np.ndarray,
+    P: np.ndarray,
+    tol: float,
+    max_iter: int,
+    outputs: Outputs,
+) -> None:
     """Solve ``cases`` again with their held reactions removed (grouped by
     which reactions are held), writing into ``outputs`` in place."""
     amounts, extents, status, iterations, absent = outputs
-    codes = [0 if p == "gas" else 1 for p in system.phases]
     patterns, groups = np.unique(held[cases], axis=0, return_inverse=True)
     for g, pattern in enumerate(patterns):
         rows = cases[groups.reshape(-1) == g]
@@ -102,8 +227,7 @@ def _solve_held(system, cases, held, feed, lnK, P, tol, max_iter, outputs) -> No
             amounts[rows] = _rows(feed, rows)
             status[rows] = 0
             continue
-        reduced = _core.System(np.ascontiguousarray(system.stoich[keep]), codes, system.P0)
-        a, e, st, it, ab = reduced.solve(
+        a, e, st, it, ab = _without(system, keep).solve(
             np.ascontiguousarray(_rows(feed, rows)),
             np.ascontiguousarray(_rows(lnK, rows)[:, keep]),
             np.ascontiguousarray(_rows(P, rows)),
@@ -118,12 +242,14 @@ def _solve_held(system, cases, held, feed, lnK, P, tol, max_iter, outputs) -> No
         absent[rows] = ab
 
 
-def held_sensitivities(system, result, held: np.ndarray, threads) -> None:
+def held_sensitivities(
+    system: SystemSpec, result: EquilibriumResult, held: np.ndarray, threads: int | None
+) -> None:
     """Replace the derivatives of cases with held reactions by those of the
     system without them (a held reaction stays held under small changes, so
     its ln K has no effect)."""
+    assert result._sens is not None and result.absent is not None  # a solve with sensitivities
     d_lnk, d_lnp, d_feed = result._sens
-    codes = [0 if p == "gas" else 1 for p in system.phases]
     cases = np.flatnonzero(held.any(axis=1))
     patterns, groups = np.unique(held[cases], axis=0, return_inverse=True)
     for g, pattern in enumerate(patterns):
@@ -134,8 +260,7 @@ def held_sensitivities(system, result, held: np.ndarray, threads) -> None:
             d_lnp[rows] = 0.0
             d_feed[rows] = np.eye(system.n_species)
             continue
-        reduced = _core.System(np.ascontiguousarray(system.stoich[keep]), codes, system.P0)
-        dk, dp, df = reduced.sensitivities(
+        dk, dp, df = _without(system, keep).sensitivities(
             np.ascontiguousarray(result.feed[rows]),
             np.ascontiguousarray(result.P[rows]),
             np.ascontiguousarray(result.amounts[rows]),

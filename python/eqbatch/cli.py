@@ -14,15 +14,28 @@ from __future__ import annotations
 
 import argparse
 import contextlib
+import math
 import os
 import sys
 import warnings
 from collections.abc import Iterator, Sequence
+from pathlib import Path
+from typing import Any
 
 import numpy as np
 
+from eqbatch import _core, demo, plots
+from eqbatch.columns import parse_output
 from eqbatch.errors import EqbatchError
-from eqbatch.system import MAX_ITER
+from eqbatch.grid import make_grid, write_grid
+from eqbatch.hazards import caution
+from eqbatch.inputs import MAX_ITER
+from eqbatch.kdata import collect_extrapolation
+from eqbatch.spec import SystemSpec
+from eqbatch.speciesdata import R, ThermoLnK
+from eqbatch.sweeps import sweep
+from eqbatch.system import ReactionSystem
+from eqbatch.uncertainty import monte_carlo
 
 
 class _UsageError(EqbatchError):
@@ -37,7 +50,14 @@ def _one_line(text: object) -> str:
     return " ".join(str(text).split())
 
 
-def _show_warning(message, category, filename, lineno, file=None, line=None) -> None:
+def _show_warning(
+    message: Warning | str,
+    category: type[Warning],
+    filename: str,
+    lineno: int,
+    file: Any = None,
+    line: str | None = None,
+) -> None:
     print(f"eqbatch: warning: {_one_line(message)}", file=sys.stderr)
 
 
@@ -51,8 +71,6 @@ def warnings_to_stderr(quiet: bool = False) -> Iterator[None]:
     1310-1400 K; correlation valid 600-1300 K)``. ``quiet`` prints none.
     :func:`main` wraps every command in it, with ``quiet`` from the
     command's ``--quiet`` option where it has one."""
-    from eqbatch.kdata import collect_extrapolation
-
     with warnings.catch_warnings():
         if quiet:
             warnings.simplefilter("ignore")
@@ -101,10 +119,8 @@ def _table(headers: list[str], rows: list[list[str]]) -> str:
     return "\n".join(lines)
 
 
-def _system_and_feed(args: argparse.Namespace):
+def _system_and_feed(args: argparse.Namespace) -> tuple[ReactionSystem, dict[str, float]]:
     """The system file and the one case's ``--feed`` of a command."""
-    from eqbatch.system import ReactionSystem
-
     system = ReactionSystem.from_toml(args.system)
     feed = _pairs(args.feed, "--feed")
     if not feed:
@@ -113,8 +129,6 @@ def _system_and_feed(args: argparse.Namespace):
 
 
 def _cmd_solve(args: argparse.Namespace) -> int:
-    from eqbatch.hazards import caution
-
     if not 0 <= args.max_iter <= MAX_ITER:
         raise _UsageError(
             f"--max-iter must be an integer from 0 to {MAX_ITER} (Newton iterations per case), "
@@ -127,7 +141,7 @@ def _cmd_solve(args: argparse.Namespace) -> int:
     k_given = [(n, v) for n, v in k_opts if v]
     if len(k_given) > 1:
         raise _UsageError("give only one of --lnK, --K, --log10K")
-    kwargs: dict = {k_given[0][0]: k_given[0][1]} if k_given else {}
+    kwargs: dict[str, Any] = {k_given[0][0]: k_given[0][1]} if k_given else {}
     if args.approach:
         kwargs["approach"] = _pairs(args.approach, "--approach")
     if args.adiabatic:
@@ -137,11 +151,10 @@ def _cmd_solve(args: argparse.Namespace) -> int:
     )
 
     converged = bool(res.converged[0])
+    outlet_T = math.nan if res.T is None else float(res.T[0])
     conditions = []
     if args.adiabatic:
-        outlet = (
-            f"outlet T = {float(res.T[0]):.2f} K" if converged else "no equilibrium outlet temperature found"
-        )
+        outlet = f"outlet T = {outlet_T:.2f} K" if converged else "no equilibrium outlet temperature found"
         conditions.append(f"adiabatic, inlet {args.T:g} K, {outlet}")
     elif args.T is not None:
         conditions.append(f"T = {args.T:g} K")
@@ -149,7 +162,7 @@ def _cmd_solve(args: argparse.Namespace) -> int:
     print(f"Equilibrium of {args.system}: {', '.join(conditions)} (P0 = {system.P0:g} bar)")
     print(res.message(0))
     if not converged:
-        where = f" (at {float(res.T[0]):.2f} K)" if args.adiabatic and np.isfinite(res.T[0]) else ""
+        where = f" (at {outlet_T:.2f} K)" if args.adiabatic and np.isfinite(outlet_T) else ""
         print(
             f"NOT AN EQUILIBRIUM: the amounts below are the solver's last iterate{where}, "
             "shown to help find the cause; do not use them as a result."
@@ -187,13 +200,6 @@ def _cmd_solve(args: argparse.Namespace) -> int:
 
 
 def _cmd_uncertainty(args: argparse.Namespace) -> int:
-    from pathlib import Path
-
-    from eqbatch import plots
-    from eqbatch.hazards import caution
-    from eqbatch.plots import parse_output
-    from eqbatch.uncertainty import monte_carlo
-
     system, feed = _system_and_feed(args)
     limits = []
     for text in args.limit or []:
@@ -218,6 +224,7 @@ def _cmd_uncertainty(args: argparse.Namespace) -> int:
     if len(sig) != 1:
         raise _UsageError("give one of --lnK-sigma, --dG-sigma, --species-dG-sigma")
     lnk = _pairs(args.lnK, "--lnK") or None
+    sigmas: dict[str, Any] = {sig[0][0]: sig[0][1]}
     mc = monte_carlo(
         system,
         feed=feed,
@@ -226,7 +233,7 @@ def _cmd_uncertainty(args: argparse.Namespace) -> int:
         lnK=lnk,
         samples=args.samples,
         seed=args.seed,
-        **{sig[0][0]: sig[0][1]},
+        **sigmas,
     )
     print(
         f"Monte Carlo on ln K for {args.system}: {mc.samples:,} samples (seed {args.seed}), "
@@ -264,10 +271,6 @@ def _cmd_uncertainty(args: argparse.Namespace) -> int:
 
 
 def _cmd_sweep(args: argparse.Namespace) -> int:
-    from eqbatch.hazards import caution
-    from eqbatch.sweeps import sweep
-    from eqbatch.system import ReactionSystem
-
     system = ReactionSystem.from_toml(args.system)
     summary = sweep(
         system,
@@ -301,8 +304,6 @@ def _parse_range(text: str) -> tuple[str, tuple[float, float, int]]:
 
 
 def _cmd_grid(args: argparse.Namespace) -> int:
-    from eqbatch.grid import make_grid, write_grid
-
     ranges = dict(_parse_range(r) for r in args.range or [])
     table = make_grid(
         ranges,
@@ -318,14 +319,12 @@ def _cmd_grid(args: argparse.Namespace) -> int:
 
 
 def _cmd_plot(args: argparse.Namespace) -> int:
-    from eqbatch.plots import result_plot
-
-    out = result_plot(args.result, args.out, x=args.x, y=args.y, by=args.by, z=args.z)
+    out = plots.result_plot(args.result, args.out, x=args.x, y=args.y, by=args.by, z=args.z)
     print(f"wrote {out}")
     return 0
 
 
-def _species_data_lines(system, *, short: bool = False) -> list[str]:
+def _species_data_lines(system: SystemSpec, *, short: bool = False) -> list[str]:
     """Where each species' data come from (for the chemicals source: the
     compound, its registry number and how it was found), their standard
     pressure P_ref, and whether ln K was converted to P0; ``short`` keeps the
@@ -350,9 +349,6 @@ def _species_data_lines(system, *, short: bool = False) -> list[str]:
 
 
 def _cmd_thermo(args: argparse.Namespace) -> int:
-    from eqbatch.system import ReactionSystem
-    from eqbatch.thermo import R
-
     lo, hi, count = _temperature_range(args.T)
     system = ReactionSystem.from_toml(args.system)
     T = np.linspace(lo, hi, count)
@@ -369,7 +365,7 @@ def _cmd_thermo(args: argparse.Namespace) -> int:
     print(f"standard pressure P0 = {system.P0:g} bar")
     for line in _species_data_lines(system):
         print(line)
-    others = [label for label in system.labels if type(system.lnK_data.get(label)).__name__ != "ThermoLnK"]
+    others = [label for label in system.labels if not isinstance(system.lnK_data.get(label), ThermoLnK)]
     for label in others:
         data = system.lnK_data.get(label)
         kind = "ln K(T) correlation" if callable(data) else "constant ln K"
@@ -395,23 +391,19 @@ def _temperature_range(text: str) -> tuple[float, float, int]:
 
 
 def _cmd_demo(args: argparse.Namespace) -> int:
-    from eqbatch.demo import run
-
     if args.cases < 1:
         raise _UsageError(
             f"--cases must be a positive integer (the size of the timed batch), got {args.cases}"
         )
-    return run(cases=args.cases, threads=args.threads, save_system=args.save_system, out=args.out)
+    return demo.run(cases=args.cases, threads=args.threads, save_system=args.save_system, out=args.out)
 
 
 def _parser() -> argparse.ArgumentParser:
-    from eqbatch import __version__
-
     parser = argparse.ArgumentParser(
         prog="eqbatch",
         description="Batch chemical-equilibrium engine: equilibrium compositions of simultaneous reactions.",
     )
-    parser.add_argument("--version", action="version", version=f"eqbatch {__version__}")
+    parser.add_argument("--version", action="version", version=f"eqbatch {_core.__version__}")
     sub = parser.add_subparsers(dest="command", required=True, metavar="COMMAND")
 
     solve = sub.add_parser("solve", help="equilibrium of one case of a system file")

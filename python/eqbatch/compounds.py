@@ -1,5 +1,5 @@
-"""Which compound a species is, for data sources keyed by compound (the
-``chemicals`` package).
+"""Which compound a species is in the ``chemicals`` package, and the
+standard-state data that package has for it.
 
 A species is named in one of three ways, and each is read for what it says:
 
@@ -27,9 +27,11 @@ import re
 from collections import Counter
 from collections.abc import Callable, Iterator
 from dataclasses import dataclass
+from typing import Any
 
 from eqbatch.equations import ELEMENTS
 from eqbatch.errors import SystemDefinitionError
+from eqbatch.speciesdata import CpPolynomial
 
 # Normal valences (bond-order sums) of the elements structural formulas use.
 _VALENCES = {
@@ -350,7 +352,7 @@ def _merge_blobs(nodes: tuple, edges: tuple) -> tuple[list, list[tuple[Counter, 
 def _valid(nodes: tuple, edges: tuple) -> bool:
     """Whether raising bond orders can give every explicit atom a normal valence."""
     atoms = [k for k, n in enumerate(nodes) if n[0] == "atom"]
-    degree = Counter()
+    degree: Counter[int] = Counter()
     for a, b in edges:
         degree[a] += 1
         degree[b] += 1
@@ -423,7 +425,7 @@ def _matches(pattern: tuple, graph: _Graph) -> bool:
     atoms, bonds, blobs = pattern
     if len(atoms) + sum(n for comp, _ in blobs for e, n in comp.items() if e != "H") != len(graph.atoms):
         return False
-    adjacent = {k: set() for k in range(len(atoms))}
+    adjacent: dict[int, set[int]] = {k: set() for k in range(len(atoms))}
     for a, b in bonds:
         adjacent[a].add(b)
         adjacent[b].add(a)
@@ -459,7 +461,7 @@ def _matches(pattern: tuple, graph: _Graph) -> bool:
                     if y not in taken and y not in seen:
                         seen.add(y)
                         stack.append(y)
-            comp = Counter()
+            comp: Counter[str] = Counter()
             for x in piece:
                 element, h = graph.atoms[x]
                 comp[element] += 1
@@ -537,7 +539,7 @@ def _compounds_by_formula() -> dict[str, list]:
     return index
 
 
-def _compound(meta, how: str) -> Compound:
+def _compound(meta: Any, how: str) -> Compound:
     from chemicals.identifiers import int_to_CAS
 
     cas = int_to_CAS(meta.CAS) if isinstance(meta.CAS, int) else str(meta.CAS)
@@ -561,9 +563,19 @@ def _read_formula(text: str) -> tuple[str, tuple | None] | None:
     return _hill(counts), (readings or None)
 
 
-def _by_formula(text: str, has_data: Callable[[str], bool]) -> tuple[str, object]:
-    hill, readings = _read_formula(text)  # type: ignore[misc]
+#: What a lookup found: ``("resolved", compound)``, or ``(kind, (text, Hill
+#: formula, compounds))`` for ``"ambiguous"``, ``"nodata"`` and ``"none"``
+#: (``None`` for a name that names nothing).
+_Found = tuple[str, Compound | tuple[str, str, list[Compound]] | None]
+
+
+def _by_formula(text: str, has_data: Callable[[str], bool]) -> _Found:
+    read = _read_formula(text)
+    if read is None:  # callers look a text up here only if it is a formula
+        return "none", None
+    hill, readings = read
     pool = [_compound(meta, "") for meta in _compounds_by_formula().get(hill, [])]
+    fitting: list[tuple[Compound, bool | None]]
     if readings is None:
         fitting = [(c, True) for c in pool]
         how = f"the only compound of formula {text if _is_molecular(text) else hill} with data in chemicals"
@@ -580,7 +592,7 @@ def _by_formula(text: str, has_data: Callable[[str], bool]) -> tuple[str, object
     return ("nodata", (text, hill, known)) if known else ("none", (text, hill, pool))
 
 
-def _by_name(text: str) -> tuple[str, object]:
+def _by_name(text: str) -> _Found:
     from chemicals.elements import serialize_formula
     from chemicals.identifiers import CAS_from_any, get_pubchem_db, search_chemical
 
@@ -621,20 +633,21 @@ def identify(species: str, formula: str | None, has_data: Callable[[str], bool])
     """
     texts = [species] + ([formula] if formula and formula != species else [])
     found: Compound | None = None
-    failures = []
+    failures: list[tuple[str, tuple[str, str, list[Compound]]]] = []
     for text in texts:
         kind, detail = _by_formula(text, has_data) if _read_formula(text) else _by_name(text)
-        if kind == "resolved":
-            found = detail  # type: ignore[assignment]
+        if isinstance(detail, Compound):
+            found = detail
             break
-        failures.append((kind, detail))
+        if detail is not None:
+            failures.append((kind, detail))
     prefix = f"thermo='chemicals': species {species!r}"
     if found is None:
         for kind in ("ambiguous", "nodata"):
             for k, detail in failures:
                 if k != kind:
                     continue
-                text, hill, compounds = detail  # type: ignore[misc]
+                text, hill, compounds = detail
                 listed = ", ".join(c.label() for c in compounds)
                 if kind == "ambiguous":
                     example = compounds[0].name.replace(" ", "_")
@@ -659,3 +672,79 @@ def identify(species: str, formula: str | None, has_data: Callable[[str], bool])
                 f"{text!r}; rename the species, correct its formula, or give species_data"
             )
     return found
+
+
+# --- the data ---------------------------------------------------------------------------
+
+
+def chemicals_data(name: str, formula: str | None = None) -> CpPolynomial:
+    """Standard-state data of one gas from the ``chemicals`` package.
+
+    The ideal-gas heat-capacity polynomial of Poling, Prausnitz and
+    O'Connell, *The Properties of Gases and Liquids* (its table's validity
+    range), with the formation enthalpy and entropy at 298.15 K from the
+    package's first ranked source for each, on a 1 bar standard state.
+
+    The compound is found by name first, then from the formula: a condensed
+    structural formula (``C2H5OH``) is read as the structure it writes, and a
+    formula that fits more than one compound with data (``C4H10``) is refused
+    with the candidates listed (see :func:`identify`).
+
+    Parameters
+    ----------
+    name : str
+        The species: a compound name, a CAS number or a formula.
+    formula : str, optional
+        Its formula, when the name is a label (``formulas={"EtOH": "C2H5OH"}``).
+
+    Returns
+    -------
+    CpPolynomial
+        Its ``source`` records the compound's name and registry number, how
+        it was found, and where each value came from.
+
+    Raises
+    ------
+    SystemDefinitionError
+        The ``chemicals`` package is not installed, no compound fits, more
+        than one does, or the compound lacks data.
+
+    Examples
+    --------
+    >>> water = chemicals_data("H2O")
+    >>> water.source.split(";")[0]
+    'chemicals: water, CAS 7732-18-5 (the only compound of formula H2O with data in chemicals)'
+    >>> round(water.dHf, 3), water.P_ref
+    (-241.822, 1.0)
+    """
+    try:
+        from chemicals.heat_capacity import Cp_data_Poling
+        from chemicals.reaction import Hfg, Hfg_methods, S0g, S0g_methods
+    except ImportError:
+        raise SystemDefinitionError(
+            "thermo='chemicals' needs the chemicals package: pip install chemicals"
+        ) from None
+
+    def has_data(cas: str) -> bool:
+        return cas in Cp_data_Poling.index and bool(Hfg_methods(cas)) and bool(S0g_methods(cas))
+
+    compound = identify(name, formula, has_data)
+    cas = compound.cas
+    what = f"species {name!r} = {compound.label()}"
+    if cas not in Cp_data_Poling.index:
+        raise SystemDefinitionError(f"thermo='chemicals': no ideal-gas Cp polynomial for {what}")
+    h_methods, s_methods = Hfg_methods(cas), S0g_methods(cas)
+    if not h_methods or not s_methods:
+        raise SystemDefinitionError(f"thermo='chemicals': no formation enthalpy or entropy for {what}")
+    hf = Hfg(cas, method=h_methods[0])
+    s0 = S0g(cas, method=s_methods[0])
+    row = Cp_data_Poling.loc[cas]
+    a = tuple(float(row[k]) for k in ("a0", "a1", "a2", "a3", "a4"))
+    t_min, t_max = float(row["Tmin"]), float(row["Tmax"])
+    source = (
+        f"chemicals: {compound.name}, CAS {cas} ({compound.how}); "
+        f"Cp/R polynomial of Poling, Prausnitz and O'Connell ({t_min:g}-{t_max:g} K); "
+        f"dfH(298.15 K) = {hf / 1000:.3f} kJ/mol ({h_methods[0]}); "
+        f"S(298.15 K) = {s0:.2f} J/mol/K ({s_methods[0]}); ideal gas at 1 bar"
+    )
+    return CpPolynomial(a=a, dHf=hf / 1000.0, S298=s0, T_min=t_min, T_max=t_max, source=source, P_ref=1.0)

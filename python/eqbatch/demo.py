@@ -15,7 +15,11 @@ from pathlib import Path
 
 import numpy as np
 
+from eqbatch.errors import CaseInputError
+from eqbatch.grid import make_grid, write_grid
 from eqbatch.hazards import caution
+from eqbatch.plots import result_plot
+from eqbatch.sweeps import sweep
 from eqbatch.system import ReactionSystem
 
 #: The general caution (no species named); commands print ``caution(system)``.
@@ -49,8 +53,6 @@ def run(
     out: str | None = "eqbatch-demo",
 ) -> int:
     if isinstance(cases, bool) or not (isinstance(cases, (int, np.integer)) and cases >= 1):
-        from eqbatch.errors import CaseInputError
-
         raise CaseInputError(f"cases (the size of the timed batch) must be a positive integer, got {cases!r}")
     system = reformer_system()
     if save_system:
@@ -107,10 +109,6 @@ def run(
 
 def _sweep_and_plot(system: ReactionSystem, folder: Path, threads: int | None) -> bool:
     """A small Parquet sweep (a grid written, solved, plotted) of the same study."""
-    from eqbatch.grid import make_grid, write_grid
-    from eqbatch.plots import result_plot
-    from eqbatch.sweeps import sweep
-
     folder.mkdir(parents=True, exist_ok=True)
     table = make_grid(
         {"T_K": (750.0, 1200.0, 46), "P_bar": (1.0, 40.0, 4)},

@@ -1,4 +1,6 @@
-"""Reading reaction equations and chemical formulas.
+"""Reading reaction equations and chemical formulas, checking that reactions
+between formulas balance, and generating an independent reaction set from
+formulas.
 
 An equation is ``<side> = <side>`` (``<=>`` also accepted); a side is terms
 joined by ``+``; a term is an optional coefficient (``3``, ``0.5``, ``1/2``)
@@ -13,8 +15,11 @@ from __future__ import annotations
 import re
 from collections.abc import Mapping, Sequence
 from fractions import Fraction
+from math import lcm
 
-from eqbatch.errors import AtomBalanceError, EquationSyntaxError, UnknownSpeciesError
+import numpy as np
+
+from eqbatch.errors import AtomBalanceError, EquationSyntaxError, SystemDefinitionError, UnknownSpeciesError
 
 # fmt: off
 ELEMENTS = frozenset("""
@@ -34,6 +39,16 @@ _FORMULA_TOKEN = re.compile(r"([A-Z][a-z]?)(\d*)")
 def parse_formula(text: str) -> dict[str, int] | None:
     """Element counts of a plain chemical formula, or ``None`` if ``text``
     is not one (a label such as ``EtOH`` or ``n-C4H10``).
+
+    Parameters
+    ----------
+    text : str
+        Element symbols with optional counts (``CH3OH``, ``C2H5OH``).
+
+    Returns
+    -------
+    dict of str to int, or None
+        Atoms per element, in the order first written.
 
     Examples
     --------
@@ -121,10 +136,27 @@ def _term_species(term: str) -> str:
 def parse_equation(equation: str, species: Sequence[str], label: str) -> dict[str, float]:
     """Net stoichiometric coefficients (products positive) of ``equation``.
 
+    Parameters
+    ----------
+    equation : str
+        ``<side> = <side>`` (or ``<=>``); a side is terms joined by ``+``, a
+        term an optional coefficient (``3``, ``0.5``, ``1/2``) and a species.
+    species : sequence of str
+        The species the equation may name.
+    label : str
+        The reaction's label (for messages).
+
+    Returns
+    -------
+    dict of str to float
+        Net coefficient of every species in the equation (a species on both
+        sides keeps its net coefficient; one that cancels is left out).
+
     Raises
     ------
     EquationSyntaxError
-        No ``=``/``<=>``, more than one, or an unreadable term.
+        No ``=``/``<=>``, more than one, an unreadable term, a coefficient
+        outside 1e-6 to 1e6, or an equation that changes nothing.
     UnknownSpeciesError
         A term names a species that is not in ``species``.
 
@@ -184,8 +216,32 @@ def check_atom_balance(
     equation: str,
 ) -> None:
     """Raise :class:`AtomBalanceError` naming the first element that a reaction
-    between chemical formulas does not conserve. Reactions involving a species
-    without a formula are not checked."""
+    between chemical formulas does not conserve.
+
+    Reactions involving a species without a formula are not checked.
+
+    Parameters
+    ----------
+    coefficients : mapping species -> float
+        As :func:`parse_equation` gives them.
+    formulas : mapping species -> element counts or None
+    label, equation : str
+        The reaction (for the message).
+
+    Raises
+    ------
+    AtomBalanceError
+        An element is not conserved (within 1e-9 relative).
+
+    Examples
+    --------
+    >>> formulas = {name: parse_formula(name) for name in ("N2", "H2", "NH3")}
+    >>> check_atom_balance({"N2": -1.0, "H2": -3.0, "NH3": 2.0}, formulas, "r1", "N2 + 3 H2 = 2 NH3")
+    >>> check_atom_balance({"N2": -1.0, "H2": -1.0, "NH3": 2.0}, formulas, "r1", "N2 + H2 = 2 NH3")
+    Traceback (most recent call last):
+    ...
+    eqbatch.errors.AtomBalanceError: reaction 'r1' (N2 + H2 = 2 NH3) does not balance in H: 2 on the left, ...
+    """
     if any(formulas.get(name) is None for name in coefficients):
         return
     totals: dict[str, tuple[float, float]] = {}
@@ -206,3 +262,122 @@ def check_atom_balance(
                 f"{left:g} on the left, {right:g} on the right. If these names are labels "
                 "rather than chemical formulas, pass check_balance=False or give formulas="
             )
+
+
+def element_matrix(
+    species: Sequence[str], formulas: Mapping[str, dict[str, int] | None]
+) -> tuple[list[str], np.ndarray]:
+    """Elements and the (E, S) element-count matrix of species with formulas.
+
+    Parameters
+    ----------
+    species : sequence of str
+    formulas : mapping species -> element counts or None
+        As :func:`parse_formula` gives them.
+
+    Returns
+    -------
+    elements : list of str
+        In alphabetical order.
+    A : ndarray, shape (E, S)
+        ``A[e, s]``: atoms of element ``e`` in species ``s``.
+
+    Raises
+    ------
+    SystemDefinitionError
+        A species has no formula.
+
+    Examples
+    --------
+    >>> sp = ["CO", "H2O", "CO2", "H2"]
+    >>> elements, A = element_matrix(sp, {s: parse_formula(s) for s in sp})
+    >>> elements, A.astype(int).tolist()
+    (['C', 'H', 'O'], [[1, 0, 1, 0], [0, 2, 0, 2], [1, 1, 2, 0]])
+    """
+    counts = _counts_of(species, formulas)
+    elements = sorted({e for s in species for e in counts[s]})
+    A = np.array([[counts[s].get(e, 0) for s in species] for e in elements], dtype=float)
+    return elements, A
+
+
+def _counts_of(
+    species: Sequence[str], formulas: Mapping[str, dict[str, int] | None]
+) -> dict[str, dict[str, int]]:
+    """The element counts of every species, or SystemDefinitionError naming those without."""
+    counts = {s: formulas.get(s) for s in species}
+    missing = [s for s, c in counts.items() if c is None]
+    if missing:
+        raise SystemDefinitionError(
+            f"reactions='auto' needs a chemical formula for every species; none for {', '.join(missing)}"
+        )
+    return {s: c for s, c in counts.items() if c is not None}
+
+
+def independent_reactions(species: Sequence[str], formulas: Mapping[str, dict[str, int] | None]) -> list[str]:
+    """A set of ``S - rank(A)`` independent reactions among ``species``.
+
+    The reactions have small integer coefficients: the formation of each
+    non-component species from the components (the species with the fewest
+    atoms that span the elements), in exact rational arithmetic.
+
+    Parameters
+    ----------
+    species : sequence of str
+    formulas : mapping species -> element counts
+        As :func:`parse_formula` gives them; every species needs one.
+
+    Returns
+    -------
+    list of str
+        Equations, one per non-component species, in the order of ``species``.
+
+    Raises
+    ------
+    SystemDefinitionError
+        A species has no formula.
+
+    Examples
+    --------
+    >>> sp = ["CH4", "H2O", "CO", "H2", "CO2"]
+    >>> independent_reactions(sp, {s: parse_formula(s) for s in sp})
+    ['CO + 3 H2 = CH4 + H2O', 'CO + H2O = CO2 + H2']
+    """
+    counts = _counts_of(species, formulas)
+    _, A = element_matrix(species, formulas)
+    rows = [[Fraction(int(v)) for v in row] for row in A]
+    pivots: list[int] = []
+    r = 0
+    # Components: the simplest species (fewest atoms) that span the elements,
+    # so the reactions read as the formation of the larger species from them.
+    by_size = sorted(range(len(species)), key=lambda j: (sum(counts[species[j]].values()), j))
+    for col in by_size:
+        pivot = next((i for i in range(r, len(rows)) if rows[i][col] != 0), None)
+        if pivot is None:
+            continue
+        rows[r], rows[pivot] = rows[pivot], rows[r]
+        inv = 1 / rows[r][col]
+        rows[r] = [v * inv for v in rows[r]]
+        for i in range(len(rows)):
+            if i != r and rows[i][col] != 0:
+                f = rows[i][col]
+                rows[i] = [a - f * b for a, b in zip(rows[i], rows[r])]
+        pivots.append(col)
+        r += 1
+        if r == len(rows):
+            break
+    equations = []
+    for j, name in enumerate(species):
+        if j in pivots:
+            continue
+        # species j = sum_k rows[k][j] * component_k
+        coef = {species[p]: rows[k][j] for k, p in enumerate(pivots)}
+        scale = lcm(*[c.denominator for c in coef.values()], 1)
+        left = {s: c * scale for s, c in coef.items() if c > 0}
+        right = {name: Fraction(scale)} | {s: -c * scale for s, c in coef.items() if c < 0}
+        equations.append(f"{_side(left)} = {_side(right)}")
+    return equations
+
+
+def _side(terms: Mapping[str, Fraction]) -> str:
+    """One side of a generated equation: ``CO + 3 H2``."""
+    return " + ".join(f"{'' if c == 1 else str(c) + ' '}{s}" for s, c in terms.items() if c != 0)

@@ -17,7 +17,8 @@ from __future__ import annotations
 
 import textwrap
 from collections.abc import Mapping
-from typing import Any
+
+from eqbatch.spec import SystemSpec
 
 #: Hazard classes in the order the caution lists them.
 KINDS = ("flammable", "toxic", "corrosive", "oxidiser", "carcinogen", "asphyxiant")
@@ -107,7 +108,7 @@ def hazards_of(name: str, formula: str | None = None) -> tuple[str, ...] | None:
     return None
 
 
-def caution(system: Any = None, width: int = 92) -> str:
+def caution(system: SystemSpec | None = None, width: int = 92) -> str:
     """The caution for ``system`` (a :class:`~eqbatch.ReactionSystem`, or
     None for a general one): equilibrium is a limit, not a design; the
     hazards the table knows for its species, grouped by class; the species
@@ -126,7 +127,7 @@ def caution(system: Any = None, width: int = 92) -> str:
     if system is None:
         parts.append("Read the safety data sheet of every species.")
     else:
-        given: Mapping[str, Any] = getattr(system, "_spec", {}).get("formulas", {}) or {}
+        given: Mapping[str, str | None] = system.given_formulas
         groups: dict[str, list[str]] = {kind: [] for kind in KINDS}
         unknown = []
         for name in system.species:

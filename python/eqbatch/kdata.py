@@ -1,4 +1,5 @@
-"""Equilibrium-constant data attached to reactions.
+"""Equilibrium-constant data of a reaction, and how data used outside their
+temperature range are reported.
 
 A reaction's K is either a constant or a function of temperature of the
 integrated van 't Hoff form with a heat-capacity polynomial,
@@ -21,10 +22,12 @@ import threading
 import warnings
 from collections.abc import Iterator
 from dataclasses import dataclass
+from types import FrameType
+from typing import Any
 
 import numpy as np
 
-from eqbatch.errors import ExtrapolationWarning
+from eqbatch.errors import ExtrapolationWarning, SystemDefinitionError
 
 LN10 = math.log(10.0)
 
@@ -139,7 +142,8 @@ def report_extrapolation(
             for log in _collectors:
                 log.add((subject, (lo, hi), what, unit, tail), (count, cases, low, high), revises)
         return
-    level, frame = 2, sys._getframe(1)
+    level = 2
+    frame: FrameType | None = sys._getframe(1)
     while frame is not None and frame.f_code.co_filename.startswith(_PACKAGE):
         frame, level = frame.f_back, level + 1
     warnings.warn(
@@ -155,11 +159,27 @@ class LnKFunction:
     fitted over; evaluating outside it warns (:class:`~eqbatch.ExtrapolationWarning`,
     through a system naming the reaction and counting the cases).
 
+    Parameters
+    ----------
+    a, b, c, d, e : float, default 0
+        Coefficients (``b`` in K; with only ``a`` and ``b``, ``-R b`` is the
+        reaction enthalpy).
+    T_min, T_max : float, optional
+        The range the correlation is valid over, K.
+
+    Raises
+    ------
+    SystemDefinitionError
+        ``T_min`` or ``T_max`` not a finite temperature, or ``T_min`` not below
+        ``T_max``.
+
     Examples
     --------
     >>> shift = LnKFunction(a=-4.33, b=4577.8)   # Moe (1962), water-gas shift
     >>> round(float(shift(1000.0)), 4)
     0.2478
+    >>> shift(np.array([500.0, 1000.0])).round(3).tolist()
+    [4.826, 0.248]
     """
 
     a: float = 0.0
@@ -171,6 +191,24 @@ class LnKFunction:
     T_max: float | None = None
 
     def __call__(self, T: np.ndarray | float) -> np.ndarray:
+        """ln K at ``T``.
+
+        Parameters
+        ----------
+        T : float or ndarray
+            Temperature, K.
+
+        Returns
+        -------
+        ndarray
+            ln K, the shape of ``T``; outside ``T_min``-``T_max`` an
+            :class:`~eqbatch.ExtrapolationWarning` says so.
+
+        Examples
+        --------
+        >>> LnKFunction(a=1.0, b=-1000.0)(np.array([500.0, 1000.0])).tolist()
+        [-1.0, 0.0]
+        """
         T = np.asarray(T, dtype=np.float64)
         with np.errstate(divide="ignore", invalid="ignore"):
             value = self.a + self.b / T
@@ -184,14 +222,28 @@ class LnKFunction:
         return value
 
     def derivative(self, T: np.ndarray | float) -> np.ndarray:
-        """``d ln K / dT = -b/T**2 + c/T + d + 2 e T``."""
+        """``d ln K / dT = -b/T**2 + c/T + d + 2 e T``, 1/K.
+
+        Parameters
+        ----------
+        T : float or ndarray
+            Temperature, K.
+
+        Returns
+        -------
+        ndarray
+            The derivative at each temperature (never a range warning).
+
+        Examples
+        --------
+        >>> float(LnKFunction(b=-1000.0).derivative(500.0))
+        0.004
+        """
         T = np.asarray(T, dtype=np.float64)
         with np.errstate(divide="ignore", invalid="ignore"):
             return -self.b / (T * T) + self.c / T + self.d + 2.0 * self.e * T
 
     def __post_init__(self) -> None:
-        from eqbatch.errors import SystemDefinitionError
-
         for name in ("T_min", "T_max"):
             value = getattr(self, name)
             if value is None:
@@ -213,7 +265,13 @@ class LnKFunction:
 
     @property
     def valid_range(self) -> tuple[float, float] | None:
-        """``(T_min, T_max)`` in K with an open end as infinity, or None without a range."""
+        """``(T_min, T_max)`` in K with an open end as infinity, or None without a range.
+
+        Examples
+        --------
+        >>> LnKFunction(a=1.0, T_min=600.0).valid_range
+        (600.0, inf)
+        """
         if self.T_min is None and self.T_max is None:
             return None
         return (
@@ -229,7 +287,22 @@ class LnKFunction:
             )
 
     def scaled(self, factor: float) -> LnKFunction:
-        """The same function times ``factor`` (for log10 K data: ``LN10``)."""
+        """The same function times ``factor`` (for log10 K data: ``LN10``).
+
+        Parameters
+        ----------
+        factor : float
+
+        Returns
+        -------
+        LnKFunction
+            Every coefficient times ``factor``; the same range.
+
+        Examples
+        --------
+        >>> LnKFunction(a=1.0, b=-100.0).scaled(2.0)
+        LnKFunction(a=2.0, b=-200.0, c=0.0, d=0.0, e=0.0, T_min=None, T_max=None)
+        """
         return LnKFunction(
             self.a * factor,
             self.b * factor,
@@ -241,6 +314,17 @@ class LnKFunction:
         )
 
     def describe(self) -> str:
+        """The formula with its nonzero coefficients, as warnings name it.
+
+        Returns
+        -------
+        str
+
+        Examples
+        --------
+        >>> LnKFunction(a=-4.33, b=4577.8).describe()
+        '-4.33 +4577.8/T'
+        """
         parts = [f"{self.a:g}"]
         for coef, term in ((self.b, "/T"), (self.c, " ln T"), (self.d, " T"), (self.e, " T^2")):
             if coef:
@@ -248,12 +332,38 @@ class LnKFunction:
         return " ".join(parts)
 
 
-def as_lnk_data(value: object, label: str, kind: str = "lnK") -> float | LnKFunction:
-    """Normalise one reaction's K data: a number (``kind`` says whether it is
-    ``lnK``, ``K`` or ``log10K``), a mapping of the coefficients ``a``..``e``
-    (a function of T), or an :class:`LnKFunction`."""
-    from eqbatch.errors import SystemDefinitionError
+def as_lnk_data(value: Any, label: str, kind: str = "lnK") -> float | LnKFunction:
+    """Normalise one reaction's K data to ln K: a constant, or a function of T.
 
+    Parameters
+    ----------
+    value : float, mapping or LnKFunction
+        A number (``kind`` says whether it is ``lnK``, ``K`` or ``log10K``), a
+        mapping of the coefficients ``a``..``e`` with optional ``T_min`` and
+        ``T_max`` (a function of T; not for ``K``), or an :class:`LnKFunction`.
+    label : str
+        The reaction (for messages).
+    kind : {"lnK", "K", "log10K"}
+        What ``value`` is.
+
+    Returns
+    -------
+    float or LnKFunction
+        ln K.
+
+    Raises
+    ------
+    SystemDefinitionError
+        A value that is not a number (``true`` is not 1), a K not positive, an
+        unknown coefficient, or an empty or inverted range.
+
+    Examples
+    --------
+    >>> as_lnk_data(2.0, "r1", "log10K") == 2 * LN10, as_lnk_data(1.0, "r1", "K")
+    (True, 0.0)
+    >>> as_lnk_data({"a": 1.0, "b": -500.0}, "r1")
+    LnKFunction(a=1.0, b=-500.0, c=0.0, d=0.0, e=0.0, T_min=None, T_max=None)
+    """
     factor = {"lnK": 1.0, "log10K": LN10, "K": None}[kind]
     if isinstance(value, LnKFunction):
         return value if factor in (None, 1.0) else value.scaled(factor)
@@ -282,7 +392,7 @@ def as_lnk_data(value: object, label: str, kind: str = "lnK") -> float | LnKFunc
     try:
         if isinstance(value, bool):
             raise TypeError  # TOML's true is not 1.0
-        number = float(value)  # type: ignore[arg-type]
+        number = float(value)
     except (TypeError, ValueError):
         raise SystemDefinitionError(
             f"reaction {label!r}: {kind} must be a number or a table of coefficients, got {value!r}"
@@ -293,4 +403,5 @@ def as_lnk_data(value: object, label: str, kind: str = "lnK") -> float | LnKFunc
         return math.log(number)
     if not math.isfinite(number):
         raise SystemDefinitionError(f"reaction {label!r}: {kind} must be finite, got {number}")
+    assert factor is not None  # only K has none, handled above
     return number * factor

@@ -39,10 +39,14 @@ RETAIN = 1 << 30
 #: Arrays unused for this long (seconds) are let go at the next solve.
 KEEP_FOR = 30.0
 
+#: The output arrays of a batch: amounts (N, S), extents (N, R), status,
+#: iterations and the mask of absent phases (N,).
+Outputs = tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray, np.ndarray]
+
 _lock = threading.Lock()
 _enabled = True
 #: (time freed, key, arrays) of output sets nobody uses, oldest first.
-_free: list[tuple[float, tuple, tuple[np.ndarray, ...]]] = []
+_free: list[tuple[float, tuple[int, int, int], Outputs]] = []
 
 
 def reuse_output_memory(enabled: bool = True) -> None:
@@ -50,6 +54,10 @@ def reuse_output_memory(enabled: bool = True) -> None:
 
     Off, every solve takes new arrays from the system (and gives them back
     when its result goes), and any memory kept so far is released.
+
+    Parameters
+    ----------
+    enabled : bool, default True
 
     Examples
     --------
@@ -64,7 +72,12 @@ def reuse_output_memory(enabled: bool = True) -> None:
 
 
 def release_memory() -> int:
-    """Let go of every output array kept for reuse; returns their bytes.
+    """Let go of every output array kept for reuse.
+
+    Returns
+    -------
+    int
+        The bytes let go.
 
     Examples
     --------
@@ -84,11 +97,11 @@ def kept() -> tuple[int, int]:
         return len(_free), sum(sum(a.nbytes for a in arrays) for _, _, arrays in _free)
 
 
-def _key(n: int, s: int, r: int) -> tuple:
+def _key(n: int, s: int, r: int) -> tuple[int, int, int]:
     return (n, s, r)
 
 
-def take(n: int, s: int, r: int) -> tuple[np.ndarray, ...] | None:
+def take(n: int, s: int, r: int) -> Outputs | None:
     """A kept output set for ``n`` cases of ``s`` species and ``r``
     reactions, or None (too small to keep, none kept, or reuse off)."""
     if not _enabled or n * (s + r) * 8 < REUSE_FROM:
@@ -102,7 +115,7 @@ def take(n: int, s: int, r: int) -> tuple[np.ndarray, ...] | None:
     return arrays
 
 
-def give_back(arrays: tuple[np.ndarray, ...]) -> None:
+def give_back(arrays: Outputs) -> None:
     """Keep the output set of a result being freed, if nothing else refers
     to any of its arrays (no view, no variable: their reference counts are
     the result's own)."""
@@ -126,6 +139,8 @@ def give_back(arrays: tuple[np.ndarray, ...]) -> None:
 def _expire() -> None:
     """Let go of sets unused for :data:`KEEP_FOR`, then the oldest beyond
     :data:`RETAIN` bytes."""
+    if not _free:  # nothing kept (every small solve passes here: no lock, no clock)
+        return
     now = time.monotonic()
     with _lock:
         _free[:] = [item for item in _free if now - item[0] <= KEEP_FOR]

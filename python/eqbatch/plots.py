@@ -4,29 +4,18 @@ from __future__ import annotations
 
 from collections.abc import Sequence
 from pathlib import Path
-from typing import TYPE_CHECKING
+from typing import Any
 
 import numpy as np
 
-if TYPE_CHECKING:
-    from eqbatch.uncertainty import MonteCarloResult
+from eqbatch.columns import parse_output
+from eqbatch.errors import CaseInputError
+from eqbatch.uncertainty import MonteCarloResult
 
-_KINDS = {"n": "amounts", "y": "mole_fractions", "extent": "extents", "conversion": "conversion"}
-
-
-def parse_output(name: str) -> tuple[str, str]:
-    """``"y_H2"`` -> ``("mole_fractions", "H2")``; also ``n_``, ``extent_``, ``conversion_``."""
-    prefix, sep, rest = name.partition("_")
-    if not sep or prefix not in _KINDS or not rest:
-        from eqbatch.errors import CaseInputError
-
-        raise CaseInputError(
-            f"output {name!r} must be n_<species>, y_<species>, extent_<label> or conversion_<species>"
-        )
-    return _KINDS[prefix], rest
+__all__ = ["histogram", "parse_output", "result_plot", "tornado"]
 
 
-def _pyplot():
+def _pyplot() -> Any:
     import matplotlib
 
     matplotlib.use("Agg")
@@ -35,7 +24,7 @@ def _pyplot():
     return plt
 
 
-def _save(plt, fig, path: str | Path, dpi: int = 100) -> Path:
+def _save(plt: Any, fig: Any, path: str | Path, dpi: int = 100) -> Path:
     fig.tight_layout()
     path = Path(path)
     fig.savefig(path, dpi=dpi)
@@ -94,8 +83,6 @@ def result_plot(
     the title). Writes a PNG of ``size`` inches at ``dpi``."""
     import pyarrow.parquet as pq
 
-    from eqbatch.errors import CaseInputError
-
     cols = [c for c in (x, y, by, z) if c]
     try:
         names = pq.read_schema(path).names
@@ -110,10 +97,10 @@ def result_plot(
     plt = _pyplot()
     fig, ax = plt.subplots(figsize=size)
     if z is None:
-        groups = [None] if by is None else np.unique(data[by])
+        groups: list[Any] = [None] if by is None else list(np.unique(data[by]))
         points = 0
         for g in groups:
-            mask = np.ones(table.num_rows, bool) if g is None else data[by] == g
+            mask = np.ones(table.num_rows, bool) if by is None else data[by] == g
             xs = np.unique(data[x][mask])
             points += xs.size
             ys = [np.nanmean(data[y][mask & (data[x] == v)]) for v in xs]
@@ -123,17 +110,17 @@ def result_plot(
         if by is not None:
             ax.legend(fontsize=8)
     else:
-        xs, ys = np.unique(data[x]), np.unique(data[y])
-        grid = np.full((ys.size, xs.size), np.nan)
-        xi = np.searchsorted(xs, data[x])
-        yi = np.searchsorted(ys, data[y])
+        x_values, y_values = np.unique(data[x]), np.unique(data[y])
+        grid = np.full((y_values.size, x_values.size), np.nan)
+        xi = np.searchsorted(x_values, data[x])
+        yi = np.searchsorted(y_values, data[y])
         sums = np.zeros_like(grid)
         counts = np.zeros_like(grid)
         np.add.at(sums, (yi, xi), np.nan_to_num(data[z]))
         np.add.at(counts, (yi, xi), 1)
         with np.errstate(invalid="ignore"):
             grid = sums / counts
-        mesh = ax.pcolormesh(xs, ys, grid, shading="nearest", cmap="viridis")
+        mesh = ax.pcolormesh(x_values, y_values, grid, shading="nearest", cmap="viridis")
         fig.colorbar(mesh, ax=ax, label=z)
         ax.set_xlabel(x)
         ax.set_ylabel(y)

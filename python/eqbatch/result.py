@@ -1,74 +1,46 @@
-"""The result of a batch solve."""
+"""The result of a batch solve: plain arrays with a status per case, and
+what follows from them (mole fractions, conversions, messages, exact
+derivatives, tables)."""
 
 from __future__ import annotations
 
-from enum import IntEnum
-from typing import TYPE_CHECKING, Any
+from typing import Any
 
 import numpy as np
 
 from eqbatch import _core, outputs
-
-if TYPE_CHECKING:
-    from eqbatch.system import ReactionSystem
-
-
-class Status(IntEnum):
-    """Per-case outcome, stored as small integers in ``result.status``.
-
-    The numbers are a stable contract (they are written to result tables).
-    """
-
-    #: Every reaction satisfies its equilibrium condition within ``tol``.
-    CONVERGED = 0
-    #: ``max_iter`` Newton iterations were not enough; amounts are the last
-    #: (feasible, conserving) iterate.
-    ITERATION_LIMIT = 1
-    #: Negative or non-finite feed, zero total feed, non-finite ln K, or a
-    #: non-positive or non-finite pressure or temperature; every output of
-    #: the case is NaN.
-    INVALID_INPUT = 2
-    #: No equilibrium exists for the feed (the extents are unbounded).
-    INFEASIBLE = 3
-    #: The Gibbs function could not be lowered further before ``tol`` was met
-    #: (float64 limit for the case); amounts are the last iterate.
-    STALLED = 4
-    #: Adiabatic solve: no outlet temperature within the species data's
-    #: range balances the enthalpy; amounts are those at the range's edge.
-    OUT_OF_RANGE = 5
-    #: At equilibrium, except that some species would lie below the smallest
-    #: amount float64 can follow (about 1e-305 mol): they are held there (an
-    #: upper bound) and the reactions that would push them lower are unmet.
-    #: Counted as converged (``result.converged``); ``message`` names them.
-    UNDERFLOW = 6
-
-    @property
-    def description(self) -> str:
-        return _DESCRIPTIONS[self]
-
-
-# Names and descriptions come from the core's one status table; the members
-# above spell the same codes out for readers and type checkers.
-_DESCRIPTIONS = {Status(code): text for code, _, text in _core.STATUS_TABLE}
-if [(int(m), m.name) for m in Status] != [(code, name) for code, name, _ in _core.STATUS_TABLE]:
-    raise ImportError("eqbatch.Status does not match the compiled core's status table: rebuild the extension")
+from eqbatch.columns import input_columns, output_columns
+from eqbatch.errors import CaseInputError
+from eqbatch.spec import PHASES, SystemSpec
+from eqbatch.status import CONVERGED_CODES, Status, status_words
 
 #: Phase names by bit of the core's mask of absent phases.
-PHASE_BITS = ("gas", "liquid")
+PHASE_BITS = tuple(PHASES)
 
 #: Amounts at or below this are held at (or fell below) the core's float
 #: floor, the smallest amount it follows.
 FLOAT_FLOOR = _core.FLOAT_FLOOR * (1 + 1e-9)
 
-#: Codes whose amounts are an equilibrium (``result.converged``).
-CONVERGED_CODES = (Status.CONVERGED, Status.UNDERFLOW)
-
 
 class EquilibriumResult:
     """Equilibrium of ``N`` cases, as plain arrays.
 
+    Made by :meth:`ReactionSystem.solve`; the arrays are its outputs (and,
+    broadcast to ``N`` rows, its inputs).
+
+    Parameters
+    ----------
+    system : SystemSpec
+        The system solved (a :class:`~eqbatch.ReactionSystem`).
+    amounts, extents, mole_fractions, status, iterations : ndarray
+        The outputs (``mole_fractions`` None: computed when first read).
+    feed, P, T, lnK : ndarray
+        The inputs, one row or ``N`` (``T`` None without a temperature).
+
     Attributes
     ----------
+    system : ReactionSystem
+        The system solved.
     amounts : ndarray, shape (N, S)
         Equilibrium amounts, mol. Unreachable species are exactly 0.
     extents : ndarray, shape (N, R)
@@ -84,9 +56,27 @@ class EquilibriumResult:
     P : ndarray, shape (N,)
         Pressure, bar.
     T : ndarray, shape (N,) or None
-        Temperature, K, when one was given.
+        Temperature, K, when one was given (an adiabatic solve's outlet).
     lnK : ndarray, shape (N, R)
         The equilibrium constants used.
+    absent : ndarray of uint8, shape (N,)
+        Mask of the phases found absent (and stable) at equilibrium: bit 0
+        the gas, bit 1 the liquid (see :meth:`absent_phases`).
+    held : ndarray of bool, shape (N, R), or None
+        With ``approach=``: reactions held at zero extent because the feed
+        is already within their approach of equilibrium.
+    T_iterations : ndarray, shape (N,), or None
+        Temperature iterations of an adiabatic solve.
+
+    Examples
+    --------
+    >>> from eqbatch import ReactionSystem
+    >>> system = ReactionSystem(["N2", "H2", "NH3"], ["0.5 N2 + 1.5 H2 = NH3"])
+    >>> res = system.solve([1.0, 3.0, 0.0], K=0.0065, P=[10.0, 100.0])
+    >>> len(res), res.converged.tolist(), res.amounts[:, 2].round(4).tolist()
+    (2, [True, True], [0.0794, 0.5273])
+    >>> res.summary()
+    '2 converged'
     """
 
     __slots__ = (
@@ -110,7 +100,7 @@ class EquilibriumResult:
 
     def __init__(
         self,
-        system: ReactionSystem,
+        system: SystemSpec,
         amounts: np.ndarray,
         extents: np.ndarray,
         mole_fractions: np.ndarray | None,
@@ -146,8 +136,22 @@ class EquilibriumResult:
         self.held: np.ndarray | None = None
 
     def invalidate(self) -> None:
-        """Forget what was computed from the arrays (mole fractions,
-        derivatives): a later solve with ``out=`` this result overwrites them."""
+        """Forget what was computed from the arrays (mole fractions, derivatives).
+
+        A later solve with ``out=`` this result overwrites its arrays; it
+        calls this first.
+
+        Examples
+        --------
+        >>> from eqbatch import ReactionSystem
+        >>> system = ReactionSystem(["Xa", "Xb"], ["Xa = Xb"])
+        >>> first = system.solve([1.0, 0.0], lnK=0.0)
+        >>> first.mole_fractions.tolist()
+        [[0.5, 0.5]]
+        >>> second = system.solve([1.0, 0.0], lnK=np.log(3.0), out=first)
+        >>> second is not first, first.mole_fractions.round(6).tolist()
+        (True, [[0.25, 0.75]])
+        """
         self._mole_fractions = None
         self._sens = None
         self._energy = None
@@ -163,12 +167,22 @@ class EquilibriumResult:
 
     @property
     def mole_fractions(self) -> np.ndarray:
-        """(N, S) mole fraction of each species within its own phase (0 in an
-        empty phase, NaN for invalid or infeasible cases), computed from the
-        amounts when first read."""
+        """(N, S) mole fraction of each species within its own phase.
+
+        0 in an empty phase, NaN for invalid or infeasible cases; computed
+        from the amounts when first read (by the core's one definition).
+        Assigning None makes the next read compute them again.
+
+        Examples
+        --------
+        >>> from eqbatch import ReactionSystem
+        >>> system = ReactionSystem(["Xa", "Xb", "Xc"], ["Xa = Xb"], phases={"Xc": "liquid"})
+        >>> system.solve([1.0, 0.0, 2.0], lnK=0.0).mole_fractions.tolist()
+        [[0.5, 0.5, 1.0]]
+        """
         if self._mole_fractions is None:
             # (the core's one definition, also used for its batch outputs)
-            self._mole_fractions = self.system._core.mole_fractions(np.ascontiguousarray(self.amounts))
+            self._mole_fractions = self.system._engine.mole_fractions(np.ascontiguousarray(self.amounts))
         return self._mole_fractions
 
     @mole_fractions.setter
@@ -177,7 +191,7 @@ class EquilibriumResult:
         self._mole_fractions = value
 
     def __len__(self) -> int:
-        return self.amounts.shape[0]
+        return int(self.amounts.shape[0])
 
     def __repr__(self) -> str:
         return f"<EquilibriumResult: {len(self)} cases; {self.summary()}>"
@@ -188,31 +202,75 @@ class EquilibriumResult:
 
     @property
     def feed(self) -> np.ndarray:
+        """(N, S) the feed of every case, mol (a read-only view where one feed served all).
+
+        Examples
+        --------
+        >>> from eqbatch import ReactionSystem
+        >>> system = ReactionSystem(["Xa", "Xb"], ["Xa = Xb"])
+        >>> res = system.solve([1.0, 0.0], lnK=[[0.0], [1.0]], P=[1.0, 2.0])
+        >>> res.feed.tolist(), res.P.tolist(), res.T, res.lnK.tolist()
+        ([[1.0, 0.0], [1.0, 0.0]], [1.0, 2.0], None, [[0.0], [1.0]])
+        """
         return self._rows(self._feed)
 
     @property
     def P(self) -> np.ndarray:
+        """(N,) the pressure of every case, bar (see :attr:`feed` for an example)."""
         return self._rows(self._P)
 
     @property
     def T(self) -> np.ndarray | None:
+        """(N,) the temperature of every case, K (an adiabatic solve's outlet), or
+        None (see :attr:`feed` for an example)."""
         return None if self._T is None else self._rows(self._T)
 
     @property
     def lnK(self) -> np.ndarray:
+        """(N, R) the equilibrium constants used, on the system's ``P0`` (see
+        :attr:`feed` for an example)."""
         return self._rows(self._lnK)
 
     @property
     def converged(self) -> np.ndarray:
-        """``(N,)`` bool: the case reached equilibrium (``Status.CONVERGED``,
-        or ``Status.UNDERFLOW`` where some species lie below float64's range)."""
+        """(N,) bool: the case reached equilibrium.
+
+        ``Status.CONVERGED``, or ``Status.UNDERFLOW`` where some species lie
+        below float64's range.
+
+        Examples
+        --------
+        >>> from eqbatch import ReactionSystem
+        >>> res = ReactionSystem(["Xa", "Xb"], ["Xa = Xb"]).solve([[1.0, 0.0], [np.nan, 0.0]], lnK=0.0)
+        >>> res.converged.tolist()
+        [True, False]
+        """
         return np.isin(self.status, CONVERGED_CODES)
 
     def message(self, case: int = 0) -> str:
-        """A sentence on what happened to one case: its status, the iterations
-        it took (for an adiabatic solve, temperature iterations and Newton
-        iterations in all), and any species that the feed cannot reach (they
-        are exactly zero at equilibrium) or that lie below float64's range."""
+        """A sentence on what happened to one case.
+
+        Its status, the iterations it took (for an adiabatic solve,
+        temperature iterations and Newton iterations in all), and any species
+        that the feed cannot reach (they are exactly zero at equilibrium) or
+        that lie below float64's range.
+
+        Parameters
+        ----------
+        case : int, default 0
+            Row of the case.
+
+        Returns
+        -------
+        str
+
+        Examples
+        --------
+        >>> from eqbatch import ReactionSystem
+        >>> system = ReactionSystem(["Xa", "Xb", "Xc"], ["Xa + Xb = Xc"])
+        >>> system.solve([1.0, 0.0, 0.0], lnK=0.0).message(0)
+        'case 0: ...; Xb, Xc cannot be formed from this feed (amount exactly 0)'
+        """
         st = Status(int(self.status[case]))
         text = f"case {case}: {st.description}"
         if st == Status.INVALID_INPUT or st == Status.INFEASIBLE:
@@ -256,25 +314,75 @@ class EquilibriumResult:
         return text
 
     def absent_phases(self, case: int = 0) -> list[str]:
-        """The phases of one case found absent at equilibrium because they
-        would not form (a condensate above its dew point, say): the solve
-        tried them absent and checked that they are stable empty."""
+        """The phases of one case found absent at equilibrium.
+
+        They would not form (a condensate above its dew point, say): the
+        solve tried them absent and checked that they are stable empty.
+
+        Parameters
+        ----------
+        case : int, default 0
+            Row of the case.
+
+        Returns
+        -------
+        list of str
+            ``[]``, ``["liquid"]`` or ``["gas"]``.
+
+        Examples
+        --------
+        >>> from eqbatch import ReactionSystem
+        >>> system = ReactionSystem(["Xa", "Xb"], ["Xa = Xb"], phases={"Xb": "liquid"})
+        >>> system.solve([1.0, 0.0], lnK=0.0).absent_phases(0)
+        []
+        """
         if self.absent is None:
             return []
         mask = int(self.absent[case])
         return [name for bit, name in enumerate(PHASE_BITS) if mask >> bit & 1]
 
     def summary(self) -> str:
-        """Counts of cases by status, e.g. ``'998 converged, 2 invalid input'``."""
+        """Counts of cases by status, e.g. ``'998 converged, 2 invalid input'``.
+
+        Returns
+        -------
+        str
+            ``"no cases"`` for an empty result.
+
+        Examples
+        --------
+        >>> from eqbatch import ReactionSystem
+        >>> ReactionSystem(["Xa", "Xb"], ["Xa = Xb"]).solve([[1.0, 0.0], [-1.0, 0.0]], lnK=0.0).summary()
+        '1 converged, 1 invalid input'
+        """
         codes, counts = np.unique(self.status, return_counts=True)
-        return (
-            ", ".join(f"{c} {Status(int(k)).name.lower().replace('_', ' ')}" for k, c in zip(codes, counts))
-            or "no cases"
-        )
+        return ", ".join(f"{c} {status_words(k)}" for k, c in zip(codes, counts)) or "no cases"
 
     def conversion(self, species: str) -> np.ndarray:
-        """``(N,)`` fractional conversion ``(feed - n) / feed`` of a species;
-        NaN where its feed is zero."""
+        """Fractional conversion ``(feed - n) / feed`` of a species.
+
+        Parameters
+        ----------
+        species : str
+
+        Returns
+        -------
+        ndarray, shape (N,)
+            NaN where its feed is zero; negative where the equilibrium holds
+            more than was fed.
+
+        Raises
+        ------
+        UnknownSpeciesError
+            ``species`` is not a species of the system.
+
+        Examples
+        --------
+        >>> from eqbatch import ReactionSystem
+        >>> res = ReactionSystem(["Xa", "Xb"], ["Xa = Xb"]).solve([[1.0, 0.0], [0.0, 1.0]], lnK=np.log(3.0))
+        >>> res.conversion("Xa").round(6).tolist()
+        [0.75, nan]
+        """
         k = self.system.index(species)
         feed = self.feed[:, k]
         with np.errstate(divide="ignore", invalid="ignore"):
@@ -307,9 +415,26 @@ class EquilibriumResult:
             Species the feed cannot form have zero derivatives. An adiabatic
             solve's derivatives hold the enthalpy balance: the outlet
             temperature moves with the input, and the amounts with it.
-        """
-        from eqbatch.errors import CaseInputError
 
+        Raises
+        ------
+        CaseInputError
+            The solve had no ``sensitivities=True``, or ``wrt="T"`` without a
+            temperature.
+        ValueError
+            An unknown ``wrt`` or ``of``.
+
+        Examples
+        --------
+        ``A = B`` with ``K = 3``: ``n_B = 3 / 4`` of the feed, and
+        ``d n_B / d ln K = K / (1 + K)^2 = 3 / 16`` per mol.
+
+        >>> from eqbatch import ReactionSystem
+        >>> system = ReactionSystem(["Xa", "Xb"], ["Xa = Xb"])
+        >>> res = system.solve([1.0, 0.0], lnK=np.log(3.0), sensitivities=True)
+        >>> res.sensitivity("lnK")[0].round(6).tolist()
+        [[-0.1875], [0.1875]]
+        """
         if self._sens is None:
             raise CaseInputError("derivatives were not computed: solve with sensitivities=True")
         if of not in ("amounts", "mole_fractions", "extents", "T"):
@@ -317,6 +442,8 @@ class EquilibriumResult:
         d_lnk, d_lnp, d_feed = self._sens
         n, S = self.amounts.shape
         energy = self._energy
+        dn: np.ndarray
+        dT: np.ndarray
         if wrt == "lnK":
             dn, dT = d_lnk, np.zeros((n, d_lnk.shape[2]))
         elif wrt in ("lnP", "P"):
@@ -361,7 +488,7 @@ class EquilibriumResult:
         phases = np.array(self.system.phases)
         out = np.empty_like(dn)
         n = self.amounts
-        for phase in ("gas", "liquid"):
+        for phase in PHASE_BITS:
             mask = phases == phase
             if not mask.any():
                 continue
@@ -375,40 +502,77 @@ class EquilibriumResult:
         return out
 
     def columns(self, inputs: bool = True) -> dict[str, np.ndarray]:
-        """Named columns: the inputs (``feed_<species>``, ``P_bar``, ``T_K``,
-        ``lnK_<label>``) when ``inputs``, then ``n_<species>``, ``y_<species>``,
-        ``extent_<label>``, ``status`` and ``iterations``."""
-        sp = self.system.species
-        labels = self.system.labels
-        out: dict[str, np.ndarray] = {}
-        if inputs:
-            feed = self.feed
-            for k, name in enumerate(sp):
-                out[f"feed_{name}"] = feed[:, k]
-            out["P_bar"] = np.asarray(self.P)
-            if self._T is not None:
-                out["T_K"] = np.asarray(self.T)
-            lnk = self.lnK
-            for j, label in enumerate(labels):
-                out[f"lnK_{label}"] = lnk[:, j]
-        for k, name in enumerate(sp):
-            out[f"n_{name}"] = self.amounts[:, k]
-        for k, name in enumerate(sp):
-            out[f"y_{name}"] = self.mole_fractions[:, k]
-        for j, label in enumerate(labels):
-            out[f"extent_{label}"] = self.extents[:, j]
-        out["status"] = self.status
-        out["iterations"] = self.iterations
+        """Named columns of every case, as views of the arrays.
+
+        Parameters
+        ----------
+        inputs : bool, default True
+            Start with the inputs: ``feed_<species>``, ``P_bar``, ``T_K``
+            (when a temperature was given) and ``lnK_<label>``.
+
+        Returns
+        -------
+        dict of str to ndarray
+            Then ``n_<species>``, ``y_<species>``, ``extent_<label>``,
+            ``status`` and ``iterations`` (names from :mod:`eqbatch.columns`).
+
+        Examples
+        --------
+        >>> from eqbatch import ReactionSystem
+        >>> res = ReactionSystem(["Xa", "Xb"], {"iso": "Xa = Xb"}).solve([1.0, 0.0], lnK=0.0)
+        >>> list(res.columns())  # doctest: +NORMALIZE_WHITESPACE
+        ['feed_Xa', 'feed_Xb', 'P_bar', 'lnK_iso', 'n_Xa', 'n_Xb', 'y_Xa', 'y_Xb', 'extent_iso',
+         'status', 'iterations']
+        """
+        spec = self.system
+        out = input_columns(spec, self.feed, self.P, self.T, self.lnK) if inputs else {}
+        fractions = self.mole_fractions
+        out.update(output_columns(spec, self.amounts, fractions, self.extents, self.status, self.iterations))
         return out
 
     def to_pandas(self, inputs: bool = True) -> Any:
-        """A :class:`pandas.DataFrame` with one row per case (see :meth:`columns`)."""
+        """A :class:`pandas.DataFrame` with one row per case.
+
+        Parameters
+        ----------
+        inputs : bool, default True
+            Include the input columns (see :meth:`columns`).
+
+        Returns
+        -------
+        pandas.DataFrame
+
+        Examples
+        --------
+        >>> from eqbatch import ReactionSystem
+        >>> system = ReactionSystem(["Xa", "Xb"], {"iso": "Xa = Xb"})
+        >>> res = system.solve([1.0, 0.0], lnK=[[0.0], [np.log(3.0)]])
+        >>> res.to_pandas(inputs=False)["y_Xb"].round(6).tolist()
+        [0.5, 0.75]
+        """
         import pandas as pd
 
         return pd.DataFrame({k: np.ascontiguousarray(v) for k, v in self.columns(inputs).items()})
 
     def to_arrow(self, inputs: bool = True) -> Any:
-        """A :class:`pyarrow.Table` with one row per case (see :meth:`columns`)."""
+        """A :class:`pyarrow.Table` with one row per case.
+
+        Parameters
+        ----------
+        inputs : bool, default True
+            Include the input columns (see :meth:`columns`).
+
+        Returns
+        -------
+        pyarrow.Table
+
+        Examples
+        --------
+        >>> from eqbatch import ReactionSystem
+        >>> res = ReactionSystem(["Xa", "Xb"], {"iso": "Xa = Xb"}).solve([1.0, 0.0], lnK=0.0)
+        >>> res.to_arrow().num_rows, res.to_arrow().column("status").to_pylist()
+        (1, [0])
+        """
         import pyarrow as pa
 
         cols = self.columns(inputs)
@@ -416,11 +580,12 @@ class EquilibriumResult:
 
 
 class EnergyBalance:
-    """What an adiabatic solve's derivatives need: per case the species'
-    enthalpies at the outlet (``h_out``) and the inlet (``h_in``), J/mol,
-    the feed's heat capacity at the inlet (``cp_feed``, J/K), the heat
-    capacities at the outlet (``cp_out``), the outlet's ``d ln K / dT`` and
-    the inlet temperature.
+    """What an adiabatic solve's derivatives need.
+
+    Per case the species' enthalpies at the outlet (``h_out``) and the inlet
+    (``h_in``), J/mol, the feed's heat capacity at the inlet (``cp_feed``,
+    J/K), the heat capacities at the outlet (``cp_out``), the outlet's
+    ``d ln K / dT`` (``slope_out``) and the inlet temperature.
 
     The outlet temperature solves ``f = sum n_i h_i(T) - sum n0_i h_i(T_in) = 0``
     with ``n`` at equilibrium at ``T``. For an input ``theta``,
@@ -431,7 +596,15 @@ class EnergyBalance:
 
     __slots__ = ("h_out", "h_in", "cp_feed", "cp_out", "slope_out", "T_in")
 
-    def __init__(self, h_out, h_in, cp_feed, cp_out, slope_out, T_in) -> None:
+    def __init__(
+        self,
+        h_out: np.ndarray,
+        h_in: np.ndarray,
+        cp_feed: np.ndarray,
+        cp_out: np.ndarray,
+        slope_out: np.ndarray,
+        T_in: np.ndarray,
+    ) -> None:
         self.h_out = h_out
         self.h_in = h_in
         self.cp_feed = cp_feed
@@ -439,7 +612,15 @@ class EnergyBalance:
         self.slope_out = slope_out
         self.T_in = T_in
 
-    def hold(self, wrt, dn, d_lnk, d_lnp, d_feed, amounts):
+    def hold(
+        self,
+        wrt: str,
+        dn: np.ndarray,
+        d_lnk: np.ndarray,
+        d_lnp: np.ndarray,
+        d_feed: np.ndarray,
+        amounts: np.ndarray,
+    ) -> tuple[np.ndarray, np.ndarray]:
         """Total derivatives ``(d n, d T_out)`` by ``wrt`` from the isothermal
         ones ``dn`` (at the outlet temperature)."""
         dn_dT = np.einsum("nsr,nr->ns", d_lnk, self.slope_out)

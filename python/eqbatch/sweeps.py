@@ -46,20 +46,25 @@ import errno
 import hashlib
 import json
 import os
+import queue
 import re
 import shutil
 import socket
 import sys
+import threading
 import time
 import zlib
+from collections.abc import Iterator
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
 
 import numpy as np
 
+from eqbatch import _core
+from eqbatch.columns import FEED, ITERATIONS, LNK, PRESSURE, STATUS, TEMPERATURE, output_columns, output_names
 from eqbatch.errors import EqbatchError
-from eqbatch.result import Status
+from eqbatch.status import CONVERGED_CODES, Status, status_words
 from eqbatch.system import ReactionSystem
 
 #: Rows per record batch by default.
@@ -68,17 +73,58 @@ DEFAULT_BATCH_SIZE = 65_536
 #: Bytes of the buffered stream the input is read through.
 _READ_BUFFER = 1 << 20
 
+#: The statuses of rows at equilibrium, as a summary counts them.
+_AT_EQUILIBRIUM = tuple(status_words(code) for code in CONVERGED_CODES)
+
 #: Version of what ``sweep.json`` and the output's ``eqbatch.sweep`` metadata hold.
 _IDENTITY_FORMAT = 2
 
 
 class SweepError(EqbatchError):
-    """A sweep cannot start or continue; the message names the file and column."""
+    """A sweep cannot start or continue; the message names the file and column.
+
+    Examples
+    --------
+    >>> import eqbatch
+    >>> system = eqbatch.ReactionSystem(["CO", "H2O", "CO2", "H2"], ["CO + H2O = CO2 + H2"])
+    >>> eqbatch.sweep(system, "no-such-cases.parquet", "out.parquet")
+    Traceback (most recent call last):
+    ...
+    eqbatch.sweeps.SweepError: no-such-cases.parquet: no such file or folder
+    """
 
 
 @dataclass
 class SweepSummary:
-    """What a sweep did."""
+    """What a sweep did.
+
+    Attributes
+    ----------
+    rows : int
+        Rows in the outputs (solved in this run or kept from an earlier one).
+    by_status : dict of str to int
+        Rows per status, by name (``"converged"``, ``"invalid input"``, ...).
+    seconds : float
+        Wall time of the sweep.
+    files : list of str
+        The outputs written or kept.
+    resumed_batches : int
+        Finished batches taken from an interrupted run.
+    kept : int
+        Rows taken from an earlier run (finished parts, finished output
+        files), not solved in this one.
+    finished_files : list of str
+        Outputs of a folder sweep that were already complete and kept as
+        they were.
+
+    Examples
+    --------
+    >>> summary = SweepSummary(rows=1000, by_status={"converged": 998, "invalid input": 2}, seconds=0.5)
+    >>> summary.converged, summary.solved
+    (998, 1000)
+    >>> summary.line()
+    '1,000 rows, 998 converged, not converged: 2 invalid input; 0.5 s (2,000 rows/s)'
+    """
 
     rows: int = 0
     by_status: dict[str, int] = field(default_factory=dict)
@@ -92,19 +138,33 @@ class SweepSummary:
 
     @property
     def converged(self) -> int:
-        """Rows at equilibrium (``Status.UNDERFLOW`` rows included)."""
-        return self.by_status.get("converged", 0) + self.by_status.get("underflow", 0)
+        """Rows at equilibrium (``Status.UNDERFLOW`` rows included; see the class example)."""
+        return sum(self.by_status.get(name, 0) for name in _AT_EQUILIBRIUM)
 
     @property
     def solved(self) -> int:
-        """Rows solved in this run."""
+        """Rows solved in this run (see the class example)."""
         return self.rows - self.kept
 
     def line(self) -> str:
+        """One line on the sweep, as the command line prints it.
+
+        Returns
+        -------
+        str
+            Rows, how many converged (and how many with species below
+            float64's range), the others by status, time and rows per second
+            (of the rows solved in this run), and the rows kept.
+
+        Examples
+        --------
+        >>> SweepSummary(rows=10, by_status={"converged": 10}, seconds=2.0, kept=4).line()
+        '10 rows, 10 converged; 2.0 s (3 rows/s); 4 rows kept from an earlier run, not counted in the rate'
+        """
         rate = self.solved / self.seconds if self.seconds > 0 else float("inf")
-        at_equilibrium = ("converged", "underflow")
-        others = ", ".join(f"{v:,} {k}" for k, v in sorted(self.by_status.items()) if k not in at_equilibrium)
-        held = self.by_status.get("underflow", 0)
+        not_at_equilibrium = sorted((k, v) for k, v in self.by_status.items() if k not in _AT_EQUILIBRIUM)
+        others = ", ".join(f"{v:,} {k}" for k, v in not_at_equilibrium)
+        held = self.by_status.get(status_words(Status.UNDERFLOW), 0)
         return (
             f"{self.rows:,} rows, {self.converged:,} converged"
             + (f" ({held:,} with species below float64's range)" if held else "")
@@ -114,6 +174,19 @@ class SweepSummary:
         )
 
     def merge(self, other: SweepSummary) -> None:
+        """Add another file's summary to this one (the time is not added).
+
+        Parameters
+        ----------
+        other : SweepSummary
+
+        Examples
+        --------
+        >>> total = SweepSummary(rows=5, by_status={"converged": 5}, files=["a.parquet"])
+        >>> total.merge(SweepSummary(rows=3, by_status={"stalled": 3}, files=["b.parquet"]))
+        >>> total.rows, total.by_status, total.files
+        (8, {'converged': 5, 'stalled': 3}, ['a.parquet', 'b.parquet'])
+        """
         self.rows += other.rows
         for k, v in other.by_status.items():
             self.by_status[k] = self.by_status.get(k, 0) + v
@@ -152,14 +225,15 @@ class _Progress:
         sys.stderr.flush()
 
 
-def _pa():
+def _pa() -> tuple[Any, Any]:
+    """pyarrow and pyarrow.parquet, imported when a sweep first needs them."""
     import pyarrow as pa
     import pyarrow.parquet as pq
 
     return pa, pq
 
 
-def _open(path: Path):
+def _open(path: Path) -> Any:
     """The Parquet file, read row group by row group: no pre-buffering (its
     cache holds every row group read until the reader closes, so memory grew
     with the file, apache/arrow#39808), a buffered stream (memory bounded by
@@ -206,7 +280,7 @@ class _Plan:
         self.feed_cols: list[str | None] = []
         missing = []
         for sp in system.species:
-            col = f"feed_{sp}"
+            col = FEED + sp
             if col in names:
                 need_numeric(col)
                 self.feed_cols.append(col)
@@ -218,16 +292,16 @@ class _Plan:
                 f"{path}: no feed column; expected feed_<species> for {', '.join(system.species)}"
             )
         if missing:
-            say(f"{path}: no column for {', '.join('feed_' + m for m in missing)}: taken as zero feed")
-        self.p_col = "P_bar" if "P_bar" in names else None
+            say(f"{path}: no column for {', '.join(FEED + m for m in missing)}: taken as zero feed")
+        self.p_col = PRESSURE if PRESSURE in names else None
         if self.p_col:
-            need_numeric("P_bar")
+            need_numeric(PRESSURE)
         else:
-            say(f"{path}: no P_bar column: every case at P0 = {system.P0:g} bar")
-        self.t_col = "T_K" if "T_K" in names else None
+            say(f"{path}: no {PRESSURE} column: every case at P0 = {system.P0:g} bar")
+        self.t_col = TEMPERATURE if TEMPERATURE in names else None
         if self.t_col:
-            need_numeric("T_K")
-        lnk = [f"lnK_{label}" for label in system.labels]
+            need_numeric(TEMPERATURE)
+        lnk = [LNK + label for label in system.labels]
         present = [c for c in lnk if c in names]
         if present and len(present) != len(lnk):
             absent = sorted(set(lnk) - set(present))
@@ -243,7 +317,7 @@ class _Plan:
                     f"{path}: missing column(s) {', '.join(lnk)}; the system has no K data for them"
                 )
             if system.needs_T and self.t_col is None:
-                raise SweepError(f"{path}: missing column 'T_K', needed for the system's K(T) data")
+                raise SweepError(f"{path}: missing column {TEMPERATURE!r}, needed for the system's K(T) data")
         fed = [sp for sp, col in zip(system.species, self.feed_cols) if col is not None]
         # every fed species that takes part in a reaction, on either side
         self.conversion = [sp for sp in system.reacting_species() if sp in fed]
@@ -252,16 +326,11 @@ class _Plan:
             raise SweepError(f"{path}: input already has output column(s) {', '.join(clash)}")
 
     def output_names(self) -> list[str]:
-        s = self.system
-        return (
-            [f"n_{x}" for x in s.species]
-            + [f"y_{x}" for x in s.species]
-            + [f"extent_{x}" for x in s.labels]
-            + [f"conversion_{x}" for x in self.conversion]
-            + ["status", "iterations"]
-        )
+        """The columns a batch's solve adds to its input columns."""
+        return output_names(self.system, self.conversion)
 
-    def solve(self, batch: Any, options: dict) -> tuple[Any, np.ndarray]:
+    def solve(self, batch: Any, options: dict[str, Any]) -> tuple[Any, np.ndarray]:
+        """One record batch solved: its columns followed by the outputs, and the statuses."""
         pa, _ = _pa()
         n = batch.num_rows
 
@@ -281,17 +350,10 @@ class _Plan:
         elif self.t_col:
             kw["T"] = column(self.t_col)
         res = self.system.solve(feed, **kw, **options)
-        outs = {}
-        for k, sp in enumerate(self.system.species):
-            outs[f"n_{sp}"] = res.amounts[:, k]
-        for k, sp in enumerate(self.system.species):
-            outs[f"y_{sp}"] = res.mole_fractions[:, k]
-        for j, label in enumerate(self.system.labels):
-            outs[f"extent_{label}"] = res.extents[:, j]
-        for sp in self.conversion:
-            outs[f"conversion_{sp}"] = res.conversion(sp)
-        outs["status"] = res.status
-        outs["iterations"] = res.iterations
+        conversions = {sp: res.conversion(sp) for sp in self.conversion}
+        outs = output_columns(
+            self.system, res.amounts, res.mole_fractions, res.extents, res.status, res.iterations, conversions
+        )
         arrays = list(batch.columns) + [pa.array(v) for v in outs.values()]
         table = pa.Table.from_arrays(arrays, names=self.names + list(outs))
         return table, res.status
@@ -312,12 +374,12 @@ def _refuse_unknown_columns(system: ReactionSystem, path: Path, names: list[str]
         return found
 
     problems = []
-    feeds = unknown("feed_", system.species)
+    feeds = unknown(FEED, system.species)
     if feeds:
         problems.append(
             f"{', '.join(feeds)} name(s) no species of the system (its species: {', '.join(system.species)})"
         )
-    lnks = unknown("lnK_", system.labels)
+    lnks = unknown(LNK, system.labels)
     if lnks:
         problems.append(
             f"{', '.join(lnks)} name(s) no reaction of the system (its reactions: {', '.join(system.labels)})"
@@ -334,8 +396,6 @@ def _identity(system: ReactionSystem, path: Path, pf: Any, options: dict) -> dic
     (SHA-256 of the file's bytes: a file rewritten with other rows of the same
     size and time differs), the system by content, and the settings that change
     results (``threads`` and the batch size do not)."""
-    from eqbatch import __version__
-
     digest = hashlib.sha256()
     with open(path, "rb") as f:
         while block := f.read(8 << 20):
@@ -344,10 +404,10 @@ def _identity(system: ReactionSystem, path: Path, pf: Any, options: dict) -> dic
         "format": _IDENTITY_FORMAT,
         "input_sha256": digest.hexdigest(),
         "input_rows": pf.metadata.num_rows,
-        "system_sha256": hashlib.sha256(repr(system._spec).encode()).hexdigest(),
+        "system_sha256": hashlib.sha256(repr(system.arguments()).encode()).hexdigest(),
         "tol": float(options["tol"]),
         "max_iter": int(options["max_iter"]),
-        "eqbatch": __version__,
+        "eqbatch": _core.__version__,
     }
 
 
@@ -587,7 +647,7 @@ def _sweep_locked(
                 say(f"{path}: damaged (its checksum or size does not match): its rows are solved again")
                 break
             writer.put(table)
-            _count(summary, table.column("status").to_numpy())
+            _count(summary, table.column(STATUS).to_numpy())
             summary.resumed_batches += 1
             summary.kept += rows
             done += rows
@@ -596,7 +656,7 @@ def _sweep_locked(
         for batch in _input_batches(pf, src, done, batch_size):
             table, _ = plan.solve(batch, options)
             writer.put(table, done)
-            _count(summary, table.column("status").to_numpy())
+            _count(summary, table.column(STATUS).to_numpy())
             done += batch.num_rows
             progress.update(done)
         progress.update(done, final=True)
@@ -643,7 +703,7 @@ def _kept_output(dst: Path) -> SweepSummary:
     """The summary of a finished output kept as it is (its statuses counted
     batch by batch: memory does not grow with the file)."""
     summary = SweepSummary(files=[str(dst)], finished_files=[str(dst)])
-    for batch in _input_batches(_open(dst), dst, 0, DEFAULT_BATCH_SIZE, columns=["status"]):
+    for batch in _input_batches(_open(dst), dst, 0, DEFAULT_BATCH_SIZE, columns=[STATUS]):
         _count(summary, batch.column(0).to_numpy())
     summary.kept = summary.rows
     return summary
@@ -682,7 +742,9 @@ def _remove_parts_from(partial: Path, row: int) -> None:
             path.unlink()
 
 
-def _input_batches(pf: Any, path: Path, start: int, batch_size: int, columns: list | None = None):
+def _input_batches(
+    pf: Any, path: Path, start: int, batch_size: int, columns: list[str] | None = None
+) -> Iterator[Any]:
     """The rows of ``pf`` from row ``start`` on, in record batches (reading
     begins at the row group holding ``start``). A read error, such as a page
     whose checksum fails, is an error naming the file."""
@@ -750,9 +812,6 @@ class _BackgroundWriter:
     the file's metadata says what it was made of."""
 
     def __init__(self, path: Path, partial: Path, metadata: dict) -> None:
-        import queue
-        import threading
-
         self.path = path
         self.partial = partial
         self.metadata = metadata
@@ -806,7 +865,7 @@ def _empty_output(plan: _Plan, schema: Any) -> Any:
     pa, _ = _pa()
     fields = list(schema)
     for name in plan.output_names():
-        kind = pa.uint8() if name == "status" else pa.uint32() if name == "iterations" else pa.float64()
+        kind = pa.uint8() if name == STATUS else pa.uint32() if name == ITERATIONS else pa.float64()
         fields.append(pa.field(name, kind))
     return pa.schema(fields).empty_table()
 
@@ -815,11 +874,11 @@ def _count(summary: SweepSummary, status: np.ndarray) -> None:
     codes, counts = np.unique(status, return_counts=True)
     summary.rows += int(status.size)
     for code, count in zip(codes, counts):
-        name = Status(int(code)).name.lower().replace("_", " ")
+        name = status_words(code)
         summary.by_status[name] = summary.by_status.get(name, 0) + int(count)
 
 
-def _sweep_task(system, src, dst, kwargs):
+def _sweep_task(system: ReactionSystem, src: Path, dst: Path, kwargs: dict[str, Any]) -> SweepSummary:
     """One Dask task: a whole input file (runs on a worker)."""
     kwargs = dict(kwargs, quiet=True, say=lambda msg: None)
     return sweep_file(system, src, dst, **kwargs)
@@ -867,14 +926,39 @@ def sweep(
     client, scheduler
         A ``distributed.Client`` or a scheduler address: the files of a folder
         input are solved as Dask tasks, one per file, on the cluster.
+    threads : int, optional
+        Worker threads per solve (default: all cores).
+    tol, max_iter
+        As for :meth:`ReactionSystem.solve`.
 
     Returns
     -------
     SweepSummary
+
+    Raises
+    ------
+    SweepError
+        A missing, unreadable or ill-formed input (naming the file and the
+        column), an output that exists or is an input, another sweep writing
+        the same output, or a resume whose input, system or settings differ.
+
+    Examples
+    --------
+    >>> import tempfile, pyarrow as pa, pyarrow.parquet as pq
+    >>> from eqbatch.demo import reformer_system
+    >>> cases = pa.table({"feed_CH4": [1.0, 1.0], "feed_H2O": [3.0, 3.0], "T_K": [900.0, 1100.0]})
+    >>> with tempfile.TemporaryDirectory() as folder:
+    ...     pq.write_table(cases, f"{folder}/cases.parquet")
+    ...     summary = sweep(reformer_system(), f"{folder}/cases.parquet", f"{folder}/out.parquet", quiet=True)
+    ...     columns = pq.read_table(f"{folder}/out.parquet").column_names
+    >>> summary.rows, summary.converged
+    (2, 2)
+    >>> columns[:3], columns[-4:]
+    (['feed_CH4', 'feed_H2O', 'T_K'], ['conversion_CH4', 'conversion_H2O', 'status', 'iterations'])
     """
     src, dst = Path(input), Path(output)
     options = {"tol": tol, "max_iter": max_iter, "threads": threads}
-    kwargs = {
+    kwargs: dict[str, Any] = {
         "batch_size": batch_size,
         "resume": resume,
         "overwrite": overwrite,

@@ -1,4 +1,4 @@
-"""Reading system files (TOML).
+"""Reading system files (TOML) into a :class:`~eqbatch.spec.SystemSpec`.
 
 ::
 
@@ -38,20 +38,32 @@ from __future__ import annotations
 
 import os
 import sys
+from collections.abc import Callable
+from types import ModuleType
 from typing import Any
 
+from eqbatch.definition import define
 from eqbatch.errors import SystemDefinitionError, SystemFileError
-
-if sys.version_info >= (3, 11):
-    import tomllib
-else:  # pragma: no cover
-    import tomli as tomllib
+from eqbatch.kdata import as_lnk_data
+from eqbatch.spec import SystemSpec
 
 _TOP_KEYS = {"species", "phases", "formulas", "reactions", "P0", "check_balance", "species_data", "thermo"}
 _REACTION_KEYS = {"label", "equation", "lnK", "K", "log10K"}
 
 
-def _thermo_source(doc: dict, fail) -> str | None:
+def _toml() -> ModuleType:
+    """The TOML reader (the standard library's from Python 3.11, else tomli),
+    loaded when a file is first read."""
+    if sys.version_info >= (3, 11):
+        import tomllib
+
+        return tomllib
+    import tomli  # pragma: no cover
+
+    return tomli  # pragma: no cover
+
+
+def _thermo_source(doc: dict[str, Any], fail: Callable[[str], SystemFileError]) -> str | None:
     table = doc.get("thermo")
     if table is None:
         return None
@@ -60,12 +72,38 @@ def _thermo_source(doc: dict, fail) -> str | None:
     return str(table["source"])
 
 
-def load_system(path: str | os.PathLike[str]):  # -> ReactionSystem
-    """Build a :class:`~eqbatch.ReactionSystem` from a TOML system file."""
-    from eqbatch.kdata import as_lnk_data
-    from eqbatch.system import ReactionSystem
+def read_spec(path: str | os.PathLike[str]) -> SystemSpec:
+    """The checked description of the system in a TOML file.
 
+    :meth:`ReactionSystem.from_toml <eqbatch.ReactionSystem.from_toml>` is
+    the usual way to read one.
+
+    Parameters
+    ----------
+    path : str or path-like
+
+    Returns
+    -------
+    SystemSpec
+
+    Raises
+    ------
+    SystemFileError
+        The file is missing, unreadable, not TOML or has a bad key or value
+        (the message names the file and the key).
+    SystemDefinitionError
+        The system is malformed (the message starts with the file's name).
+
+    Examples
+    --------
+    >>> from importlib import resources
+    >>> with resources.as_file(resources.files("eqbatch") / "data/reformer.toml") as path:
+    ...     spec = read_spec(path)
+    >>> spec.species, spec.P0
+    (('CH4', 'H2O', 'CO', 'H2', 'CO2', 'N2'), 1.0)
+    """
     name = os.fspath(path)
+    tomllib = _toml()
     try:
         with open(name, "rb") as fh:
             doc = tomllib.load(fh)
@@ -97,11 +135,14 @@ def load_system(path: str | os.PathLike[str]):  # -> ReactionSystem
     if species_data is not None and not isinstance(species_data, dict):
         raise fail("[species_data] must hold one table per species, e.g. [species_data.CH4]")
     auto = isinstance(reactions, str) and reactions.strip().lower() == "auto"
-    if not auto and (not isinstance(reactions, list) or not reactions):
-        raise fail("needs at least one [[reactions]] table with an 'equation' (or reactions = \"auto\")")
-    pairs: list[tuple[str, str]] | str = "auto" if auto else []
+    tables: list[Any] = []
+    if not auto:
+        if not isinstance(reactions, list) or not reactions:
+            raise fail("needs at least one [[reactions]] table with an 'equation' (or reactions = \"auto\")")
+        tables = reactions
+    pairs: list[tuple[str, str]] = []
     lnk: dict[str, Any] = {}
-    for j, table in enumerate([] if auto else reactions):
+    for j, table in enumerate(tables):
         where = f"reactions[{j}]"
         if not isinstance(table, dict):
             raise fail(f"{where} must be a table")
@@ -111,7 +152,7 @@ def load_system(path: str | os.PathLike[str]):  # -> ReactionSystem
         if "equation" not in table or not isinstance(table["equation"], str):
             raise fail(f"{where}: missing 'equation' (a string such as \"CO + H2O = CO2 + H2\")")
         label = str(table.get("label", f"r{j + 1}"))
-        pairs.append((label, table["equation"]))  # type: ignore[union-attr]
+        pairs.append((label, table["equation"]))
         kinds = [k for k in ("lnK", "K", "log10K") if k in table]
         if len(kinds) > 1:
             raise fail(f"{where} ({label}): give only one of lnK, K, log10K")
@@ -127,9 +168,9 @@ def load_system(path: str | os.PathLike[str]):  # -> ReactionSystem
     if not isinstance(check_balance, bool):
         raise fail(f"check_balance must be true or false (a TOML boolean, unquoted), got {check_balance!r}")
     try:
-        return ReactionSystem(
+        return define(
             species,
-            pairs,
+            "auto" if auto else pairs,
             phases=doc.get("phases"),
             formulas=doc.get("formulas"),
             P0=doc.get("P0", 1.0),

@@ -42,11 +42,42 @@ def lnK_covariance(
 ) -> np.ndarray:
     """The (R, R) covariance matrix of ln K implied by the given uncertainties.
 
+    Parameters
+    ----------
+    system : ReactionSystem
+    lnK_sigma : sequence or mapping label -> float, optional
+        Standard deviations of ln K (one value for all, one per reaction, or
+        by label; unlisted reactions are certain).
+    dG_sigma : sequence or mapping label -> float, optional
+        Standard deviations of the standard reaction Gibbs energies, kJ/mol
+        (needs ``T``): ``sigma_lnK = sigma_G / (R T)``.
+    correlation : array_like, shape (R, R), optional
+        Correlation between the reactions' ln K (with ``lnK_sigma`` or
+        ``dG_sigma``); default independent.
+    species_dG_sigma : mapping species -> float, optional
+        Independent standard deviations of the species' Gibbs energies of
+        formation, kJ/mol (needs ``T``): ``nu diag(sigma^2) nu^T / (R T)^2``.
+    T : float, optional
+        Temperature, K.
+
+    Returns
+    -------
+    ndarray, shape (R, R)
+
+    Raises
+    ------
+    CaseInputError
+        Not exactly one kind of uncertainty, a missing ``T``, an unknown
+        label, a negative or non-finite sigma, or a correlation matrix that
+        is not symmetric positive semi-definite with unit diagonal.
+
     Examples
     --------
-    >>> s = ReactionSystem(["A", "B", "C"], ["A = B", "B = C"])
-    >>> lnK_covariance(s, species_dG_sigma={"B": 2.0}, T=500.0).round(3).tolist()
-    [[0.232, -0.232], [-0.232, 0.232]]
+    Reactions that share a species share its uncertainty, with opposite signs here:
+
+    >>> s = ReactionSystem(["Xa", "Xb", "Xc"], ["Xa = Xb", "Xb = Xc"])
+    >>> lnK_covariance(s, species_dG_sigma={"Xb": 2.0}, T=500.0).round(3).tolist()
+    [[0.231, -0.231], [-0.231, 0.231]]
     """
     given = [x is not None for x in (lnK_sigma, dG_sigma, species_dG_sigma)]
     if sum(given) != 1:
@@ -56,8 +87,8 @@ def lnK_covariance(
         if T is None:
             raise CaseInputError("species_dG_sigma needs the temperature T (K)")
         var = np.zeros(system.n_species)
-        for name, sigma in species_dG_sigma.items():
-            var[system.index(name)] = _sigma(sigma, "species_dG_sigma", name) ** 2
+        for name, value in species_dG_sigma.items():
+            var[system.index(name)] = _sigma(value, "species_dG_sigma", name) ** 2
         if correlation is not None:
             raise CaseInputError(
                 "species Gibbs energies are taken as independent; correlation= does not apply"
@@ -117,7 +148,24 @@ def _sqrt_psd(cov: np.ndarray) -> np.ndarray:
 @dataclass
 class Summary:
     """Monte Carlo statistics of one output array (last axis: species or
-    reactions), each with its Monte Carlo standard error."""
+    reactions), each with its Monte Carlo standard error.
+
+    Attributes
+    ----------
+    names : tuple of str
+        The species or reactions.
+    mean, std : ndarray
+        Sample mean and standard deviation.
+    percentiles : dict of float to ndarray
+        Sample percentiles.
+    mean_se, std_se : ndarray
+        Their Monte Carlo standard errors.
+    percentile_se : dict of float to ndarray
+        Standard errors of the percentiles (order-statistic intervals).
+    linear_std : ndarray or None
+        The first-order (delta-method) standard deviation, from
+        :meth:`MonteCarloResult.summary`.
+    """
 
     names: tuple[str, ...]
     mean: np.ndarray
@@ -129,6 +177,22 @@ class Summary:
     linear_std: np.ndarray | None = None
 
     def table(self) -> str:
+        """The statistics as a text table, one row per output.
+
+        Returns
+        -------
+        str
+            Columns: output, mean, its standard error, std, its standard
+            error, the percentiles, and the first-order std where known.
+
+        Examples
+        --------
+        >>> summary = summarise(np.array([[1.0], [2.0], [3.0], [4.0]]), ["x"], [50.0])
+        >>> print(summary.table())
+        output  mean  +-se  std    +-se  p50
+        ------  ----  ----  -----  ----  ---
+        x       2.5   0.65  1.291  0.53  2.5
+        """
         qs = sorted(self.percentiles)
         head = ["output", "mean", "+-se", "std", "+-se"] + [f"p{q:g}" for q in qs]
         if self.linear_std is not None:
@@ -183,10 +247,14 @@ def summarise(values: np.ndarray, names: Sequence[str], percentiles: Sequence[fl
 
 @dataclass
 class MonteCarloResult:
-    """Samples of one case's equilibrium under uncertain ln K.
+    """Samples of one case's equilibrium under uncertain ln K (from :func:`monte_carlo`).
+
+    Outputs are named by kind (``of``: ``"amounts"``, ``"mole_fractions"``,
+    ``"extents"`` or ``"conversion"``) and by species or reaction label.
 
     Attributes
     ----------
+    system : ReactionSystem
     amounts, mole_fractions : ndarray, shape (samples, S)
     extents : ndarray, shape (samples, R)
     lnK : ndarray, shape (samples, R)
@@ -196,6 +264,17 @@ class MonteCarloResult:
         The solve at the nominal ln K, with sensitivities.
     covariance : ndarray, shape (R, R)
         Covariance of ln K used for sampling.
+    feed : ndarray, shape (S,)
+        The case's feed.
+    percentiles : tuple of float
+        Percentiles :meth:`summary` reports.
+
+    Examples
+    --------
+    >>> s = ReactionSystem(["CO", "H2O", "CO2", "H2"], ["CO + H2O = CO2 + H2"])
+    >>> mc = monte_carlo(s, feed=[1, 1, 0, 0], lnK=[1.0], lnK_sigma=[0.3], samples=1000, seed=1)
+    >>> mc.samples, mc.amounts.shape, round(mc.nominal_value("conversion", "CO"), 4)
+    (1000, (1000, 4), 0.6225)
     """
 
     system: ReactionSystem
@@ -212,9 +291,12 @@ class MonteCarloResult:
 
     @property
     def samples(self) -> int:
-        return self.amounts.shape[0]
+        """Number of samples (see the class example)."""
+        return int(self.amounts.shape[0])
 
-    def _values(self, of: str, amounts: np.ndarray, fractions: np.ndarray, extents: np.ndarray):
+    def _values(
+        self, of: str, amounts: np.ndarray, fractions: np.ndarray, extents: np.ndarray
+    ) -> tuple[np.ndarray, tuple[str, ...]]:
         """One output (rows of cases) from amounts, mole fractions and extents, with its names."""
         if of == "amounts":
             return amounts, tuple(self.system.species)
@@ -251,9 +333,34 @@ class MonteCarloResult:
         return values, names, jac
 
     def summary(self, of: str = "mole_fractions") -> Summary:
-        """Statistics of an output with Monte Carlo standard errors, and the
-        first-order (delta-method) standard deviation ``sqrt(J C J^T)`` beside
-        them so one can see when linearisation is not enough."""
+        """Statistics of an output over the converged samples.
+
+        With Monte Carlo standard errors, and the first-order (delta-method)
+        standard deviation ``sqrt(J C J^T)`` beside them so one can see when
+        linearisation is not enough.
+
+        Parameters
+        ----------
+        of : {"mole_fractions", "amounts", "extents", "conversion"}
+            ``"conversion"`` covers the fed species that react.
+
+        Returns
+        -------
+        Summary
+
+        Raises
+        ------
+        CaseInputError
+            An unknown ``of``.
+
+        Examples
+        --------
+        >>> s = ReactionSystem(["CO", "H2O", "CO2", "H2"], ["CO + H2O = CO2 + H2"])
+        >>> mc = monte_carlo(s, feed=[1, 1, 0, 0], lnK=[1.0], lnK_sigma=[0.1], samples=4000, seed=1)
+        >>> summary = mc.summary("conversion")
+        >>> summary.names, bool(abs(summary.std[0] - summary.linear_std[0]) < 0.1 * summary.linear_std[0])
+        (('CO', 'H2O'), True)
+        """
         values, names, jac = self._output(of)
         ok = self.converged
         out = summarise(values[ok], names, self.percentiles)
@@ -261,13 +368,60 @@ class MonteCarloResult:
         return out
 
     def nominal_value(self, of: str, name: str) -> float:
-        """An output at the nominal ln K."""
+        """An output at the nominal ln K.
+
+        Parameters
+        ----------
+        of : {"amounts", "mole_fractions", "extents", "conversion"}
+        name : str
+            Species or reaction label.
+
+        Returns
+        -------
+        float
+
+        Raises
+        ------
+        CaseInputError
+            ``name`` is not among the outputs ``of``.
+
+        Examples
+        --------
+        >>> s = ReactionSystem(["CO", "H2O", "CO2", "H2"], ["CO + H2O = CO2 + H2"])
+        >>> mc = monte_carlo(s, feed=[1, 1, 0, 0], lnK=[0.0], lnK_sigma=[0.3], samples=100, seed=1)
+        >>> mc.nominal_value("mole_fractions", "H2")
+        0.25
+        """
         n = self.nominal
         values, _ = self._values(of, n.amounts, n.mole_fractions, n.extents)
         return float(values[0, self._position(of, name)])
 
     def values(self, of: str, name: str) -> np.ndarray:
-        """``(samples,)`` samples of one output, e.g. ``values("conversion", "CH4")``."""
+        """The samples of one output, e.g. ``values("conversion", "CH4")``.
+
+        Parameters
+        ----------
+        of : {"amounts", "mole_fractions", "extents", "conversion"}
+        name : str
+            Species or reaction label.
+
+        Returns
+        -------
+        ndarray, shape (samples,)
+            NaN for samples that did not converge.
+
+        Raises
+        ------
+        CaseInputError
+            ``name`` is not among the outputs ``of``.
+
+        Examples
+        --------
+        >>> s = ReactionSystem(["CO", "H2O", "CO2", "H2"], ["CO + H2O = CO2 + H2"])
+        >>> mc = monte_carlo(s, feed=[1, 1, 0, 0], lnK=[0.0], lnK_sigma=[0.3], samples=100, seed=1)
+        >>> mc.values("extents", "r1").shape
+        (100,)
+        """
         k = self._position(of, name)
         values, _, _ = self._output(of)
         return values[:, k]
@@ -275,8 +429,35 @@ class MonteCarloResult:
     def probability(
         self, of: str, name: str, *, at_least: float | None = None, at_most: float | None = None
     ) -> tuple[float, float]:
-        """Probability (and its Monte Carlo standard error) that an output
-        meets a limit, e.g. ``probability("conversion", "CH4", at_least=0.9)``."""
+        """Probability that an output meets a limit, with its Monte Carlo standard error.
+
+        Parameters
+        ----------
+        of : {"amounts", "mole_fractions", "extents", "conversion"}
+        name : str
+            Species or reaction label.
+        at_least, at_most : float
+            The limit; give exactly one.
+
+        Returns
+        -------
+        (float, float)
+            The fraction of converged samples meeting it, and its standard
+            error ``sqrt(p (1 - p) / n)``.
+
+        Raises
+        ------
+        CaseInputError
+            Not exactly one limit, or an unknown output.
+
+        Examples
+        --------
+        >>> s = ReactionSystem(["CO", "H2O", "CO2", "H2"], ["CO + H2O = CO2 + H2"])
+        >>> mc = monte_carlo(s, feed=[1, 1, 0, 0], lnK=[0.0], lnK_sigma=[0.3], samples=4000, seed=1)
+        >>> p, se = mc.probability("conversion", "CO", at_least=0.5)   # 0.5 is the nominal
+        >>> bool(abs(p - 0.5) < 3 * se + 0.01)
+        True
+        """
         if (at_least is None) == (at_most is None):
             raise CaseInputError("give exactly one of at_least=, at_most=")
         v = self.values(of, name)[self.converged]
@@ -285,12 +466,37 @@ class MonteCarloResult:
         return p, math.sqrt(max(p * (1 - p), 0.0) / max(v.size, 1))
 
     def ranking(self, of: str, name: str) -> list[tuple[str, float, float]]:
-        """Which reaction's uncertainty matters most for one output:
-        ``(label, first-order share of variance, sampled share)`` per
-        reaction, largest first. The first-order share is
-        ``J_r (C J^T)_r / (J C J^T)``; the sampled one is the squared
-        correlation of the output with that reaction's ln K (they agree when
-        the response is linear and the constants independent)."""
+        """Which reaction's uncertainty matters most for one output.
+
+        The first-order share is ``J_r (C J^T)_r / (J C J^T)``; the sampled one
+        is the squared correlation of the output with that reaction's ln K
+        (they agree when the response is linear and the constants independent).
+
+        Parameters
+        ----------
+        of : {"amounts", "mole_fractions", "extents", "conversion"}
+        name : str
+            Species or reaction label.
+
+        Returns
+        -------
+        list of (str, float, float)
+            ``(label, first-order share of variance, sampled share)`` per
+            reaction, largest first-order share first.
+
+        Raises
+        ------
+        CaseInputError
+            An unknown output.
+
+        Examples
+        --------
+        >>> from eqbatch.demo import reformer_feed, reformer_system
+        >>> mc = monte_carlo(reformer_system(), feed=reformer_feed(3.0)[0], T=1050.0, P=20.0,
+        ...                  dG_sigma={"reforming": 3.0, "shift": 0.3}, samples=2000, seed=1)
+        >>> [label for label, first, sampled in mc.ranking("conversion", "CH4")]
+        ['reforming', 'shift']
+        """
         k = self._position(of, name)
         values, _, jac = self._output(of)
         j = jac[k]
@@ -308,8 +514,34 @@ class MonteCarloResult:
         return sorted(rows, key=lambda row: -abs(row[1]))
 
     def tornado(self, of: str, name: str) -> list[tuple[str, float, float]]:
-        """Output at nominal ln K shifted by -1 and +1 standard deviation of
-        each reaction in turn (full nonlinear solves): ``(label, low, high)``."""
+        """An output with each reaction's ln K moved by one standard deviation.
+
+        Full nonlinear solves at the nominal ln K shifted by -1 and +1
+        standard deviation of each reaction in turn (a tornado chart's bars).
+
+        Parameters
+        ----------
+        of : {"amounts", "mole_fractions", "extents", "conversion"}
+        name : str
+            Species or reaction label.
+
+        Returns
+        -------
+        list of (str, float, float)
+            ``(label, output at -1 sigma, output at +1 sigma)``, widest swing first.
+
+        Raises
+        ------
+        CaseInputError
+            An unknown output.
+
+        Examples
+        --------
+        >>> s = ReactionSystem(["CO", "H2O", "CO2", "H2"], ["CO + H2O = CO2 + H2"])
+        >>> mc = monte_carlo(s, feed=[1, 1, 0, 0], lnK=[0.0], lnK_sigma=[0.3], samples=100, seed=1)
+        >>> [(label, round(low, 4), round(high, 4)) for label, low, high in mc.tornado("conversion", "CO")]
+        [('r1', 0.4626, 0.5374)]
+        """
         k = self._position(of, name)
         sigma = np.sqrt(np.diag(self.covariance))
         base = self.nominal.lnK[0]
@@ -336,7 +568,7 @@ def monte_carlo(
     correlation: np.ndarray | None = None,
     species_dG_sigma: Mapping[str, float] | None = None,
     samples: int = 10_000,
-    seed: int | None = None,
+    seed: int | np.random.SeedSequence | None = None,
     percentiles: Sequence[float] = (5.0, 50.0, 95.0),
     threads: int | None = None,
 ) -> MonteCarloResult:
@@ -355,13 +587,23 @@ def monte_carlo(
         Nominal ln K (instead of K(T)).
     lnK_sigma, dG_sigma, correlation, species_dG_sigma
         The uncertainty; see the module docs and :func:`lnK_covariance`.
-    samples : int
-    seed : int, optional
+    samples : int, default 10000
+    seed : int or numpy.random.SeedSequence, optional
         Seed of the numpy Generator: the same seed gives the same samples.
+    percentiles : sequence of float, default (5, 50, 95)
+        Percentiles the summaries report.
+    threads : int, optional
+        Worker threads of the solves.
 
     Returns
     -------
     MonteCarloResult
+
+    Raises
+    ------
+    CaseInputError
+        ``samples`` not a positive integer, more than one case, or a bad
+        uncertainty (see :func:`lnK_covariance`).
 
     Examples
     --------
@@ -416,12 +658,47 @@ def monte_carlo_table(
     threads: int | None = None,
     **uncertainty: Any,
 ) -> dict[str, np.ndarray]:
-    """Monte Carlo for a whole table of cases without holding every sample:
-    each case is sampled and summarised in turn. Returns arrays of shape
-    (N, S) (or (N, R) for extents): ``mean``, ``std``, ``p<q>`` for each
-    percentile, and ``linear_std``. Case ``k`` uses the seed sequence
-    spawned from ``seed`` for index ``k``, so results are reproducible and do
-    not depend on the table's order of evaluation."""
+    """Monte Carlo for a whole table of cases without holding every sample.
+
+    Each case is sampled and summarised in turn. Case ``k`` uses the seed
+    sequence spawned from ``seed`` for index ``k``, so results are
+    reproducible and do not depend on the table's order of evaluation.
+
+    Parameters
+    ----------
+    system : ReactionSystem
+    feed, P, T, lnK
+        The cases, as for :meth:`ReactionSystem.solve` (broadcast).
+    samples : int, default 1000
+        Samples per case.
+    seed : int, optional
+    of : {"mole_fractions", "amounts", "extents", "conversion"}
+        The output summarised.
+    percentiles : sequence of float, default (5, 50, 95)
+    threads : int, optional
+    **uncertainty
+        ``lnK_sigma``, ``dG_sigma``, ``correlation`` or ``species_dG_sigma``
+        (see :func:`lnK_covariance`).
+
+    Returns
+    -------
+    dict of str to ndarray
+        Arrays of shape (N, S) (or (N, R) for extents): ``mean``, ``std``,
+        ``linear_std`` and ``p<q>`` for each percentile ``q``.
+
+    Raises
+    ------
+    CaseInputError
+        As for :func:`monte_carlo`.
+
+    Examples
+    --------
+    >>> s = ReactionSystem(["CO", "H2O", "CO2", "H2"], ["CO + H2O = CO2 + H2"])
+    >>> table = monte_carlo_table(s, feed=[[1, 1, 0, 0], [1, 3, 0, 0]], lnK=[0.0], lnK_sigma=[0.2],
+    ...                           samples=500, seed=1, of="conversion")
+    >>> sorted(table), table["mean"].shape
+    (['linear_std', 'mean', 'p5', 'p50', 'p95', 'std'], (2, 2))
+    """
     base = system.solve(feed, lnK=lnK, T=T, P=P)
     n = len(base)
     T_rows = None if base.T is None else np.asarray(base.T)
@@ -441,6 +718,7 @@ def monte_carlo_table(
             **uncertainty,
         )
         summ = mc.summary(of)
+        assert summ.linear_std is not None  # MonteCarloResult.summary gives it
         out.setdefault("mean", []).append(summ.mean)
         out.setdefault("std", []).append(summ.std)
         out.setdefault("linear_std", []).append(summ.linear_std)

@@ -1,0 +1,124 @@
+"""The names of the columns of result tables, in one place.
+
+A result table (``result.to_pandas()``, ``result.to_arrow()``, a Parquet
+sweep's output) has the inputs ``feed_<species>``, ``P_bar``, ``T_K`` and
+``lnK_<label>``, then the outputs ``n_<species>``, ``y_<species>``,
+``extent_<label>``, ``conversion_<species>`` (sweeps: the fed species that
+react), ``status`` and ``iterations``.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Iterable, Mapping
+
+import numpy as np
+
+from eqbatch.errors import CaseInputError
+from eqbatch.spec import SystemSpec
+
+FEED = "feed_"
+LNK = "lnK_"
+PRESSURE = "P_bar"
+TEMPERATURE = "T_K"
+STATUS = "status"
+ITERATIONS = "iterations"
+
+AMOUNT = "n_"
+FRACTION = "y_"
+EXTENT = "extent_"
+CONVERSION = "conversion_"
+
+#: Prefix of each per-species or per-reaction output column, with the
+#: result attribute it holds (``conversion`` is ``result.conversion(species)``).
+OUTPUTS = {AMOUNT: "amounts", FRACTION: "mole_fractions", EXTENT: "extents", CONVERSION: "conversion"}
+
+
+def input_names(spec: SystemSpec, *, temperature: bool) -> list[str]:
+    """``feed_<species>``, ``P_bar``, ``T_K`` (with ``temperature``), ``lnK_<label>``.
+
+    Examples
+    --------
+    >>> from eqbatch import ReactionSystem
+    >>> input_names(ReactionSystem(["Xa", "Xb"], {"iso": "Xa = Xb"}), temperature=True)
+    ['feed_Xa', 'feed_Xb', 'P_bar', 'T_K', 'lnK_iso']
+    """
+    return (
+        [FEED + name for name in spec.species]
+        + [PRESSURE]
+        + ([TEMPERATURE] if temperature else [])
+        + [LNK + label for label in spec.labels]
+    )
+
+
+def output_names(spec: SystemSpec, converted: Iterable[str] = ()) -> list[str]:
+    """``n_<species>``, ``y_<species>``, ``extent_<label>``, ``conversion_<c>``
+    for each species ``c`` in ``converted``, ``status``, ``iterations``.
+
+    Examples
+    --------
+    >>> from eqbatch import ReactionSystem
+    >>> output_names(ReactionSystem(["Xa", "Xb"], {"iso": "Xa = Xb"}), ["Xa"])
+    ['n_Xa', 'n_Xb', 'y_Xa', 'y_Xb', 'extent_iso', 'conversion_Xa', 'status', 'iterations']
+    """
+    return (
+        [AMOUNT + name for name in spec.species]
+        + [FRACTION + name for name in spec.species]
+        + [EXTENT + label for label in spec.labels]
+        + [CONVERSION + name for name in converted]
+        + [STATUS, ITERATIONS]
+    )
+
+
+def input_columns(
+    spec: SystemSpec, feed: np.ndarray, P: np.ndarray, T: np.ndarray | None, lnK: np.ndarray
+) -> dict[str, np.ndarray]:
+    """The input columns (:func:`input_names`) of ``N`` cases, as views of the arrays."""
+    values = [*feed.T, P, *([] if T is None else [T]), *lnK.T]
+    return dict(zip(input_names(spec, temperature=T is not None), values))
+
+
+def output_columns(
+    spec: SystemSpec,
+    amounts: np.ndarray,
+    mole_fractions: np.ndarray,
+    extents: np.ndarray,
+    status: np.ndarray,
+    iterations: np.ndarray,
+    conversions: Mapping[str, np.ndarray] | None = None,
+) -> dict[str, np.ndarray]:
+    """The output columns (:func:`output_names`) of ``N`` cases, as views of the arrays."""
+    conversions = conversions or {}
+    values = [*amounts.T, *mole_fractions.T, *extents.T, *conversions.values(), status, iterations]
+    return dict(zip(output_names(spec, conversions), values))
+
+
+def parse_output(name: str) -> tuple[str, str]:
+    """What an output column holds: ``"y_H2"`` -> ``("mole_fractions", "H2")``.
+
+    Parameters
+    ----------
+    name : str
+        ``n_<species>``, ``y_<species>``, ``extent_<label>`` or ``conversion_<species>``.
+
+    Returns
+    -------
+    (str, str)
+        The result attribute (``amounts``, ``mole_fractions``, ``extents``,
+        ``conversion``) and the species or reaction label.
+
+    Raises
+    ------
+    CaseInputError
+        ``name`` has none of these prefixes.
+
+    Examples
+    --------
+    >>> parse_output("y_H2"), parse_output("extent_shift")
+    (('mole_fractions', 'H2'), ('extents', 'shift'))
+    """
+    prefix, sep, rest = name.partition("_")
+    if not sep or prefix + sep not in OUTPUTS or not rest:
+        raise CaseInputError(
+            f"output {name!r} must be n_<species>, y_<species>, extent_<label> or conversion_<species>"
+        )
+    return OUTPUTS[prefix + sep], rest
