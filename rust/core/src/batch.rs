@@ -325,8 +325,10 @@ pub fn solve_batch(
     let kernel = kernel_for(r, s, gas_only);
 
     // All-gas small systems solve their eligible cases in vector lanes
-    // (chained starts, which need the case before, go one at a time).
-    let lane_kernel = if gas_only && !options.chain {
+    // (chained starts, which need the case before, go one at a time; a
+    // system too large to bound its bases' residuals goes to the general
+    // solve, see `System::basis_gain`).
+    let lane_kernel = if gas_only && !options.chain && system.basis_gain().is_some() {
         lane_kernel_for(r, s)
     } else {
         None

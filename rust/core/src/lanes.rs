@@ -13,7 +13,8 @@
 //! extents of the reactions as given: same start (the caller's extents where
 //! they are strictly feasible, else the interior start), same Gibbs merit,
 //! same line-search acceptance, fraction-to-boundary steps on the straight
-//! line (to 90 % of the boundary, [`LANE_TO_BOUNDARY`]). Lanes converge,
+//! line (the shared rules of [`crate::newton`]: [`TO_BOUNDARY`],
+//! [`MAX_BACKTRACKS`], the Hessian and its `L D L^T` solve). Lanes converge,
 //! backtrack and stop independently; a lane that has finished takes the next
 //! case, and no lane's arithmetic mixes with another's, so a result depends on
 //! its own case only, never on the cases beside it. The reactions as given are well conditioned only
@@ -29,23 +30,27 @@
 //! species and reactions are not unrolled but still work on all lanes at
 //! once (2-5x faster than the general solve on 7-20 reaction networks).
 //!
-//! Convergence is `|ln Q - ln K| <= tol` for every reaction as given. While
-//! every species is above [`SHARE`] the per-case basis of the general solve
-//! is a combination of these reactions with small coefficients, and the last
-//! step of the quadratically convergent iteration lands far below `tol` in
-//! either.
+//! Convergence means what it means on the general path: `|ln Q - ln K| <=
+//! tol` for every reaction of the per-case basis. The lanes iterate on the
+//! reactions as given and stop when theirs are at most `tol / gain`, where
+//! the system's [`System::basis_gain`] bounds how much any basis can enlarge
+//! them, so the stopping point meets `tol` whichever basis the general solve
+//! would have chosen.
 
 use crate::face::Face;
 use crate::ln::ln_normal;
+use crate::newton::{
+    hessian, ldl_solve, sufficient_decrease, PhaseTerm, MAX_BACKTRACKS, MODEL_TRUST, PHI_SERIES,
+    TO_BOUNDARY,
+};
 use crate::solver::{
-    for_small_systems, interior_start, kernel_for, solve_on_face, sufficient_decrease, warm_start,
-    Case, SolveOptions, Workspace, MODEL_TRUST, PHI_SERIES,
+    for_small_systems, interior_start, kernel_for, solve_on_face, warm_start, Case, SolveOptions,
+    Workspace,
 };
 use crate::status::Status;
 use crate::system::System;
 
-/// Cases per lane group.
-pub const LANES: usize = 8;
+pub use crate::num::LANES;
 /// Smallest share of the gas any reactive species may hold on the lane path.
 const SHARE: f64 = 1e-9;
 /// Smallest amount or total the lane path works with (far from subnormal
@@ -53,21 +58,14 @@ const SHARE: f64 = 1e-9;
 const SMALLEST: f64 = 1e-250;
 /// Newton steps after which an unconverged lane goes to the general solve.
 const STEPS: u32 = 30;
-/// Fraction-to-boundary factor of the lane path: with straight-line steps
-/// only, stopping at 90 % of the way to the boundary takes fewer iterations
-/// on workload (a) than 99 % (5.27 against 5.73 per case; 80 % and 95 %: 5.36).
-const LANE_TO_BOUNDARY: f64 = 0.9;
-/// Backtracking halvings before a lane gives up on a step.
-const BACKTRACKS: u32 = 30;
 
-type Lanes = [f64; LANES];
+use crate::num::Lanes;
 
 #[cfg(test)]
 thread_local! {
     /// Lanes handed to the general solve on this thread (tests only).
     static HANDBACKS: std::cell::Cell<usize> = const { std::cell::Cell::new(0) };
 }
-type Mask = [bool; LANES];
 
 /// One case for the lane kernel: valid inputs on a full face (no
 /// unreachable species), optionally starting extents; its outputs go to row
@@ -231,7 +229,10 @@ enum Lane {
     Idle,
 }
 
-/// `ln Q - ln K` of every reaction in every lane.
+/// `ln Q - ln K` of every reaction in every lane. The same sum as
+/// [`crate::newton::residuals`], written out here because the generic one
+/// costs the lane kernel about 10 % more instructions on workload (a)
+/// (callgrind, `examples/reforming_batch`).
 #[inline(always)]
 fn residuals<const R: usize, const S: usize>(
     (r, s): (usize, usize),
@@ -292,7 +293,7 @@ fn ln_lanes(x: &Lanes) -> Lanes {
     out
 }
 
-/// `h(n, d) = n phi(d / n)` (see crate::solver) in every lane, in stages
+/// `h(n, d) = n phi(d / n)` ([`crate::newton::h`]) in every lane, in stages
 /// that each vectorise; valid for `n + d > 0`.
 #[inline(always)]
 fn h_lanes(n: &Lanes, d: &Lanes) -> Lanes {
@@ -359,6 +360,10 @@ fn solve_group<const R: usize, const S: usize, const EXACT: bool>(
         reactive[i] = system.is_reactive(i);
     }
     let limit = options.max_iter.min(STEPS);
+    // The general solve's `tol` holds for its per-case basis: meet it for
+    // any basis (see `System::basis_gain`; the batch driver sends no lanes
+    // for systems without one).
+    let tol = options.tol / system.basis_gain().map_or(f64::INFINITY, |g| g.max(1.0));
 
     let mut state = [Lane::Idle; LANES];
     let mut slot = [0usize; LANES];
@@ -389,7 +394,7 @@ fn solve_group<const R: usize, const S: usize, const EXACT: bool>(
                     for j in 0..r {
                         worst = max(worst, residual[j][l].abs());
                     }
-                    if worst <= options.tol {
+                    if worst <= tol {
                         state[l] = Lane::Converged;
                     } else if !worst.is_finite() || iterations[l] >= limit {
                         state[l] = Lane::Handback;
@@ -500,28 +505,39 @@ fn solve_group<const R: usize, const S: usize, const EXACT: bool>(
         }
 
         // Newton system per lane: H step = -residual, by L D L^T.
-        for j in 0..r {
-            for k in j..r {
-                let mm = moles[j] * moles[k];
-                for l in 0..LANES {
-                    hess[j][k][l] = -mm / total[l];
-                }
-                for i in 0..s {
-                    let c = nu[j][i] * nu[k][i];
-                    for l in 0..LANES {
-                        hess[j][k][l] += c * inv_n[i][l];
-                    }
-                }
-            }
+        let mut inv_total = [0.0; LANES];
+        for l in 0..LANES {
+            inv_total[l] = 1.0 / total[l];
         }
+        let phase = [PhaseTerm {
+            change: &moles[..r],
+            inv_total,
+        }];
+        hessian(
+            nu.as_flattened(),
+            S,
+            &inv_n[..s],
+            None,
+            &phase,
+            r,
+            hess.as_flattened_mut(),
+            R,
+        );
         let mut step = [[0.0; LANES]; R];
         for j in 0..r {
             for l in 0..LANES {
                 step[j][l] = -residual[j][l];
             }
         }
-        let mut good = [true; LANES];
-        ldl_lanes::<R>(r, &mut hess, &mut step, &mut good);
+        let mut diag = [[0.0; LANES]; R];
+        let mut good = ldl_solve(
+            hess.as_flattened_mut(),
+            R,
+            &mut step[..r],
+            &mut diag[..r],
+            r,
+            [true; LANES],
+        );
         let mut slope = [0.0; LANES];
         for j in 0..r {
             for l in 0..LANES {
@@ -546,7 +562,7 @@ fn solve_group<const R: usize, const S: usize, const EXACT: bool>(
                 let d = change[i][l];
                 // Divide in every lane, then select: a branch per lane would
                 // keep this loop out of vector code.
-                let q = LANE_TO_BOUNDARY * n[i][l] / -d;
+                let q = TO_BOUNDARY * n[i][l] / -d;
                 let bound = if d < 0.0 { q } else { f64::INFINITY };
                 alpha[l] = min(alpha[l], bound);
             }
@@ -561,7 +577,7 @@ fn solve_group<const R: usize, const S: usize, const EXACT: bool>(
 
         // Backtracking, all pending lanes together; a lane that accepts
         // commits its trial point at once and drops out.
-        for _ in 0..BACKTRACKS {
+        for _ in 0..MAX_BACKTRACKS {
             if !pending.iter().any(|&p| p) {
                 break;
             }
@@ -607,7 +623,7 @@ fn solve_group<const R: usize, const S: usize, const EXACT: bool>(
                 undecided |= pending[l] && feasible[l] && !quick;
             }
             if undecided {
-                // The exact Gibbs change along the step (see crate::solver).
+                // The exact Gibbs change along the step (see `crate::newton::sufficient_decrease`).
                 let mut second = [0.0; LANES];
                 let mut total_change = [0.0; LANES];
                 for i in 0..s {
@@ -689,62 +705,6 @@ fn solve_group<const R: usize, const S: usize, const EXACT: bool>(
         for l in 0..LANES {
             if outside[l] && state[l] == Lane::Running {
                 state[l] = Lane::Handback;
-            }
-        }
-    }
-}
-
-/// `L D L^T` solve of every lane's `R x R` system (upper triangle of `hm`
-/// read); `good[l]` is cleared where a pivot is not clearly positive.
-#[inline(always)]
-fn ldl_lanes<const R: usize>(
-    r: usize,
-    hm: &mut [[Lanes; R]; R],
-    rhs: &mut [Lanes; R],
-    good: &mut Mask,
-) {
-    let mut diag = [[0.0; LANES]; R];
-    for j in 0..r {
-        let mut d = hm[j][j];
-        for k in 0..j {
-            for l in 0..LANES {
-                d[l] -= hm[j][k][l] * hm[j][k][l] * diag[k][l];
-            }
-        }
-        for l in 0..LANES {
-            let ok = d[l] > 1e-12 * hm[j][j][l] && d[l] <= f64::MAX;
-            good[l] &= ok;
-            // Keep the arithmetic finite in lanes that failed.
-            diag[j][l] = if ok { d[l] } else { 1.0 };
-        }
-        for i in j + 1..r {
-            let mut v = hm[j][i];
-            for k in 0..j {
-                for l in 0..LANES {
-                    v[l] -= hm[i][k][l] * hm[j][k][l] * diag[k][l];
-                }
-            }
-            for l in 0..LANES {
-                hm[i][j][l] = v[l] / diag[j][l];
-            }
-        }
-    }
-    for i in 0..r {
-        for k in 0..i {
-            for l in 0..LANES {
-                rhs[i][l] -= hm[i][k][l] * rhs[k][l];
-            }
-        }
-    }
-    for i in 0..r {
-        for l in 0..LANES {
-            rhs[i][l] /= diag[i][l];
-        }
-    }
-    for i in (0..r).rev() {
-        for k in i + 1..r {
-            for l in 0..LANES {
-                rhs[i][l] -= hm[k][i][l] * rhs[k][l];
             }
         }
     }

@@ -9,6 +9,8 @@
 //! * [`face`]: which species a feed can reach (the zero-pattern analysis);
 //! * [`basis`]: the per-case stoichiometric basis that keeps trace species precise;
 //! * [`presence`]: phases that are absent at equilibrium (tried absent, kept if stable);
+//! * [`newton`]: the iteration's pieces written once (rules, merit, Hessian, `L D L^T`, residuals)
+//!   over one case or a lane group ([`num`]);
 //! * [`solver`]: the damped Newton solve of one case;
 //! * [`lanes`]: the batch path for all-gas systems, eight cases per vector group;
 //! * [`batch`]: the parallel batch driver;
@@ -27,6 +29,8 @@ pub mod lanes;
 pub mod linalg;
 mod ln;
 pub mod lp;
+pub mod newton;
+pub mod num;
 pub mod presence;
 pub mod sensitivity;
 pub mod solver;

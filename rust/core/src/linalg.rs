@@ -1,66 +1,20 @@
 //! Small dense linear algebra: the sizes here are the number of reactions
 //! (a few to a few dozen), so straightforward loops beat any BLAS call.
 
+use crate::newton::{ldl_factor, ldl_substitute};
+
 /// Solve `H x = rhs` for a symmetric positive definite `H` (`n x n`,
-/// row-major, overwritten; only its upper triangle and diagonal are read)
-/// by a square-root-free `L D L^T` factorisation, falling back to
-/// [`solve_spd_scaled`] when a pivot is not clearly positive.
-///
-/// Like Cholesky, `L D L^T` without pivoting is invariant under symmetric
-/// diagonal scaling, so the badly scaled Hessians of trace species (diagonal
-/// entries 1e80 apart) lose nothing; the pivot test is relative to each
-/// diagonal entry for the same reason. It needs no square roots, which for
-/// the two- and three-reaction systems that dominate batch work is most of
-/// the cost of the solve. `scale` is caller-provided scratch of length `n`.
+/// row-major; only its upper triangle and diagonal are read, the lower
+/// triangle is overwritten) by the `L D L^T` factorisation of
+/// [`crate::newton::ldl_factor`], falling back to [`solve_spd_scaled`]
+/// when a pivot is not clearly positive. `scale` is caller-provided scratch
+/// of length `n`.
 #[inline(always)]
 pub fn solve_spd(h: &mut [f64], rhs: &mut [f64], scale: &mut [f64], n: usize) -> bool {
-    for i in 0..n {
-        scale[i] = h[i * n + i];
-    }
-    let mut ok = true;
-    for j in 0..n {
-        let mut d = scale[j];
-        for k in 0..j {
-            let l = h[j * n + k];
-            d -= l * l * h[k * n + k];
-        }
-        if d.is_nan() || d <= 1e-14 * scale[j] || !d.is_finite() {
-            ok = false;
-            break;
-        }
-        h[j * n + j] = d;
-        let inv = 1.0 / d;
-        for i in j + 1..n {
-            let mut v = h[j * n + i]; // A[i][j] from the upper triangle
-            for k in 0..j {
-                v -= h[i * n + k] * h[j * n + k] * h[k * n + k];
-            }
-            h[i * n + j] = v * inv;
-        }
-    }
-    if !ok {
-        for i in 0..n {
-            h[i * n + i] = scale[i];
-        }
+    if !ldl_factor(h, n, scale, n, true) {
         return solve_spd_scaled(h, rhs, scale, n);
     }
-    for i in 0..n {
-        let mut v = rhs[i];
-        for k in 0..i {
-            v -= h[i * n + k] * rhs[k];
-        }
-        rhs[i] = v;
-    }
-    for i in 0..n {
-        rhs[i] /= h[i * n + i];
-    }
-    for i in (0..n).rev() {
-        let mut v = rhs[i];
-        for k in i + 1..n {
-            v -= h[k * n + i] * rhs[k];
-        }
-        rhs[i] = v;
-    }
+    ldl_substitute(h, n, rhs, scale, n);
     rhs.iter().all(|v| v.is_finite())
 }
 

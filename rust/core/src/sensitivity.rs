@@ -19,6 +19,7 @@ use crate::error::CoreError;
 use crate::face::{analyse_with, Face};
 use crate::linalg::particular_solution;
 use crate::linalg::solve_spd;
+use crate::newton::{hessian, PhaseTerm};
 use crate::presence::phase_bit;
 use crate::status::Status;
 use crate::system::{Phase, System};
@@ -151,6 +152,8 @@ struct Scratch {
     liquid: Vec<f64>,
     /// The feed change of one species, moved onto present species.
     moved: Vec<f64>,
+    /// `1 / n` of every species (0 where it is absent).
+    weight: Vec<f64>,
 }
 
 impl Scratch {
@@ -168,6 +171,7 @@ impl Scratch {
             gas: vec![0.0; r],
             liquid: vec![0.0; r],
             moved: vec![0.0; s],
+            weight: vec![0.0; s],
         }
     }
 }
@@ -235,19 +239,35 @@ fn case_sensitivities(
     }
     let inv_gas = if n_gas > 0.0 { 1.0 / n_gas } else { 0.0 };
     let inv_liquid = if n_liquid > 0.0 { 1.0 / n_liquid } else { 0.0 };
-    let nu = &sc.basis_stoich[..dim * s];
-    for j in 0..dim {
-        for k in 0..dim {
-            let mut v = -sc.gas[j] * sc.gas[k] * inv_gas - sc.liquid[j] * sc.liquid[k] * inv_liquid;
-            for i in 0..s {
-                let (a, b) = (nu[j * s + i], nu[k * s + i]);
-                if a != 0.0 && b != 0.0 {
-                    v += a * b / amounts[i];
-                }
-            }
-            sc.hessian[j * dim + k] = v;
-        }
+    // The Newton system's Hessian (the shared assembly of crate::newton), in
+    // this basis over every species; species at zero carry no weight.
+    for i in 0..s {
+        sc.weight[i] = if amounts[i] > 0.0 {
+            1.0 / amounts[i]
+        } else {
+            0.0
+        };
     }
+    let phase_terms = [
+        PhaseTerm {
+            change: &sc.gas[..dim],
+            inv_total: inv_gas,
+        },
+        PhaseTerm {
+            change: &sc.liquid[..dim],
+            inv_total: inv_liquid,
+        },
+    ];
+    hessian(
+        &sc.basis_stoich[..dim * s],
+        s,
+        &sc.weight[..s],
+        None,
+        &phase_terms,
+        dim,
+        &mut sc.hessian[..dim * dim],
+        dim,
+    );
     // Solve H x = rhs and spread x over the species: pivots move by their own
     // extent, components through the stoichiometry.
     let solve_into = |sc: &mut Scratch, column: &mut dyn FnMut(usize, f64)| -> bool {

@@ -42,6 +42,10 @@
 use crate::basis::{choose_basis, sort_by_amount};
 use crate::face::Face;
 use crate::linalg::solve_spd;
+use crate::newton::{
+    accept_quickly, h, hessian, residuals, sufficient_decrease, PhaseTerm, MAX_BACKTRACKS,
+    TO_BOUNDARY,
+};
 use crate::status::Status;
 use crate::system::{System, N_PHASES};
 
@@ -97,19 +101,9 @@ struct Sizes {
     dim: usize,
 }
 
-/// Fraction-to-boundary factor for species on the straight-line path: a
-/// step may remove at most this fraction of what is left.
-const TO_BOUNDARY: f64 = 0.99;
-/// Armijo sufficient-decrease constant.
-const ARMIJO: f64 = 1e-4;
 /// `ln` of the share of its phase below which a species is minor and moves
 /// in `ln n` (1e-2).
 const LN_MINOR_SHARE: f64 = -4.605_170_185_988_091;
-/// Largest relative change of any amount for which the quadratic model of
-/// the Gibbs function along the step is trusted (see [`solve_case`]).
-pub(crate) const MODEL_TRUST: f64 = 0.1;
-/// Backtracking halvings before a case is declared stalled.
-const MAX_BACKTRACKS: u32 = 60;
 /// `ln` of the smallest amount the solver follows (1e-305 mol, in any
 /// amount unit): float64's normal range ends near 2.2e-308, and the margin
 /// keeps `1/n` and the Hessian entries built from it finite. A minor species
@@ -120,60 +114,6 @@ const MAX_BACKTRACKS: u32 = 60;
 const LN_FLOOR: f64 = -702.288_453_363_184;
 /// The smallest amount the solver follows, `exp(LN_FLOOR)`.
 pub const FLOAT_FLOOR: f64 = 1e-305;
-
-/// `phi(x) = (1 + x) ln(1 + x) - x`, accurate for small `x` (where the
-/// direct formula cancels) by its series `sum_{k>=2} (-1)^k x^k / (k (k-1))`.
-fn phi(x: f64) -> f64 {
-    if x.abs() < 0.05 {
-        // Horner form of sum_{k=2}^{12} c_k x^k, c_k = (-1)^k / (k (k - 1)).
-        let mut sum = PHI_SERIES[PHI_SERIES.len() - 1];
-        for &c in PHI_SERIES.iter().rev().skip(1) {
-            sum = sum * x + c;
-        }
-        sum * x * x
-    } else if x <= -1.0 {
-        // (1 + x) ln(1 + x) -> 0 as the amount goes to zero.
-        1.0
-    } else {
-        (1.0 + x) * x.ln_1p() - x
-    }
-}
-
-/// `(-1)^k / (k (k - 1))` for `k = 2..=12`.
-pub(crate) const PHI_SERIES: [f64; 11] = {
-    let mut c = [0.0; 11];
-    let mut k = 2;
-    while k <= 12 {
-        let sign = if k % 2 == 0 { 1.0 } else { -1.0 };
-        c[k - 2] = sign / ((k * (k - 1)) as f64);
-        k += 1;
-    }
-    c
-};
-
-/// The Armijo test on the exact Gibbs change `first_order + second_order`
-/// of a trial step of length `alpha` along a direction of slope `slope`
-/// (or, on a curved path, against the path's own first-order change).
-#[inline(always)]
-pub(crate) fn sufficient_decrease(
-    first_order: f64,
-    second_order: f64,
-    alpha: f64,
-    slope: f64,
-) -> bool {
-    let decrease = first_order + second_order;
-    decrease <= ARMIJO * alpha * slope || (first_order < 0.0 && decrease <= ARMIJO * first_order)
-}
-
-/// `h(n, d) = (n + d) ln(1 + d/n) - d`, the second-order part of the change
-/// of `n ln n`.
-fn h(n: f64, d: f64) -> f64 {
-    if n > 0.0 {
-        n * phi(d / n)
-    } else {
-        0.0
-    }
-}
 
 /// Borrowed working memory of one solve. The same code runs on heap
 /// storage sized at run time ([`Workspace`]) and on stack arrays whose sizes
@@ -206,7 +146,11 @@ struct Scratch<'a> {
     comp_stoich: &'a mut [f64],
     transform: &'a mut [f64],
     ln_k_face: &'a mut [f64],
-    ln_k_basis: &'a mut [f64],
+    /// Per basis reaction: `gas change * ln(P/P0) - ln K` (the residual's
+    /// constant part).
+    basis_constant: &'a mut [f64],
+    /// Per basis reaction: its pivot's `ln n - ln N_phase`.
+    pivot_mu: &'a mut [f64],
     residual: &'a mut [f64],
     trial_residual: &'a mut [f64],
     hessian: &'a mut [f64],
@@ -240,7 +184,7 @@ pub struct Workspace {
 /// Number of per-species `f64` arrays in a [`Scratch`].
 const SPECIES_ARRAYS: usize = 9;
 /// Number of per-reaction `f64` arrays in a [`Scratch`].
-const REACTION_ARRAYS: usize = 12;
+const REACTION_ARRAYS: usize = 13;
 
 impl Workspace {
     pub fn new(system: &System) -> Self {
@@ -265,7 +209,7 @@ impl Workspace {
             split_n::<SPECIES_ARRAYS, _>(&mut self.species, s);
         let [order, pivot_of, components] = split_n::<3, _>(&mut self.species_idx, s);
         let [basis_stoich, comp_stoich] = split_n::<2, _>(&mut self.by_species, r * s);
-        let [ln_k_face, ln_k_basis, residual, trial_residual, step, du, scale, gas_change, liquid_change, basis_step, face_step, extents] =
+        let [ln_k_face, basis_constant, pivot_mu, residual, trial_residual, step, du, scale, gas_change, liquid_change, basis_step, face_step, extents] =
             split_n::<REACTION_ARRAYS, _>(&mut self.reactions, r);
         let [on_log_path, frozen] = split_n::<2, _>(&mut self.flags, r);
         let [transform, hessian] = split_n::<2, _>(&mut self.square, r * r);
@@ -287,7 +231,8 @@ impl Workspace {
             comp_stoich,
             transform,
             ln_k_face,
-            ln_k_basis,
+            basis_constant,
+            pivot_mu,
             residual,
             trial_residual,
             hessian,
@@ -324,7 +269,7 @@ fn split_n<const N: usize, T>(data: &mut [T], len: usize) -> [&mut [T]; N] {
 /// Line search: a trial point is accepted without evaluating the Gibbs
 /// change when the directional derivative there is not positive (for a
 /// convex function that guarantees a decrease), or when every amount changes
-/// by less than [`MODEL_TRUST`] and the derivative has fallen to half its
+/// by less than [`crate::newton::MODEL_TRUST`] and the derivative has fallen to half its
 /// initial size (the quadratic model then guarantees a quarter of the
 /// predicted decrease). Otherwise the exact change `r . dxi + sum h - sum h`
 /// decides (Armijo). The logarithms of the trial point are those of the
@@ -372,7 +317,7 @@ fn solve_fixed<const R: usize, const S: usize, const G: bool>(
         &mut species;
     let [order, pivot_of, components] = &mut species_idx;
     let [basis_stoich, comp_stoich] = &mut by_species;
-    let [ln_k_face, ln_k_basis, residual, trial_residual, step, du, scale, gas_change, liquid_change, basis_step, face_step, extents] =
+    let [ln_k_face, basis_constant, pivot_mu, residual, trial_residual, step, du, scale, gas_change, liquid_change, basis_step, face_step, extents] =
         &mut reactions;
     let [on_log_path, frozen] = &mut flags;
     let [transform, hessian] = &mut square;
@@ -394,7 +339,8 @@ fn solve_fixed<const R: usize, const S: usize, const G: bool>(
         comp_stoich: comp_stoich.as_flattened_mut(),
         transform: transform.as_flattened_mut(),
         ln_k_face,
-        ln_k_basis,
+        basis_constant,
+        pivot_mu,
         residual,
         trial_residual,
         hessian: hessian.as_flattened_mut(),
@@ -683,39 +629,37 @@ fn split(a: f64) -> (f64, f64) {
 }
 
 /// `ln Q - ln K` of every basis reaction (into `out`) at the point whose
-/// logarithms are `ln_n`, with phase totals `ln_totals`: the reaction's pivot
-/// term, then its component terms (gathered into `mu` first). No test for
-/// zero coefficients: species absent from a reaction carry a finite log (0
-/// for unreachable ones), and a branch per term costs more than the
-/// multiplication.
+/// logarithms are `ln_n`, with phase totals `ln_totals`: the components' and
+/// pivots' `ln n - ln N_phase` are gathered (into `mu` and `pivot_mu`), then
+/// [`residuals`] adds them up.
 #[inline(always)]
 #[allow(clippy::too_many_arguments)]
 fn basis_residuals(
     out: &mut [f64],
     mu: &mut [f64],
+    pivot_mu: &mut [f64],
     ln_n: &[f64],
     ln_totals: &[f64; N_PHASES],
     phase_of: impl Fn(usize) -> usize,
     pivots: &[usize],
     components: &[usize],
     comp_stoich: &[f64],
-    gas_change: &[f64],
-    ln_k_basis: &[f64],
-    ln_pressure: f64,
+    constant: &[f64],
 ) {
-    let nc = components.len();
     for (m, &i) in mu.iter_mut().zip(components) {
         *m = ln_n[i] - ln_totals[phase_of(i)];
     }
-    for (j, res) in out.iter_mut().enumerate() {
-        let p = pivots[j];
-        let mut v =
-            gas_change[j] * ln_pressure - ln_k_basis[j] + (ln_n[p] - ln_totals[phase_of(p)]);
-        for (c, m) in comp_stoich[j * nc..(j + 1) * nc].iter().zip(mu.iter()) {
-            v += c * m;
-        }
-        *res = v;
+    for (m, &p) in pivot_mu.iter_mut().zip(pivots) {
+        *m = ln_n[p] - ln_totals[phase_of(p)];
     }
+    residuals(
+        comp_stoich,
+        components.len(),
+        mu,
+        Some(pivot_mu),
+        constant,
+        out,
+    );
 }
 
 /// Interior start, then damped Newton iterations; see the module docs.
@@ -789,7 +733,7 @@ fn run(
     let comp_stoich = &mut sc.comp_stoich[..dim * nc];
     let components = &mut sc.components[..nc];
     let transform = &mut sc.transform[..dim * dim];
-    let hessian = &mut sc.hessian[..dim * dim];
+    let hess = &mut sc.hessian[..dim * dim];
     let mut basis_ready = false;
     let mut basis_prefix = 0;
     let mut residual_known = false;
@@ -885,7 +829,6 @@ fn run(
                 for k in 0..dim {
                     v += transform[j * dim + k] * sc.ln_k_face[k];
                 }
-                sc.ln_k_basis[j] = v;
                 let (mut gas, mut liquid) = (0.0, 0.0);
                 for i in 0..s {
                     if phase_of(i) == 0 {
@@ -896,6 +839,7 @@ fn run(
                 }
                 sc.gas_change[j] = gas;
                 sc.liquid_change[j] = liquid;
+                sc.basis_constant[j] = gas * ln_pressure - v;
             }
             basis_ready = true;
         }
@@ -908,15 +852,14 @@ fn run(
             basis_residuals(
                 &mut sc.residual[..dim],
                 &mut sc.comp_mu[..nc],
+                &mut sc.pivot_mu[..dim],
                 sc.ln_amount,
                 &ln_totals,
                 phase_of,
                 &sc.pivots[..dim],
                 components,
                 comp_stoich,
-                &sc.gas_change[..dim],
-                &sc.ln_k_basis[..dim],
-                ln_pressure,
+                &sc.basis_constant[..dim],
             );
         }
         for j in 0..dim {
@@ -959,27 +902,46 @@ fn run(
         for c in 0..nc {
             sc.comp_w[c] = sc.inv_amount[components[c]];
         }
+        // (the pivots' 1 / n, in `du` until step 4 needs it)
         for j in 0..dim {
-            let row_j = &comp_stoich[j * nc..(j + 1) * nc];
-            for k in j..dim {
-                let row_k = &comp_stoich[k * nc..(k + 1) * nc];
-                let mut v = -sc.gas_change[j] * sc.gas_change[k] * inv_gas
-                    - sc.liquid_change[j] * sc.liquid_change[k] * inv_liquid;
-                for c in 0..nc {
-                    v += row_j[c] * row_k[c] * sc.comp_w[c];
+            sc.du[j] = sc.inv_amount[sc.pivots[j]];
+        }
+        let phase_terms = [
+            PhaseTerm {
+                change: &sc.gas_change[..dim],
+                inv_total: inv_gas,
+            },
+            PhaseTerm {
+                change: &sc.liquid_change[..dim],
+                inv_total: inv_liquid,
+            },
+        ];
+        let phase_terms = if gas_only {
+            &phase_terms[..1]
+        } else {
+            &phase_terms[..]
+        };
+        hessian(
+            comp_stoich,
+            nc,
+            &sc.comp_w[..nc],
+            Some(&sc.du[..dim]),
+            phase_terms,
+            dim,
+            hess,
+            dim,
+        );
+        for j in 0..dim {
+            if sc.frozen[j] {
+                // A species held at the float floor: its reaction is left out.
+                for k in 0..dim {
+                    let (a, b) = (j.min(k), j.max(k));
+                    hess[a * dim + b] = if j == k { 1.0 } else { 0.0 };
                 }
-                if j == k {
-                    v += sc.inv_amount[sc.pivots[j]];
-                }
-                if sc.frozen[j] || sc.frozen[k] {
-                    v = if j == k { 1.0 } else { 0.0 };
-                }
-                hessian[j * dim + k] = v;
-                hessian[k * dim + j] = v;
             }
             sc.step[j] = if sc.frozen[j] { 0.0 } else { -sc.residual[j] };
         }
-        if !solve_spd(hessian, &mut sc.step[..dim], &mut sc.scale[..dim], dim) {
+        if !solve_spd(hess, &mut sc.step[..dim], &mut sc.scale[..dim], dim) {
             return (Status::Stalled, iterations);
         }
 
@@ -1098,15 +1060,14 @@ fn run(
                 basis_residuals(
                     &mut sc.trial_residual[..dim],
                     &mut sc.comp_mu[..nc],
+                    &mut sc.pivot_mu[..dim],
                     sc.trial_ln,
                     &trial_ln_totals,
                     phase_of,
                     &sc.pivots[..dim],
                     components,
                     comp_stoich,
-                    &sc.gas_change[..dim],
-                    &sc.ln_k_basis[..dim],
-                    ln_pressure,
+                    &sc.basis_constant[..dim],
                 );
                 let mut derivative = 0.0;
                 for j in 0..dim {
@@ -1118,9 +1079,7 @@ fn run(
                     };
                     derivative += res * velocity;
                 }
-                if derivative <= 0.0
-                    || (largest_relative <= MODEL_TRUST && derivative <= -0.5 * slope)
-                {
+                if accept_quickly(derivative, largest_relative, slope) {
                     accepted = true;
                     break;
                 }
@@ -1217,19 +1176,6 @@ mod tests {
             assert_eq!(bits(&extents), bits(&e2));
         }
         (amounts, st, it)
-    }
-
-    #[test]
-    fn phi_series_agrees_with_direct_formula_below_the_switch() {
-        // Just below the switch the direct formula is still accurate to ~1e-14
-        // relative, so the series must agree with it there.
-        for &x in &[0.049, -0.049, 0.02] {
-            let direct = (1.0 + x) * f64::ln_1p(x) - x;
-            assert!((phi(x) - direct).abs() < 1e-12 * direct, "x = {x}");
-        }
-        assert_eq!(phi(0.0), 0.0);
-        // phi(-1) is the limit 1: the amount is used up completely.
-        assert_eq!(phi(-1.0), 1.0);
     }
 
     #[test]

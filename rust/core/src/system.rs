@@ -42,6 +42,8 @@ pub struct System {
     p0: f64,
     /// Species with a non-zero coefficient in some reaction.
     reactive: Vec<bool>,
+    /// [`System::basis_gain`], computed on first use.
+    basis_gain: std::sync::OnceLock<Option<f64>>,
 }
 
 impl System {
@@ -99,6 +101,7 @@ impl System {
             phases,
             p0,
             reactive,
+            basis_gain: std::sync::OnceLock::new(),
         })
     }
 
@@ -127,6 +130,177 @@ impl System {
     pub fn is_reactive(&self, i: usize) -> bool {
         self.reactive[i]
     }
+
+    /// The largest factor by which rewriting the reactions per case can
+    /// enlarge their residuals: the maximum over every set `P` of `R`
+    /// species that can serve as a basis's pivots (`nu[:, P]` invertible)
+    /// of `||nu[:, P]^-1||_inf`. The basis reactions' residuals are
+    /// `nu[:, P]^-1` times the given ones', so a point whose given residuals
+    /// are at most `tol / gain` meets `tol` in whatever basis the general
+    /// solve would choose: that is how the lane path, which iterates on the
+    /// reactions as given, keeps the general path's meaning of `tol`.
+    /// `None` when there are more than [`BASIS_SETS_LIMIT`] candidate sets
+    /// (such systems are left to the general solve). Computed on first use
+    /// (by the components, see `basis_gain` below).
+    pub fn basis_gain(&self) -> Option<f64> {
+        *self.basis_gain.get_or_init(|| {
+            basis_gain(
+                &self.stoich,
+                self.n_reactions,
+                self.n_species,
+                &self.reactive,
+            )
+        })
+    }
+}
+
+/// Component sets [`System::basis_gain`] examines at most (binomial(M, M -
+/// R) of them for M reactive species: 10,626 for 20 reactions among 24).
+pub const BASIS_SETS_LIMIT: usize = 50_000;
+
+/// [`System::basis_gain`], by the components rather than the pivots: a basis
+/// is fixed by its `C = M - R` components (the species that are not pivots),
+/// usually a handful, and with `A` the `C x M` conserved-quantity matrix
+/// (`nu A^T = 0`) pivot `p`'s basis reaction is `e_p - sum_c x_c e_c` with
+/// `A_C x = A_p`. A basis reaction `b` lies in the span of the given ones,
+/// so its coefficients on them are `b nu^+` (`nu^+` the pseudo-inverse):
+/// `C^3 + R (C^2 + C R)` work per set instead of `R^3`.
+fn basis_gain(stoich: &[f64], r: usize, s: usize, reactive: &[bool]) -> Option<f64> {
+    let species: Vec<usize> = (0..s).filter(|&i| reactive[i]).collect();
+    let m = species.len();
+    let mut nu = vec![0.0; r * m];
+    for j in 0..r {
+        for (col, &i) in species.iter().enumerate() {
+            nu[j * m + col] = stoich[j * s + i];
+        }
+    }
+    let (null, c) = crate::linalg::null_space(&nu, r, m, DEPENDENCE_TOL);
+    if c == 0 || c + r != m {
+        return None; // not reachable: a bounded system conserves something
+    }
+    // binomial(m, c), stopping once it passes the limit
+    let mut count: usize = 1;
+    for k in 0..c.min(m - c) {
+        count = count * (m - k) / (k + 1);
+        if count > BASIS_SETS_LIMIT {
+            return None;
+        }
+    }
+    // nu^+ = nu^T (nu nu^T)^-1, M x R
+    let mut gram = vec![0.0; r * r];
+    for j in 0..r {
+        for k in 0..r {
+            gram[j * r + k] = (0..m).map(|i| nu[j * m + i] * nu[k * m + i]).sum();
+        }
+    }
+    let mut gram_inv = vec![0.0; r * r];
+    if !invert(&mut gram, &mut gram_inv, r) {
+        return None; // not reachable: the reactions are independent
+    }
+    let mut pinv = vec![0.0; m * r];
+    for i in 0..m {
+        for j in 0..r {
+            pinv[i * r + j] = (0..r).map(|l| nu[l * m + i] * gram_inv[l * r + j]).sum();
+        }
+    }
+    // A[a][i] = null[i * c + a]
+    let scale = null.iter().fold(0.0_f64, |v, x| v.max(x.abs()));
+    let mut pick: Vec<usize> = (0..c).collect();
+    let (mut block, mut block_inv) = (vec![0.0; c * c], vec![0.0; c * c]);
+    // y = A_C^-T nu^+_C (C x R): then pivot p's coefficients are
+    // nu^+_p - A_p^T y, as x = A_C^-1 A_p
+    let mut y = vec![0.0; c * r];
+    let mut other = vec![true; m];
+    let mut row = vec![0.0; r];
+    let mut gain: f64 = 0.0;
+    loop {
+        for a in 0..c {
+            for (b, &i) in pick.iter().enumerate() {
+                block[a * c + b] = null[i * c + a];
+            }
+        }
+        if invert_scaled(&mut block, &mut block_inv, c, scale) {
+            y.fill(0.0);
+            for (b, &i) in pick.iter().enumerate() {
+                let pinv_i = &pinv[i * r..(i + 1) * r];
+                for (&q, y_a) in block_inv[b * c..(b + 1) * c]
+                    .iter()
+                    .zip(y.chunks_exact_mut(r))
+                {
+                    for (v, &pv) in y_a.iter_mut().zip(pinv_i) {
+                        *v += q * pv;
+                    }
+                }
+            }
+            other.fill(true);
+            for &i in &pick {
+                other[i] = false;
+            }
+            for p in (0..m).filter(|&i| other[i]) {
+                row.copy_from_slice(&pinv[p * r..(p + 1) * r]);
+                for (&w, y_a) in null[p * c..(p + 1) * c].iter().zip(y.chunks_exact(r)) {
+                    for (v, &ya) in row.iter_mut().zip(y_a) {
+                        *v -= w * ya;
+                    }
+                }
+                gain = gain.max(row.iter().map(|v| v.abs()).sum());
+            }
+        }
+        // next combination in lexicographic order
+        let Some(k) = (0..c).rev().find(|&k| pick[k] < m - c + k) else {
+            break;
+        };
+        pick[k] += 1;
+        for t in k + 1..c {
+            pick[t] = pick[t - 1] + 1;
+        }
+    }
+    Some(gain)
+}
+
+/// `A^-1` of the `n x n` matrix `a` (overwritten) into `inv`; false when `A`
+/// is singular.
+fn invert(a: &mut [f64], inv: &mut [f64], n: usize) -> bool {
+    let scale = a.iter().fold(0.0_f64, |m, v| m.max(v.abs()));
+    invert_scaled(a, inv, n, scale)
+}
+
+/// Gauss-Jordan elimination with partial pivoting; a pivot below
+/// [`DEPENDENCE_TOL`] of `scale` means singular.
+fn invert_scaled(a: &mut [f64], inv: &mut [f64], n: usize, scale: f64) -> bool {
+    inv.fill(0.0);
+    for i in 0..n {
+        inv[i * n + i] = 1.0;
+    }
+    for col in 0..n {
+        let Some(row) =
+            (col..n).max_by(|&x, &y| a[x * n + col].abs().total_cmp(&a[y * n + col].abs()))
+        else {
+            return false;
+        };
+        if a[row * n + col].abs() <= DEPENDENCE_TOL * scale {
+            return false;
+        }
+        for k in 0..n {
+            a.swap(row * n + k, col * n + k);
+            inv.swap(row * n + k, col * n + k);
+        }
+        let p = a[col * n + col];
+        for k in 0..n {
+            a[col * n + k] /= p;
+            inv[col * n + k] /= p;
+        }
+        for i in 0..n {
+            let f = a[i * n + col];
+            if i != col && f != 0.0 {
+                for k in 0..n {
+                    a[i * n + k] -= f * a[col * n + k];
+                    inv[i * n + k] -= f * inv[col * n + k];
+                }
+            }
+        }
+    }
+    true
 }
 
 /// Modified Gram-Schmidt over the reaction rows in order, tracking each
@@ -253,6 +427,68 @@ mod tests {
 
     fn gas(n: usize) -> Vec<Phase> {
         vec![Phase::Gas; n]
+    }
+
+    #[test]
+    fn basis_gain_is_the_largest_inverse_row_sum_over_pivot_sets() {
+        // A = B, B = C: the pivot sets {A, B}, {A, C}, {B, C} have inverses
+        // [[-1, -1], [0, -1]], [[-1, 0], [0, 1]], [[1, 0], [1, 1]] (by hand),
+        // whose largest absolute row sums are 2, 1 and 2.
+        let nu = vec![-1.0, 1.0, 0.0, 0.0, -1.0, 1.0];
+        let sys = System::new(nu, 2, 3, gas(3), 1.0).unwrap();
+        assert!((sys.basis_gain().unwrap() - 2.0).abs() < 1e-15);
+        // An inert species is never a pivot: A = B with N2 beside it has the
+        // sets {A} and {B}, each with inverse -1 or 1.
+        let sys = System::new(vec![-1.0, 1.0, 0.0], 1, 3, gas(3), 1.0).unwrap();
+        assert_eq!(sys.basis_gain(), Some(1.0));
+        // 20 reactions among 48 species: binomial(40, 20) > 1e11 sets of the
+        // 40 reactive ones.
+        let (r, s) = (20, 48);
+        let mut nu = vec![0.0; r * s];
+        for j in 0..r {
+            nu[j * s + j] = -1.0;
+            nu[j * s + r + j] = 1.0;
+        }
+        let sys = System::new(nu, r, s, gas(s), 1.0).unwrap();
+        assert_eq!(sys.basis_gain(), None);
+    }
+
+    #[test]
+    fn basis_gain_by_components_equals_the_direct_enumeration_of_pivots() {
+        // Reforming, shift and methanation-type reactions among CH4 H2O CO
+        // H2 CO2 C2H6 with N2 inert: every pivot set, inverted directly.
+        let (r, s) = (3, 7);
+        #[rustfmt::skip]
+        let nu = vec![
+            -1.0, -1.0, 1.0, 3.0, 0.0, 0.0, 0.0,
+            0.0, -1.0, -1.0, 1.0, 1.0, 0.0, 0.0,
+            -2.0, 0.0, 0.0, 1.0, 0.0, 1.0, 0.0,
+        ];
+        let sys = System::new(nu.clone(), r, s, gas(s), 1.0).unwrap();
+        let mut direct: f64 = 0.0;
+        let (mut a, mut inv) = (vec![0.0; r * r], vec![0.0; r * r]);
+        for p0 in 0..6 {
+            for p1 in p0 + 1..6 {
+                for p2 in p1 + 1..6 {
+                    for j in 0..r {
+                        for (k, &p) in [p0, p1, p2].iter().enumerate() {
+                            a[j * r + k] = nu[j * s + p];
+                        }
+                    }
+                    if invert(&mut a, &mut inv, r) {
+                        for j in 0..r {
+                            let row: f64 = inv[j * r..(j + 1) * r].iter().map(|v| v.abs()).sum();
+                            direct = direct.max(row);
+                        }
+                    }
+                }
+            }
+        }
+        let gain = sys.basis_gain().unwrap();
+        assert!(
+            direct >= 1.0 && (gain - direct).abs() < 1e-12 * direct,
+            "{gain} against {direct}"
+        );
     }
 
     #[test]
