@@ -8,6 +8,8 @@ __version__: str
 FLOAT_FLOOR: float
 #: (code, name, description) of every status, in code order.
 STATUS_TABLE: list[tuple[int, str, str]]
+#: Vector instructions the lane kernels use here: "avx512", "avx2" or "portable".
+VECTOR_PATH: str
 
 class StoichiometryError(ValueError):
     """args: (kind, reaction, indices, coefficients); kind is one of

@@ -161,7 +161,7 @@ fn case_is_valid(feed: &[f64], ln_k: &[f64], pressure: f64) -> bool {
 #[derive(Default)]
 pub(crate) struct FaceTable {
     index: HashMap<Vec<u64>, usize>,
-    faces: Vec<Result<Face, FaceError>>,
+    faces: Vec<Arc<Result<Face, FaceError>>>,
 }
 
 /// A per-thread cursor into a [`FaceTable`]: the key buffer and the last
@@ -197,7 +197,7 @@ impl FaceCursor {
             self.last = table.index.get(&self.key[..]).copied();
             self.last_key.copy_from_slice(&self.key);
         }
-        self.last.map(|k| &table.faces[k])
+        self.last.map(|k| &*table.faces[k])
     }
 }
 
@@ -242,9 +242,12 @@ pub(crate) fn faces_for(
     for (key, case) in found.into_iter().flatten() {
         if !table.index.contains_key(&key) {
             let feed = rows.row(inputs.feed, case);
-            let zero: Vec<bool> = feed.iter().map(|&v| v < TINY_FEED).collect();
+            let face = system.face_memo().get_or_analyse(&key, || {
+                let zero: Vec<bool> = feed.iter().map(|&v| v < TINY_FEED).collect();
+                analyse(system, &zero)
+            });
             table.index.insert(key, table.faces.len());
-            table.faces.push(analyse(system, &zero));
+            table.faces.push(face);
         }
     }
     table

@@ -44,6 +44,50 @@ pub enum FaceError {
     LinearProgramme,
 }
 
+/// Faces a system has already analysed, by zero pattern (the pattern's bit
+/// words), kept for later batches: a face depends on the system and the
+/// pattern only, and its linear programme is most of the cost of a
+/// one-case call. Holds at most [`FaceMemo::CAPACITY`] patterns (later ones
+/// are analysed per batch, as before). A clone starts empty.
+#[derive(Debug, Default)]
+pub struct FaceMemo(std::sync::Mutex<Vec<(Vec<u64>, SharedFace)>>);
+
+/// A face analysis shared between batches.
+pub type SharedFace = std::sync::Arc<Result<Face, FaceError>>;
+
+impl FaceMemo {
+    pub const CAPACITY: usize = 64;
+
+    /// The face of pattern `key`, from the memo or from `analyse`.
+    pub fn get_or_analyse(
+        &self,
+        key: &[u64],
+        analyse: impl FnOnce() -> Result<Face, FaceError>,
+    ) -> SharedFace {
+        // (a poisoned lock only means another thread panicked mid-insert of
+        // a complete entry; the list is still valid)
+        let found = {
+            let memo = self.0.lock().unwrap_or_else(|e| e.into_inner());
+            memo.iter().find(|(k, _)| k == key).map(|(_, f)| f.clone())
+        };
+        if let Some(face) = found {
+            return face;
+        }
+        let face = std::sync::Arc::new(analyse());
+        let mut memo = self.0.lock().unwrap_or_else(|e| e.into_inner());
+        if memo.len() < Self::CAPACITY && !memo.iter().any(|(k, _)| k == key) {
+            memo.push((key.to_vec(), face.clone()));
+        }
+        face
+    }
+}
+
+impl Clone for FaceMemo {
+    fn clone(&self) -> Self {
+        FaceMemo::default()
+    }
+}
+
 /// Analyse a zero pattern: `zero_feed[i]` is true where species `i` has zero
 /// feed. Inert species are ignored.
 pub fn analyse(system: &System, zero_feed: &[bool]) -> Result<Face, FaceError> {
@@ -155,6 +199,29 @@ pub fn analyse_with(
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn a_pattern_is_analysed_once_per_system_and_kept_up_to_capacity() {
+        let sys = crate::fixtures::reforming();
+        let memo = FaceMemo::default();
+        let mut calls = 0;
+        let zero = vec![false; sys.n_species()];
+        let first = memo.get_or_analyse(&[1], || {
+            calls += 1;
+            analyse(&sys, &zero)
+        });
+        let again = memo.get_or_analyse(&[1], || {
+            calls += 1;
+            analyse(&sys, &zero)
+        });
+        assert_eq!(calls, 1);
+        assert!(std::sync::Arc::ptr_eq(&first, &again));
+        for k in 0..2 * FaceMemo::CAPACITY as u64 {
+            memo.get_or_analyse(&[k + 2], || analyse(&sys, &zero));
+        }
+        assert_eq!(memo.0.lock().unwrap().len(), FaceMemo::CAPACITY);
+        assert!(memo.clone().0.lock().unwrap().is_empty());
+    }
     use crate::system::Phase;
 
     fn system(nu: Vec<f64>, r: usize, s: usize) -> System {

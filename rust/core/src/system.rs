@@ -2,6 +2,7 @@
 //! with the structural checks done once at construction.
 
 use crate::error::CoreError;
+use crate::face::FaceMemo;
 use crate::lp::{maximize, LpOutcome};
 
 /// The mixture a species belongs to. Activities are ideal in both.
@@ -44,6 +45,8 @@ pub struct System {
     reactive: Vec<bool>,
     /// [`System::basis_gain`], computed on first use.
     basis_gain: std::sync::OnceLock<Option<f64>>,
+    /// Faces of the zero patterns met so far (see [`FaceMemo`]).
+    faces: FaceMemo,
 }
 
 impl System {
@@ -102,6 +105,7 @@ impl System {
             p0,
             reactive,
             basis_gain: std::sync::OnceLock::new(),
+            faces: FaceMemo::default(),
         })
     }
 
@@ -129,6 +133,11 @@ impl System {
     /// Whether species `i` takes part in any reaction (otherwise it is inert).
     pub fn is_reactive(&self, i: usize) -> bool {
         self.reactive[i]
+    }
+
+    /// Faces already analysed for this system.
+    pub fn face_memo(&self) -> &FaceMemo {
+        &self.faces
     }
 
     /// The largest factor by which rewriting the reactions per case can

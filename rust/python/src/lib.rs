@@ -22,5 +22,7 @@ fn _core(m: &Bound<'_, PyModule>) -> PyResult<()> {
         .map(|&st| (st as u8, st.name(), st.describe()))
         .collect();
     m.add("STATUS_TABLE", statuses)?;
+    // Which vector instructions the lane kernels use on this processor.
+    m.add("VECTOR_PATH", eqbatch_core::lanes::vector_path())?;
     Ok(())
 }
