@@ -135,3 +135,8 @@ def test_chained_starts_on_a_sorted_grid() -> None:
     np.testing.assert_allclose(chained.amounts, plain.amounts, rtol=1e-9, atol=1e-14)
     assert chained.iterations.mean() < 0.9 * plain.iterations.mean()
     assert chained.amounts.tobytes() == one.amounts.tobytes()  # still independent of threads
+
+
+def test_the_vector_path_is_reported_as_one_of_the_compiled_variants() -> None:
+    # The benchmark prints it beside its figures (AVX-512 and AVX2 machines differ).
+    assert eqbatch._core.VECTOR_PATH in {"avx512", "avx2", "portable"}

@@ -1,6 +1,7 @@
 //! Profiling driver for larger networks: solves the cases in a file written by
 //! `python -m bench.dump_network R N FILE` (the benchmark's workload (c)).
 //! `cargo run --release --example network_batch FILE [THREADS]`.
+//! With `HASH` set in the environment, also prints a checksum of every output.
 
 use eqbatch_core::{solve_batch, BatchInputs, BatchOutputs, Phase, SolveOptions, System};
 use std::time::Instant;
@@ -57,9 +58,35 @@ fn main() {
     let secs = start.elapsed().as_secs_f64();
     let converged = status.iter().filter(|&&st| st == 0).count();
     let total_iter: u64 = iterations.iter().map(|&i| i as u64).sum();
+    if std::env::var("HASH").is_ok() {
+        let hash = checksum(&[&amounts, &extents], &status, &iterations);
+        println!("checksum {hash:016x}");
+    }
     println!(
         "{r} reactions, {s} species: {n} cases in {secs:.3} s: {:.2} us per case, {converged} converged, {:.2} iterations per case",
         1e6 * secs / n as f64,
         total_iter as f64 / n as f64
     );
+}
+
+/// FNV-1a (64-bit) over the bits of every output, for checking that a
+/// change leaves results bit-identical (printed when `HASH` is set).
+fn checksum(floats: &[&[f64]], status: &[u8], iterations: &[u32]) -> u64 {
+    let mut h: u64 = 0xcbf2_9ce4_8422_2325;
+    let mut eat = |bytes: &[u8]| {
+        for &b in bytes {
+            h ^= u64::from(b);
+            h = h.wrapping_mul(0x0000_0100_0000_01b3);
+        }
+    };
+    for part in floats {
+        for v in part.iter() {
+            eat(&v.to_bits().to_le_bytes());
+        }
+    }
+    eat(status);
+    for it in iterations {
+        eat(&it.to_le_bytes());
+    }
+    h
 }

@@ -1,5 +1,6 @@
 //! Profiling driver: one million steam-reforming + shift cases, as in the
 //! benchmark's workload (a). `cargo run --release --example reforming_batch [N] [THREADS]`.
+//! With `HASH` set in the environment, also prints a checksum of every output.
 
 use eqbatch_core::{solve_batch, BatchInputs, BatchOutputs, Phase, SolveOptions, System};
 use std::time::Instant;
@@ -70,9 +71,35 @@ fn main() {
             &hist[..hist.iter().rposition(|&c| c > 0).unwrap_or(0) + 1]
         );
     }
+    if std::env::var("HASH").is_ok() {
+        let hash = checksum(&[&amounts, &extents, &fractions], &status, &iterations);
+        println!("checksum {hash:016x}");
+    }
     println!(
         "{n} cases in {secs:.3} s: {:.0} cases/s, {converged} converged, {:.2} iterations per case",
         n as f64 / secs,
         total_iter as f64 / n as f64
     );
+}
+
+/// FNV-1a (64-bit) over the bits of every output, for checking that a
+/// change leaves results bit-identical (printed when `HASH` is set).
+fn checksum(floats: &[&[f64]], status: &[u8], iterations: &[u32]) -> u64 {
+    let mut h: u64 = 0xcbf2_9ce4_8422_2325;
+    let mut eat = |bytes: &[u8]| {
+        for &b in bytes {
+            h ^= u64::from(b);
+            h = h.wrapping_mul(0x0000_0100_0000_01b3);
+        }
+    };
+    for part in floats {
+        for v in part.iter() {
+            eat(&v.to_bits().to_le_bytes());
+        }
+    }
+    eat(status);
+    for it in iterations {
+        eat(&it.to_le_bytes());
+    }
+    h
 }

@@ -14,7 +14,7 @@ use rayon::prelude::*;
 
 use crate::error::CoreError;
 use crate::face::{analyse, Face, FaceError};
-use crate::lanes::{lane_kernel_for, LaneCase};
+use crate::lanes::{lane_kernel_for, LaneCase, LaneKernel};
 use crate::presence;
 use crate::solver::{kernel_for, solve_on_face, Case, FixedKernel, SolveOptions, Workspace};
 use crate::status::Status;
@@ -265,6 +265,48 @@ pub fn solve_batch(
     threads: Option<usize>,
 ) -> Result<(), CoreError> {
     let n = inputs.n_cases;
+    let rows = check_batch(system, inputs, outputs, options)?;
+    if n == 0 {
+        return Ok(());
+    }
+    let serial = threads == Some(1) || n <= CHUNK;
+    // One pool for the whole call (`None`: rayon's global pool).
+    let pool = if serial { None } else { pool_for(threads)? };
+    let faces = match &pool {
+        Some(pool) => pool.install(|| faces_for(system, inputs, rows.feed, true)),
+        None => faces_for(system, inputs, rows.feed, !serial),
+    };
+    let plan = BatchPlan::new(system, inputs, rows, options, faces, threads);
+    let chunks = Chunk::split(outputs, plan.chunk_len, plan.s, plan.r);
+    if serial {
+        let mut state = ChunkState::new(system);
+        for chunk in chunks {
+            plan.run_chunk(&mut state, chunk);
+        }
+        return Ok(());
+    }
+    run_in_parallel(&plan, chunks, pool.as_deref());
+    Ok(())
+}
+
+/// The row layout of every input array of a batch.
+#[derive(Clone, Copy)]
+struct InputRows {
+    feed: Rows,
+    ln_k: Rows,
+    pressure: Rows,
+    start: Option<Rows>,
+}
+
+/// Check the options and the size of every input and output array of a
+/// batch; returns the inputs' row layout.
+fn check_batch(
+    system: &System,
+    inputs: &BatchInputs,
+    outputs: &BatchOutputs,
+    options: &SolveOptions,
+) -> Result<InputRows, CoreError> {
+    let n = inputs.n_cases;
     let s = system.n_species();
     let r = system.n_reactions();
     if !(options.tol > 0.0 && options.tol.is_finite()) {
@@ -273,12 +315,14 @@ pub fn solve_batch(
             options.tol
         )));
     }
-    let feed_rows = Rows::check("feed", inputs.feed.len(), s, n)?;
-    let k_rows = Rows::check("ln_k", inputs.ln_k.len(), r, n)?;
-    let p_rows = Rows::check("pressure", inputs.pressure.len(), 1, n)?;
-    let start_rows = match inputs.start {
-        Some(x0) => Some(Rows::check("start", x0.len(), r, n)?),
-        None => None,
+    let rows = InputRows {
+        feed: Rows::check("feed", inputs.feed.len(), s, n)?,
+        ln_k: Rows::check("ln_k", inputs.ln_k.len(), r, n)?,
+        pressure: Rows::check("pressure", inputs.pressure.len(), 1, n)?,
+        start: match inputs.start {
+            Some(x0) => Some(Rows::check("start", x0.len(), r, n)?),
+            None => None,
+        },
     };
     for (name, len, width) in [
         ("amounts", outputs.amounts.len(), s),
@@ -302,51 +346,95 @@ pub fn solve_batch(
             "iterations output has the wrong length".into(),
         ));
     }
-    if n == 0 {
-        return Ok(());
+    Ok(rows)
+}
+
+/// One case's inputs, broadcast rows included: feed, ln K, pressure and the
+/// optional start.
+type CaseInputs<'a> = (&'a [f64], &'a [f64], f64, Option<&'a [f64]>);
+
+/// Everything fixed for one batch that the threads share: the system, the
+/// inputs and their layout, the faces of the batch's zero patterns, the
+/// kernels and the chunk length.
+struct BatchPlan<'a> {
+    system: &'a System,
+    inputs: &'a BatchInputs<'a>,
+    rows: InputRows,
+    options: &'a SolveOptions,
+    faces: FaceTable,
+    /// The specialised scalar kernel ([`kernel_for`]), if any.
+    kernel: Option<FixedKernel>,
+    /// The lane kernel ([`lane_kernel_for`]), where the batch may use it.
+    lane_kernel: Option<LaneKernel>,
+    /// Cases per chunk.
+    chunk_len: usize,
+    s: usize,
+    r: usize,
+}
+
+impl<'a> BatchPlan<'a> {
+    /// The plan of a checked, non-empty batch on `threads`.
+    fn new(
+        system: &'a System,
+        inputs: &'a BatchInputs<'a>,
+        rows: InputRows,
+        options: &'a SolveOptions,
+        faces: FaceTable,
+        threads: Option<usize>,
+    ) -> Self {
+        let (n, s, r) = (inputs.n_cases, system.n_species(), system.n_reactions());
+        let gas_only = system.phases().iter().all(|&p| p == Phase::Gas);
+        let kernel = kernel_for(r, s, gas_only);
+        // All-gas small systems solve their eligible cases in vector lanes
+        // (chained starts, which need the case before, go one at a time; a
+        // system too large to bound its bases' residuals goes to the general
+        // solve, see `System::basis_gain`).
+        let lane_kernel = if gas_only && !options.chain && system.basis_gain().is_some() {
+            lane_kernel_for(r, s)
+        } else {
+            None
+        };
+        // Lane tasks: long, but at least eight per thread so that small batches
+        // still spread over every core (lane results do not depend on chunking).
+        let chunk_len = if lane_kernel.is_some() {
+            let workers = threads.unwrap_or_else(rayon::current_num_threads).max(1);
+            (n / (8 * workers)).clamp(CHUNK, LANE_CHUNK)
+        } else {
+            CHUNK
+        };
+        BatchPlan {
+            system,
+            inputs,
+            rows,
+            options,
+            faces,
+            kernel,
+            lane_kernel,
+            chunk_len,
+            s,
+            r,
+        }
     }
-    let serial = threads == Some(1) || n <= CHUNK;
-    // One pool for the whole call (`None`: rayon's global pool).
-    let pool = if serial { None } else { pool_for(threads)? };
-    let faces = match &pool {
-        Some(pool) => pool.install(|| faces_for(system, inputs, feed_rows, true)),
-        None => faces_for(system, inputs, feed_rows, !serial),
-    };
-    // A case's inputs, broadcast rows included.
-    let case_inputs = |case: usize| {
+
+    /// The inputs of case `case`, broadcast rows included.
+    #[inline(always)]
+    fn case_inputs(&self, case: usize) -> CaseInputs<'a> {
+        let (inputs, rows) = (self.inputs, self.rows);
         (
-            feed_rows.row(inputs.feed, case),
-            k_rows.row(inputs.ln_k, case),
-            p_rows.row(inputs.pressure, case)[0],
+            rows.feed.row(inputs.feed, case),
+            rows.ln_k.row(inputs.ln_k, case),
+            rows.pressure.row(inputs.pressure, case)[0],
             inputs
                 .start
-                .zip(start_rows)
+                .zip(rows.start)
                 .map(|(x0, rows)| rows.row(x0, case)),
         )
-    };
-    let gas_only = system.phases().iter().all(|&p| p == Phase::Gas);
-    let kernel = kernel_for(r, s, gas_only);
+    }
 
-    // All-gas small systems solve their eligible cases in vector lanes
-    // (chained starts, which need the case before, go one at a time; a
-    // system too large to bound its bases' residuals goes to the general
-    // solve, see `System::basis_gain`).
-    let lane_kernel = if gas_only && !options.chain && system.basis_gain().is_some() {
-        lane_kernel_for(r, s)
-    } else {
-        None
-    };
-
-    // Lane tasks: long, but at least eight per thread so that small batches
-    // still spread over every core (lane results do not depend on chunking).
-    let chunk_len = if lane_kernel.is_some() {
-        let workers = threads.unwrap_or_else(rayon::current_num_threads).max(1);
-        (n / (8 * workers)).clamp(CHUNK, LANE_CHUNK)
-    } else {
-        CHUNK
-    };
-
-    let finish = |out: CaseOut, st: Status, absent: u8| {
+    /// The rest of a solved case's outputs: NaN amounts and extents for a
+    /// bad case, the absent-phase mask and the mole fractions (when wanted).
+    #[inline(always)]
+    fn finish(&self, out: CaseOut, st: Status, absent: u8) {
         let bad = st == Status::InvalidInput || st == Status::Infeasible;
         if bad {
             out.amounts.fill(f64::NAN);
@@ -356,78 +444,112 @@ pub fn solve_batch(
             *mask = absent;
         }
         if let Some(fractions) = out.fractions {
-            mole_fractions(system, out.amounts, fractions);
+            mole_fractions(self.system, out.amounts, fractions);
         }
-    };
+    }
 
-    let run_chunk = |ws: &mut ChunkState, chunk: Chunk| {
-        let Chunk { index, mut out } = chunk;
+    /// Solve every case of `chunk`, with `ws` the thread's state.
+    fn run_chunk(&self, ws: &mut ChunkState, chunk: Chunk) {
+        let Chunk { index, out } = chunk;
+        match self.lane_kernel {
+            Some(lane_kernel) => self.run_lanes(lane_kernel, ws, index, out),
+            None => self.run_in_order(ws, index, out),
+        }
+    }
+
+    /// Solve chunk `index` with the lane kernel: the eligible cases (valid,
+    /// on a full face) in the lanes, the rest one at a time. Which path a
+    /// case takes depends on its own inputs only.
+    fn run_lanes(
+        &self,
+        lane_kernel: LaneKernel,
+        ws: &mut ChunkState,
+        index: usize,
+        mut out: ChunkOut,
+    ) {
+        let (s, r) = (self.s, self.r);
         let n_local = out.status.len();
-        if let Some(lane_kernel) = lane_kernel {
-            // Eligible cases (valid, on a full face) to the lanes; the rest
-            // one at a time. Which path a case takes depends on its own
-            // inputs only.
-            let mut cases: Vec<LaneCase> = Vec::with_capacity(n_local);
-            let mut eligible = [false; LANE_CHUNK];
-            for local in 0..n_local {
-                let (feed, ln_k, pressure, start) = case_inputs(index * chunk_len + local);
-                if !case_is_valid(feed, ln_k, pressure) {
-                    continue;
-                }
-                if let Some(Ok(face)) = ws.faces.face(&faces, feed) {
-                    if face.dim == r {
-                        eligible[local] = true;
-                        cases.push(LaneCase {
-                            row: local,
-                            feed,
-                            start,
-                            ln_k,
-                            pressure,
-                            face,
-                        });
-                    }
-                }
+        let mut eligible = [false; LANE_CHUNK];
+        let cases = self.lane_cases(ws, index, n_local, &mut eligible);
+        let mut outcome = [(Status::InvalidInput, 0); LANE_CHUNK];
+        lane_kernel(
+            self.system,
+            &cases,
+            self.options,
+            out.amounts,
+            out.extents,
+            &mut outcome,
+        );
+        for local in 0..n_local {
+            let case = out.case(local, s, r);
+            let mut absent = 0;
+            if !eligible[local] {
+                let (feed, ln_k, pressure, start) =
+                    self.case_inputs(index * self.chunk_len + local);
+                let (st, it, mask) = ws.solve(
+                    self.system,
+                    &self.faces,
+                    feed,
+                    ln_k,
+                    pressure,
+                    start,
+                    self.options,
+                    self.kernel,
+                    case.amounts,
+                    case.extents,
+                );
+                outcome[local] = (st, it);
+                absent = mask;
             }
-            let mut outcome = [(Status::InvalidInput, 0); LANE_CHUNK];
-            lane_kernel(
-                system,
-                &cases,
-                options,
-                out.amounts,
-                out.extents,
-                &mut outcome,
-            );
-            for local in 0..n_local {
-                let case = out.case(local, s, r);
-                let mut absent = 0;
-                if !eligible[local] {
-                    let (feed, ln_k, pressure, start) = case_inputs(index * chunk_len + local);
-                    let (st, it, mask) = ws.solve(
-                        system,
-                        &faces,
+            let (st, it) = outcome[local];
+            *case.status = st as u8;
+            *case.iterations = it;
+            self.finish(case, st, absent);
+        }
+    }
+
+    /// The cases of chunk `index` (`n_local` of them) that the lanes take,
+    /// each marked in `eligible`: valid, and on a full face.
+    fn lane_cases<'t>(
+        &'t self,
+        ws: &mut ChunkState,
+        index: usize,
+        n_local: usize,
+        eligible: &mut [bool; LANE_CHUNK],
+    ) -> Vec<LaneCase<'t>> {
+        let mut cases: Vec<LaneCase> = Vec::with_capacity(n_local);
+        for local in 0..n_local {
+            let (feed, ln_k, pressure, start) = self.case_inputs(index * self.chunk_len + local);
+            if !case_is_valid(feed, ln_k, pressure) {
+                continue;
+            }
+            if let Some(Ok(face)) = ws.faces.face(&self.faces, feed) {
+                if face.dim == self.r {
+                    eligible[local] = true;
+                    cases.push(LaneCase {
+                        row: local,
                         feed,
+                        start,
                         ln_k,
                         pressure,
-                        start,
-                        options,
-                        kernel,
-                        case.amounts,
-                        case.extents,
-                    );
-                    outcome[local] = (st, it);
-                    absent = mask;
+                        face,
+                    });
                 }
-                let (st, it) = outcome[local];
-                *case.status = st as u8;
-                *case.iterations = it;
-                finish(case, st, absent);
             }
-            return;
         }
+        cases
+    }
+
+    /// Solve the cases of chunk `index` one at a time, in order; with
+    /// chained starts each case without a start of its own starts from the
+    /// case before it when that one converged.
+    fn run_in_order(&self, ws: &mut ChunkState, index: usize, mut out: ChunkOut) {
+        let (s, r) = (self.s, self.r);
+        let n_local = out.status.len();
         let mut previous_converged = false;
         for local in 0..n_local {
-            let (feed, ln_k, pressure, start) = case_inputs(index * chunk_len + local);
-            let chained = options.chain && start.is_none() && previous_converged;
+            let (feed, ln_k, pressure, start) = self.case_inputs(index * self.chunk_len + local);
+            let chained = self.options.chain && start.is_none() && previous_converged;
             // The cases before this one in the chunk are finished: a chained
             // start reads the previous case's extents from the output.
             let (case, before) = out.case_after(local, s, r);
@@ -437,41 +559,36 @@ pub fn solve_batch(
                 start
             };
             let (st, it, absent) = ws.solve(
-                system,
-                &faces,
+                self.system,
+                &self.faces,
                 feed,
                 ln_k,
                 pressure,
                 start,
-                options,
-                kernel,
+                self.options,
+                self.kernel,
                 case.amounts,
                 case.extents,
             );
             *case.status = st as u8;
             *case.iterations = it;
             previous_converged = st.is_converged();
-            finish(case, st, absent);
+            self.finish(case, st, absent);
         }
-    };
-
-    let chunks = Chunk::split(outputs, chunk_len, s, r);
-    if serial {
-        let mut state = ChunkState::new(system);
-        for chunk in chunks {
-            run_chunk(&mut state, chunk);
-        }
-        return Ok(());
     }
-    // The calling thread works too: it starts on the first chunk at once
-    // while pool threads wake up and join in (waking a sleeping pool costs
-    // tens of microseconds, as much as a thousand cases on the lane path).
-    // Chunks are handed out in order from a shared counter; which thread
-    // solves a chunk does not change its results.
+}
+
+/// Solve `chunks` on `pool` (`None`: rayon's global pool). The calling
+/// thread works too: it starts on the first chunk at once while pool threads
+/// wake up and join in (waking a sleeping pool costs tens of microseconds,
+/// as much as a thousand cases on the lane path). Chunks are handed out in
+/// order from a shared counter; which thread solves a chunk does not change
+/// its results.
+fn run_in_parallel(plan: &BatchPlan, chunks: Vec<Chunk>, pool: Option<&rayon::ThreadPool>) {
     let work: Vec<Mutex<Option<Chunk>>> = chunks.into_iter().map(|c| Mutex::new(Some(c))).collect();
     let next = AtomicUsize::new(0);
     let drain = || {
-        let mut state = ChunkState::new(system);
+        let mut state = ChunkState::new(plan.system);
         loop {
             let k = next.fetch_add(1, Ordering::Relaxed);
             let Some(slot) = work.get(k) else {
@@ -479,21 +596,19 @@ pub fn solve_batch(
             };
             let item = slot.lock().ok().and_then(|mut taken| taken.take());
             if let Some(chunk) = item {
-                run_chunk(&mut state, chunk);
+                plan.run_chunk(&mut state, chunk);
             }
         }
     };
     // The caller and up to `workers - 1` pool threads drain the chunks.
     let workers = pool
-        .as_ref()
         .map_or_else(rayon::current_num_threads, |p| p.current_num_threads())
         .min(work.len())
         .max(1);
-    match &pool {
+    match pool {
         Some(pool) => pool.in_place_scope(|scope| spread(scope, workers, &drain)),
         None => rayon::in_place_scope(|scope| spread(scope, workers, &drain)),
     }
-    Ok(())
 }
 
 /// Run `drain` on `workers - 1` threads of `scope`'s pool and on the caller.

@@ -47,7 +47,7 @@ use crate::newton::{
     TO_BOUNDARY,
 };
 use crate::status::Status;
-use crate::system::{System, N_PHASES};
+use crate::system::{Phase, System, N_PHASES};
 
 /// Solver settings shared by every case of a batch.
 #[derive(Clone, Copy, Debug, PartialEq)]
@@ -132,7 +132,7 @@ struct Scratch<'a> {
     comp_w: &'a mut [f64],
     /// Per component species: its amount when every pivot is zero,
     /// `n0_c - sum_j B[j, c] n0_pivot(j)`, a conserved quantity of the
-    /// current basis computed from the feed (see [`run`]).
+    /// current basis computed from the feed (see [`conserved_base`]).
     comp_base: &'a mut [f64],
     order: &'a mut [usize],
     pivot_of: &'a mut [usize],
@@ -662,7 +662,102 @@ fn basis_residuals(
     );
 }
 
+/// What stays fixed through one solve: the case's inputs cut to size, the
+/// sizes and the phase of each species.
+#[derive(Clone, Copy)]
+struct Problem<'a> {
+    system: &'a System,
+    face: &'a Face,
+    /// Feed amounts (S).
+    feed: &'a [f64],
+    /// The phase of each species (S).
+    phases: &'a [Phase],
+    /// `ln(P / P0)`.
+    ln_pressure: f64,
+    s: usize,
+    r: usize,
+    /// Dimension of the face (the number of basis reactions).
+    dim: usize,
+    /// Number of components, `S - dim`.
+    nc: usize,
+    /// Every species is a gas. With this a compile-time constant (the
+    /// specialised kernels), every phase lookup folds away.
+    gas_only: bool,
+}
+
+impl<'a> Problem<'a> {
+    /// The fixed part of a solve of `case` with sizes `sizes`.
+    #[inline(always)]
+    fn new(system: &'a System, case: &Case<'a>, sizes: Sizes, gas_only: bool) -> Self {
+        let s = sizes.species;
+        Problem {
+            system,
+            face: case.face,
+            feed: &case.feed[..s],
+            phases: &system.phases()[..s],
+            ln_pressure: (case.pressure / system.p0()).ln(),
+            s,
+            r: sizes.reactions,
+            dim: sizes.dim,
+            nc: s - sizes.dim,
+            gas_only,
+        }
+    }
+
+    /// The phase index of species `i`.
+    #[inline(always)]
+    fn phase_of(&self, i: usize) -> usize {
+        if self.gas_only {
+            0
+        } else {
+            self.phases[i].index()
+        }
+    }
+}
+
+/// The state of a solve that the steps of a Newton iteration share (the
+/// per-species and per-reaction arrays are in the [`Scratch`]).
+struct Iterate {
+    /// Phase totals of the current amounts.
+    totals: [f64; N_PHASES],
+    /// Their logarithms ([`ln_of_totals`]).
+    ln_totals: [f64; N_PHASES],
+    /// The scratch holds a basis valid for the current abundance order.
+    basis_ready: bool,
+    /// How much of the abundance order the basis was chosen from: a reorder
+    /// that starts past it keeps the basis.
+    basis_prefix: usize,
+    /// `Scratch::residual` holds the residuals at the current point (from
+    /// the line search, when the basis has not changed since).
+    residual_known: bool,
+    /// Newton steps taken.
+    iterations: u32,
+}
+
+/// A feasible trial point of the line search; its amounts, changes and
+/// logarithms are in the [`Scratch`].
+#[derive(Clone, Copy)]
+struct Trial {
+    /// First-order change of the merit function, `residual . basis_step`.
+    first_order: f64,
+    /// The largest `|change| / n` of any species.
+    largest_relative: f64,
+    /// Phase totals at the trial point, and their logarithms.
+    totals: [f64; N_PHASES],
+    ln_totals: [f64; N_PHASES],
+}
+
+/// `ln` of each phase total, 0 for an empty phase.
+#[inline(always)]
+fn ln_of_totals(totals: [f64; N_PHASES]) -> [f64; N_PHASES] {
+    totals.map(|n| if n > 0.0 { n.ln() } else { 0.0 })
+}
+
 /// Interior start, then damped Newton iterations; see the module docs.
+/// Each iteration: 1. the basis ([`update_basis`]), 2. residuals and the
+/// convergence test ([`residual_test`]), 3. the Newton system
+/// ([`newton_step`]), 4. the path and the largest step ([`step_bound`]),
+/// 5. backtracking ([`line_search`]) and the move ([`take_step`]).
 #[inline(always)]
 fn run(
     system: &System,
@@ -672,469 +767,589 @@ fn run(
     sizes: Sizes,
     gas_only: bool,
 ) -> (Status, u32) {
-    let Sizes {
-        species: s,
-        reactions: r,
-        dim,
-    } = sizes;
-    let Case {
-        face,
-        feed,
-        ln_k,
-        pressure,
-        start,
-    } = *case;
-    let phases = &system.phases()[..s];
-    // With `gas_only` a compile-time constant, every phase lookup folds away.
-    let phase_of = |i: usize| if gas_only { 0 } else { phases[i].index() };
-    let feed = &feed[..s];
-    let ln_k = &ln_k[..r];
-    let ln_pressure = (pressure / system.p0()).ln();
+    let p = Problem::new(system, case, sizes, gas_only);
+    start_point(&p, case.start, sc);
+    if p.dim == 0 {
+        return (Status::Converged, 0);
+    }
+    let mut it = Iterate::new(&p, case.ln_k, sc);
+    loop {
+        if !update_basis(&p, sc, &mut it) {
+            return (Status::Stalled, it.iterations);
+        }
+        // `held`: some species is held at the float floor with its reaction unmet.
+        let (worst, held) = residual_test(&p, sc, &it, options.tol);
+        if !worst.is_finite() {
+            return (Status::Stalled, it.iterations);
+        }
+        if worst <= options.tol {
+            let status = if held {
+                Status::Underflow
+            } else {
+                Status::Converged
+            };
+            return (status, it.iterations);
+        }
+        if it.iterations >= options.max_iter {
+            return (Status::IterationLimit, it.iterations);
+        }
+        if !newton_step(&p, sc, &it) {
+            return (Status::Stalled, it.iterations);
+        }
+        let Some((slope, alpha_max)) = step_bound(&p, sc, &it) else {
+            return (Status::Stalled, it.iterations);
+        };
+        let Some(trial) = line_search(&p, sc, &it, slope, alpha_max) else {
+            return (Status::Stalled, it.iterations);
+        };
+        take_step(&p, sc, &mut it, &trial);
+    }
+}
+
+/// The starting amounts and extents (into `sc`): `start` where it is
+/// feasible ([`warm_start`]), else [`interior_start`]. Also resets the
+/// abundance order.
+#[inline(always)]
+fn start_point(p: &Problem, start: Option<&[f64]>, sc: &mut Scratch) {
+    let (s, r) = (p.s, p.r);
     let amounts = &mut sc.amounts[..s];
     let start = start.map(|x0| &x0[..r]);
-
     for (k, slot) in sc.order[..s].iter_mut().enumerate() {
         // Every case starts from the same order, so that ties between equal
         // amounts break the same way whatever the previous case was.
         *slot = k;
     }
-    if !start.is_some_and(|x0| warm_start(system, face, feed, x0, amounts, sc.extents, s, r)) {
-        interior_start(face, feed, amounts, sc.extents, s, r);
+    if !start.is_some_and(|x0| warm_start(p.system, p.face, p.feed, x0, amounts, sc.extents, s, r))
+    {
+        interior_start(p.face, p.feed, amounts, sc.extents, s, r);
     }
-    if dim == 0 {
-        return (Status::Converged, 0);
-    }
-    for f in 0..dim {
-        let mut v = 0.0;
-        for j in 0..r {
-            v += face.basis[j * dim + f] * ln_k[j];
-        }
-        sc.ln_k_face[f] = v;
-    }
-    let mut totals = [0.0; N_PHASES];
-    for i in 0..s {
-        let n = amounts[i];
-        totals[phase_of(i)] += n;
-        sc.ln_amount[i] = if n > 0.0 { n.ln() } else { 0.0 };
-        // Species in no reaction never enter the Hessian; leaving their
-        // 1/n at zero keeps a subnormal inert from turning 0 * inf into NaN.
-        sc.inv_amount[i] = if n > 0.0 && system.is_reactive(i) {
-            1.0 / n
-        } else {
-            0.0
-        };
-    }
-    let mut ln_totals = totals.map(|n| if n > 0.0 { n.ln() } else { 0.0 });
+}
 
-    let basis_stoich = &mut sc.basis_stoich[..dim * s];
-    // Each basis reaction is its pivot species plus some of the `nc`
-    // components (see `comp_stoich`): the loops below visit only those.
-    let nc = s - dim;
-    let comp_stoich = &mut sc.comp_stoich[..dim * nc];
-    let components = &mut sc.components[..nc];
-    let transform = &mut sc.transform[..dim * dim];
-    let hess = &mut sc.hessian[..dim * dim];
-    let mut basis_ready = false;
-    let mut basis_prefix = 0;
-    let mut residual_known = false;
-    let mut iterations = 0;
-    // Some species is held at the float floor with its reaction unmet
-    // (set at every convergence test).
-    let mut held;
-    loop {
-        // 1. The per-case stoichiometric basis, re-derived only when the
-        //    abundance order changes within the part that chose it, and
-        //    then only if the `dim` least abundant species are no longer
-        //    the pivots (the same pivots in another order give the same
-        //    reactions, in another order).
-        let first_moved = sort_by_amount(amounts, &mut sc.order[..s]);
-        if basis_ready && first_moved < basis_prefix {
-            if sc.order[..dim]
-                .iter()
-                .all(|&i| sc.pivot_of[i] != usize::MAX)
-            {
-                basis_prefix = dim;
-            } else {
-                basis_ready = false;
-            }
-        }
-        if !basis_ready {
-            residual_known = false;
-            match choose_basis(
-                &face.stoich,
-                dim,
-                s,
-                &sc.order[..s],
-                basis_stoich,
-                transform,
-                &mut sc.pivots[..dim],
-                &mut sc.pivot_of[..s],
-            ) {
-                Some(examined) => basis_prefix = examined,
-                None => return (Status::Stalled, iterations),
-            }
-            let mut c = 0;
-            for i in 0..s {
-                if sc.pivot_of[i] == usize::MAX {
-                    components[c] = i;
-                    c += 1;
-                }
-            }
-            debug_assert_eq!(c, nc);
-            for j in 0..dim {
-                for c in 0..nc {
-                    comp_stoich[j * nc + c] = basis_stoich[j * s + components[c]];
-                }
-            }
-            // Components from the conserved quantities of this basis and the
-            // pivots (see `component_update`): a trace component then keeps
-            // the relative precision of the pivots it is made of.
-            // (Computed when a component is first a trace: `NOT_YET`.)
-            let mut moved = false;
-            for c in 0..nc {
-                let i = components[c];
-                let touched = (0..dim).any(|j| comp_stoich[j * nc + c] != 0.0);
-                let trace = amounts[i] < TRACE_COMPONENT_SHARE * totals[phase_of(i)];
-                sc.comp_base[c] = match (touched, trace) {
-                    (false, _) => f64::NAN,
-                    (true, false) => NOT_YET,
-                    (true, true) => {
-                        conserved_base(feed, i, &comp_stoich[c..], nc, &sc.pivots[..dim])
-                    }
-                };
-                let base = sc.comp_base[c];
-                if !trace || !base.is_finite() {
-                    continue;
-                }
-                let mut v = base;
-                for j in 0..dim {
-                    v += comp_stoich[j * nc + c] * amounts[sc.pivots[j]];
-                }
-                if v > 0.0 && v < f64::INFINITY && v != amounts[i] {
-                    amounts[i] = v;
-                    sc.ln_amount[i] = v.ln();
-                    sc.inv_amount[i] = 1.0 / v;
-                    moved = true;
-                }
-            }
-            if moved {
-                totals = [0.0; N_PHASES];
-                for i in 0..s {
-                    totals[phase_of(i)] += amounts[i];
-                }
-                ln_totals = totals.map(|n| if n > 0.0 { n.ln() } else { 0.0 });
-            }
-            for j in 0..dim {
-                let mut v = 0.0;
-                for k in 0..dim {
-                    v += transform[j * dim + k] * sc.ln_k_face[k];
-                }
-                let (mut gas, mut liquid) = (0.0, 0.0);
-                for i in 0..s {
-                    if phase_of(i) == 0 {
-                        gas += basis_stoich[j * s + i];
-                    } else {
-                        liquid += basis_stoich[j * s + i];
-                    }
-                }
-                sc.gas_change[j] = gas;
-                sc.liquid_change[j] = liquid;
-                sc.basis_constant[j] = gas * ln_pressure - v;
-            }
-            basis_ready = true;
-        }
-
-        // 2. Residuals ln Q - ln K of the basis reactions (already known from
-        //    the line search when the basis has not changed).
-        let mut worst = 0.0_f64;
-        held = false;
-        if !residual_known {
-            basis_residuals(
-                &mut sc.residual[..dim],
-                &mut sc.comp_mu[..nc],
-                &mut sc.pivot_mu[..dim],
-                sc.ln_amount,
-                &ln_totals,
-                phase_of,
-                &sc.pivots[..dim],
-                components,
-                comp_stoich,
-                &sc.basis_constant[..dim],
-            );
-        }
-        for j in 0..dim {
-            let res = sc.residual[j];
-            let sp = sc.pivots[j];
-            // Only a minor species of its phase is held at the floor: when a
-            // whole phase shrinks there (a phase that should vanish), its
-            // species keep their share and the case must not pass as converged.
-            let ln_total = ln_totals[phase_of(sp)];
-            sc.frozen[j] = res > 0.0
-                && sc.ln_amount[sp] <= LN_FLOOR + 1e-6
-                && sc.ln_amount[sp] - ln_total <= LN_MINOR_SHARE;
-            if !sc.frozen[j] {
-                worst = worst.max(res.abs());
-            } else if res > options.tol {
-                held = true;
-            }
-        }
-        if !worst.is_finite() {
-            return (Status::Stalled, iterations);
-        }
-        if worst <= options.tol {
-            break;
-        }
-        if iterations >= options.max_iter {
-            return (Status::IterationLimit, iterations);
-        }
-
-        // 3. Newton system H step = -residual.
-        let inv_gas = if totals[0] > 0.0 {
-            1.0 / totals[0]
-        } else {
-            0.0
-        };
-        let inv_liquid = if totals[1] > 0.0 {
-            1.0 / totals[1]
-        } else {
-            0.0
-        };
-        for c in 0..nc {
-            sc.comp_w[c] = sc.inv_amount[components[c]];
-        }
-        // (the pivots' 1 / n, in `du` until step 4 needs it)
-        for j in 0..dim {
-            sc.du[j] = sc.inv_amount[sc.pivots[j]];
-        }
-        let phase_terms = [
-            PhaseTerm {
-                change: &sc.gas_change[..dim],
-                inv_total: inv_gas,
-            },
-            PhaseTerm {
-                change: &sc.liquid_change[..dim],
-                inv_total: inv_liquid,
-            },
-        ];
-        let phase_terms = if gas_only {
-            &phase_terms[..1]
-        } else {
-            &phase_terms[..]
-        };
-        hessian(
-            comp_stoich,
-            nc,
-            &sc.comp_w[..nc],
-            Some(&sc.du[..dim]),
-            phase_terms,
-            dim,
-            hess,
-            dim,
-        );
-        for j in 0..dim {
-            if sc.frozen[j] {
-                // A species held at the float floor: its reaction is left out.
-                for k in 0..dim {
-                    let (a, b) = (j.min(k), j.max(k));
-                    hess[a * dim + b] = if j == k { 1.0 } else { 0.0 };
-                }
-            }
-            sc.step[j] = if sc.frozen[j] { 0.0 } else { -sc.residual[j] };
-        }
-        if !solve_spd(hess, &mut sc.step[..dim], &mut sc.scale[..dim], dim) {
-            return (Status::Stalled, iterations);
-        }
-
-        // 4. Path of each basis reaction, and the largest step that keeps
-        //    every amount positive.
-        let mut slope = 0.0;
-        let mut alpha_max = 1.0_f64;
-        for j in 0..dim {
-            slope += sc.residual[j] * sc.step[j];
-            let sp = sc.pivots[j];
-            let du = sc.step[j] * sc.inv_amount[sp];
-            sc.du[j] = du;
-            let ln_share = sc.ln_amount[sp] - ln_totals[phase_of(sp)];
-            let on_log = ln_share < LN_MINOR_SHARE || du < 0.0;
-            sc.on_log_path[j] = on_log;
-            if !on_log {
-                continue;
-            }
-            if du > 0.0 {
-                // Do not let a minor species grow past its whole phase in one go.
-                let room = 1.0 - ln_share;
-                if du > room {
-                    alpha_max = alpha_max.min(room / du);
-                }
-            } else {
-                // Nor shrink below what float64 can follow.
-                let depth = LN_FLOOR - sc.ln_amount[sp];
-                if depth < 0.0 && depth > du {
-                    alpha_max = alpha_max.min(depth / du);
-                }
-            }
-        }
-        if slope.is_nan() || slope >= 0.0 {
-            return (Status::Stalled, iterations);
-        }
-        for j in 0..dim {
-            let lin = sc.step[j];
-            if !sc.on_log_path[j] && lin < 0.0 {
-                alpha_max = alpha_max.min(TO_BOUNDARY * amounts[sc.pivots[j]] / -lin);
-            }
-        }
-        for c in 0..nc {
-            let mut lin = 0.0;
-            for j in 0..dim {
-                lin += comp_stoich[j * nc + c] * sc.step[j];
-            }
-            if lin < 0.0 {
-                alpha_max = alpha_max.min(TO_BOUNDARY * amounts[components[c]] / -lin);
-            }
-        }
-
-        // 5. Backtracking along the path.
-        let mut alpha = alpha_max;
-        let mut accepted = false;
-        let mut trial_totals = [0.0; N_PHASES];
-        let mut trial_ln_totals = [0.0; N_PHASES];
-        for _ in 0..MAX_BACKTRACKS {
-            let mut first_order = 0.0;
-            for j in 0..dim {
-                let d = if sc.on_log_path[j] {
-                    amounts[sc.pivots[j]] * (alpha * sc.du[j]).exp_m1()
-                } else {
-                    alpha * sc.step[j]
-                };
-                sc.basis_step[j] = d;
-                first_order += sc.residual[j] * d;
-            }
-            for j in 0..dim {
-                let p = sc.pivots[j];
-                sc.change[p] = sc.basis_step[j];
-                sc.trial[p] = amounts[p] + sc.basis_step[j];
-            }
-            for c in 0..nc {
-                let i = components[c];
-                let trace = amounts[i] < TRACE_COMPONENT_SHARE * totals[phase_of(i)];
-                if trace && sc.comp_base[c] == NOT_YET {
-                    sc.comp_base[c] =
-                        conserved_base(feed, i, &comp_stoich[c..], nc, &sc.pivots[..dim]);
-                }
-                let (change, new) = component_update(
-                    sc.comp_base[c],
-                    trace,
-                    &comp_stoich[c..],
-                    nc,
-                    &sc.pivots[..dim],
-                    sc.trial,
-                    &sc.basis_step[..dim],
-                    amounts[i],
-                );
-                sc.change[i] = change;
-                sc.trial[i] = new;
-            }
-            let mut feasible = true;
-            let mut largest_relative = 0.0_f64;
-            trial_totals = [0.0; N_PHASES];
-            for i in 0..s {
-                let d = sc.change[i];
-                let new = if d != 0.0 { sc.trial[i] } else { amounts[i] };
-                if d != 0.0 {
-                    // (false for NaN as well)
-                    if !(new > 0.0 && new < f64::INFINITY) {
-                        feasible = false;
-                        break;
-                    }
-                    largest_relative = largest_relative.max((d * sc.inv_amount[i]).abs());
-                    sc.trial_ln[i] = new.ln();
-                } else {
-                    sc.trial_ln[i] = sc.ln_amount[i];
-                }
-                sc.trial[i] = new;
-                trial_totals[phase_of(i)] += new;
-            }
-            if feasible {
-                trial_ln_totals = trial_totals.map(|n| if n > 0.0 { n.ln() } else { 0.0 });
-                // Directional derivative of g along the path at the trial point.
-                basis_residuals(
-                    &mut sc.trial_residual[..dim],
-                    &mut sc.comp_mu[..nc],
-                    &mut sc.pivot_mu[..dim],
-                    sc.trial_ln,
-                    &trial_ln_totals,
-                    phase_of,
-                    &sc.pivots[..dim],
-                    components,
-                    comp_stoich,
-                    &sc.basis_constant[..dim],
-                );
-                let mut derivative = 0.0;
-                for j in 0..dim {
-                    let res = sc.trial_residual[j];
-                    let velocity = if sc.on_log_path[j] {
-                        sc.trial[sc.pivots[j]] * sc.du[j]
-                    } else {
-                        sc.step[j]
-                    };
-                    derivative += res * velocity;
-                }
-                if accept_quickly(derivative, largest_relative, slope) {
-                    accepted = true;
-                    break;
-                }
-                let mut second_order = 0.0;
-                let mut phase_delta = [0.0; N_PHASES];
-                for i in 0..s {
-                    second_order += h(amounts[i], sc.change[i]);
-                    phase_delta[phase_of(i)] += sc.change[i];
-                }
-                for p in 0..N_PHASES {
-                    second_order -= h(totals[p], phase_delta[p]);
-                }
-                if sufficient_decrease(first_order, second_order, alpha, slope) {
-                    accepted = true;
-                    break;
-                }
-            }
-            alpha *= 0.5;
-        }
-        if !accepted {
-            return (Status::Stalled, iterations);
-        }
-        for i in 0..s {
-            if sc.change[i] != 0.0 {
-                amounts[i] = sc.trial[i];
-                sc.ln_amount[i] = sc.trial_ln[i];
-                sc.inv_amount[i] = 1.0 / sc.trial[i];
-            }
-        }
-        totals = trial_totals;
-        ln_totals = trial_ln_totals;
-        sc.residual[..dim].copy_from_slice(&sc.trial_residual[..dim]);
-        residual_known = true;
-        // Extents of the user's reactions: dxi = basis * transform^T * dxi_basis.
+impl Iterate {
+    /// The state at the starting point, before any basis: also writes the
+    /// face's `ln K` (from `ln_k`, R) and each species' `ln n` and `1 / n`
+    /// into `sc`.
+    #[inline(always)]
+    fn new(p: &Problem, ln_k: &[f64], sc: &mut Scratch) -> Self {
+        let (s, r, dim) = (p.s, p.r, p.dim);
+        let ln_k = &ln_k[..r];
+        let amounts = &sc.amounts[..s];
         for f in 0..dim {
             let mut v = 0.0;
-            for j in 0..dim {
-                v += transform[j * dim + f] * sc.basis_step[j];
+            for j in 0..r {
+                v += p.face.basis[j * dim + f] * ln_k[j];
             }
-            sc.face_step[f] = v;
+            sc.ln_k_face[f] = v;
         }
-        for k in 0..r {
-            let mut v = 0.0;
-            for f in 0..dim {
-                v += face.basis[k * dim + f] * sc.face_step[f];
-            }
-            sc.extents[k] += v;
+        let mut totals = [0.0; N_PHASES];
+        for i in 0..s {
+            let n = amounts[i];
+            totals[p.phase_of(i)] += n;
+            sc.ln_amount[i] = if n > 0.0 { n.ln() } else { 0.0 };
+            // Species in no reaction never enter the Hessian; leaving their
+            // 1/n at zero keeps a subnormal inert from turning 0 * inf into NaN.
+            sc.inv_amount[i] = if n > 0.0 && p.system.is_reactive(i) {
+                1.0 / n
+            } else {
+                0.0
+            };
         }
-        iterations += 1;
+        Iterate {
+            totals,
+            ln_totals: ln_of_totals(totals),
+            basis_ready: false,
+            basis_prefix: 0,
+            residual_known: false,
+            iterations: 0,
+        }
     }
-    if held {
-        (Status::Underflow, iterations)
+}
+
+/// Step 1: the per-case stoichiometric basis, re-derived only when the
+/// abundance order changes within the part that chose it, and then only if
+/// the `dim` least abundant species are no longer the pivots (the same
+/// pivots in another order give the same reactions, in another order).
+/// Returns `false` if no basis can be chosen.
+#[inline(always)]
+fn update_basis(p: &Problem, sc: &mut Scratch, it: &mut Iterate) -> bool {
+    let (s, dim) = (p.s, p.dim);
+    let first_moved = sort_by_amount(&sc.amounts[..s], &mut sc.order[..s]);
+    if it.basis_ready && first_moved < it.basis_prefix {
+        if sc.order[..dim]
+            .iter()
+            .all(|&i| sc.pivot_of[i] != usize::MAX)
+        {
+            it.basis_prefix = dim;
+        } else {
+            it.basis_ready = false;
+        }
+    }
+    if !it.basis_ready {
+        it.residual_known = false;
+        match choose_new_basis(p, sc) {
+            Some(examined) => it.basis_prefix = examined,
+            None => return false,
+        }
+        rebase_trace_components(p, sc, it);
+        basis_constants(p, sc);
+        it.basis_ready = true;
+    }
+    true
+}
+
+/// A basis for the current abundance order ([`choose_basis`]): its
+/// reactions, transform and pivots, then the components (the species that
+/// are no pivot, in index order) and the reactions' component columns
+/// (`comp_stoich`). Returns how much of the order was examined, `None` if
+/// there is no basis.
+#[inline(always)]
+fn choose_new_basis(p: &Problem, sc: &mut Scratch) -> Option<usize> {
+    let (s, dim, nc) = (p.s, p.dim, p.nc);
+    let basis_stoich = &mut sc.basis_stoich[..dim * s];
+    // Each basis reaction is its pivot species plus some of the `nc`
+    // components (see `comp_stoich`): later loops visit only those.
+    let comp_stoich = &mut sc.comp_stoich[..dim * nc];
+    let components = &mut sc.components[..nc];
+    let examined = choose_basis(
+        &p.face.stoich,
+        dim,
+        s,
+        &sc.order[..s],
+        basis_stoich,
+        &mut sc.transform[..dim * dim],
+        &mut sc.pivots[..dim],
+        &mut sc.pivot_of[..s],
+    )?;
+    let mut c = 0;
+    for i in 0..s {
+        if sc.pivot_of[i] == usize::MAX {
+            components[c] = i;
+            c += 1;
+        }
+    }
+    debug_assert_eq!(c, nc);
+    for j in 0..dim {
+        for c in 0..nc {
+            comp_stoich[j * nc + c] = basis_stoich[j * s + components[c]];
+        }
+    }
+    Some(examined)
+}
+
+/// Components from the conserved quantities of a new basis and the pivots
+/// (see [`component_update`]): a trace component then keeps the relative
+/// precision of the pivots it is made of. Sets each component's `comp_base`
+/// (computed only when a component is first a trace, else [`NOT_YET`]),
+/// moves the trace components to their conserved amounts, and updates the
+/// phase totals if any moved.
+#[inline(always)]
+fn rebase_trace_components(p: &Problem, sc: &mut Scratch, it: &mut Iterate) {
+    let (s, dim, nc) = (p.s, p.dim, p.nc);
+    let amounts = &mut sc.amounts[..s];
+    let comp_stoich = &sc.comp_stoich[..dim * nc];
+    let components = &sc.components[..nc];
+    let mut moved = false;
+    for c in 0..nc {
+        let i = components[c];
+        let touched = (0..dim).any(|j| comp_stoich[j * nc + c] != 0.0);
+        let trace = amounts[i] < TRACE_COMPONENT_SHARE * it.totals[p.phase_of(i)];
+        sc.comp_base[c] = match (touched, trace) {
+            (false, _) => f64::NAN,
+            (true, false) => NOT_YET,
+            (true, true) => conserved_base(p.feed, i, &comp_stoich[c..], nc, &sc.pivots[..dim]),
+        };
+        let base = sc.comp_base[c];
+        if !trace || !base.is_finite() {
+            continue;
+        }
+        let mut v = base;
+        for j in 0..dim {
+            v += comp_stoich[j * nc + c] * amounts[sc.pivots[j]];
+        }
+        if v > 0.0 && v < f64::INFINITY && v != amounts[i] {
+            amounts[i] = v;
+            sc.ln_amount[i] = v.ln();
+            sc.inv_amount[i] = 1.0 / v;
+            moved = true;
+        }
+    }
+    if moved {
+        it.totals = [0.0; N_PHASES];
+        for i in 0..s {
+            it.totals[p.phase_of(i)] += amounts[i];
+        }
+        it.ln_totals = ln_of_totals(it.totals);
+    }
+}
+
+/// Per reaction of a new basis: its gas and liquid mole changes and the
+/// constant part of its residual, `gas change * ln(P/P0) - ln K`.
+#[inline(always)]
+fn basis_constants(p: &Problem, sc: &mut Scratch) {
+    let (s, dim) = (p.s, p.dim);
+    let basis_stoich = &sc.basis_stoich[..dim * s];
+    let transform = &sc.transform[..dim * dim];
+    for j in 0..dim {
+        let mut v = 0.0;
+        for k in 0..dim {
+            v += transform[j * dim + k] * sc.ln_k_face[k];
+        }
+        let (mut gas, mut liquid) = (0.0, 0.0);
+        for i in 0..s {
+            if p.phase_of(i) == 0 {
+                gas += basis_stoich[j * s + i];
+            } else {
+                liquid += basis_stoich[j * s + i];
+            }
+        }
+        sc.gas_change[j] = gas;
+        sc.liquid_change[j] = liquid;
+        sc.basis_constant[j] = gas * p.ln_pressure - v;
+    }
+}
+
+/// Step 2: residuals `ln Q - ln K` of the basis reactions (already known
+/// from the line search when the basis has not changed), and which pivots
+/// are held at the float floor (`frozen`). Returns the largest residual of
+/// the reactions not held, and whether a held one is unmet (above `tol`).
+#[inline(always)]
+fn residual_test(p: &Problem, sc: &mut Scratch, it: &Iterate, tol: f64) -> (f64, bool) {
+    let (dim, nc) = (p.dim, p.nc);
+    let mut worst = 0.0_f64;
+    let mut held = false;
+    if !it.residual_known {
+        basis_residuals(
+            &mut sc.residual[..dim],
+            &mut sc.comp_mu[..nc],
+            &mut sc.pivot_mu[..dim],
+            sc.ln_amount,
+            &it.ln_totals,
+            |i| p.phase_of(i),
+            &sc.pivots[..dim],
+            &sc.components[..nc],
+            &sc.comp_stoich[..dim * nc],
+            &sc.basis_constant[..dim],
+        );
+    }
+    for j in 0..dim {
+        let res = sc.residual[j];
+        let sp = sc.pivots[j];
+        // Only a minor species of its phase is held at the floor: when a
+        // whole phase shrinks there (a phase that should vanish), its
+        // species keep their share and the case must not pass as converged.
+        let ln_total = it.ln_totals[p.phase_of(sp)];
+        sc.frozen[j] = res > 0.0
+            && sc.ln_amount[sp] <= LN_FLOOR + 1e-6
+            && sc.ln_amount[sp] - ln_total <= LN_MINOR_SHARE;
+        if !sc.frozen[j] {
+            worst = worst.max(res.abs());
+        } else if res > tol {
+            held = true;
+        }
+    }
+    (worst, held)
+}
+
+/// Step 3: the Newton system `H step = -residual`, solved into `sc.step`
+/// (a reaction held at the float floor is left out: its row and column of
+/// `H` become the identity's, its step 0). Returns `false` if `H` is not
+/// positive definite.
+#[inline(always)]
+fn newton_step(p: &Problem, sc: &mut Scratch, it: &Iterate) -> bool {
+    let (dim, nc) = (p.dim, p.nc);
+    let hess = &mut sc.hessian[..dim * dim];
+    let inv_gas = if it.totals[0] > 0.0 {
+        1.0 / it.totals[0]
     } else {
-        (Status::Converged, iterations)
+        0.0
+    };
+    let inv_liquid = if it.totals[1] > 0.0 {
+        1.0 / it.totals[1]
+    } else {
+        0.0
+    };
+    for c in 0..nc {
+        sc.comp_w[c] = sc.inv_amount[sc.components[c]];
     }
+    // (the pivots' 1 / n, in `du` until step 4 needs it)
+    for j in 0..dim {
+        sc.du[j] = sc.inv_amount[sc.pivots[j]];
+    }
+    let phase_terms = [
+        PhaseTerm {
+            change: &sc.gas_change[..dim],
+            inv_total: inv_gas,
+        },
+        PhaseTerm {
+            change: &sc.liquid_change[..dim],
+            inv_total: inv_liquid,
+        },
+    ];
+    let phase_terms = if p.gas_only {
+        &phase_terms[..1]
+    } else {
+        &phase_terms[..]
+    };
+    hessian(
+        &sc.comp_stoich[..dim * nc],
+        nc,
+        &sc.comp_w[..nc],
+        Some(&sc.du[..dim]),
+        phase_terms,
+        dim,
+        hess,
+        dim,
+    );
+    for j in 0..dim {
+        if sc.frozen[j] {
+            // A species held at the float floor: its reaction is left out.
+            for k in 0..dim {
+                let (a, b) = (j.min(k), j.max(k));
+                hess[a * dim + b] = if j == k { 1.0 } else { 0.0 };
+            }
+        }
+        sc.step[j] = if sc.frozen[j] { 0.0 } else { -sc.residual[j] };
+    }
+    solve_spd(hess, &mut sc.step[..dim], &mut sc.scale[..dim], dim)
+}
+
+/// Step 4: the path of each basis reaction (`on_log_path`, and `du`, the
+/// step in its pivot's `ln n`), and the largest step that keeps every amount
+/// positive. Returns the slope `residual . step` and that largest step
+/// (at most 1); `None` if the step is no descent direction.
+#[inline(always)]
+fn step_bound(p: &Problem, sc: &mut Scratch, it: &Iterate) -> Option<(f64, f64)> {
+    let (s, dim, nc) = (p.s, p.dim, p.nc);
+    let amounts = &sc.amounts[..s];
+    let mut slope = 0.0;
+    let mut alpha_max = 1.0_f64;
+    for j in 0..dim {
+        slope += sc.residual[j] * sc.step[j];
+        let sp = sc.pivots[j];
+        let du = sc.step[j] * sc.inv_amount[sp];
+        sc.du[j] = du;
+        let ln_share = sc.ln_amount[sp] - it.ln_totals[p.phase_of(sp)];
+        let on_log = ln_share < LN_MINOR_SHARE || du < 0.0;
+        sc.on_log_path[j] = on_log;
+        if !on_log {
+            continue;
+        }
+        if du > 0.0 {
+            // Do not let a minor species grow past its whole phase in one go.
+            let room = 1.0 - ln_share;
+            if du > room {
+                alpha_max = alpha_max.min(room / du);
+            }
+        } else {
+            // Nor shrink below what float64 can follow.
+            let depth = LN_FLOOR - sc.ln_amount[sp];
+            if depth < 0.0 && depth > du {
+                alpha_max = alpha_max.min(depth / du);
+            }
+        }
+    }
+    if slope.is_nan() || slope >= 0.0 {
+        return None;
+    }
+    for j in 0..dim {
+        let lin = sc.step[j];
+        if !sc.on_log_path[j] && lin < 0.0 {
+            alpha_max = alpha_max.min(TO_BOUNDARY * amounts[sc.pivots[j]] / -lin);
+        }
+    }
+    let comp_stoich = &sc.comp_stoich[..dim * nc];
+    for c in 0..nc {
+        let mut lin = 0.0;
+        for j in 0..dim {
+            lin += comp_stoich[j * nc + c] * sc.step[j];
+        }
+        if lin < 0.0 {
+            alpha_max = alpha_max.min(TO_BOUNDARY * amounts[sc.components[c]] / -lin);
+        }
+    }
+    Some((slope, alpha_max))
+}
+
+/// Step 5: backtracking along the path from `alpha_max`, halving the step
+/// until the trial point ([`trial_point`]) is feasible and accepted
+/// ([`trial_accepted`]), at most [`MAX_BACKTRACKS`] times. Returns the
+/// accepted point (its arrays in `sc`), or `None`.
+#[inline(always)]
+fn line_search(
+    p: &Problem,
+    sc: &mut Scratch,
+    it: &Iterate,
+    slope: f64,
+    alpha_max: f64,
+) -> Option<Trial> {
+    let mut alpha = alpha_max;
+    for _ in 0..MAX_BACKTRACKS {
+        if let Some(trial) = trial_point(p, sc, it, alpha) {
+            if trial_accepted(p, sc, it, &trial, alpha, slope) {
+                return Some(trial);
+            }
+        }
+        alpha *= 0.5;
+    }
+    None
+}
+
+/// The point at `alpha` along the path: the basis reactions' steps
+/// (`basis_step`), every species' change (`change`; a component's from
+/// [`component_update`]), new amount (`trial`) and its logarithm
+/// (`trial_ln`). `None` if some amount leaves `(0, inf)`.
+#[inline(always)]
+fn trial_point(p: &Problem, sc: &mut Scratch, it: &Iterate, alpha: f64) -> Option<Trial> {
+    let (s, dim, nc) = (p.s, p.dim, p.nc);
+    let amounts = &sc.amounts[..s];
+    let comp_stoich = &sc.comp_stoich[..dim * nc];
+    let mut first_order = 0.0;
+    for j in 0..dim {
+        let d = if sc.on_log_path[j] {
+            amounts[sc.pivots[j]] * (alpha * sc.du[j]).exp_m1()
+        } else {
+            alpha * sc.step[j]
+        };
+        sc.basis_step[j] = d;
+        first_order += sc.residual[j] * d;
+    }
+    for j in 0..dim {
+        let sp = sc.pivots[j];
+        sc.change[sp] = sc.basis_step[j];
+        sc.trial[sp] = amounts[sp] + sc.basis_step[j];
+    }
+    for c in 0..nc {
+        let i = sc.components[c];
+        let trace = amounts[i] < TRACE_COMPONENT_SHARE * it.totals[p.phase_of(i)];
+        if trace && sc.comp_base[c] == NOT_YET {
+            sc.comp_base[c] = conserved_base(p.feed, i, &comp_stoich[c..], nc, &sc.pivots[..dim]);
+        }
+        let (change, new) = component_update(
+            sc.comp_base[c],
+            trace,
+            &comp_stoich[c..],
+            nc,
+            &sc.pivots[..dim],
+            sc.trial,
+            &sc.basis_step[..dim],
+            amounts[i],
+        );
+        sc.change[i] = change;
+        sc.trial[i] = new;
+    }
+    let mut largest_relative = 0.0_f64;
+    let mut totals = [0.0; N_PHASES];
+    for i in 0..s {
+        let d = sc.change[i];
+        let new = if d != 0.0 { sc.trial[i] } else { amounts[i] };
+        if d != 0.0 {
+            // (false for NaN as well)
+            if !(new > 0.0 && new < f64::INFINITY) {
+                return None;
+            }
+            largest_relative = largest_relative.max((d * sc.inv_amount[i]).abs());
+            sc.trial_ln[i] = new.ln();
+        } else {
+            sc.trial_ln[i] = sc.ln_amount[i];
+        }
+        sc.trial[i] = new;
+        totals[p.phase_of(i)] += new;
+    }
+    Some(Trial {
+        first_order,
+        largest_relative,
+        totals,
+        ln_totals: ln_of_totals(totals),
+    })
+}
+
+/// Whether the line search takes the feasible `trial` at step `alpha`: its
+/// basis residuals (into `trial_residual`) give the directional derivative
+/// of the merit function along the path there, which may accept it at once
+/// ([`accept_quickly`]); otherwise the exact change `r . dxi + sum h - sum h`
+/// decides ([`sufficient_decrease`]).
+#[inline(always)]
+fn trial_accepted(
+    p: &Problem,
+    sc: &mut Scratch,
+    it: &Iterate,
+    trial: &Trial,
+    alpha: f64,
+    slope: f64,
+) -> bool {
+    let (s, dim, nc) = (p.s, p.dim, p.nc);
+    basis_residuals(
+        &mut sc.trial_residual[..dim],
+        &mut sc.comp_mu[..nc],
+        &mut sc.pivot_mu[..dim],
+        sc.trial_ln,
+        &trial.ln_totals,
+        |i| p.phase_of(i),
+        &sc.pivots[..dim],
+        &sc.components[..nc],
+        &sc.comp_stoich[..dim * nc],
+        &sc.basis_constant[..dim],
+    );
+    let mut derivative = 0.0;
+    for j in 0..dim {
+        let res = sc.trial_residual[j];
+        let velocity = if sc.on_log_path[j] {
+            sc.trial[sc.pivots[j]] * sc.du[j]
+        } else {
+            sc.step[j]
+        };
+        derivative += res * velocity;
+    }
+    if accept_quickly(derivative, trial.largest_relative, slope) {
+        return true;
+    }
+    let amounts = &sc.amounts[..s];
+    let mut second_order = 0.0;
+    let mut phase_delta = [0.0; N_PHASES];
+    for i in 0..s {
+        second_order += h(amounts[i], sc.change[i]);
+        phase_delta[p.phase_of(i)] += sc.change[i];
+    }
+    for k in 0..N_PHASES {
+        second_order -= h(it.totals[k], phase_delta[k]);
+    }
+    sufficient_decrease(trial.first_order, second_order, alpha, slope)
+}
+
+/// Moves to the accepted `trial`: amounts with their logarithms and
+/// reciprocals, phase totals, residuals, and the extents of the user's
+/// reactions (`dxi = basis * transform^T * dxi_basis`); counts the step.
+#[inline(always)]
+fn take_step(p: &Problem, sc: &mut Scratch, it: &mut Iterate, trial: &Trial) {
+    let (s, r, dim) = (p.s, p.r, p.dim);
+    let amounts = &mut sc.amounts[..s];
+    for i in 0..s {
+        if sc.change[i] != 0.0 {
+            amounts[i] = sc.trial[i];
+            sc.ln_amount[i] = sc.trial_ln[i];
+            sc.inv_amount[i] = 1.0 / sc.trial[i];
+        }
+    }
+    it.totals = trial.totals;
+    it.ln_totals = trial.ln_totals;
+    sc.residual[..dim].copy_from_slice(&sc.trial_residual[..dim]);
+    it.residual_known = true;
+    let transform = &sc.transform[..dim * dim];
+    for f in 0..dim {
+        let mut v = 0.0;
+        for j in 0..dim {
+            v += transform[j * dim + f] * sc.basis_step[j];
+        }
+        sc.face_step[f] = v;
+    }
+    for k in 0..r {
+        let mut v = 0.0;
+        for f in 0..dim {
+            v += p.face.basis[k * dim + f] * sc.face_step[f];
+        }
+        sc.extents[k] += v;
+    }
+    it.iterations += 1;
 }
 
 #[cfg(test)]
