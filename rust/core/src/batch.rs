@@ -386,10 +386,8 @@ impl<'a> BatchPlan<'a> {
         let gas_only = system.phases().iter().all(|&p| p == Phase::Gas);
         let kernel = kernel_for(r, s, gas_only);
         // All-gas small systems solve their eligible cases in vector lanes
-        // (chained starts, which need the case before, go one at a time; a
-        // system too large to bound its bases' residuals goes to the general
-        // solve, see `System::basis_gain`).
-        let lane_kernel = if gas_only && !options.chain && system.basis_gain().is_some() {
+        // (chained starts, which need the case before, go one at a time).
+        let lane_kernel = if gas_only && !options.chain {
             lane_kernel_for(r, s)
         } else {
             None

@@ -35,7 +35,9 @@
 //! reactions as given and stop when theirs are at most `tol / gain`, where
 //! the system's [`System::basis_gain`] bounds how much any basis can enlarge
 //! them, so the stopping point meets `tol` whichever basis the general solve
-//! would have chosen.
+//! would have chosen. Where that target is out of reach, or the system has
+//! too many candidate bases to compute the gain, they stop at `tol` and the
+//! general solve checks the point in its own basis (see `lane_tolerance`).
 
 use crate::face::Face;
 use crate::ln::ln_normal;
@@ -229,6 +231,26 @@ enum Lane {
     Idle,
 }
 
+/// Smallest residual the lanes aim for on the reactions as given: below
+/// it, rounding in `ln Q - ln K` (sums of logarithms of order 10-100) could
+/// keep a lane from ever stopping.
+const REACHABLE: f64 = 1e-13;
+
+/// Where the lanes stop, and whether the general solve must then check the
+/// point. The general solve's `tol` holds for its per-case basis; a point
+/// whose given residuals are at most `tol / gain` meets it in any basis
+/// ([`System::basis_gain`]). Where that target is out of reach (a large
+/// gain, a tight `tol`) or the gain was not computed (too many candidate
+/// bases), the lanes stop at `tol` on the reactions as given and hand the
+/// point to the general solve, which accepts it after checking its own basis
+/// (or takes the one more Newton step it needs).
+fn lane_tolerance(system: &System, tol: f64) -> (f64, bool) {
+    match system.basis_gain() {
+        Some(gain) if tol / gain.max(1.0) >= REACHABLE => (tol / gain.max(1.0), false),
+        _ => (tol, true),
+    }
+}
+
 /// `ln Q - ln K` of every reaction in every lane. The same sum as
 /// [`crate::newton::residuals`], written out here because the generic one
 /// costs the lane kernel about 10 % more instructions on workload (a)
@@ -360,10 +382,7 @@ fn solve_group<const R: usize, const S: usize, const EXACT: bool>(
         reactive[i] = system.is_reactive(i);
     }
     let limit = options.max_iter.min(STEPS);
-    // The general solve's `tol` holds for its per-case basis: meet it for
-    // any basis (see `System::basis_gain`; the batch driver sends no lanes
-    // for systems without one).
-    let tol = options.tol / system.basis_gain().map_or(f64::INFINITY, |g| g.max(1.0));
+    let (tol, verify) = lane_tolerance(system, options.tol);
 
     let mut state = [Lane::Idle; LANES];
     let mut slot = [0usize; LANES];
@@ -395,7 +414,12 @@ fn solve_group<const R: usize, const S: usize, const EXACT: bool>(
                         worst = max(worst, residual[j][l].abs());
                     }
                     if worst <= tol {
-                        state[l] = Lane::Converged;
+                        // (`verify`: the general solve checks its own basis)
+                        state[l] = if verify {
+                            Lane::Handback
+                        } else {
+                            Lane::Converged
+                        };
                     } else if !worst.is_finite() || iterations[l] >= limit {
                         state[l] = Lane::Handback;
                     }
@@ -952,6 +976,57 @@ mod tests {
                         assert!((got - expect).abs() < 1e-12 * feed.iter().sum::<f64>());
                     }
                 }
+            }
+        }
+    }
+
+    #[test]
+    fn lanes_of_a_system_without_a_gain_stop_at_tol_and_are_checked_by_the_general_solve() {
+        // Ten isomerisations A_k = B_k: binomial(20, 10) = 184,756 candidate
+        // bases, too many to compute the gain, so every lane that stops is
+        // handed to the general solve for its basis check. Each reaction is
+        // alone in its species, so B_k / A_k = K_k exactly (closed form).
+        let (r, s) = (10, 20);
+        let mut nu = vec![0.0; r * s];
+        for k in 0..r {
+            nu[k * s + 2 * k] = -1.0;
+            nu[k * s + 2 * k + 1] = 1.0;
+        }
+        let sys = System::new(nu, r, s, vec![crate::system::Phase::Gas; s], 1.0).unwrap();
+        assert_eq!(sys.basis_gain(), None);
+        let options = SolveOptions::default();
+        let data: Vec<(Vec<f64>, Vec<f64>, f64)> = (0..12)
+            .map(|c| {
+                let feed: Vec<f64> = (0..s).map(|i| 0.5 + 0.1 * ((i + c) % 3) as f64).collect();
+                let ln_k: Vec<f64> = (0..r)
+                    .map(|k| 0.3 * (k as f64 - 4.5) + 0.1 * c as f64)
+                    .collect();
+                (feed, ln_k, 1.0 + c as f64)
+            })
+            .collect();
+        let faces: Vec<Face> = data
+            .iter()
+            .map(|_| analyse(&sys, &vec![false; s]).unwrap())
+            .collect();
+        let list = lane_cases(&data, &faces, |_| None);
+        let n = data.len();
+        let (mut amounts, mut extents) = (vec![f64::NAN; s * n], vec![f64::NAN; r * n]);
+        let mut out = vec![(Status::InvalidInput, 0); n];
+        HANDBACKS.with(|c| c.set(0));
+        lane_kernel_for(r, s).unwrap()(&sys, &list, &options, &mut amounts, &mut extents, &mut out);
+        assert_eq!(HANDBACKS.with(|c| c.get()), n);
+        for (c, (feed, ln_k, _)) in data.iter().enumerate() {
+            assert_eq!(out[c].0, Status::Converged, "case {c}");
+            // Stopped by convergence, not by the lanes' step limit.
+            assert!(out[c].1 < STEPS, "case {c}: {} steps", out[c].1);
+            for k in 0..r {
+                let pair = feed[2 * k] + feed[2 * k + 1];
+                let b = pair * ln_k[k].exp() / (1.0 + ln_k[k].exp());
+                let got = amounts[c * s + 2 * k + 1];
+                assert!(
+                    ((got - b) / b).abs() < 1e-9,
+                    "case {c} reaction {k}: {got} vs {b}"
+                );
             }
         }
     }

@@ -149,7 +149,8 @@ impl System {
     /// solve would choose: that is how the lane path, which iterates on the
     /// reactions as given, keeps the general path's meaning of `tol`.
     /// `None` when there are more than [`BASIS_SETS_LIMIT`] candidate sets
-    /// (such systems are left to the general solve). Computed on first use
+    /// (the lanes then have the general solve check each point they stop
+    /// at). Computed on first use
     /// (by the components, see `basis_gain` below).
     pub fn basis_gain(&self) -> Option<f64> {
         *self.basis_gain.get_or_init(|| {
