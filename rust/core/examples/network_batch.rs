@@ -3,6 +3,8 @@
 //! `cargo run --release --example network_batch FILE [THREADS]`.
 //! With `HASH` set in the environment, also prints a checksum of every output.
 
+mod common;
+
 use eqbatch_core::{solve_batch, BatchInputs, BatchOutputs, Phase, SolveOptions, System};
 use std::time::Instant;
 
@@ -59,7 +61,7 @@ fn main() {
     let converged = status.iter().filter(|&&st| st == 0).count();
     let total_iter: u64 = iterations.iter().map(|&i| i as u64).sum();
     if std::env::var("HASH").is_ok() {
-        let hash = checksum(&[&amounts, &extents], &status, &iterations);
+        let hash = common::checksum(&[&amounts, &extents], &status, &iterations);
         println!("checksum {hash:016x}");
     }
     println!(
@@ -67,26 +69,4 @@ fn main() {
         1e6 * secs / n as f64,
         total_iter as f64 / n as f64
     );
-}
-
-/// FNV-1a (64-bit) over the bits of every output, for checking that a
-/// change leaves results bit-identical (printed when `HASH` is set).
-fn checksum(floats: &[&[f64]], status: &[u8], iterations: &[u32]) -> u64 {
-    let mut h: u64 = 0xcbf2_9ce4_8422_2325;
-    let mut eat = |bytes: &[u8]| {
-        for &b in bytes {
-            h ^= u64::from(b);
-            h = h.wrapping_mul(0x0000_0100_0000_01b3);
-        }
-    };
-    for part in floats {
-        for v in part.iter() {
-            eat(&v.to_bits().to_le_bytes());
-        }
-    }
-    eat(status);
-    for it in iterations {
-        eat(&it.to_le_bytes());
-    }
-    h
 }

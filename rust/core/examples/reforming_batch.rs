@@ -2,6 +2,8 @@
 //! benchmark's workload (a). `cargo run --release --example reforming_batch [N] [THREADS]`.
 //! With `HASH` set in the environment, also prints a checksum of every output.
 
+mod common;
+
 use eqbatch_core::{solve_batch, BatchInputs, BatchOutputs, Phase, SolveOptions, System};
 use std::time::Instant;
 
@@ -72,7 +74,7 @@ fn main() {
         );
     }
     if std::env::var("HASH").is_ok() {
-        let hash = checksum(&[&amounts, &extents, &fractions], &status, &iterations);
+        let hash = common::checksum(&[&amounts, &extents, &fractions], &status, &iterations);
         println!("checksum {hash:016x}");
     }
     println!(
@@ -80,26 +82,4 @@ fn main() {
         n as f64 / secs,
         total_iter as f64 / n as f64
     );
-}
-
-/// FNV-1a (64-bit) over the bits of every output, for checking that a
-/// change leaves results bit-identical (printed when `HASH` is set).
-fn checksum(floats: &[&[f64]], status: &[u8], iterations: &[u32]) -> u64 {
-    let mut h: u64 = 0xcbf2_9ce4_8422_2325;
-    let mut eat = |bytes: &[u8]| {
-        for &b in bytes {
-            h ^= u64::from(b);
-            h = h.wrapping_mul(0x0000_0100_0000_01b3);
-        }
-    };
-    for part in floats {
-        for v in part.iter() {
-            eat(&v.to_bits().to_le_bytes());
-        }
-    }
-    eat(status);
-    for it in iterations {
-        eat(&it.to_le_bytes());
-    }
-    h
 }
