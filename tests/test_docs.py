@@ -26,6 +26,7 @@ MODULES = [
     "eqbatch.result",
     "eqbatch.approach",
     "eqbatch.system",
+    "eqbatch.prepared",
     "eqbatch.thermo",
     "eqbatch.uncertainty",
     "eqbatch.sweeps",

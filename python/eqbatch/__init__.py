@@ -35,6 +35,7 @@ from eqbatch.errors import (
 )
 from eqbatch.kdata import LnKFunction
 from eqbatch.outputs import release_memory, reuse_output_memory
+from eqbatch.prepared import PreparedSolve
 from eqbatch.result import EquilibriumResult
 from eqbatch.status import Status
 from eqbatch.system import ReactionSystem
@@ -86,6 +87,7 @@ __all__ = [
     "InvalidCaseError",
     "LnKFunction",
     "MonteCarloResult",
+    "PreparedSolve",
     "ReactionSystem",
     "Status",
     "SweepError",

@@ -212,7 +212,8 @@ class EquilibriumResult:
         >>> res.feed.tolist(), res.P.tolist(), res.T, res.lnK.tolist()
         ([[1.0, 0.0], [1.0, 0.0]], [1.0, 2.0], None, [[0.0], [1.0]])
         """
-        return self._rows(self._feed)
+        feed = self._feed
+        return self._rows(feed if feed.ndim == 2 else feed[None])  # (S,): one row (a prepared solve)
 
     @property
     def P(self) -> np.ndarray:
@@ -229,7 +230,8 @@ class EquilibriumResult:
     def lnK(self) -> np.ndarray:
         """(N, R) the equilibrium constants used, on the system's ``P0`` (see
         :attr:`feed` for an example)."""
-        return self._rows(self._lnK)
+        lnk = self._lnK
+        return self._rows(lnk if lnk.ndim == 2 else lnk[None])
 
     @property
     def converged(self) -> np.ndarray:

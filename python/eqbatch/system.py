@@ -33,6 +33,7 @@ from eqbatch.inputs import (
     reaction_rows,
     why_invalid,
 )
+from eqbatch.prepared import PreparedSolve
 from eqbatch.result import EquilibriumResult, Status
 from eqbatch.spec import PHASES, ArrayLike, KData, SystemSpec, bad_temperatures
 from eqbatch.system_file import read_spec
@@ -414,6 +415,51 @@ class ReactionSystem(SystemSpec):
             if held is not None and held.any():
                 approach_module.held_sensitivities(self, result, held, threads)
         return result
+
+    def prepare(
+        self,
+        cases: int = 1,
+        *,
+        tol: float = 1e-10,
+        max_iter: int = 200,
+        threads: int | None = None,
+        sensitivities: bool = False,
+    ) -> PreparedSolve:
+        """A solver for repeated calls on ``cases`` cases, with the options checked once.
+
+        For optimisers and other loops that solve the same system many times:
+        each call of the returned object's ``solve(feed, lnK=, T=, P=)`` skips
+        the option checks, labelled inputs and output allocation of
+        :meth:`solve` and writes into the same arrays (the result object is
+        the same at every call). The equilibrium is the same to the bit.
+
+        Parameters
+        ----------
+        cases : int, default 1
+            Cases per call.
+        tol, max_iter, threads, sensitivities
+            As for :meth:`solve`, fixed for every call.
+
+        Returns
+        -------
+        PreparedSolve
+
+        Raises
+        ------
+        CaseInputError
+            An option out of range.
+
+        Examples
+        --------
+        >>> s = ReactionSystem(["Xa", "Xb"], ["Xa = Xb"])
+        >>> run = s.prepare(sensitivities=True)
+        >>> res = run.solve([1.0, 0.0], lnK=[0.0])
+        >>> res.amounts.tolist(), res.sensitivity("lnK")[0, :, 0].round(6).tolist()
+        ([[0.5, 0.5]], [-0.25, 0.25])
+        """
+        return PreparedSolve(
+            self, cases, tol=tol, max_iter=max_iter, threads=threads, sensitivities=sensitivities
+        )
 
     def _outputs(self, out: EquilibriumResult | None, n: int) -> outputs.Outputs | None:
         """Output arrays for a solve of ``n`` cases: those of ``out`` (an

@@ -157,11 +157,40 @@ fn case_is_valid(feed: &[f64], ln_k: &[f64], pressure: f64) -> bool {
     feed_is_valid(feed) && ln_k_sum == 0.0 && pressure > 0.0 && pressure < f64::INFINITY
 }
 
-/// The faces of every distinct zero pattern of a batch.
+/// The faces of every distinct zero pattern of a batch. Few patterns
+/// (the usual batch has one to a handful) are found by a scan of `keys`;
+/// a hash index is built once there are more than [`FaceTable::SCAN`].
 #[derive(Default)]
 pub(crate) struct FaceTable {
+    keys: Vec<Vec<u64>>,
     index: HashMap<Vec<u64>, usize>,
     faces: Vec<Arc<Result<Face, FaceError>>>,
+}
+
+impl FaceTable {
+    const SCAN: usize = 16;
+
+    /// Where pattern `key` is in `faces`.
+    fn find(&self, key: &[u64]) -> Option<usize> {
+        if self.keys.len() <= Self::SCAN {
+            self.keys.iter().position(|k| k[..] == *key)
+        } else {
+            self.index.get(key).copied()
+        }
+    }
+
+    fn insert(&mut self, key: Vec<u64>, face: Arc<Result<Face, FaceError>>) {
+        let at = self.faces.len();
+        self.faces.push(face);
+        self.keys.push(key);
+        if self.keys.len() == Self::SCAN + 1 {
+            for (k, key) in self.keys.iter().enumerate() {
+                self.index.insert(key.clone(), k);
+            }
+        } else if self.keys.len() > Self::SCAN + 1 {
+            self.index.insert(self.keys[at].clone(), at);
+        }
+    }
 }
 
 /// A per-thread cursor into a [`FaceTable`]: the key buffer and the last
@@ -194,7 +223,7 @@ impl FaceCursor {
         // (word by word: a slice comparison would call memcmp per case)
         let same = self.key.iter().zip(&self.last_key).all(|(a, b)| a == b);
         if self.last.is_none() || !same {
-            self.last = table.index.get(&self.key[..]).copied();
+            self.last = table.find(&self.key);
             self.last_key.copy_from_slice(&self.key);
         }
         self.last.map(|k| &*table.faces[k])
@@ -240,14 +269,13 @@ pub(crate) fn faces_for(
     };
     let mut table = FaceTable::default();
     for (key, case) in found.into_iter().flatten() {
-        if !table.index.contains_key(&key) {
+        if table.find(&key).is_none() {
             let feed = rows.row(inputs.feed, case);
             let face = system.face_memo().get_or_analyse(&key, || {
                 let zero: Vec<bool> = feed.iter().map(|&v| v < TINY_FEED).collect();
                 analyse(system, &zero)
             });
-            table.index.insert(key, table.faces.len());
-            table.faces.push(face);
+            table.insert(key, face);
         }
     }
     table
@@ -748,14 +776,16 @@ impl ChunkOut<'_> {
 
 /// One thread's state: its workspace and its place in the face table.
 struct ChunkState {
-    workspace: Workspace,
+    /// The general solve's scratch, made when a case first needs it (lane
+    /// cases do not; a one-case call saves its allocation).
+    workspace: Option<Workspace>,
     faces: FaceCursor,
 }
 
 impl ChunkState {
     fn new(system: &System) -> Self {
         ChunkState {
-            workspace: Workspace::new(system),
+            workspace: None,
             faces: FaceCursor::new(system.n_species()),
         }
     }
@@ -787,25 +817,14 @@ impl ChunkState {
             pressure,
             start,
         };
-        let (status, iterations) = solve_on_face(
-            system,
-            &case,
-            options,
-            kernel,
-            &mut self.workspace,
-            amounts,
-            extents,
-        );
+        let workspace = self.workspace.get_or_insert_with(|| Workspace::new(system));
+        let (status, iterations) =
+            solve_on_face(system, &case, options, kernel, workspace, amounts, extents);
         if !presence::worth_retrying(system, status) {
             return (status, iterations, 0);
         }
         match presence::solve_with_a_phase_absent(
-            system,
-            &case,
-            options,
-            &mut self.workspace,
-            amounts,
-            extents,
+            system, &case, options, workspace, amounts, extents,
         ) {
             Some(repair) => (
                 repair.status,
@@ -821,6 +840,21 @@ impl ChunkState {
 mod tests {
     use super::*;
     use crate::fixtures::reforming;
+
+    #[test]
+    fn the_face_table_finds_every_pattern_by_scan_and_by_index() {
+        // Keys past FaceTable::SCAN move the lookup to the hash index; every
+        // key must still lead to its own face, and an unknown key to none.
+        let mut table = FaceTable::default();
+        let keys: Vec<Vec<u64>> = (0..40u64).map(|k| vec![k * 3 + 1, k]).collect();
+        for (k, key) in keys.iter().enumerate() {
+            table.insert(key.clone(), Arc::new(Err(FaceError::LinearProgramme)));
+            for (j, earlier) in keys[..=k].iter().enumerate() {
+                assert_eq!(table.find(earlier), Some(j), "after {} keys", k + 1);
+            }
+            assert_eq!(table.find(&[0, 0]), None);
+        }
+    }
 
     fn run(
         sys: &System,

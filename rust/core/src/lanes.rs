@@ -61,8 +61,6 @@ const SMALLEST: f64 = 1e-250;
 /// Newton steps after which an unconverged lane goes to the general solve.
 const STEPS: u32 = 30;
 
-use crate::num::Lanes;
-
 #[cfg(test)]
 thread_local! {
     /// Lanes handed to the general solve on this thread (tests only).
@@ -135,7 +133,29 @@ fn dispatch<const R: usize, const S: usize, const EXACT: bool>() -> LaneKernel {
             return x86::solve_avx2::<R, S, EXACT>;
         }
     }
-    solve_group::<R, S, EXACT>
+    solve_portable::<R, S, EXACT>
+}
+
+/// Calls with fewer cases than this run through a one-lane instance of the
+/// kernel (plain scalar code, the same arithmetic lane for lane, so the
+/// same bits): a vector group costs as much per iteration for one case as
+/// for eight, about six times a lone lane's work on workload (a).
+const NARROW_BELOW: usize = 4;
+
+/// The kernel without extra target features (lanes as plain loops).
+fn solve_portable<const R: usize, const S: usize, const EXACT: bool>(
+    system: &System,
+    cases: &[LaneCase],
+    options: &SolveOptions,
+    amounts: &mut [f64],
+    extents: &mut [f64],
+    out: &mut [(Status, u32)],
+) {
+    if cases.len() < NARROW_BELOW {
+        solve_group::<R, S, EXACT, 1>(system, cases, options, amounts, extents, out)
+    } else {
+        solve_group::<R, S, EXACT, LANES>(system, cases, options, amounts, extents, out)
+    }
 }
 
 /// Which vector instructions the lane kernels use on this processor
@@ -187,7 +207,7 @@ mod x86 {
                 extents: &mut [f64],
                 out: &mut [(Status, u32)],
             ) {
-                solve_group::<R, S, EXACT>(system, cases, options, amounts, extents, out)
+                solve_group::<R, S, EXACT, LANES>(system, cases, options, amounts, extents, out)
             }
 
             pub(super) fn $entry<const R: usize, const S: usize, const EXACT: bool>(
@@ -198,13 +218,16 @@ mod x86 {
                 extents: &mut [f64],
                 out: &mut [(Status, u32)],
             ) {
+                if cases.len() < NARROW_BELOW {
+                    return solve_group::<R, S, EXACT, 1>(system, cases, options, amounts, extents, out);
+                }
                 match $token::detect() {
                     // SAFETY: the token exists only where run-time detection
                     // found every feature `$inner` is compiled for.
                     Some(proof) => unsafe {
                         $inner::<R, S, EXACT>(proof, system, cases, options, amounts, extents, out)
                     },
-                    None => solve_group::<R, S, EXACT>(system, cases, options, amounts, extents, out),
+                    None => solve_portable::<R, S, EXACT>(system, cases, options, amounts, extents, out),
                 }
             }
         };
@@ -256,22 +279,22 @@ fn lane_tolerance(system: &System, tol: f64) -> (f64, bool) {
 /// costs the lane kernel about 10 % more instructions on workload (a)
 /// (callgrind, `examples/reforming_batch`).
 #[inline(always)]
-fn residuals<const R: usize, const S: usize>(
+fn residuals<const R: usize, const S: usize, const L: usize>(
     (r, s): (usize, usize),
     nu: &[[f64; S]; R],
     moles: &[f64; R],
-    constant: &[Lanes; R],
-    ln_n: &[Lanes; S],
-    ln_total: &Lanes,
-) -> [Lanes; R] {
-    let mut out = [[0.0; LANES]; R];
+    constant: &[[f64; L]; R],
+    ln_n: &[[f64; L]; S],
+    ln_total: &[f64; L],
+) -> [[f64; L]; R] {
+    let mut out = [[0.0; L]; R];
     for j in 0..r {
-        for l in 0..LANES {
+        for l in 0..L {
             out[j][l] = constant[j][l] - moles[j] * ln_total[l];
         }
         for i in 0..s {
             let c = nu[j][i];
-            for l in 0..LANES {
+            for l in 0..L {
                 out[j][l] += c * ln_n[i][l];
             }
         }
@@ -307,37 +330,43 @@ fn clamp(v: f64) -> f64 {
 
 /// `ln` of every lane (arguments clamped to the normal range).
 #[inline(always)]
-fn ln_lanes(x: &Lanes) -> Lanes {
-    let mut out = [0.0; LANES];
-    for l in 0..LANES {
+fn ln_lanes<const L: usize>(x: &[f64; L]) -> [f64; L] {
+    let mut out = [0.0; L];
+    for l in 0..L {
         out[l] = ln_normal(clamp(x[l]));
     }
     out
 }
 
 /// `h(n, d) = n phi(d / n)` ([`crate::newton::h`]) in every lane, in stages
-/// that each vectorise; valid for `n + d > 0`.
+/// that each vectorise; valid for `n + d > 0`. `inv_n` is `1 / n` and
+/// `ln_ratio` is `ln(n + d) - ln(n)`, both already at hand in the line
+/// search, so no logarithm is taken here: where `|d / n| >= 0.05` the
+/// difference of the two logarithms is `ln(1 + d / n)` to a few units in
+/// 1e-14 relative (each logarithm is within an ulp of `ln` and the
+/// difference is at least 0.048 in size); below that the series is used,
+/// which needs no logarithm at all.
 #[inline(always)]
-fn h_lanes(n: &Lanes, d: &Lanes) -> Lanes {
-    let mut x = [0.0; LANES];
-    for l in 0..LANES {
-        x[l] = d[l] / clamp(n[l]);
+fn h_lanes<const L: usize>(
+    n: &[f64; L],
+    d: &[f64; L],
+    inv_n: &[f64; L],
+    ln_ratio: &[f64; L],
+) -> [f64; L] {
+    let mut x = [0.0; L];
+    for l in 0..L {
+        x[l] = d[l] * inv_n[l];
     }
-    let mut series = [PHI_SERIES[PHI_SERIES.len() - 1]; LANES];
+    let mut series = [PHI_SERIES[PHI_SERIES.len() - 1]; L];
     for &c in PHI_SERIES.iter().rev().skip(1) {
-        for l in 0..LANES {
+        for l in 0..L {
             series[l] = series[l] * x[l] + c;
         }
     }
-    let mut y = [0.0; LANES];
-    for l in 0..LANES {
-        y[l] = 1.0 + x[l];
-    }
-    let ln_y = ln_lanes(&y);
-    let mut out = [0.0; LANES];
-    for l in 0..LANES {
+    let mut out = [0.0; L];
+    for l in 0..L {
         let small = series[l] * x[l] * x[l];
-        let direct = y[l] * ln_y[l] - x[l];
+        let direct = (1.0 + x[l]) * ln_ratio[l] - x[l];
         let phi = if x[l].abs() < 0.05 { small } else { direct };
         out[l] = clamp(n[l]) * phi;
     }
@@ -345,7 +374,7 @@ fn h_lanes(n: &Lanes, d: &Lanes) -> Lanes {
 }
 
 #[inline(always)]
-fn solve_group<const R: usize, const S: usize, const EXACT: bool>(
+fn solve_group<const R: usize, const S: usize, const EXACT: bool, const L: usize>(
     system: &System,
     cases: &[LaneCase],
     options: &SolveOptions,
@@ -384,29 +413,29 @@ fn solve_group<const R: usize, const S: usize, const EXACT: bool>(
     let limit = options.max_iter.min(STEPS);
     let (tol, verify) = lane_tolerance(system, options.tol);
 
-    let mut state = [Lane::Idle; LANES];
-    let mut slot = [0usize; LANES];
-    let mut n = [[1.0; LANES]; S];
-    let mut xi = [[0.0; LANES]; R];
-    let mut constant = [[0.0; LANES]; R];
-    let mut total = [1.0; LANES];
-    let mut ln_n = [[0.0; LANES]; S];
-    let mut inv_n = [[1.0; LANES]; S];
-    let mut ln_total = [0.0; LANES];
-    let mut residual = [[0.0_f64; LANES]; R];
-    let mut iterations = [0u32; LANES];
+    let mut state = [Lane::Idle; L];
+    let mut slot = [0usize; L];
+    let mut n = [[1.0; L]; S];
+    let mut xi = [[0.0; L]; R];
+    let mut constant = [[0.0; L]; R];
+    let mut total = [1.0; L];
+    let mut ln_n = [[0.0; L]; S];
+    let mut inv_n = [[1.0; L]; S];
+    let mut ln_total = [0.0; L];
+    let mut residual = [[0.0_f64; L]; R];
+    let mut iterations = [0u32; L];
     // Work arrays that live across iterations (with capacity sizes they are
     // too large to clear at every step): only their first `r` or `s` rows are
     // used, each written before it is read.
-    let mut hess = [[[0.0; LANES]; R]; R];
-    let mut change = [[0.0; LANES]; S];
-    let mut trial = [[0.0; LANES]; S];
-    let mut trial_ln = [[0.0; LANES]; S];
+    let mut hess = [[[0.0; L]; R]; R];
+    let mut change = [[0.0; L]; S];
+    let mut trial = [[0.0; L]; S];
+    let mut trial_ln = [[0.0; L]; S];
     let mut next = 0;
 
     loop {
         // Retire finished lanes and load the next cases into free ones.
-        for l in 0..LANES {
+        for l in 0..L {
             loop {
                 if state[l] == Lane::Running {
                     let mut worst = 0.0_f64;
@@ -520,8 +549,8 @@ fn solve_group<const R: usize, const S: usize, const EXACT: bool>(
                 };
             }
         }
-        let mut running = [false; LANES];
-        for l in 0..LANES {
+        let mut running = [false; L];
+        for l in 0..L {
             running[l] = state[l] == Lane::Running;
         }
         if !running.iter().any(|&r| r) {
@@ -529,8 +558,8 @@ fn solve_group<const R: usize, const S: usize, const EXACT: bool>(
         }
 
         // Newton system per lane: H step = -residual, by L D L^T.
-        let mut inv_total = [0.0; LANES];
-        for l in 0..LANES {
+        let mut inv_total = [0.0; L];
+        for l in 0..L {
             inv_total[l] = 1.0 / total[l];
         }
         let phase = [PhaseTerm {
@@ -547,42 +576,42 @@ fn solve_group<const R: usize, const S: usize, const EXACT: bool>(
             hess.as_flattened_mut(),
             R,
         );
-        let mut step = [[0.0; LANES]; R];
+        let mut step = [[0.0; L]; R];
         for j in 0..r {
-            for l in 0..LANES {
+            for l in 0..L {
                 step[j][l] = -residual[j][l];
             }
         }
-        let mut diag = [[0.0; LANES]; R];
+        let mut diag = [[0.0; L]; R];
         let mut good = ldl_solve(
             hess.as_flattened_mut(),
             R,
             &mut step[..r],
             &mut diag[..r],
             r,
-            [true; LANES],
+            [true; L],
         );
-        let mut slope = [0.0; LANES];
+        let mut slope = [0.0; L];
         for j in 0..r {
-            for l in 0..LANES {
+            for l in 0..L {
                 slope[l] += residual[j][l] * step[j][l];
             }
         }
-        for l in 0..LANES {
+        for l in 0..L {
             good[l] &= slope[l] < 0.0;
         }
         for row in &mut change[..s] {
-            *row = [0.0; LANES];
+            *row = [0.0; L];
         }
-        let mut alpha = [1.0_f64; LANES];
+        let mut alpha = [1.0_f64; L];
         for i in 0..s {
             for j in 0..r {
                 let c = nu[j][i];
-                for l in 0..LANES {
+                for l in 0..L {
                     change[i][l] += c * step[j][l];
                 }
             }
-            for l in 0..LANES {
+            for l in 0..L {
                 let d = change[i][l];
                 // Divide in every lane, then select: a branch per lane would
                 // keep this loop out of vector code.
@@ -591,8 +620,8 @@ fn solve_group<const R: usize, const S: usize, const EXACT: bool>(
                 alpha[l] = min(alpha[l], bound);
             }
         }
-        let mut pending = [false; LANES];
-        for l in 0..LANES {
+        let mut pending = [false; L];
+        for l in 0..L {
             pending[l] = running[l] && good[l];
             if running[l] && !good[l] {
                 state[l] = Lane::Handback;
@@ -605,12 +634,12 @@ fn solve_group<const R: usize, const S: usize, const EXACT: bool>(
             if !pending.iter().any(|&p| p) {
                 break;
             }
-            let mut trial_total = [0.0; LANES];
-            let mut lowest = [f64::INFINITY; LANES];
-            let mut largest = [0.0_f64; LANES];
+            let mut trial_total = [0.0; L];
+            let mut lowest = [f64::INFINITY; L];
+            let mut largest = [0.0_f64; L];
             trial_ln[..s].copy_from_slice(&ln_n[..s]);
             for i in 0..s {
-                for l in 0..LANES {
+                for l in 0..L {
                     let d = alpha[l] * change[i][l];
                     let v = n[i][l] + d;
                     trial[i][l] = v;
@@ -618,7 +647,7 @@ fn solve_group<const R: usize, const S: usize, const EXACT: bool>(
                 }
                 if reactive[i] {
                     // Pure f64 loops (no flags), so that they vectorise.
-                    for l in 0..LANES {
+                    for l in 0..L {
                         lowest[l] = min(lowest[l], trial[i][l]);
                         largest[l] = max(largest[l], (alpha[l] * change[i][l] * inv_n[i][l]).abs());
                     }
@@ -626,21 +655,21 @@ fn solve_group<const R: usize, const S: usize, const EXACT: bool>(
                 }
             }
             let trial_ln_total = ln_lanes(&trial_total);
-            let mut feasible = [false; LANES];
-            for l in 0..LANES {
+            let mut feasible = [false; L];
+            for l in 0..L {
                 feasible[l] = lowest[l] >= SMALLEST && trial_total[l] <= f64::MAX;
             }
             let trial_residual =
                 residuals((r, s), &nu, &moles, &constant, &trial_ln, &trial_ln_total);
-            let mut derivative = [0.0; LANES];
+            let mut derivative = [0.0; L];
             for j in 0..r {
-                for l in 0..LANES {
+                for l in 0..L {
                     derivative[l] += trial_residual[j][l] * step[j][l];
                 }
             }
-            let mut accept = [false; LANES];
+            let mut accept = [false; L];
             let mut undecided = false;
-            for l in 0..LANES {
+            for l in 0..L {
                 let quick = derivative[l] <= 0.0
                     || (largest[l] <= MODEL_TRUST && derivative[l] <= -0.5 * slope[l]);
                 accept[l] = pending[l] && feasible[l] && quick;
@@ -648,21 +677,28 @@ fn solve_group<const R: usize, const S: usize, const EXACT: bool>(
             }
             if undecided {
                 // The exact Gibbs change along the step (see `crate::newton::sufficient_decrease`).
-                let mut second = [0.0; LANES];
-                let mut total_change = [0.0; LANES];
+                let mut second = [0.0; L];
+                let mut total_change = [0.0; L];
                 for i in 0..s {
-                    let mut d = [0.0; LANES];
-                    for l in 0..LANES {
+                    let mut d = [0.0; L];
+                    let mut ratio = [0.0; L];
+                    for l in 0..L {
                         d[l] = alpha[l] * change[i][l];
                         total_change[l] += d[l];
+                        ratio[l] = trial_ln[i][l] - ln_n[i][l];
                     }
-                    let hi = h_lanes(&n[i], &d);
-                    for l in 0..LANES {
+                    // (inert species: d = 0, so the series gives 0)
+                    let hi = h_lanes(&n[i], &d, &inv_n[i], &ratio);
+                    for l in 0..L {
                         second[l] += hi[l];
                     }
                 }
-                let ht = h_lanes(&total, &total_change);
-                for l in 0..LANES {
+                let mut ratio = [0.0; L];
+                for l in 0..L {
+                    ratio[l] = trial_ln_total[l] - ln_total[l];
+                }
+                let ht = h_lanes(&total, &total_change, &inv_total, &ratio);
+                for l in 0..L {
                     second[l] -= ht[l];
                     let exact =
                         sufficient_decrease(alpha[l] * slope[l], second[l], alpha[l], slope[l]);
@@ -671,7 +707,7 @@ fn solve_group<const R: usize, const S: usize, const EXACT: bool>(
             }
             // Commit accepted lanes (selects, so the loops stay vector code).
             for i in 0..s {
-                for l in 0..LANES {
+                for l in 0..L {
                     n[i][l] = if accept[l] { trial[i][l] } else { n[i][l] };
                     ln_n[i][l] = if accept[l] {
                         trial_ln[i][l]
@@ -681,7 +717,7 @@ fn solve_group<const R: usize, const S: usize, const EXACT: bool>(
                 }
             }
             for j in 0..r {
-                for l in 0..LANES {
+                for l in 0..L {
                     residual[j][l] = if accept[l] {
                         trial_residual[j][l]
                     } else {
@@ -694,7 +730,7 @@ fn solve_group<const R: usize, const S: usize, const EXACT: bool>(
                     };
                 }
             }
-            for l in 0..LANES {
+            for l in 0..L {
                 total[l] = if accept[l] { trial_total[l] } else { total[l] };
                 ln_total[l] = if accept[l] {
                     trial_ln_total[l]
@@ -704,29 +740,29 @@ fn solve_group<const R: usize, const S: usize, const EXACT: bool>(
                 iterations[l] += accept[l] as u32;
                 pending[l] &= !accept[l];
             }
-            for l in 0..LANES {
+            for l in 0..L {
                 alpha[l] = if pending[l] { 0.5 * alpha[l] } else { alpha[l] };
             }
         }
-        for l in 0..LANES {
+        for l in 0..L {
             if pending[l] {
                 state[l] = Lane::Handback;
             }
         }
 
         // Reciprocals of the new amounts, and lanes that left the lane region.
-        let mut outside = [false; LANES];
+        let mut outside = [false; L];
         for i in 0..s {
             if !reactive[i] {
                 continue;
             }
-            for l in 0..LANES {
+            for l in 0..L {
                 let v = n[i][l];
                 outside[l] |= v < SHARE * total[l] || v.is_nan();
                 inv_n[i][l] = 1.0 / clamp(v);
             }
         }
-        for l in 0..LANES {
+        for l in 0..L {
             if outside[l] && state[l] == Lane::Running {
                 state[l] = Lane::Handback;
             }
@@ -858,7 +894,8 @@ mod tests {
     #[test]
     fn lanes_agree_with_the_general_solve() {
         // Portable code, and the variant this processor dispatches to.
-        check(solve_group::<2, 6, true>, false);
+        check(solve_group::<2, 6, true, LANES>, false);
+        check(solve_group::<2, 6, true, 1>, false);
         check(lane_kernel_for(2, 6).unwrap(), false);
     }
 
@@ -942,7 +979,7 @@ mod tests {
         assert!((3..n / 2).contains(&n_trace), "{n_trace} trace cases");
         for warm in [false, true] {
             for kernel in [
-                solve_group::<MAX_LANE_REACTIONS, MAX_LANE_SPECIES, false> as LaneKernel,
+                solve_group::<MAX_LANE_REACTIONS, MAX_LANE_SPECIES, false, LANES> as LaneKernel,
                 lane_kernel_for(r, s).unwrap(),
             ] {
                 let list = lane_cases(&data, &faces, |k| warm.then_some(&reference[k].1[..]));
@@ -1038,7 +1075,9 @@ mod tests {
 
     #[test]
     fn a_lane_result_does_not_depend_on_its_neighbours() {
-        // Case 3 alone and case 3 among others: the same bits.
+        // Every case alone (fewer than NARROW_BELOW cases: the one-lane
+        // instance) and among all the others (vector lanes, streaming
+        // refill): the same bits, status and iteration count.
         let sys = reforming();
         let options = SolveOptions::default();
         let data = cases();
@@ -1061,13 +1100,18 @@ mod tests {
             let mut out = vec![(Status::InvalidInput, 0); rows.len()];
             let kernel = lane_kernel_for(2, 6).unwrap();
             kernel(&sys, &list, &options, &mut amounts, &mut extents, &mut out);
-            let at = rows.iter().position(|&k| k == 3).unwrap();
-            (amounts[at * 6..at * 6 + 6].to_vec(), out[at])
+            (amounts, extents, out)
         };
-        let alone = solve(&[3]);
-        let crowded = solve(&[25, 0, 26, 3, 7, 27, 1, 2, 9, 11, 28]);
         let bits = |v: &[f64]| v.iter().map(|x| x.to_bits()).collect::<Vec<_>>();
-        assert_eq!(bits(&alone.0), bits(&crowded.0));
-        assert_eq!(alone.1, crowded.1);
+        // Shuffled, so that each case has other neighbours than in order.
+        let order: Vec<usize> = (0..data.len()).map(|k| (k * 7 + 3) % data.len()).collect();
+        assert!(order.len() >= 2 * NARROW_BELOW && order.len() > 2 * LANES);
+        let (amounts, extents, out) = solve(&order);
+        for (at, &k) in order.iter().enumerate() {
+            let (a1, e1, o1) = solve(&[k]);
+            assert_eq!(bits(&a1), bits(&amounts[at * 6..at * 6 + 6]), "case {k}");
+            assert_eq!(bits(&e1), bits(&extents[at * 2..at * 2 + 2]), "case {k}");
+            assert_eq!(o1[0], out[at], "case {k}");
+        }
     }
 }

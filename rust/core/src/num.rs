@@ -1,5 +1,6 @@
 //! The number types the Newton iteration is written over: one case (`f64`)
-//! or a lane group of [`LANES`] cases (`[f64; LANES]`), so that the Hessian,
+//! or a lane group of `L` cases (`[f64; L]`: [`LANES`] in the vector kernels,
+//! one where a call has too few cases to fill them), so that the Hessian,
 //! the linear solve and the residuals are written once for the general
 //! path, the vector lanes and the sensitivities ([`crate::newton`]).
 //!
@@ -10,7 +11,7 @@
 //! lane kernel's own loops index them directly, and the compiler vectorises
 //! those best.)
 
-/// Cases per lane group.
+/// Cases per lane group of the vector kernels.
 pub const LANES: usize = 8;
 
 /// A lane group of cases.
@@ -104,12 +105,12 @@ macro_rules! each_lane {
     };
 }
 
-impl Num for Lanes {
-    type Mask = [bool; LANES];
+impl<const L: usize> Num for [f64; L] {
+    type Mask = [bool; L];
 
     #[inline(always)]
     fn splat(value: f64) -> Self {
-        [value; LANES]
+        [value; L]
     }
 
     #[inline(always)]
@@ -143,23 +144,23 @@ impl Num for Lanes {
     }
 
     #[inline(always)]
-    fn clearly_above(self, bound: f64, reference: Self) -> [bool; LANES] {
-        let mut out = [false; LANES];
-        for l in 0..LANES {
+    fn clearly_above(self, bound: f64, reference: Self) -> [bool; L] {
+        let mut out = [false; L];
+        for l in 0..L {
             out[l] = self[l] > bound * reference[l] && self[l] <= f64::MAX;
         }
         out
     }
 
     #[inline(always)]
-    fn select(mask: [bool; LANES], yes: Self, no: Self) -> Self {
+    fn select(mask: [bool; L], yes: Self, no: Self) -> Self {
         each_lane!(|l| if mask[l] { yes[l] } else { no[l] })
     }
 
     #[inline(always)]
-    fn both(a: [bool; LANES], b: [bool; LANES]) -> [bool; LANES] {
-        let mut out = [false; LANES];
-        for l in 0..LANES {
+    fn both(a: [bool; L], b: [bool; L]) -> [bool; L] {
+        let mut out = [false; L];
+        for l in 0..L {
             out[l] = a[l] && b[l];
         }
         out

@@ -71,10 +71,17 @@ pub fn sensitivities_batch(
     if n == 0 {
         return Ok(());
     }
+    // One chunk runs on the calling thread: handing it to the pool and
+    // waiting costs more than the derivatives of a few cases.
+    let serial = n <= CHUNK;
     let mut table = None;
-    on_threads(threads, || {
-        table = Some(faces_for(system, inputs, feed_rows, true))
-    })?;
+    if serial {
+        table = Some(faces_for(system, inputs, feed_rows, false));
+    } else {
+        on_threads(threads, || {
+            table = Some(faces_for(system, inputs, feed_rows, true))
+        })?;
+    }
     let faces = table.unwrap_or_default();
     let work = |chunk: usize, dk: &mut [f64], dp: &mut [f64], df: &mut [f64]| {
         let mut scratch = Scratch::new(s, r);
@@ -135,6 +142,15 @@ pub fn sensitivities_batch(
             .enumerate()
             .for_each(|(chunk, ((dk, dp), df))| work(chunk, dk, dp, df));
     };
+    if serial {
+        work(
+            0,
+            &mut out.d_ln_k[..],
+            &mut out.d_ln_p[..],
+            &mut out.d_feed[..],
+        );
+        return Ok(());
+    }
     on_threads(threads, || run(out))
 }
 

@@ -6,7 +6,7 @@ use eqbatch_core::{
 };
 use numpy::{
     PyArray1, PyArray2, PyArray3, PyArrayMethods, PyReadonlyArray1, PyReadonlyArray2,
-    PyUntypedArrayMethods,
+    PyReadonlyArrayDyn, PyUntypedArrayMethods,
 };
 use pyo3::exceptions::PyValueError;
 use pyo3::prelude::*;
@@ -46,6 +46,27 @@ fn check_output<T: numpy::Element, D: numpy::ndarray::Dimension>(
         )));
     }
     Ok(())
+}
+
+/// A per-case input of `width` columns: `(N, width)`, or `(width,)` for one
+/// row (what an optimiser passes, without a reshape in Python).
+fn rows_of<'a>(
+    array: &'a PyReadonlyArrayDyn<'_, f64>,
+    width: usize,
+    name: &str,
+) -> PyResult<&'a [f64]> {
+    let shape = array.shape();
+    let fits = match shape {
+        [w] => *w == width,
+        [_, w] => *w == width,
+        _ => false,
+    };
+    if !fits {
+        return Err(PyValueError::new_err(format!(
+            "{name} has shape {shape:?}; expected (N, {width}) or ({width},)"
+        )));
+    }
+    Ok(array.as_slice()?)
 }
 
 /// Borrow an output array for writing (an error, not a panic, if it is
@@ -100,8 +121,8 @@ impl PySystem {
         self.inner.n_reactions()
     }
 
-    /// Solve `n_cases` cases. `feed` (1 or N, S), `ln_k` (1 or N, R) and
-    /// `pressure` (1 or N) must be C-contiguous float64. Returns
+    /// Solve `n_cases` cases. `feed` (1 or N, S) or (S,), `ln_k` (1 or N, R)
+    /// or (R,) and `pressure` (1 or N) must be C-contiguous float64. Returns
     /// `(amounts, extents, status, iterations, absent)`, `absent` the
     /// per-case mask of phases found absent (bit 0 gas, bit 1 liquid);
     /// mole fractions are left to the caller (computed on demand, which
@@ -111,8 +132,8 @@ impl PySystem {
     fn solve<'py>(
         &self,
         py: Python<'py>,
-        feed: PyReadonlyArray2<'py, f64>,
-        ln_k: PyReadonlyArray2<'py, f64>,
+        feed: PyReadonlyArrayDyn<'py, f64>,
+        ln_k: PyReadonlyArrayDyn<'py, f64>,
         pressure: PyReadonlyArray1<'py, f64>,
         n_cases: usize,
         tol: f64,
@@ -143,8 +164,8 @@ impl PySystem {
             ),
         };
         {
-            let feed = feed.as_slice()?;
-            let ln_k = ln_k.as_slice()?;
+            let feed = rows_of(&feed, s, "feed")?;
+            let ln_k = rows_of(&ln_k, r, "ln_k")?;
             let pressure = pressure.as_slice()?;
             let start = match &start {
                 Some(x0) => Some(x0.as_slice()?),
