@@ -57,3 +57,19 @@ class System:
         absent: npt.NDArray[np.uint8] | None = None,
         threads: int | None = None,
     ) -> tuple[npt.NDArray[np.float64], npt.NDArray[np.float64], npt.NDArray[np.float64]]: ...
+
+#: One temperature range of species data: (upto, closed, scale, a0, a1, a2, a3, a4, e, h, s).
+_Segment = tuple[float, bool, float, float, float, float, float, float, float, float, float]
+
+class ThermoTable:
+    """Reactions' ln K and standard enthalpy from species data, per temperature."""
+
+    def __init__(
+        self,
+        data: list[list[_Segment]],
+        coef: npt.NDArray[np.float64],
+        shift: npt.NDArray[np.float64],
+    ) -> None: ...
+    def evaluate(
+        self, temperature: npt.NDArray[np.float64]
+    ) -> tuple[npt.NDArray[np.float64], npt.NDArray[np.float64]]: ...

@@ -29,7 +29,16 @@ from eqbatch.errors import (
 )
 from eqbatch.kdata import as_lnk_data
 from eqbatch.spec import PHASES, KData, ReactionK, SystemSpec, compile_system
-from eqbatch.speciesdata import NASA7, CpPolynomial, Shomate, SpeciesData, ThermoLnK, species_data_from_table
+from eqbatch.speciesdata import (
+    NASA7,
+    CpPolynomial,
+    MaierKelley,
+    Shomate,
+    SpeciesData,
+    Tabulated,
+    ThermoLnK,
+    species_data_from_table,
+)
 
 _LABEL = re.compile(r"^[A-Za-z_][A-Za-z0-9_.\-]*$")
 
@@ -305,12 +314,14 @@ def _read_species_data(index: Mapping[str, int], data: Mapping[str, Any] | None)
     for name, value in (data or {}).items():
         if name not in index:
             raise UnknownSpeciesError(f"species_data: {name!r} is not a species of this system")
-        if isinstance(value, (NASA7, Shomate, CpPolynomial)):
+        if isinstance(value, (NASA7, Shomate, CpPolynomial, MaierKelley, Tabulated)):
             out[name] = value
         elif isinstance(value, Mapping):
             out[name] = species_data_from_table(name, value)
         else:
-            raise SystemDefinitionError(f"species_data[{name!r}] must be NASA7, Shomate or CpPolynomial data")
+            raise SystemDefinitionError(
+                f"species_data[{name!r}] must be NASA7, Shomate, CpPolynomial, MaierKelley or Tabulated data"
+            )
         for lo, hi in out[name].spans:
             if not (0.0 <= lo < hi < math.inf):
                 raise SystemDefinitionError(

@@ -148,6 +148,45 @@ class SystemSpec:
         return compile_system(self.stoich, self.phases, self.P0)
 
     @cached_property
+    def _thermo_table(self) -> tuple[np.ndarray, _core.ThermoTable] | None:
+        """The reactions whose K come from species data (:class:`ThermoLnK`)
+        and the core's table that evaluates their ln K and dH per temperature;
+        None if there are none, or if some data set has no core form."""
+        rows = [j for j, label in enumerate(self.labels) if isinstance(self.lnK_data.get(label), ThermoLnK)]
+        datasets: list[Any] = []
+        where: dict[int, int] = {}
+        for j in rows:
+            for _, d in self.lnK_data[self.labels[j]].terms:  # type: ignore[union-attr]
+                if id(d) not in where:
+                    where[id(d)] = len(datasets)
+                    datasets.append(d)
+        if not rows or not all(hasattr(d, "_segments") for d in datasets):
+            return None
+        coef = np.zeros((len(rows), len(datasets)))
+        shift = np.zeros(len(rows))
+        for k, j in enumerate(rows):
+            data = self.lnK_data[self.labels[j]]
+            assert isinstance(data, ThermoLnK)
+            for c, d in data.terms:
+                coef[k, where[id(d)]] += c
+            shift[k] = data.ln_k_shift
+        table = _core.ThermoTable([d._segments() for d in datasets], coef, shift)
+        return np.array(rows, dtype=np.intp), table
+
+    def _thermo_columns(self, T: np.ndarray, out: np.ndarray, dh: bool = False) -> np.ndarray:
+        """Write ln K (or, with ``dh``, the reaction enthalpy, J/mol) of the
+        species-data reactions at ``T`` (1-D) into their columns of ``out``;
+        returns a mask of the columns written."""
+        done = np.zeros(self.n_reactions, dtype=bool)
+        fast = self._thermo_table
+        if fast is not None and T.shape[0]:
+            rows, table = fast
+            lnk, dH = table.evaluate(np.ascontiguousarray(T))
+            out[:, rows] = dH if dh else lnk
+            done[rows] = True
+        return done
+
+    @cached_property
     def _index(self) -> dict[str, int]:
         return {name: k for k, name in enumerate(self.species)}
 
@@ -375,8 +414,9 @@ class SystemSpec:
             T = np.where(bad, np.nan, T)  # no extrapolation warning for a temperature that is not one
         out = np.empty((T.shape[0], self.n_reactions))
         with quiet_ranges():  # reported below, once per data set with the count of cases
-            for j in range(self.n_reactions):
-                out[:, j] = self._lnk_column(j, T)
+            done = self._thermo_columns(T, out)  # species data: in the core
+            for j in np.flatnonzero(~done):
+                out[:, j] = self._lnk_column(int(j), T)
         self._report_ranges(T)
         if bad is not None:
             out[bad] = np.nan
@@ -405,12 +445,20 @@ class SystemSpec:
         """
         T = np.asarray(T, dtype=np.float64)
         out = np.empty(T.shape)
+        with np.errstate(invalid="ignore"):
+            good = np.where((T > 0.0) & (T < math.inf), T, np.nan)
+        fast = self._thermo_table if T.ndim == 2 and T.shape[0] else None
+        done = np.zeros(self.n_reactions, dtype=bool)
+        if fast is not None:  # species data: in the core, one column at a time
+            rows, table = fast
+            for j in rows:
+                out[:, j] = table.evaluate(np.ascontiguousarray(good[:, j]))[0][
+                    :, np.flatnonzero(rows == j)[0]
+                ]
+                done[j] = True
         with quiet_ranges(), np.errstate(invalid="ignore"):
-            for j in range(self.n_reactions):
-                column = T[:, j]
-                out[:, j] = self._lnk_column(
-                    j, np.where((column > 0.0) & (column < math.inf), column, np.nan)
-                )
+            for j in np.flatnonzero(~done):
+                out[:, j] = self._lnk_column(int(j), good[:, j])
         with np.errstate(invalid="ignore"):
             self._report_ranges(np.where((T > 0.0) & (T < math.inf), T, np.nan), by_reaction=True)
         return out
@@ -445,11 +493,14 @@ class SystemSpec:
         if bad is not None:
             T = np.where(bad, np.nan, T)  # no extrapolation warning for a temperature that is not one
         out = np.zeros((T.shape[0], self.n_reactions))
-        for j, label in enumerate(self.labels):
-            data = self.lnK_data.get(label)
-            if data is None:
+        for label in self.labels:
+            if label not in self.lnK_data:
                 raise CaseInputError(f"reaction {label!r} has no K data: d ln K / dT is unknown")
-            if callable(data):
+        done = self._thermo_columns(T, out, dh=True) if T.ndim == 1 else np.zeros(self.n_reactions, bool)
+        out[:, done] /= R * (T * T)[:, None]  # van 't Hoff: d ln K / dT = dH / (R T^2)
+        for j, label in enumerate(self.labels):
+            data = self.lnK_data[label]
+            if callable(data) and not done[j]:
                 with quiet_ranges():  # ln K at the same temperatures reports extrapolation
                     out[:, j] = data.derivative(T)
         if bad is not None:

@@ -28,6 +28,7 @@ from __future__ import annotations
 import math
 from collections.abc import Mapping
 from dataclasses import dataclass
+from functools import cached_property
 from typing import Any
 
 import numpy as np
@@ -39,6 +40,12 @@ from eqbatch.kdata import report_extrapolation
 R = 8.314462618
 #: Reference temperature of formation data, K.
 T_REF = 298.15
+
+#: One temperature range of species data as the core takes it (``_core.ThermoTable``):
+#: ``(upto, closed, scale, a0, a1, a2, a3, a4, e, h, s)`` with ``tau = T / scale``,
+#: ``Cp/R = a0 + a1 tau + ... + a4 tau^4 + e / tau^2`` below ``upto`` (or at it when
+#: ``closed``), ``H/R`` and ``S/R`` its integrals plus ``h`` and ``s``.
+Segment = tuple[float, bool, float, float, float, float, float, float, float, float, float]
 
 
 def _range_warning(T: np.ndarray, lo: float, hi: float, what: str) -> None:
@@ -221,6 +228,14 @@ class NASA7:
         """
         return [self.range, (self.T_min, self.T_mid), (self.T_mid, self.T_max)]
 
+    def _segments(self) -> list[Segment]:
+        """The data as the core's segments (see :data:`Segment`)."""
+        low, high = self.low, self.high
+        return [
+            (self.T_mid, False, 1.0, low[0], low[1], low[2], low[3], low[4], 0.0, low[5], low[6]),
+            (math.inf, False, 1.0, high[0], high[1], high[2], high[3], high[4], 0.0, high[5], high[6]),
+        ]
+
 
 @dataclass(frozen=True)
 class Shomate:
@@ -391,6 +406,16 @@ class Shomate:
         """
         return [self.range] + [(r[0], r[1]) for r in self.ranges]
 
+    def _segments(self) -> list[Segment]:
+        """The data as the core's segments (see :data:`Segment`): a range
+        applies up to and at its ``T_max``, as :meth:`cp` chooses it."""
+        out: list[Segment] = []
+        for _, t_max, a, b, c, d, e, f, g, _h in sorted(self.ranges):
+            out.append(
+                (float(t_max), True, 1000.0, a / R, b / R, c / R, d / R, 0.0, e / R, 1000.0 * f / R, g / R)
+            )
+        return out
+
 
 @dataclass(frozen=True)
 class CpPolynomial:
@@ -549,9 +574,277 @@ class CpPolynomial:
         """
         return [self.range]
 
+    def _segments(self) -> list[Segment]:
+        """The data as the core's segments (see :data:`Segment`)."""
+        a = [float(x) for x in self.a] + [0.0] * (5 - len(self.a))
+        x = T_REF
+        h_int = x * (a[0] + x * (a[1] / 2 + x * (a[2] / 3 + x * (a[3] / 4 + x * a[4] / 5))))
+        s_int = a[0] * math.log(x) + x * (a[1] + x * (a[2] / 2 + x * (a[3] / 3 + x * a[4] / 4)))
+        h0, s0 = 1000.0 * self.dHf / R - h_int, self.S298 / R - s_int
+        return [(math.inf, False, 1.0, a[0], a[1], a[2], a[3], a[4], 0.0, h0, s0)]
+
+
+@dataclass(frozen=True)
+class MaierKelley:
+    """A heat capacity with an inverse-square term, as handbook tables give it.
+
+    ``Cp = a + b T + c T^2 + d / T^2`` (J/(mol K), the form of C. G. Maier and
+    K. K. Kelley, J. Am. Chem. Soc. 54 (1932) 3243, common for solids and in
+    handbook tables), with the formation enthalpy ``dHf`` (kJ/mol) and
+    entropy ``S298`` (J/(mol K)) at 298.15 K; ``H`` and ``S`` are the
+    integrals of that ``Cp`` from 298.15 K.
+
+    Parameters
+    ----------
+    a, b, c, d : float
+        Coefficients of ``Cp``: J/(mol K), J/(mol K^2), J/(mol K^3), J K/mol.
+    dHf : float
+        Formation enthalpy at 298.15 K, kJ/mol.
+    S298 : float
+        Entropy at 298.15 K and ``P_ref``, J/(mol K).
+    T_min, T_max : float
+        Where the data are valid, K.
+    source : str
+        Where the data come from.
+    P_ref : float, default 1.0
+        Standard pressure of ``S298``, bar.
+
+    Raises
+    ------
+    SystemDefinitionError
+        ``P_ref`` is not a positive pressure.
+
+    Examples
+    --------
+    With ``d`` alone, ``H(T) - H298 = d (1/298.15 - 1/T)`` and
+    ``S(T) - S298 = d (1/298.15^2 - 1/T^2) / 2``:
+
+    >>> x = MaierKelley(a=0.0, b=0.0, c=0.0, d=-1.0e6, dHf=0.0, S298=10.0)
+    >>> round(float(x.h(500.0)), 4), round(float(x.s(500.0)), 4), round(float(x.cp(500.0)), 1)
+    (-1354.0164, 6.3753, -4.0)
+    """
+
+    a: float
+    b: float = 0.0
+    c: float = 0.0
+    d: float = 0.0
+    dHf: float = 0.0
+    S298: float = 0.0
+    T_min: float = 298.15
+    T_max: float = 1500.0
+    source: str = "Maier-Kelley Cp (given)"
+    #: Standard pressure of ``S298``, bar.
+    P_ref: float = 1.0
+
+    def __post_init__(self) -> None:
+        _check_p_ref(self)
+
+    def _h_int(self, T: Any) -> Any:
+        return T * (self.a + T * (self.b / 2 + T * self.c / 3)) - self.d / T
+
+    def _s_int(self, T: Any) -> Any:
+        return self.a * np.log(T) + T * (self.b + T * self.c / 2) - self.d / (2 * T * T)
+
+    def cp(self, T: Any) -> np.ndarray:
+        """Molar heat capacity at ``T``, J/(mol K) (the shape of ``T``; outside
+        the data's range an ExtrapolationWarning)."""
+        T = np.asarray(T, dtype=float)
+        _range_warning(T, self.T_min, self.T_max, self.source)
+        return self.a + T * (self.b + T * self.c) + self.d / (T * T)
+
+    def h(self, T: Any) -> np.ndarray:
+        """Molar enthalpy on the formation scale at ``T``, J/mol."""
+        T = np.asarray(T, dtype=float)
+        _range_warning(T, self.T_min, self.T_max, self.source)
+        return 1000.0 * self.dHf + (self._h_int(T) - self._h_int(T_REF))
+
+    def s(self, T: Any) -> np.ndarray:
+        """Molar entropy at ``T`` and ``P_ref``, J/(mol K)."""
+        T = np.asarray(T, dtype=float)
+        _range_warning(T, self.T_min, self.T_max, self.source)
+        return self.S298 + (self._s_int(T) - self._s_int(T_REF))
+
+    @property
+    def range(self) -> tuple[float, float]:
+        """``(T_min, T_max)``: where the data are valid, K."""
+        return (self.T_min, self.T_max)
+
+    @property
+    def spans(self) -> list[tuple[float, float]]:
+        """Every temperature range the data define, K: each must be non-empty."""
+        return [self.range]
+
+    def _segments(self) -> list[Segment]:
+        """The data as the core's segments (see :data:`Segment`)."""
+        h0 = 1000.0 * self.dHf / R - float(self._h_int(T_REF)) / R
+        s0 = self.S298 / R - float(self._s_int(T_REF)) / R
+        return [(math.inf, False, 1.0, self.a / R, self.b / R, self.c / R, 0.0, 0.0, self.d / R, h0, s0)]
+
+
+def _segment_values(segments: list[Segment], T: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """``(Cp/R, H/R, S/R)`` of kelvin-scale segments (``scale`` 1, open upper
+    ends) at ``T`` (numpy; the core evaluates the same functions)."""
+    table = np.array([g[3:] for g in segments])  # a0..a4, e, h, s
+    uptos = np.array([g[0] for g in segments])
+    k = np.clip(np.searchsorted(uptos, T, side="right"), 0, len(segments) - 1)
+    a, e, h, s = table[k, :5], table[k, 5], table[k, 6], table[k, 7]
+    cp = a[..., 0] + T * (a[..., 1] + T * (a[..., 2] + T * (a[..., 3] + T * a[..., 4]))) + e / (T * T)
+    hh = T * (a[..., 0] + T * (a[..., 1] / 2 + T * (a[..., 2] / 3 + T * (a[..., 3] / 4 + T * a[..., 4] / 5))))
+    ss = a[..., 0] * np.log(T) + T * (
+        a[..., 1] + T * (a[..., 2] / 2 + T * (a[..., 3] / 3 + T * a[..., 4] / 4))
+    )
+    return cp, hh - e / T + h, ss - e / (2 * T * T) + s
+
+
+@dataclass(frozen=True)
+class Tabulated:
+    """Species data as thermochemical tables print them: rows of ``T``,
+    ``Cp``, ``H - H(298.15 K)`` and ``S``.
+
+    Between the rows ``Cp`` is a cubic spline through the tabulated values
+    (scipy's ``CubicSpline``, not-a-knot ends); ``H`` and ``S`` are its
+    integrals from the first row, so all three come from the same ``Cp``
+    and are continuous. The tabulated ``H`` and ``S`` of the other rows
+    check the table: a row whose ``H`` or ``S`` differs from the integral by
+    more than 0.2 kJ/mol or 0.2 J/(mol K) (a column in the wrong unit, a
+    typing slip) is refused.
+
+    Parameters
+    ----------
+    T : sequence of float
+        Temperatures, K, increasing (at least three rows).
+    Cp : sequence of float
+        Heat capacity, J/(mol K).
+    H_rel : sequence of float
+        ``H(T) - H(298.15 K)``, kJ/mol.
+    S : sequence of float
+        Entropy at ``P_ref``, J/(mol K).
+    dHf : float
+        Formation enthalpy at 298.15 K, kJ/mol.
+    source : str
+        Where the table comes from.
+    P_ref : float, default 1.0
+        Standard pressure of ``S``, bar.
+
+    Raises
+    ------
+    SystemDefinitionError
+        Rows of unequal length, fewer than three, temperatures not
+        increasing and positive, values not finite, or a table whose ``H``
+        and ``S`` are not the integrals of its ``Cp``.
+
+    Examples
+    --------
+    A constant heat capacity of 30 J/(mol K) tabulated every 100 K:
+
+    >>> import numpy as np
+    >>> T = np.arange(300.0, 1001.0, 100.0)
+    >>> x = Tabulated(T, [30.0] * 8, 0.03 * (T - 298.15), 200.0 + 30.0 * np.log(T / 298.15), dHf=-10.0)
+    >>> round(float(x.h(650.0)), 6), round(float(x.s(650.0) - 30.0 * np.log(650.0 / 298.15)), 9)
+    (555.5, 200.0)
+    """
+
+    T: tuple[float, ...]
+    Cp: tuple[float, ...]
+    H_rel: tuple[float, ...]
+    S: tuple[float, ...]
+    dHf: float
+    source: str = "tabulated data (given)"
+    #: Standard pressure of ``S``, bar.
+    P_ref: float = 1.0
+
+    def __post_init__(self) -> None:
+        _check_p_ref(self)
+        try:
+            cols = [tuple(float(v) for v in col) for col in (self.T, self.Cp, self.H_rel, self.S)]
+            dhf = float(self.dHf)
+        except (TypeError, ValueError) as err:
+            raise SystemDefinitionError(
+                f"tabulated data ({self.source}): values must be numbers: {err}"
+            ) from None
+        for name, col in zip(("T", "Cp", "H_rel", "S"), cols):
+            object.__setattr__(self, name, col)
+        object.__setattr__(self, "dHf", dhf)
+        T = np.array(cols[0])
+        if len({len(c) for c in cols}) != 1 or len(T) < 3:
+            raise SystemDefinitionError(
+                f"tabulated data ({self.source}): T, Cp, H_rel and S need the same number of rows, at least 3"
+            )
+        if not (np.all(np.isfinite(np.array(cols))) and math.isfinite(dhf)):
+            raise SystemDefinitionError(f"tabulated data ({self.source}): values must be finite")
+        if not (T[0] > 0 and np.all(np.diff(T) > 0)):
+            raise SystemDefinitionError(
+                f"tabulated data ({self.source}): temperatures must be positive and increasing"
+            )
+        segments = self._segments()
+        _, h, s = _segment_values(segments, T)
+        dh = np.abs(R * h / 1000.0 - (dhf + np.array(cols[2])))
+        ds = np.abs(R * s - np.array(cols[3]))
+        worst = int(np.argmax(np.maximum(dh / 0.2, ds / 0.2)))
+        if dh[worst] > 0.2 or ds[worst] > 0.2:
+            raise SystemDefinitionError(
+                f"tabulated data ({self.source}): at {T[worst]:g} K H - H298 and S are not the "
+                f"integrals of Cp from {T[0]:g} K (off by {dh[worst]:.3g} kJ/mol and "
+                f"{ds[worst]:.3g} J/(mol K); "
+                "check the columns' units: Cp and S in J/(mol K), H_rel in kJ/mol)"
+            )
+
+    def _segments(self) -> list[Segment]:
+        """The data as the core's segments (see :data:`Segment`): one cubic
+        ``Cp`` a row interval, the last one extended above the table."""
+        return list(self._fit)
+
+    @cached_property
+    def _fit(self) -> tuple[Segment, ...]:
+        from scipy.interpolate import CubicSpline
+
+        T = np.array(self.T, dtype=float)
+        spline = CubicSpline(T, np.array(self.Cp, dtype=float) / R)
+        out: list[Segment] = []
+        h_at, s_at = 1000.0 * (self.dHf + self.H_rel[0]) / R, self.S[0] / R
+        for k in range(len(T) - 1):
+            # c3 u^3 + c2 u^2 + c1 u + c0 with u = T - T_k, in powers of T
+            a = np.polynomial.Polynomial(spline.c[::-1, k])(np.polynomial.Polynomial([-T[k], 1.0])).coef
+            a = np.concatenate([a, np.zeros(5 - len(a))])
+            upto = math.inf if k == len(T) - 2 else float(T[k + 1])
+            seg: Segment = (upto, False, 1.0, *map(float, a), 0.0, 0.0, 0.0)  # type: ignore[assignment]
+            _, h0, s0 = _segment_values([seg], np.array([T[k]]))
+            out.append((*seg[:9], float(h_at - h0[0]), float(s_at - s0[0])))
+            _, h1, s1 = _segment_values([out[-1]], np.array([T[k + 1]]))
+            h_at, s_at = float(h1[0]), float(s1[0])
+        return tuple(out)
+
+    def _values(self, T: Any) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+        T = np.asarray(T, dtype=float)
+        _range_warning(T, self.T[0], self.T[-1], self.source)
+        cp, h, s = _segment_values(list(self._fit), T)
+        return R * cp, R * h, R * s
+
+    def cp(self, T: Any) -> np.ndarray:
+        """Molar heat capacity at ``T``, J/(mol K) (outside the table an ExtrapolationWarning)."""
+        return self._values(T)[0]
+
+    def h(self, T: Any) -> np.ndarray:
+        """Molar enthalpy on the formation scale at ``T``, J/mol."""
+        return self._values(T)[1]
+
+    def s(self, T: Any) -> np.ndarray:
+        """Molar entropy at ``T`` and ``P_ref``, J/(mol K)."""
+        return self._values(T)[2]
+
+    @property
+    def range(self) -> tuple[float, float]:
+        """``(T_min, T_max)``: the table's first and last temperatures, K."""
+        return (self.T[0], self.T[-1])
+
+    @property
+    def spans(self) -> list[tuple[float, float]]:
+        """Every temperature range the data define, K: each must be non-empty."""
+        return [self.range]
+
 
 #: The forms of species data a system takes.
-SpeciesData = NASA7 | Shomate | CpPolynomial
+SpeciesData = NASA7 | Shomate | CpPolynomial | MaierKelley | Tabulated
 
 
 class ThermoLnK:
@@ -568,7 +861,7 @@ class ThermoLnK:
     ----------
     coefficients : mapping species -> float
         The reaction's net coefficients (products positive).
-    data : mapping species -> NASA7, Shomate or CpPolynomial
+    data : mapping species -> species data (NASA7, Shomate, CpPolynomial, MaierKelley, Tabulated)
         Data of every species in ``coefficients``.
     P0 : float, default 1.0
         Standard pressure of the result, bar.
@@ -696,7 +989,7 @@ class ThermoLnK:
         return self.dH(T) / (R * T * T)
 
 
-_TABLE_KEYS = ("nasa7", "shomate", "cp_poly", "source", "P_ref")
+_TABLE_KEYS = ("nasa7", "shomate", "cp_poly", "maier_kelley", "tabulated", "source", "P_ref")
 
 
 def species_data_from_table(name: str, table: Mapping[str, Any]) -> SpeciesData:
@@ -731,9 +1024,11 @@ def species_data_from_table(name: str, table: Mapping[str, Any]) -> SpeciesData:
         raise SystemDefinitionError(
             f"species_data.{name}: unknown key(s) {unknown}; valid are {', '.join(_TABLE_KEYS)}"
         )
-    keys = [k for k in ("nasa7", "shomate", "cp_poly") if k in table]
+    keys = [k for k in ("nasa7", "shomate", "cp_poly", "maier_kelley", "tabulated") if k in table]
     if len(keys) != 1:
-        raise SystemDefinitionError(f"species_data.{name}: give exactly one of nasa7, shomate, cp_poly")
+        raise SystemDefinitionError(
+            f"species_data.{name}: give exactly one of nasa7, shomate, cp_poly, maier_kelley, tabulated"
+        )
     value = table[keys[0]]
     source = str(table.get("source", f"{keys[0]} data for {name} (system file)"))
     try:
@@ -759,6 +1054,40 @@ def species_data_from_table(name: str, table: Mapping[str, Any]) -> SpeciesData:
                 for r in value
             )
             return Shomate(ranges, source, p_ref)
+        if keys[0] == "tabulated":
+            extra = sorted(set(value) - {"T", "Cp", "H_rel", "S", "dHf"})
+            if extra:
+                raise SystemDefinitionError(
+                    f"species_data.{name}.tabulated: unknown key(s) {extra}; valid are T, Cp, H_rel, S, dHf"
+                )
+            return Tabulated(
+                tuple(value["T"]),
+                tuple(value["Cp"]),
+                tuple(value["H_rel"]),
+                tuple(value["S"]),
+                float(value["dHf"]),
+                source,
+                p_ref,
+            )
+        if keys[0] == "maier_kelley":
+            extra = sorted(set(value) - {"a", "b", "c", "d", "dHf", "S298", "T_min", "T_max"})
+            if extra:
+                raise SystemDefinitionError(
+                    f"species_data.{name}.maier_kelley: unknown key(s) {extra}; "
+                    "valid are a, b, c, d, dHf, S298, T_min, T_max"
+                )
+            return MaierKelley(
+                a=float(value["a"]),
+                b=float(value.get("b", 0.0)),
+                c=float(value.get("c", 0.0)),
+                d=float(value.get("d", 0.0)),
+                dHf=float(value["dHf"]),
+                S298=float(value["S298"]),
+                T_min=float(value.get("T_min", T_REF)),
+                T_max=float(value.get("T_max", 1500.0)),
+                source=source,
+                P_ref=p_ref,
+            )
         return CpPolynomial(
             tuple(float(x) for x in value["a"]),
             float(value["dHf"]),

@@ -77,7 +77,7 @@ class ReactionSystem(SystemSpec):
     lnK : mapping label -> float or LnKFunction, or sequence of them, optional
         Default equilibrium constants: a constant ln K, or ln K as a function
         of temperature so that a case needs only ``T``.
-    species_data : mapping species -> NASA7, Shomate or CpPolynomial, optional
+    species_data : mapping species -> NASA7, Shomate, CpPolynomial, MaierKelley or Tabulated, optional
         Standard-state thermochemistry, each on its own standard pressure
         ``P_ref`` (1 bar by default); every reaction without explicit K data
         whose species all have data gets ``ln K(T) = -dG(T) / (R T)`` from

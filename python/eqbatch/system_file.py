@@ -31,6 +31,8 @@ be generated (``reactions = "auto"``)::
                  D = -2.53448, E = 0.082139, F = -250.881, G = 223.3967, H = -241.8264 }]
     # or nasa7 = { T_mid = 1000, low = [...7], high = [...7], T_min = 200, T_max = 3500 }
     # or cp_poly = { a = [a0, a1, a2, a3, a4], dHf = -241.8, S298 = 188.8 }
+    # or maier_kelley = { a = 104.5, b = 21.9e-3, d = -25.9e5, dHf = -1207.6, S298 = 91.7 }
+    # or tabulated = { T = [...], Cp = [...], H_rel = [...], S = [...], dHf = -241.8 }
     # P_ref = 1.0           # bar, standard pressure of these data (default 1)
 """
 

@@ -1,7 +1,8 @@
 """Species thermochemistry and the equilibrium constants it implies: the
 public home of the thermochemistry functions.
 
-The data forms (:class:`NASA7`, :class:`Shomate`, :class:`CpPolynomial`, each
+The data forms (:class:`NASA7`, :class:`Shomate`, :class:`CpPolynomial`,
+:class:`MaierKelley`, :class:`Tabulated`, each
 on its own standard pressure ``P_ref``) and the ln K they imply
 (:class:`ThermoLnK`, put on the system's ``P0``) live in
 :mod:`eqbatch.speciesdata`; data from the ``chemicals`` package
@@ -27,9 +28,11 @@ from eqbatch.speciesdata import (
     NASA7,
     T_REF,
     CpPolynomial,
+    MaierKelley,
     R,
     Shomate,
     SpeciesData,
+    Tabulated,
     ThermoLnK,
     species_data_from_table,
 )
@@ -39,8 +42,10 @@ __all__ = [
     "R",
     "T_REF",
     "CpPolynomial",
+    "MaierKelley",
     "Shomate",
     "SpeciesData",
+    "Tabulated",
     "ThermoLnK",
     "approach_temperatures",
     "check_approach",

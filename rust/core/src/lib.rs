@@ -36,6 +36,7 @@ pub mod sensitivity;
 pub mod solver;
 pub mod status;
 pub mod system;
+pub mod thermo;
 
 pub use batch::{mole_fractions, solve_batch, BatchInputs, BatchOutputs};
 pub use error::CoreError;
@@ -43,6 +44,7 @@ pub use sensitivity::{sensitivities_batch, SensitivityOutputs};
 pub use solver::{SolveOptions, FLOAT_FLOOR};
 pub use status::Status;
 pub use system::{Phase, System};
+pub use thermo::{Segment, SpeciesThermo, ThermoOutputs, ThermoTable};
 
 #[cfg(test)]
 pub(crate) mod fixtures {

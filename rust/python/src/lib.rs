@@ -4,12 +4,14 @@
 
 mod error;
 mod system;
+mod thermo;
 
 use pyo3::prelude::*;
 
 #[pymodule]
 fn _core(m: &Bound<'_, PyModule>) -> PyResult<()> {
     m.add_class::<system::PySystem>()?;
+    m.add_class::<thermo::PyThermoTable>()?;
     m.add(
         "StoichiometryError",
         m.py().get_type::<error::StoichiometryError>(),

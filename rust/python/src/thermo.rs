@@ -1,0 +1,80 @@
+//! `eqbatch._core.ThermoTable`: reactions' ln K and dH from species data,
+//! evaluated per temperature in the core.
+
+use eqbatch_core::{Segment, SpeciesThermo, ThermoOutputs, ThermoTable};
+use numpy::{PyArray2, PyArrayMethods, PyReadonlyArray1, PyReadonlyArray2};
+use pyo3::prelude::*;
+
+use crate::error::to_py;
+
+/// One segment as Python gives it: `(upto, closed, scale, a0, a1, a2, a3,
+/// a4, e, h, s)`.
+type SegmentTuple = (f64, bool, f64, f64, f64, f64, f64, f64, f64, f64, f64);
+
+#[pyclass(name = "ThermoTable", module = "eqbatch._core", frozen)]
+pub struct PyThermoTable {
+    inner: ThermoTable,
+}
+
+#[pymethods]
+impl PyThermoTable {
+    /// `data`: per data set its segments in increasing temperature;
+    /// `coef` (R, D): each reaction's coefficient of each data set; `shift`
+    /// (R,): added to ln K (the change of standard pressure).
+    #[new]
+    fn new(
+        data: Vec<Vec<SegmentTuple>>,
+        coef: PyReadonlyArray2<'_, f64>,
+        shift: PyReadonlyArray1<'_, f64>,
+    ) -> PyResult<Self> {
+        let data = data
+            .into_iter()
+            .map(|segments| {
+                SpeciesThermo::new(
+                    segments
+                        .into_iter()
+                        .map(
+                            |(upto, closed, scale, a0, a1, a2, a3, a4, e, h, s)| Segment {
+                                upto,
+                                closed,
+                                scale,
+                                a: [a0, a1, a2, a3, a4],
+                                e,
+                                h,
+                                s,
+                            },
+                        )
+                        .collect(),
+                )
+            })
+            .collect::<Result<Vec<_>, _>>()
+            .map_err(to_py)?;
+        let inner = ThermoTable::new(data, coef.as_slice()?.to_vec(), shift.as_slice()?.to_vec())
+            .map_err(to_py)?;
+        Ok(PyThermoTable { inner })
+    }
+
+    /// `(ln_k, dh)`, each (N, R): ln K on the system's standard pressure and
+    /// the standard reaction enthalpy (J/mol) at every temperature of `T`
+    /// (N,), K; NaN rows where a temperature is not positive and finite.
+    #[allow(clippy::type_complexity)]
+    fn evaluate<'py>(
+        &self,
+        py: Python<'py>,
+        temperature: PyReadonlyArray1<'py, f64>,
+    ) -> PyResult<(Bound<'py, PyArray2<f64>>, Bound<'py, PyArray2<f64>>)> {
+        let n = temperature.len()?;
+        let r = self.inner.n_reactions();
+        let ln_k = PyArray2::zeros(py, [n, r], false);
+        let dh = PyArray2::zeros(py, [n, r], false);
+        {
+            let temps = temperature.as_slice()?;
+            let (mut a, mut b) = (ln_k.try_readwrite()?, dh.try_readwrite()?);
+            let (a, b) = (a.as_slice_mut()?, b.as_slice_mut()?);
+            let table = &self.inner;
+            py.detach(move || table.evaluate(temps, ThermoOutputs { ln_k: a, dh: b }))
+                .map_err(to_py)?;
+        }
+        Ok((ln_k, dh))
+    }
+}
