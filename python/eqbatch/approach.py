@@ -26,6 +26,7 @@ import numpy as np
 
 from eqbatch import _core
 from eqbatch.errors import CaseInputError
+from eqbatch.kdata import quiet_ranges
 from eqbatch.outputs import Outputs
 from eqbatch.result import EquilibriumResult
 from eqbatch.spec import SystemSpec, compile_system
@@ -144,13 +145,15 @@ def approach_temperatures(
     T_eff = np.array(np.broadcast_to(T[:, None], (n, system.n_reactions)))
     direction = np.broadcast_to(direction, (n, system.n_reactions))
     T_rows = np.broadcast_to(T, (n,))
+    for label in approach:
+        if not callable(system.lnK_data[label]):
+            raise CaseInputError(f"approach: reaction {label!r} has no K(T) data to take an approach on")
+    with quiet_ranges():  # ln K at the same temperatures reports extrapolation
+        slopes = system.dlnK_dT(np.ascontiguousarray(T_rows)) if approach else None
     for label, dT in approach.items():
         j = system.labels.index(label)
-        data = system.lnK_data[label]
-        if not callable(data):
-            raise CaseInputError(f"approach: reaction {label!r} has no K(T) data to take an approach on")
-        slope = data.derivative(T_rows)
-        T_eff[:, j] = T_rows - np.sign(slope) * np.nan_to_num(direction[:, j]) * dT
+        assert slopes is not None
+        T_eff[:, j] = T_rows - np.sign(slopes[:, j]) * np.nan_to_num(direction[:, j]) * dT
     return T_eff
 
 
