@@ -19,6 +19,7 @@ import platform
 import subprocess
 import sys
 import time
+import warnings
 from dataclasses import dataclass, field
 from pathlib import Path
 
@@ -256,6 +257,52 @@ def single_call(problem: Problem, calls: int, rounds: int) -> dict[str, float]:
         "prepared_sensitivities_ratio": best["prepared_sensitivities"] / prepared,
         "prepared_hundred_ratio": best["prepared_hundred"] / prepared,
         "rounds": rounds,
+    }
+
+
+def temperature_driven(n: int, n_adiabatic: int, turns: int) -> dict:
+    """Issue 15's figures: the demo reformer (Shomate data for every species),
+    workload (a)'s ranges; solve given ln K against solve given T (ln K from
+    the species data in the core), an approach solve and an adiabatic solve,
+    taking turns, best of ``turns`` each."""
+    from eqbatch.demo import reformer_system
+
+    system = reformer_system()
+    rng = np.random.default_rng(15)
+    T, P = rng.uniform(700.0, 1200.0, n), rng.uniform(1.0, 40.0, n)
+    feed = np.zeros((n, len(system.species)))
+    feed[:, system.species.index("CH4")] = 1.0
+    feed[:, system.species.index("H2O")] = rng.uniform(1.5, 5.0, n)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", eqbatch.ExtrapolationWarning)
+        lnk = system.lnK(T)
+        label = system.labels[0]
+        m = n_adiabatic
+        kinds = {
+            "lnK": lambda: system.solve(feed, lnK=lnk, P=P),
+            "lnK_eval": lambda: system.lnK(T),
+            "T": lambda: system.solve(feed, T=T, P=P),
+            "approach": lambda: system.solve(feed, T=T, P=P, approach={label: 10.0}),
+            "adiabatic": lambda: system.solve(feed[:m], T=T[:m], P=P[:m], adiabatic=True),
+        }
+        best = dict.fromkeys(kinds, float("inf"))
+        results = {}
+        for _ in range(turns):
+            for kind, fn in kinds.items():
+                t0 = time.perf_counter()
+                results[kind] = fn()
+                best[kind] = min(best[kind], time.perf_counter() - t0)
+    adiabatic = results["adiabatic"]
+    return {
+        "n": n,
+        "n_adiabatic": m,
+        "turns": turns,
+        "seconds": best,
+        "T_ratio": best["lnK"] / best["T"],
+        "approach_ratio": best["lnK"] / best["approach"],
+        "adiabatic_ratio": (m / best["adiabatic"]) / (n / best["T"]),
+        "converged": {k: float(np.mean(results[k].converged)) for k in ("lnK", "T", "approach")},
+        "adiabatic_converged": float(np.mean(adiabatic.converged)),
     }
 
 
@@ -558,6 +605,9 @@ def main(argv: list[str] | None = None) -> int:
     # single call
     single = single_call(problem_a, 2_000 if smoke else 20_000, 3 if smoke else 10)
 
+    # temperature-driven solves (issue 15)
+    thermo = temperature_driven(2_000 if smoke else 1_000_000, 200 if smoke else 20_000, 1 if smoke else 5)
+
     # memory
     memory = peak_memory(20_000 if smoke else 10_000_000)
 
@@ -655,6 +705,38 @@ def main(argv: list[str] | None = None) -> int:
         f"({single['prepared_hundred_ratio']:.2f}x) | {met(single['prepared_hundred_ratio'] <= 3)} |",
     ]
 
+    sec = thermo["seconds"]
+    report += [
+        "",
+        "### Temperature-driven solves (issue 15)",
+        "",
+        f"The demo's reformer (Shomate data for every species) on {thermo['n']:,} cases of workload (a)'s "
+        "ranges: `solve(feed, lnK=...)` with ln K computed beforehand, against `solve(feed, T=...)`, which "
+        "evaluates ln K from the species data in the core; an approach solve (10 K on reforming: a "
+        "first solve finds each case's direction, a second, warm-started one solves at the approach "
+        f"temperatures) and an adiabatic solve ({thermo['n_adiabatic']:,} cases). Kinds take turns, "
+        f"best of {thermo['turns']}.",
+        "",
+        "| call | seconds | per case | converged |",
+        "|---|---:|---:|---:|",
+        f"| `system.lnK(T)` alone | {sec['lnK_eval']:.3f} | {1e6 * sec['lnK_eval'] / thermo['n']:.3g} us | - |",
+        f"| `solve(feed, lnK=..., P=...)` | {sec['lnK']:.3f} | {1e6 * sec['lnK'] / thermo['n']:.3g} us | "
+        f"{100 * thermo['converged']['lnK']:.2f} % |",
+        f"| `solve(feed, T=..., P=...)` | {sec['T']:.3f} | {1e6 * sec['T'] / thermo['n']:.3g} us | "
+        f"{100 * thermo['converged']['T']:.2f} % |",
+        f"| `solve(..., approach=...)` | {sec['approach']:.3f} | "
+        f"{1e6 * sec['approach'] / thermo['n']:.3g} us | {100 * thermo['converged']['approach']:.2f} % |",
+        f"| `solve(..., adiabatic=True)` | {sec['adiabatic']:.3f} | "
+        f"{1e6 * sec['adiabatic'] / thermo['n_adiabatic']:.3g} us | "
+        f"{100 * thermo['adiabatic_converged']:.2f} % |",
+        "",
+        "| target | measured | met |",
+        "|---|---|---|",
+        f"| `solve(T=...)` at least 0.8x the throughput of `solve(lnK=...)` | {thermo['T_ratio']:.2f}x | "
+        f"{met(thermo['T_ratio'] >= 0.8)} |",
+        f"| adiabatic at least 0.3x the throughput of the isothermal solve | {thermo['adiabatic_ratio']:.3f}x | "
+        f"{met(thermo['adiabatic_ratio'] >= 0.3)} |",
+    ]
     report += [
         "",
         "### Where the speed comes from",
@@ -786,6 +868,7 @@ def main(argv: list[str] | None = None) -> int:
                 "runs_a": [r.__dict__ for r in runs_a],
                 "lean": duel,
                 "single": single,
+                "thermo": thermo,
                 "memory": memory,
                 "threads": {"one": one.seconds, "two": two.seconds},
             },

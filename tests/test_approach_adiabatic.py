@@ -209,3 +209,46 @@ def test_a_reaction_already_within_its_approach_is_held_at_the_feed() -> None:
     # A smaller approach leaves it running backwards, short of equilibrium.
     short = s.solve([0.7, 0.3, 0.0], T=500.0, approach={"r1": 5.0})
     assert eq.extents[0, 0] < short.extents[0, 0] < 0 and not short.held[0, 0]
+
+
+# --- adiabatic outlets against a closed form ---------------------------------------
+
+
+def _isomer_outlet(T_in: float, dH: float, cp_r: float = 4.0) -> float:
+    """Adiabatic outlet of A = B from 1 mol A, by hand: equal constant Cp (cp_r R)
+    and equal entropies, so ln K = -dH / (R T) and x_B = K / (1 + K); the
+    enthalpy balance is x_B (-dH) = cp_r R (T - T_in). Root by brentq."""
+    from scipy.optimize import brentq
+
+    R = 8.314462618
+
+    def balance(T: float) -> float:
+        K = np.exp(-dH / (R * T))
+        return K / (1 + K) * (-dH) - cp_r * R * (T - T_in)
+
+    return brentq(balance, 50.0, 5000.0, xtol=1e-13, rtol=1e-15)
+
+
+def test_adiabatic_outlets_in_one_batch_match_the_closed_form_or_say_out_of_range() -> None:
+    # Exothermic (dH = -20 kJ/mol) and endothermic (+5 kJ/mol) isomerisations, with
+    # data valid 300-1500 K. In one batch: inlets inside the range; an inlet below it
+    # that balances inside (the first iterate starts at the range's end); an
+    # endothermic case whose outlet falls below 300 K (out of range on the low side)
+    # and an exothermic one that rises above 1500 K (high side).
+    def system(dH_kJ: float) -> ReactionSystem:
+        data = {
+            "A": CpPolynomial(a=(4.0,), dHf=0.0, S298=200.0, T_min=300.0, T_max=1500.0),
+            "B": CpPolynomial(a=(4.0,), dHf=dH_kJ, S298=200.0, T_min=300.0, T_max=1500.0),
+        }
+        return ReactionSystem(["A", "B"], ["A = B"], species_data=data, check_balance=False)
+
+    for dH, inlets, beyond in ((-20.0, [400.0, 900.0, 290.0], 1490.0), (5.0, [600.0, 1200.0, 1450.0], 310.0)):
+        s = system(dH)
+        T = np.array(inlets + [beyond])
+        res = s.solve(np.tile([1.0, 0.0], (T.size, 1)), T=T, P=1.0, adiabatic=True, tol=1e-12)
+        for k, T_in in enumerate(inlets):
+            assert res.status[k] == Status.CONVERGED, (dH, T_in, res.message(k))
+            assert float(res.T[k]) == pytest.approx(_isomer_outlet(T_in, 1000.0 * dH), rel=1e-9)
+        outlet = _isomer_outlet(beyond, 1000.0 * dH)
+        assert not (300.0 <= outlet <= 1500.0)  # the hand calculation leaves the range
+        assert res.status[-1] == Status.OUT_OF_RANGE, res.message(T.size - 1)

@@ -56,6 +56,7 @@ class System:
         status: npt.NDArray[np.uint8],
         absent: npt.NDArray[np.uint8] | None = None,
         threads: int | None = None,
+        with_feed: bool = True,
     ) -> tuple[npt.NDArray[np.float64], npt.NDArray[np.float64], npt.NDArray[np.float64]]: ...
 
 #: One temperature range of species data: (upto, closed, scale, a0, a1, a2, a3, a4, e, h, s).
@@ -71,5 +72,8 @@ class ThermoTable:
         shift: npt.NDArray[np.float64],
     ) -> None: ...
     def evaluate(
+        self, temperature: npt.NDArray[np.float64]
+    ) -> tuple[npt.NDArray[np.float64], npt.NDArray[np.float64]]: ...
+    def species(
         self, temperature: npt.NDArray[np.float64]
     ) -> tuple[npt.NDArray[np.float64], npt.NDArray[np.float64]]: ...

@@ -7,8 +7,12 @@ by Newton's method with the exact derivative
 ``f'(T) = sum_i n_i c_p,i + sum_i h_i dn_i/dT`` (the equilibrium's temperature
 sensitivity), safeguarded by bisection inside the temperature range that all
 species' data cover, and warm-started from the previous iterate's extents.
-Each iteration is an isothermal solve of every case, given as ``solve``
-(:meth:`ReactionSystem.solve <eqbatch.ReactionSystem.solve>`).
+Each iteration is an isothermal solve of the cases not yet balanced, given as
+``solve`` (:meth:`ReactionSystem.solve <eqbatch.ReactionSystem.solve>`); the
+species' enthalpies and heat capacities come from the core, and the ends of
+the data's range are solved only for cases whose step leaves it (a case whose
+energy residual has the same sign at that end as at its iterate has no
+balancing temperature in the range: ``OUT_OF_RANGE``).
 """
 
 from __future__ import annotations
@@ -19,6 +23,7 @@ from typing import Any, Protocol
 
 import numpy as np
 
+from eqbatch import _core
 from eqbatch.errors import CaseInputError
 from eqbatch.result import EnergyBalance, EquilibriumResult, Status
 from eqbatch.spec import SystemSpec
@@ -91,83 +96,174 @@ def adiabatic_solve(
     options: dict[str, Any] = {"threads": threads, "tol": tol, "max_iter": max_iter}
     base = solve(feed, T=T, P=P, invalid=invalid, x0=x0, **options)
     n = len(base)
-    feed_rows = np.asarray(base.feed)
+    feed_rows = np.ascontiguousarray(
+        np.broadcast_to(np.asarray(base.feed, dtype=float), (n, system.n_species))
+    )
     T_in = np.broadcast_to(np.asarray(base.T, dtype=float), (n,)).copy()
-    P_rows = np.asarray(base.P, dtype=float)
+    P_rows = np.ascontiguousarray(np.broadcast_to(np.asarray(base.P, dtype=float), (n,)))
     bad = base.status == Status.INVALID_INPUT
     newton = base.iterations.astype(np.int64)
     T_steps = np.zeros(n, dtype=np.int64)
+    species = _species_values(system, data)
+    # the state of every case at its current temperature iterate
+    Tc = np.clip(np.where(bad, lo, T_in), lo, hi)
+    amounts, extents = np.array(base.amounts), np.array(base.extents)
+    status = np.array(base.status)
+    absent = np.array(base.absent) if base.absent is not None else np.zeros(n, dtype=np.uint8)
+    lnK = np.array(base.lnK)
+    f, df = np.full(n, np.nan), np.full(n, np.nan)
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")  # range warnings: the bracket keeps T inside
-        h_in = _h(data, np.where(bad, lo, T_in))
+        h_in, cp_in = species(np.where(bad, lo, T_in))
         H_in = np.sum(feed_rows * h_in, axis=1)
         scale = np.sum(np.abs(feed_rows * h_in), axis=1) + 1.0
 
-        def residual(
-            Tc: np.ndarray, extents: np.ndarray | None = None
-        ) -> tuple[EquilibriumResult, np.ndarray, np.ndarray]:
-            r = solve(feed_rows, T=Tc, P=P_rows, sensitivities=True, x0=extents, **options)
-            h = _h(data, Tc)
-            f = np.sum(r.amounts * h, axis=1) - H_in
-            df = np.sum(r.amounts * _cp(data, Tc), axis=1) + np.sum(h * r.sensitivity("T"), axis=1)
-            return r, f, df
+        def evaluate(rows: np.ndarray, Tr: np.ndarray, start: np.ndarray | None) -> tuple[np.ndarray, ...]:
+            """Solve ``rows`` at ``Tr``: amounts, extents, status, iterations,
+            absent, ln K, and the energy residual and its exact derivative
+            ``sum n cp + sum h dn/dT`` (``dn/dT = dn/dlnK . dlnK/dT``)."""
+            fr, pr = feed_rows[rows], P_rows[rows]
+            r = solve(fr, T=Tr, P=pr, x0=start, **options)
+            ab = r.absent if r.absent is not None else np.zeros(rows.size, dtype=np.uint8)
+            fv, dfv = _residual_at(system, species, fr, pr, r.amounts, r.status, ab, Tr, H_in[rows], threads)
+            return r.amounts, r.extents, r.status, r.iterations, ab, r.lnK, fv, dfv
 
-        a = np.full(n, lo)
-        b = np.full(n, hi)
-        _, fa, _ = residual(a)
-        _, fb, _ = residual(b)
-        bracketed = np.isfinite(fa) & np.isfinite(fb) & (np.sign(fa) != np.sign(fb)) | (fa == 0) | (fb == 0)
-        bracketed &= ~bad
-        Tc = np.clip(np.where(bad, lo, T_in), lo, hi)
-        res, f, df = residual(Tc, base.extents)
-        newton += res.iterations
+        def update(rows: np.ndarray, Tr: np.ndarray, start: np.ndarray | None) -> None:
+            a_, e_, st_, it_, ab_, lk_, f_, df_ = evaluate(rows, Tr, start)
+            Tc[rows], amounts[rows], extents[rows], status[rows] = Tr, a_, e_, st_
+            absent[rows], lnK[rows], f[rows], df[rows] = ab_, lk_, f_, df_
+            newton[rows] += it_
+
+        rows = np.flatnonzero(~bad)
+        moved = rows[Tc[rows] != T_in[rows]]  # inlets outside the data's range start at its end
+        if moved.size:
+            update(moved, Tc[moved], extents[moved])
+        kept = np.setdiff1d(rows, moved)
+        if kept.size:  # the first solve is the solve at the inlet temperature: only f and f' are new
+            f[kept], df[kept] = _residual_at(
+                system,
+                species,
+                feed_rows[kept],
+                P_rows[kept],
+                amounts[kept],
+                status[kept],
+                absent[kept],
+                Tc[kept],
+                H_in[kept],
+                threads,
+            )
+        # the bracket [a, b] around the root (f rises with T: the mixture's
+        # enthalpy grows with temperature); the data's ends are evaluated only
+        # when a step needs them, and a case whose root lies beyond one is out
+        # of range
+        a, b = np.full(n, lo), np.full(n, hi)
+        f_lo, f_hi = np.full(n, np.nan), np.full(n, np.nan)
+        out_of_range = np.zeros(n, dtype=bool)
         for _ in range(max_T_iter):
-            done = ~bracketed | (np.abs(f) <= energy_tol * scale)
+            done = bad | out_of_range | (np.abs(f) <= energy_tol * scale)
             if done.all():
                 break
-            # keep the bracket [a, b] around the root (f rises with T: the
-            # mixture's enthalpy grows with temperature)
             below = f < 0
             a = np.where(below & ~done, np.maximum(a, Tc), a)
             b = np.where(~below & ~done, np.minimum(b, Tc), b)
             with np.errstate(divide="ignore", invalid="ignore"):
                 step = Tc - f / df
             inside = np.isfinite(step) & (step > a) & (step < b)
-            Tn = np.where(inside, step, 0.5 * (a + b))
-            Tc = np.where(done, Tc, Tn)
-            res, f, df = residual(Tc, res.extents)
-            newton += np.where(done, 0, res.iterations)
-            T_steps += ~done
-    status = res.status.copy()
-    at_equilibrium = res.converged
-    status[~bracketed & at_equilibrium] = Status.OUT_OF_RANGE
-    not_closed = bracketed & ~(np.abs(f) <= energy_tol * scale) & at_equilibrium
+            for end, f_end, need in ((lo, f_lo, ~below & (a == lo)), (hi, f_hi, below & (b == hi))):
+                ask = np.flatnonzero(~done & ~inside & need & np.isnan(f_end))
+                if ask.size:
+                    f_end[ask] = evaluate(ask, np.full(ask.size, end), extents[ask])[6]
+                    # same sign at the end as here: no root between them
+                    out_of_range[ask] = np.isfinite(f_end[ask]) & (np.sign(f_end[ask]) == np.sign(f[ask]))
+                    out_of_range[ask] |= ~np.isfinite(f_end[ask])
+                    done |= out_of_range
+            active = np.flatnonzero(~done)
+            if active.size == 0:
+                break
+            Tn = np.where(inside, step, 0.5 * (a + b))[active]
+            update(active, Tn, extents[active])
+            T_steps[active] += 1
+    at_equilibrium = (status == Status.CONVERGED) | (status == Status.UNDERFLOW)
+    status[out_of_range & at_equilibrium] = Status.OUT_OF_RANGE
+    not_closed = ~out_of_range & ~(np.abs(f) <= energy_tol * scale) & at_equilibrium
     status[not_closed] = Status.ITERATION_LIMIT
-    amounts, extents = res.amounts, res.extents
     if bad.any():
         status[bad] = Status.INVALID_INPUT
         amounts[bad] = np.nan
         extents[bad] = np.nan
         Tc = np.where(bad, np.nan, Tc)
     out = EquilibriumResult(
-        system, amounts, extents, None, status, newton.astype(np.uint32), feed_rows, P_rows, Tc, res.lnK
+        system, amounts, extents, None, status, newton.astype(np.uint32), feed_rows, P_rows, Tc, lnK
     )
     out.T_iterations = T_steps
-    out.absent = res.absent
+    out.absent = absent
     if sensitivities:
-        assert res._sens is not None  # every residual solve computes them
+        solved = np.where(at_equilibrium, Status.CONVERGED, Status.ITERATION_LIMIT).astype(np.uint8)
+        solved[bad] = Status.INVALID_INPUT
+        out._sens = system._engine.sensitivities(
+            feed_rows, P_rows, np.where(bad[:, None], 0.0, amounts), solved, absent, threads
+        )
         with warnings.catch_warnings():
             warnings.simplefilter("ignore")
             T_safe = np.where(np.isfinite(Tc), Tc, lo)
-            out._sens = res._sens
+            h_out, cp_out = species(T_safe)
             out._energy = EnergyBalance(
-                h_out=_h(data, T_safe),
+                h_out=h_out,
                 h_in=h_in,
-                cp_feed=np.sum(feed_rows * _cp(data, np.where(bad, lo, T_in)), axis=1),
-                cp_out=_cp(data, T_safe),
+                cp_feed=np.sum(feed_rows * cp_in, axis=1),
+                cp_out=cp_out,
                 slope_out=system.dlnK_dT(T_safe),
                 T_in=T_in,
             )
         for array in out._sens:
             array[~out.converged] = np.nan
     return out
+
+
+def _residual_at(
+    system: SystemSpec,
+    species: Any,
+    feed: np.ndarray,
+    P: np.ndarray,
+    amounts: np.ndarray,
+    status: np.ndarray,
+    absent: np.ndarray,
+    T: np.ndarray,
+    H_in: np.ndarray,
+    threads: int | None,
+) -> tuple[np.ndarray, np.ndarray]:
+    """The energy residual ``sum n h(T) - H_in`` of solved cases at ``T`` and
+    its exact derivative along the equilibrium, ``sum n cp + sum h dn/dT``
+    with ``dn/dT = dn/dlnK . dlnK/dT`` (the core's derivatives without the
+    feed columns)."""
+    h, cp = species(T)
+    dk = system._engine.sensitivities(
+        np.ascontiguousarray(feed),
+        np.ascontiguousarray(P),
+        np.ascontiguousarray(amounts),
+        np.ascontiguousarray(status),
+        np.ascontiguousarray(absent),
+        threads,
+        with_feed=False,
+    )[0]
+    dn_dT = np.einsum("nsr,nr->ns", dk, system.dlnK_dT(T))
+    f = np.sum(amounts * h, axis=1) - H_in
+    df = np.sum(amounts * cp, axis=1) + np.sum(h * dn_dT, axis=1)
+    return f, df
+
+
+def _species_values(system: SystemSpec, data: Sequence[SpeciesData]) -> Any:
+    """``T -> (h (N, S) J/mol, cp (N, S) J/(mol K))`` of the system's species:
+    in the core where every data set has a core form."""
+    if all(hasattr(d, "_segments") for d in data):
+        table = _core.ThermoTable([d._segments() for d in data], np.zeros((0, len(data))), np.zeros(0))
+
+        def core(T: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+            return table.species(np.ascontiguousarray(T, dtype=float))
+
+        return core
+
+    def python(T: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        return _h(data, T), _cp(data, T)
+
+    return python

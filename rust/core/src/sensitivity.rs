@@ -31,7 +31,9 @@ pub struct SensitivityOutputs<'a> {
     pub d_ln_k: &'a mut [f64],
     /// `d n_i / d ln P`: `n_cases x S`.
     pub d_ln_p: &'a mut [f64],
-    /// `d n_i / d n0_k`: `n_cases x S x S`.
+    /// `d n_i / d n0_k`: `n_cases x S x S`, or empty to skip the feed
+    /// derivatives (an adiabatic solve's temperature iterations need only
+    /// `d n / d ln K`).
     pub d_feed: &'a mut [f64],
 }
 
@@ -57,12 +59,13 @@ pub fn sensitivities_batch(
     let (s, r) = (system.n_species(), system.n_reactions());
     let feed_rows = Rows::check("feed", inputs.feed.len(), s, n)?;
     Rows::check("pressure", inputs.pressure.len(), 1, n)?;
+    let with_feed = !out.d_feed.is_empty();
     if amounts.len() != n * s
         || status.len() != n
         || absent.is_some_and(|a| a.len() != n)
         || out.d_ln_k.len() != n * s * r
         || out.d_ln_p.len() != n * s
-        || out.d_feed.len() != n * s * s
+        || (with_feed && out.d_feed.len() != n * s * s)
     {
         return Err(CoreError::Shape(
             "sensitivity arrays do not match the batch".into(),
@@ -91,7 +94,11 @@ pub fn sensitivities_batch(
             let case = chunk * CHUNK + local;
             let dk = &mut dk[local * s * r..(local + 1) * s * r];
             let dp = &mut dp[local * s..(local + 1) * s];
-            let df = &mut df[local * s * s..(local + 1) * s * s];
+            let df = if with_feed {
+                &mut df[local * s * s..(local + 1) * s * s]
+            } else {
+                &mut df[..0]
+            };
             let feed = feed_rows.row(inputs.feed, case);
             let n_case = &amounts[case * s..(case + 1) * s];
             let converged =
@@ -135,12 +142,20 @@ pub fn sensitivities_batch(
         }
     };
     let run = |out: &mut SensitivityOutputs| {
-        out.d_ln_k
-            .par_chunks_mut(CHUNK * s * r)
-            .zip(out.d_ln_p.par_chunks_mut(CHUNK * s))
-            .zip(out.d_feed.par_chunks_mut(CHUNK * s * s))
-            .enumerate()
-            .for_each(|(chunk, ((dk, dp), df))| work(chunk, dk, dp, df));
+        if with_feed {
+            out.d_ln_k
+                .par_chunks_mut(CHUNK * s * r)
+                .zip(out.d_ln_p.par_chunks_mut(CHUNK * s))
+                .zip(out.d_feed.par_chunks_mut(CHUNK * s * s))
+                .enumerate()
+                .for_each(|(chunk, ((dk, dp), df))| work(chunk, dk, dp, df));
+        } else {
+            out.d_ln_k
+                .par_chunks_mut(CHUNK * s * r)
+                .zip(out.d_ln_p.par_chunks_mut(CHUNK * s))
+                .enumerate()
+                .for_each(|(chunk, (dk, dp))| work(chunk, dk, dp, &mut []));
+        }
     };
     if serial {
         work(
@@ -207,10 +222,11 @@ fn case_sensitivities(
 ) -> bool {
     let (s, r, dim) = (system.n_species(), system.n_reactions(), face.dim);
     let phases = system.phases();
+    let with_feed = !d_feed.is_empty();
     d_ln_k.fill(0.0);
     d_ln_p.fill(0.0);
     d_feed.fill(0.0);
-    for k in 0..s {
+    for k in 0..s * usize::from(with_feed) {
         d_feed[k * s + k] = 1.0;
     }
     if dim == 0 {
@@ -331,6 +347,9 @@ fn case_sensitivities(
     // absent phase e_k moved onto the present species by the reactions where
     // they can take it) changes the residuals by
     // dF_b = sum_i m_i (nu_b[:, i] / n_i - d_phase(i) / N_phase(i)).
+    if !with_feed {
+        return true;
+    }
     let mut moved = std::mem::take(&mut sc.moved);
     for k in 0..s {
         moved.fill(0.0);
@@ -511,6 +530,39 @@ mod tests {
             for i in 0..s {
                 close(i, df[i * s + k], (a[i] - b[i]) / (2.0 * h), "d n / d n0");
             }
+        }
+        // Without the feed derivatives (an empty d_feed) the others are the
+        // same bits, serially and on the pool (more than one chunk).
+        let m = 2 * CHUNK + 3;
+        let feeds: Vec<f64> = (0..m).flat_map(|_| feed.iter().copied()).collect();
+        let ln_ks: Vec<f64> = (0..m).flat_map(|_| ln_k.iter().copied()).collect();
+        let amounts_m: Vec<f64> = (0..m).flat_map(|_| n.iter().copied()).collect();
+        let inputs = BatchInputs {
+            n_cases: m,
+            feed: &feeds,
+            ln_k: &ln_ks,
+            pressure: &vec![pressure; m],
+            start: None,
+        };
+        let (mut dk2, mut dp2) = (vec![0.0; m * s * r], vec![0.0; m * s]);
+        let mut out = SensitivityOutputs {
+            d_ln_k: &mut dk2,
+            d_ln_p: &mut dp2,
+            d_feed: &mut [],
+        };
+        sensitivities_batch(
+            system,
+            &inputs,
+            &amounts_m,
+            &vec![Status::Converged as u8; m],
+            Some(&vec![absent[0]; m]),
+            &mut out,
+            Some(2),
+        )
+        .unwrap();
+        for c in [0, CHUNK + 1, m - 1] {
+            assert_eq!(&dk2[c * s * r..(c + 1) * s * r], &dk[..]);
+            assert_eq!(&dp2[c * s..(c + 1) * s], &dp[..]);
         }
     }
 

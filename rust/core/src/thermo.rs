@@ -191,6 +191,52 @@ impl ThermoTable {
         self.shift.len()
     }
 
+    pub fn n_data(&self) -> usize {
+        self.data.len()
+    }
+
+    /// Every data set's molar enthalpy (J/mol, formation scale) and heat
+    /// capacity (J/(mol K)) at every temperature of `temps` (K), each
+    /// `n x n_data` (row-major); NaN where a temperature is not positive and
+    /// finite.
+    pub fn species(&self, temps: &[f64], h: &mut [f64], cp: &mut [f64]) -> Result<(), CoreError> {
+        const CHUNK: usize = 4096;
+        let d = self.data.len();
+        if h.len() != temps.len() * d || cp.len() != temps.len() * d {
+            return Err(CoreError::Shape(
+                "species outputs do not match the temperatures".into(),
+            ));
+        }
+        if d == 0 {
+            return Ok(());
+        }
+        let work = |h: &mut [f64], cp: &mut [f64], temps: &[f64]| {
+            for (c, &t) in temps.iter().enumerate() {
+                let (h, cp) = (&mut h[c * d..(c + 1) * d], &mut cp[c * d..(c + 1) * d]);
+                if !(t > 0.0 && t < f64::INFINITY) {
+                    h.fill(f64::NAN);
+                    cp.fill(f64::NAN);
+                    continue;
+                }
+                let (ln_t, inv_t) = (t.ln(), 1.0 / t);
+                for (k, data) in self.data.iter().enumerate() {
+                    let range = data.range(t);
+                    h[k] = GAS_CONSTANT * range.h_s(t, ln_t, inv_t).0;
+                    cp[k] = GAS_CONSTANT * range.cp(t);
+                }
+            }
+        };
+        if temps.len() <= CHUNK {
+            work(h, cp, temps);
+        } else {
+            h.par_chunks_mut(CHUNK * d)
+                .zip(cp.par_chunks_mut(CHUNK * d))
+                .zip(temps.par_chunks(CHUNK))
+                .for_each(|((h, cp), temps)| work(h, cp, temps));
+        }
+        Ok(())
+    }
+
     /// `ln K` and `dH` of every reaction at every temperature of `temps`
     /// (K); NaN where a temperature is not positive and finite.
     pub fn evaluate(&self, temps: &[f64], out: ThermoOutputs) -> Result<(), CoreError> {
@@ -423,5 +469,19 @@ mod tests {
                 "s at {t}: {s_got} vs {s}"
             );
         }
+    }
+
+    #[test]
+    fn species_values_are_the_data_sets_enthalpy_and_heat_capacity() {
+        let co = diatomic(-110_530.0, 197.66);
+        let table = ThermoTable::new(vec![co.clone()], vec![], vec![]).unwrap();
+        let (mut h, mut cp) = (vec![0.0; 3], vec![0.0; 3]);
+        table
+            .species(&[500.0, 900.0, -1.0], &mut h, &mut cp)
+            .unwrap();
+        // constant Cp = 7/2 R: H(T) = H298 + Cp (T - 298.15)
+        assert!((h[1] - (-110_530.0 + 3.5 * GAS_CONSTANT * (900.0 - 298.15))).abs() < 1e-8);
+        assert_eq!(cp[0], 3.5 * GAS_CONSTANT);
+        assert!(h[2].is_nan() && cp[2].is_nan());
     }
 }

@@ -240,8 +240,9 @@ impl PySystem {
 
     /// Exact derivatives of converged cases: returns `(d n / d ln K (N, S, R),
     /// d n / d ln P (N, S), d n / d n0 (N, S, S))`; other cases are NaN.
-    /// `absent` is the solve's mask of absent phases.
-    #[pyo3(signature = (feed, pressure, amounts, status, absent=None, threads=None))]
+    /// `absent` is the solve's mask of absent phases; `with_feed=False`
+    /// skips the feed derivatives (returned as an (N, 0, 0) array).
+    #[pyo3(signature = (feed, pressure, amounts, status, absent=None, threads=None, with_feed=true))]
     #[allow(clippy::too_many_arguments)]
     fn sensitivities<'py>(
         &self,
@@ -252,13 +253,15 @@ impl PySystem {
         status: PyReadonlyArray1<'py, u8>,
         absent: Option<PyReadonlyArray1<'py, u8>>,
         threads: Option<usize>,
+        with_feed: bool,
     ) -> PyResult<Sensitivities<'py>> {
         let s = self.inner.n_species();
         let r = self.inner.n_reactions();
         let n_cases = amounts.shape()[0];
         let d_ln_k = PyArray3::<f64>::zeros(py, [n_cases, s, r], false);
         let d_ln_p = PyArray2::<f64>::zeros(py, [n_cases, s], false);
-        let d_feed = PyArray3::<f64>::zeros(py, [n_cases, s, s], false);
+        let sf = if with_feed { s } else { 0 };
+        let d_feed = PyArray3::<f64>::zeros(py, [n_cases, sf, sf], false);
         {
             let feed = feed.as_slice()?;
             let pressure = pressure.as_slice()?;

@@ -77,4 +77,29 @@ impl PyThermoTable {
         }
         Ok((ln_k, dh))
     }
+
+    /// `(h, cp)`, each (N, D): every data set's molar enthalpy (J/mol, on
+    /// the formation scale) and heat capacity (J/(mol K)) at every
+    /// temperature of `T` (N,), K; NaN rows where a temperature is not
+    /// positive and finite.
+    #[allow(clippy::type_complexity)]
+    fn species<'py>(
+        &self,
+        py: Python<'py>,
+        temperature: PyReadonlyArray1<'py, f64>,
+    ) -> PyResult<(Bound<'py, PyArray2<f64>>, Bound<'py, PyArray2<f64>>)> {
+        let n = temperature.len()?;
+        let d = self.inner.n_data();
+        let h = PyArray2::zeros(py, [n, d], false);
+        let cp = PyArray2::zeros(py, [n, d], false);
+        {
+            let temps = temperature.as_slice()?;
+            let (mut a, mut b) = (h.try_readwrite()?, cp.try_readwrite()?);
+            let (a, b) = (a.as_slice_mut()?, b.as_slice_mut()?);
+            let table = &self.inner;
+            py.detach(move || table.species(temps, a, b))
+                .map_err(to_py)?;
+        }
+        Ok((h, cp))
+    }
 }
