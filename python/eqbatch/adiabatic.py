@@ -18,16 +18,14 @@ balancing temperature in the range: ``OUT_OF_RANGE``).
 from __future__ import annotations
 
 import warnings
-from collections.abc import Sequence
 from typing import Any, Protocol
 
 import numpy as np
 
-from eqbatch import _core
 from eqbatch.errors import CaseInputError
+from eqbatch.inputs import case_column, feed_array
 from eqbatch.result import EnergyBalance, EquilibriumResult, Status
 from eqbatch.spec import SystemSpec
-from eqbatch.speciesdata import SpeciesData
 
 
 class IsothermalSolve(Protocol):
@@ -48,26 +46,6 @@ class IsothermalSolve(Protocol):
     ) -> EquilibriumResult: ...
 
 
-def _enthalpy_data(system: SystemSpec) -> tuple[list[SpeciesData], float, float]:
-    missing = [s for s in system.species if s not in system.species_data]
-    if missing:
-        raise CaseInputError(
-            f"adiabatic=True needs species data (enthalpies) for every species; none for {', '.join(missing)}"
-        )
-    data = [system.species_data[s] for s in system.species]
-    lo = max(d.range[0] for d in data)
-    hi = min(d.range[1] for d in data)
-    return data, lo, hi
-
-
-def _h(data: Sequence[SpeciesData], T: np.ndarray) -> np.ndarray:
-    return np.column_stack([d.h(T) for d in data])
-
-
-def _cp(data: Sequence[SpeciesData], T: np.ndarray) -> np.ndarray:
-    return np.column_stack([d.cp(T) for d in data])
-
-
 def adiabatic_solve(
     system: SystemSpec,
     solve: IsothermalSolve,
@@ -83,19 +61,42 @@ def adiabatic_solve(
     sensitivities: bool = False,
     max_T_iter: int = 60,
     energy_tol: float = 1e-11,
+    duty: Any = None,
+    H_in: Any = None,
 ) -> EquilibriumResult:
     """The adiabatic outlet of every case (see :meth:`ReactionSystem.solve`
-    with ``adiabatic=True``).
+    with ``adiabatic=True``), or with ``duty`` (kJ per case, heat added) the
+    outlet of a reactor with that heat duty.
 
     ``solve`` is the system's isothermal solve; ``tol``, ``max_iter`` and
     ``x0`` apply to every equilibrium solve inside (``x0`` to the first),
     ``invalid="raise"`` raises on the first bad case, and ``max_T_iter``
-    bounds the temperature iterations.
+    bounds the temperature iterations. ``H_in`` (kJ per case, the feed's
+    enthalpy on the formation scale) may replace the inlet temperature ``T``:
+    the inlet temperature is then the one at which the feed has that
+    enthalpy.
     """
-    data, lo, hi = _enthalpy_data(system)
+    _, lo, hi = system._enthalpy_data()
+    species = system._species_h_cp
     options: dict[str, Any] = {"threads": threads, "tol": tol, "max_iter": max_iter}
+    H_given = None
+    if H_in is not None:
+        feed = feed_array(system, feed)
+        H_given = 1000.0 * case_column(H_in, "H_in")
+        m = max(feed.shape[0], H_given.shape[0])
+        feed = np.ascontiguousarray(np.broadcast_to(feed, (m, system.n_species)))
+        H_given = np.ascontiguousarray(np.broadcast_to(H_given, (m,)))
+        T = _feed_temperature(species, feed, H_given, lo, hi)
+    heat = None if duty is None else 1000.0 * case_column(duty, "duty")
+    if heat is not None and heat.shape[0] > 1:  # one case per duty: the inlet temperature sets the rows
+        T_rows = case_column(T, "T")
+        if T_rows.shape[0] not in (1, heat.shape[0]):
+            raise CaseInputError(f"duty has {heat.shape[0]} cases and T has {T_rows.shape[0]}")
+        T = np.ascontiguousarray(np.broadcast_to(T_rows, heat.shape))
     base = solve(feed, T=T, P=P, invalid=invalid, x0=x0, **options)
     n = len(base)
+    if heat is not None and heat.shape[0] not in (1, n):
+        raise CaseInputError(f"duty has {heat.shape[0]} cases and the other inputs {n}")
     feed_rows = np.ascontiguousarray(
         np.broadcast_to(np.asarray(base.feed, dtype=float), (n, system.n_species))
     )
@@ -104,7 +105,7 @@ def adiabatic_solve(
     bad = base.status == Status.INVALID_INPUT
     newton = base.iterations.astype(np.int64)
     T_steps = np.zeros(n, dtype=np.int64)
-    species = _species_values(system, data)
+    heat = np.zeros(n) if heat is None else np.broadcast_to(heat, (n,))
     # the state of every case at its current temperature iterate
     Tc = np.clip(np.where(bad, lo, T_in), lo, hi)
     amounts, extents = np.array(base.amounts), np.array(base.extents)
@@ -115,8 +116,9 @@ def adiabatic_solve(
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")  # range warnings: the bracket keeps T inside
         h_in, cp_in = species(np.where(bad, lo, T_in))
-        H_in = np.sum(feed_rows * h_in, axis=1)
-        scale = np.sum(np.abs(feed_rows * h_in), axis=1) + 1.0
+        H_feed = np.sum(feed_rows * h_in, axis=1) if H_given is None else np.broadcast_to(H_given, (n,))
+        scale = np.sum(np.abs(feed_rows * h_in), axis=1) + np.abs(heat) + 1.0
+        H_in = H_feed + heat  # the outlet's enthalpy: the feed's plus the heat added
 
         def evaluate(rows: np.ndarray, Tr: np.ndarray, start: np.ndarray | None) -> tuple[np.ndarray, ...]:
             """Solve ``rows`` at ``Tr``: amounts, extents, status, iterations,
@@ -196,6 +198,7 @@ def adiabatic_solve(
         system, amounts, extents, None, status, newton.astype(np.uint32), feed_rows, P_rows, Tc, lnK
     )
     out.T_iterations = T_steps
+    out.T_in = T_in
     out.absent = absent
     if sensitivities:
         solved = np.where(at_equilibrium, Status.CONVERGED, Status.ITERATION_LIMIT).astype(np.uint8)
@@ -252,18 +255,29 @@ def _residual_at(
     return f, df
 
 
-def _species_values(system: SystemSpec, data: Sequence[SpeciesData]) -> Any:
-    """``T -> (h (N, S) J/mol, cp (N, S) J/(mol K))`` of the system's species:
-    in the core where every data set has a core form."""
-    if all(hasattr(d, "_segments") for d in data):
-        table = _core.ThermoTable([d._segments() for d in data], np.zeros((0, len(data))), np.zeros(0))
-
-        def core(T: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-            return table.species(np.ascontiguousarray(T, dtype=float))
-
-        return core
-
-    def python(T: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-        return _h(data, T), _cp(data, T)
-
-    return python
+def _feed_temperature(
+    species: Any, feed: np.ndarray, H: np.ndarray, lo: float, hi: float, iterations: int = 100
+) -> np.ndarray:
+    """The temperature at which each feed (N, S) has the enthalpy ``H`` (J):
+    Newton on ``sum n0 h(T) - H`` (rising with T, by ``sum n0 cp``) kept inside
+    a bracket; the bracket starts as the data's range and widens to half its
+    lower end and twice its upper one; NaN where no temperature there fits."""
+    n = feed.shape[0]
+    a, b = np.full(n, 0.5 * lo), np.full(n, 2.0 * hi)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        f_a = np.sum(feed * species(a)[0], axis=1) - H
+        f_b = np.sum(feed * species(b)[0], axis=1) - H
+        ok = np.isfinite(H) & (f_a <= 0) & (f_b >= 0)
+        T = np.where(ok, 0.5 * (lo + hi), np.nan)
+        for _ in range(iterations):
+            h, cp = species(np.where(ok, T, lo))
+            f = np.sum(feed * h, axis=1) - H
+            if np.all(~ok | (np.abs(f) <= 1e-12 * (np.sum(np.abs(feed * h), axis=1) + 1.0))):
+                break
+            a = np.where(f < 0, T, a)
+            b = np.where(f > 0, T, b)
+            with np.errstate(divide="ignore", invalid="ignore"):
+                step = T - f / np.sum(feed * cp, axis=1)
+            T = np.where(ok, np.where((step > a) & (step < b), step, 0.5 * (a + b)), np.nan)
+    return T

@@ -94,6 +94,7 @@ class EquilibriumResult:
         "_T_eff",
         "_energy",
         "T_iterations",
+        "T_in",
         "absent",
         "held",
     )
@@ -128,6 +129,9 @@ class EquilibriumResult:
         self._energy: EnergyBalance | None = None
         #: (N,) temperature iterations of an adiabatic solve, else None.
         self.T_iterations: np.ndarray | None = None
+        #: (N,) inlet temperature of an energy-balance solve (``adiabatic=True``
+        #: or ``duty=``), K, else None.
+        self.T_in: np.ndarray | None = None
         #: (N,) uint8 mask of the phases found absent (and stable) at
         #: equilibrium: bit 0 the gas, bit 1 the liquid (see ``absent_phases``).
         self.absent: np.ndarray | None = None
@@ -232,6 +236,97 @@ class EquilibriumResult:
         :attr:`feed` for an example)."""
         lnk = self._lnK
         return self._rows(lnk if lnk.ndim == 2 else lnk[None])
+
+    # ------------------------------------------------------------ energy
+
+    def _species_h_cp(self, T: np.ndarray, what: str) -> tuple[np.ndarray, np.ndarray]:
+        """Every species' enthalpy (J/mol) and heat capacity (J/(mol K)) at
+        ``T`` (N,), from the system's species data."""
+        return self.system._species_h_cp(T, what)
+
+    def _outlet_T(self, what: str) -> np.ndarray:
+        if self._T is None:
+            raise CaseInputError(f"{what} needs the temperature: solve with T= (and species data)")
+        return np.ascontiguousarray(self.T, dtype=float)
+
+    @property
+    def enthalpy(self) -> np.ndarray:
+        """(N,) the outlet mixture's enthalpy, kJ per case: ``sum n_i h_i(T)``
+        on the formation scale of the species data (needs species data for
+        every species and ``T``).
+
+        Examples
+        --------
+        >>> from eqbatch import ReactionSystem
+        >>> from eqbatch.thermo import CpPolynomial
+        >>> data = {"A": CpPolynomial(a=(4.0,), dHf=0.0, S298=200.0),
+        ...         "B": CpPolynomial(a=(4.0,), dHf=-20.0, S298=200.0)}
+        >>> s = ReactionSystem(["A", "B"], ["A = B"], species_data=data, check_balance=False)
+        >>> res = s.solve([1.0, 0.0], T=298.15)
+        >>> float(res.enthalpy[0]) == -20.0 * float(res.amounts[0, 1])   # only B's formation enthalpy
+        True
+        """
+        h, _ = self._species_h_cp(self._outlet_T("enthalpy"), "enthalpy")
+        return np.sum(self.amounts * h, axis=1) / 1000.0
+
+    @property
+    def heat_capacity(self) -> np.ndarray:
+        """(N,) the outlet mixture's heat capacity at fixed composition, kJ/K
+        per case: ``sum n_i cp_i(T)`` (needs species data and ``T``).
+
+        Examples
+        --------
+        >>> from eqbatch import ReactionSystem
+        >>> from eqbatch.thermo import CpPolynomial
+        >>> data = {"A": CpPolynomial(a=(4.0,), dHf=0.0, S298=200.0),
+        ...         "B": CpPolynomial(a=(4.0,), dHf=-20.0, S298=200.0)}
+        >>> s = ReactionSystem(["A", "B"], ["A = B"], species_data=data, check_balance=False)
+        >>> round(float(s.solve([1.0, 1.0], T=500.0).heat_capacity[0]), 9)   # 2 mol at 4 R
+        0.066515701
+        """
+        _, cp = self._species_h_cp(self._outlet_T("heat_capacity"), "heat_capacity")
+        return np.sum(self.amounts * cp, axis=1) / 1000.0
+
+    @property
+    def reaction_enthalpy(self) -> np.ndarray:
+        """(N, R) the standard reaction enthalpies at each case's temperature,
+        J/mol (``system.dH(T)``; needs K(T) data and ``T``)."""
+        return self.system.dH(self._outlet_T("reaction_enthalpy"))
+
+    def duty(self, T_in: Any = None) -> np.ndarray:
+        """Heat added to the reactor, kJ per case: the outlet's enthalpy at
+        ``T`` minus the feed's at its inlet temperature (positive: heat in,
+        an endothermic reformer; negative: heat removed).
+
+        Parameters
+        ----------
+        T_in : float or array_like, shape (N,), optional
+            Inlet temperature, K. Default: the inlet of an energy-balance
+            solve (``result.T_in``), else ``T`` (the feed enters at the
+            reactor's temperature: the duty is then the heat of reaction).
+
+        Returns
+        -------
+        ndarray, shape (N,)
+            kJ per case; zero (to rounding) for an adiabatic solve.
+
+        Examples
+        --------
+        >>> from eqbatch import ReactionSystem
+        >>> from eqbatch.thermo import CpPolynomial
+        >>> data = {"A": CpPolynomial(a=(4.0,), dHf=0.0, S298=200.0),
+        ...         "B": CpPolynomial(a=(4.0,), dHf=-20.0, S298=200.0)}
+        >>> s = ReactionSystem(["A", "B"], ["A = B"], species_data=data, check_balance=False)
+        >>> res = s.solve([1.0, 0.0], T=400.0)
+        >>> bool(abs(res.duty()[0] - (-20.0) * res.amounts[0, 1]) < 1e-9)   # the heat of reaction
+        True
+        """
+        T_out = self._outlet_T("duty")
+        if T_in is None:
+            T_in = self.T_in if self.T_in is not None else T_out
+        T_in = np.broadcast_to(np.asarray(T_in, dtype=float).reshape(-1), T_out.shape)
+        h_in, _ = self._species_h_cp(T_in, "duty")
+        return self.enthalpy - np.sum(self.feed * h_in, axis=1) / 1000.0
 
     @property
     def converged(self) -> np.ndarray:

@@ -173,6 +173,45 @@ class SystemSpec:
         table = _core.ThermoTable([d._segments() for d in datasets], coef, shift)
         return np.array(rows, dtype=np.intp), table
 
+    @cached_property
+    def _species_table(self) -> _core.ThermoTable | None:
+        """The core's table of every species' data (for enthalpies and heat
+        capacities), or None if some species has no data or no core form."""
+        if not self.species or not all(name in self.species_data for name in self.species):
+            return None
+        data = [self.species_data[name] for name in self.species]
+        if not all(hasattr(d, "_segments") for d in data):
+            return None
+        return _core.ThermoTable([d._segments() for d in data], np.zeros((0, len(data))), np.zeros(0))
+
+    def _enthalpy_data(self, what: str = "adiabatic=True") -> tuple[list[SpeciesData], float, float]:
+        """Every species' data and the temperature range all of them cover, K.
+
+        Raises
+        ------
+        CaseInputError
+            Some species has no species data (``what`` names the caller).
+        """
+        missing = [s for s in self.species if s not in self.species_data]
+        if missing:
+            raise CaseInputError(
+                f"{what} needs species data (enthalpies) for every species; none for {', '.join(missing)}"
+            )
+        data = [self.species_data[s] for s in self.species]
+        return data, max(d.range[0] for d in data), min(d.range[1] for d in data)
+
+    def _species_h_cp(self, T: np.ndarray, what: str = "adiabatic=True") -> tuple[np.ndarray, np.ndarray]:
+        """Every species' enthalpy (J/mol, formation scale) and heat capacity
+        (J/(mol K)) at ``T`` (N,): in the core where every data set has a
+        core form (no range warnings: callers report or bound the range)."""
+        data, _, _ = self._enthalpy_data(what)
+        table = self._species_table
+        T = np.ascontiguousarray(T, dtype=float)
+        if table is not None:
+            return table.species(T)
+        with quiet_ranges():
+            return np.column_stack([d.h(T) for d in data]), np.column_stack([d.cp(T) for d in data])
+
     def _thermo_columns(self, T: np.ndarray, out: np.ndarray, dh: bool = False) -> np.ndarray:
         """Write ln K (or, with ``dh``, the reaction enthalpy, J/mol) of the
         species-data reactions at ``T`` (1-D) into their columns of ``out``;

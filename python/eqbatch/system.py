@@ -216,6 +216,8 @@ class ReactionSystem(SystemSpec):
         sensitivities: bool = False,
         approach: Mapping[str, float] | None = None,
         adiabatic: bool = False,
+        duty: ArrayLike | None = None,
+        H_in: ArrayLike | None = None,
         chain: bool = False,
         out: EquilibriumResult | None = None,
     ) -> EquilibriumResult:
@@ -302,7 +304,18 @@ class ReactionSystem(SystemSpec):
             temperature, ``sensitivity(wrt, of="T")`` gives the outlet
             temperature's); ``result.T_iterations`` counts the temperature
             iterations and ``result.iterations`` the Newton iterations of all
-            of them.
+            of them; ``result.T_in`` is the inlet temperature.
+        duty : float or array_like, shape (N,), optional
+            Heat added to the reactor, kJ per case (negative: removed): the
+            outlet's enthalpy is the feed's plus ``duty``, solved as for
+            ``adiabatic=True`` (which is ``duty=0``).
+        H_in : float or array_like, shape (N,), optional
+            With ``adiabatic=True`` or ``duty=``, the feed's enthalpy (kJ per
+            case, on the formation scale of the species data) instead of its
+            temperature ``T``: the inlet temperature is the one at which the
+            feed has that enthalpy (``result.T_in``; NaN and invalid input
+            where none between half the data's lowest temperature and twice
+            their highest fits).
 
         Returns
         -------
@@ -323,10 +336,22 @@ class ReactionSystem(SystemSpec):
         >>> res.amounts.round(6).tolist()
         [[0.5, 0.5], [0.25, 0.75]]
         """
-        if adiabatic:
-            if T is None or lnK is not None or K is not None or log10K is not None or approach:
+        if duty is not None and adiabatic:
+            raise CaseInputError("give adiabatic=True (no heat exchanged) or duty= (heat added), not both")
+        if H_in is not None and not (adiabatic or duty is not None):
+            raise CaseInputError("H_in= is the inlet of an energy balance: give adiabatic=True or duty=")
+        if adiabatic or duty is not None:
+            what = "adiabatic=True" if adiabatic else "duty="
+            if (
+                (T is None) == (H_in is None)
+                or lnK is not None
+                or K is not None
+                or log10K is not None
+                or approach
+            ):
                 raise CaseInputError(
-                    "adiabatic=True takes the inlet temperature T= and species data, nothing else"
+                    f"{what} takes the inlet as a temperature T= or an enthalpy H_in= (one of them) "
+                    "and species data, no equilibrium constants or approach"
                 )
             if chain:
                 raise CaseInputError(
@@ -345,6 +370,8 @@ class ReactionSystem(SystemSpec):
                 invalid=invalid,
                 x0=x0,
                 sensitivities=sensitivities,
+                duty=duty,
+                H_in=H_in,
             )
         feed_arr = feed_array(self, feed)
         T_arr = None if T is None else case_column(T, "T")
