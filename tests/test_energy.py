@@ -107,3 +107,113 @@ def test_energy_options_are_checked(reformer) -> None:
     no_data = ReactionSystem(["A", "B"], ["A = B"], check_balance=False)
     with pytest.raises(CaseInputError, match="species data"):
         no_data.solve([1.0, 0.0], lnK=0.0, T=500.0).duty()
+
+
+# --- sweeps with energy-balance, inlet-temperature and approach columns -------------
+
+
+def _sweep(system, table, tmp_path, name="cases"):
+    import eqbatch
+    import pyarrow.parquet as pq
+
+    src, dst = tmp_path / f"{name}.parquet", tmp_path / f"{name}_out.parquet"
+    pq.write_table(table, src)
+    eqbatch.sweep(system, src, dst, quiet=True)
+    return pq.read_table(dst).to_pandas()
+
+
+def test_sweep_rows_of_every_kind_match_direct_solves(reformer, tmp_path) -> None:
+    import pyarrow as pa
+
+    n = 5
+    table = pa.table(
+        {
+            "feed_CH4": [1.0] * n,
+            "feed_H2O": [3.0] * n,
+            "feed_N2": [0.1] * n,
+            "T_K": [900.0, 1000.0, 800.0, 850.0, 950.0],
+            "P_bar": [20.0] * n,
+            "adiabatic": [False, False, True, False, False],
+            "duty_kJ": [np.nan, np.nan, np.nan, 50.0, np.nan],
+            "T_in_K": [700.0, 700.0, 820.0, 850.0, 950.0],
+            "approach_reforming": [0.0, 10.0, 0.0, 0.0, 0.0],
+        }
+    )
+    out = _sweep(reformer, table, tmp_path)
+    feed = {"CH4": 1.0, "H2O": 3.0, "N2": 0.1}
+    assert (out["status"] == Status.CONVERGED).all()
+    # isothermal rows: outlet enthalpy and the heat from a feed at T_in_K
+    iso = reformer.solve(feed, T=[900.0, 950.0], P=20.0)
+    np.testing.assert_allclose(out["n_H2"].iloc[[0, 4]], iso.amounts[:, 3], rtol=1e-12)
+    np.testing.assert_allclose(
+        out["H_out_kJ"].iloc[[0, 4]], mixture_enthalpy(iso.amounts, [900.0, 950.0]), rtol=1e-12
+    )
+    feed_row = np.array([1.0, 3.0, 0.0, 0.0, 0.0, 0.1])
+    expect_heat = mixture_enthalpy(iso.amounts, [900.0, 950.0]) - mixture_enthalpy(
+        np.tile(feed_row, (2, 1)), [700.0, 950.0]
+    )
+    np.testing.assert_allclose(out["heat_kJ"].iloc[[0, 4]], expect_heat, rtol=1e-11)
+    np.testing.assert_allclose(out["T_out_K"].iloc[[0, 4]], [900.0, 950.0])
+    # an approach row
+    app = reformer.solve(feed, T=1000.0, P=20.0, approach={"reforming": 10.0})
+    np.testing.assert_allclose(
+        out.loc[1, ["n_CH4", "n_H2"]].to_numpy(float), app.amounts[0, [0, 3]], rtol=1e-12
+    )
+    # the adiabatic row (inlet from T_in_K) and the heated row
+    adi = reformer.solve(feed, T=820.0, P=20.0, adiabatic=True)
+    heated = reformer.solve(feed, T=850.0, P=20.0, duty=50.0)
+    np.testing.assert_allclose(out.loc[[2, 3], "T_out_K"], [adi.T[0], heated.T[0]], rtol=1e-12)
+    np.testing.assert_allclose(out.loc[[2, 3], "heat_kJ"], [0.0, 50.0], atol=1e-6)
+    # reaction enthalpies at the outlet temperature
+    np.testing.assert_allclose(out.loc[2, "dH_reforming"], reformer.dH(adi.T)[0, 0], rtol=1e-12)
+
+
+def test_sweep_bad_approach_rows_are_invalid_and_bad_columns_are_refused(reformer, tmp_path) -> None:
+    import eqbatch
+    import pyarrow as pa
+
+    table = pa.table(
+        {
+            "feed_CH4": [1.0, 1.0],
+            "feed_H2O": [3.0, 3.0],
+            "T_K": [900.0, 900.0],
+            "approach_reforming": [-5.0, 5.0],
+        }
+    )
+    out = _sweep(reformer, table, tmp_path)
+    assert out["status"].tolist() == [Status.INVALID_INPUT, Status.CONVERGED]
+    typo = table.rename_columns(["feed_CH4", "feed_H2O", "T_K", "approach_reformer"])
+    with pytest.raises(eqbatch.SweepError, match="approach_reformer"):
+        _sweep(reformer, typo, tmp_path, "typo")
+    with_lnk = pa.table({"feed_CH4": [1.0], "lnK_reforming": [1.0], "lnK_shift": [0.5], "adiabatic": [True]})
+    with pytest.raises(eqbatch.SweepError, match="drop the lnK_<label> columns"):
+        _sweep(reformer, with_lnk, tmp_path, "lnk")
+
+
+def test_sweep_energy_outputs_on_request(reformer, tmp_path) -> None:
+    import eqbatch
+    import pyarrow as pa
+    import pyarrow.parquet as pq
+
+    table = pa.table(
+        {"feed_CH4": [1.0, 1.0], "feed_H2O": [3.0, 3.0], "T_K": [900.0, 1100.0], "P_bar": [5.0, 5.0]}
+    )
+    src = tmp_path / "plain.parquet"
+    pq.write_table(table, src)
+    eqbatch.sweep(reformer, src, tmp_path / "lean.parquet", quiet=True)
+    eqbatch.sweep(reformer, src, tmp_path / "rich.parquet", quiet=True, energy=True)
+    lean, rich = pq.read_table(tmp_path / "lean.parquet"), pq.read_table(tmp_path / "rich.parquet")
+    assert "H_out_kJ" not in lean.column_names
+    assert rich.column_names[-4:] == ["H_out_kJ", "heat_kJ", "dH_reforming", "dH_shift"]
+    res = reformer.solve({"CH4": 1.0, "H2O": 3.0}, T=[900.0, 1100.0], P=5.0)
+    # feed and outlet at T: the heat is the heat of reaction (Hess's law)
+    np.testing.assert_allclose(
+        rich.column("heat_kJ").to_numpy(),
+        np.sum(res.extents * reformer.dH([900.0, 1100.0]), axis=1) / 1000,
+        rtol=1e-10,
+    )
+    no_data = ReactionSystem(
+        ["CH4", "H2O", "CO", "H2"], ["CH4 + H2O = CO + 3 H2"], lnK=[{"a": 30.0, "b": -27000.0}]
+    )
+    with pytest.raises(eqbatch.SweepError, match="energy outputs need species data"):
+        eqbatch.sweep(no_data, src, tmp_path / "none.parquet", quiet=True, energy=True)

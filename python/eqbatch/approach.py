@@ -55,8 +55,9 @@ class ApproachSolve:
         self.held = held
 
 
-def check_approach(system: SystemSpec, approach: Mapping[str, Any]) -> dict[str, float]:
-    """``approach`` checked: known labels with K(T) data, each ``dT`` finite and not negative.
+def check_approach(system: SystemSpec, approach: Mapping[str, Any]) -> dict[str, Any]:
+    """``approach`` checked: known labels with K(T) data, each ``dT`` (one
+    value, or an (N,) array of one per case) finite and not negative.
 
     Parameters
     ----------
@@ -65,7 +66,7 @@ def check_approach(system: SystemSpec, approach: Mapping[str, Any]) -> dict[str,
 
     Returns
     -------
-    dict of str to float
+    dict of str to float or ndarray
 
     Raises
     ------
@@ -88,17 +89,17 @@ def check_approach(system: SystemSpec, approach: Mapping[str, Any]) -> dict[str,
         if not callable(system.lnK_data.get(label)):
             raise CaseInputError(f"approach: reaction {label!r} has no K(T) data to take an approach on")
         try:
-            value = float(dT)
+            value = np.asarray(dT, dtype=float)
         except (TypeError, ValueError):
             raise CaseInputError(
                 f"approach[{label!r}] must be a temperature difference in K, got {dT!r}"
             ) from None
-        if not (0.0 <= value < math.inf):
+        if value.ndim > 1 or not np.all((value >= 0.0) & (value < math.inf)):
             raise CaseInputError(
                 f"approach[{label!r}] = {dT!r}: an approach is a distance from equilibrium, "
-                "finite and not negative (K)"
+                "finite and not negative (K), one value or one per case"
             )
-        out[label] = value
+        out[label] = float(value) if value.ndim == 0 else value
     return out
 
 

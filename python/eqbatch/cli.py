@@ -283,6 +283,7 @@ def _cmd_sweep(args: argparse.Namespace) -> int:
         scheduler=args.scheduler,
         threads=args.threads,
         allow_extra_columns=args.allow_extra_columns,
+        energy=True if args.energy else None,
     )
     print(f"{args.output}: {summary.line()}")
     if not args.quiet:
@@ -490,6 +491,11 @@ def _parser() -> argparse.ArgumentParser:
         "--allow-extra-columns",
         action="store_true",
         help="pass feed_<x>/lnK_<x> columns that name no species or reaction through (default: refuse them)",
+    )
+    sw.add_argument(
+        "--energy",
+        action="store_true",
+        help="add H_out_kJ, heat_kJ and dH_<label> (on by default with adiabatic, duty_kJ or T_in_K columns)",
     )
     sw.set_defaults(run=_cmd_sweep)
 

@@ -22,6 +22,19 @@ PRESSURE = "P_bar"
 TEMPERATURE = "T_K"
 STATUS = "status"
 ITERATIONS = "iterations"
+#: Optional sweep inputs: an energy-balance row (adiabatic, or a heat duty in kJ
+#: per case), the feed's temperature, and a per-reaction approach (K).
+ADIABATIC = "adiabatic"
+DUTY = "duty_kJ"
+T_IN = "T_in_K"
+APPROACH = "approach_"
+#: Energy outputs of sweeps whose species all have data: the equilibrium
+#: temperature (with energy-balance inputs), the outlet's enthalpy, the heat the
+#: reactor takes (kJ per case) and each reaction's standard enthalpy (J/mol).
+T_OUT = "T_out_K"
+H_OUT = "H_out_kJ"
+HEAT = "heat_kJ"
+DH = "dH_"
 
 AMOUNT = "n_"
 FRACTION = "y_"

@@ -10,7 +10,17 @@ unchanged and in order, then ``n_<species>``, ``y_<species>``,
 ``extent_<label>``, ``conversion_<species>`` (reactants with a feed column),
 ``status`` and ``iterations``.
 
-A ``feed_<name>`` or ``lnK_<name>`` column that names no species or reaction
+Optional inputs (K from the system's data): ``adiabatic`` (true: an adiabatic
+row, ``T_K`` or ``T_in_K`` its inlet), ``duty_kJ`` (a finite value: a row with
+that heat added, kJ per case), ``T_in_K`` (the feed's temperature: the inlet of
+energy-balance rows, and for the others the temperature the heat duty is
+counted from) and ``approach_<label>`` (K, per row; a negative or missing
+value, or a non-zero one on an energy-balance row, makes the row invalid
+input). With energy-balance columns the outputs end with ``T_out_K``; with
+``energy=True`` (the default when any of ``adiabatic``, ``duty_kJ``,
+``T_in_K`` is present) also ``H_out_kJ``, ``heat_kJ`` and ``dH_<label>``.
+
+A ``feed_<name>``, ``lnK_<name>`` or ``approach_<name>`` column that names no species or reaction
 of the system is refused (a typo would be a silently wrong feed) unless
 ``allow_extra_columns=True``; such columns then pass through like any other.
 
@@ -62,8 +72,25 @@ from typing import Any
 import numpy as np
 
 from eqbatch import _core
-from eqbatch.columns import FEED, ITERATIONS, LNK, PRESSURE, STATUS, TEMPERATURE, output_columns, output_names
-from eqbatch.errors import EqbatchError
+from eqbatch.columns import (
+    ADIABATIC,
+    APPROACH,
+    DH,
+    DUTY,
+    FEED,
+    H_OUT,
+    HEAT,
+    ITERATIONS,
+    LNK,
+    PRESSURE,
+    STATUS,
+    T_IN,
+    T_OUT,
+    TEMPERATURE,
+    output_columns,
+    output_names,
+)
+from eqbatch.errors import CaseInputError, EqbatchError
 from eqbatch.status import CONVERGED_CODES, Status, status_words
 from eqbatch.system import ReactionSystem
 
@@ -254,7 +281,13 @@ class _Plan:
     """How one input file's columns map onto the system."""
 
     def __init__(
-        self, system: ReactionSystem, path: Path, schema: Any, say: Any, allow_extra_columns: bool = False
+        self,
+        system: ReactionSystem,
+        path: Path,
+        schema: Any,
+        say: Any,
+        allow_extra_columns: bool = False,
+        energy: bool | None = None,
     ) -> None:
         pa, _ = _pa()
         self.system = system
@@ -318,6 +351,43 @@ class _Plan:
                 )
             if system.needs_T and self.t_col is None:
                 raise SweepError(f"{path}: missing column {TEMPERATURE!r}, needed for the system's K(T) data")
+        self.t_in_col = T_IN if T_IN in names else None
+        self.duty_col = DUTY if DUTY in names else None
+        self.adiabatic_col = ADIABATIC if ADIABATIC in names else None
+        for maybe in (self.t_in_col, self.duty_col):
+            if maybe:
+                need_numeric(maybe)
+        if self.adiabatic_col and not pa.types.is_boolean(schema.field(ADIABATIC).type):
+            need_numeric(ADIABATIC)
+        self.approach_cols = {label: APPROACH + label for label in system.labels if APPROACH + label in names}
+        for col in self.approach_cols.values():
+            need_numeric(col)
+        self.balance = bool(self.adiabatic_col or self.duty_col)
+        if (self.balance or self.approach_cols) and self.lnk_cols:
+            raise SweepError(
+                f"{path}: {ADIABATIC}, {DUTY} and {APPROACH}<label> columns take K from the system's data; "
+                "drop the lnK_<label> columns"
+            )
+        if self.balance and self.t_col is None and self.t_in_col is None:
+            raise SweepError(
+                f"{path}: {ADIABATIC} or {DUTY} rows need the inlet temperature: {T_IN} or {TEMPERATURE}"
+            )
+        if self.balance:
+            try:
+                system._enthalpy_data(f"{path}: the {ADIABATIC} and {DUTY} columns")
+            except CaseInputError as err:
+                raise SweepError(str(err)) from None
+        if self.approach_cols and self.t_col is None:
+            raise SweepError(f"{path}: {APPROACH}<label> columns need {TEMPERATURE}")
+        # energy outputs: asked for, or by default with energy-balance or feed-temperature columns
+        has_data = all(sp in system.species_data for sp in system.species)
+        if energy and not (has_data and (self.t_col or self.balance)):
+            raise SweepError(
+                f"{path}: energy outputs need species data for every species and a {TEMPERATURE} column"
+            )
+        wanted = energy if energy is not None else bool(self.balance or self.t_in_col)
+        self.energy = bool(wanted and has_data and (self.t_col or self.balance))
+        self.with_dH = self.energy and all(callable(system.lnK_data.get(label)) for label in system.labels)
         fed = [sp for sp, col in zip(system.species, self.feed_cols) if col is not None]
         # every fed species that takes part in a reaction, on either side
         self.conversion = [sp for sp in system.reacting_species() if sp in fed]
@@ -327,7 +397,16 @@ class _Plan:
 
     def output_names(self) -> list[str]:
         """The columns a batch's solve adds to its input columns."""
-        return output_names(self.system, self.conversion)
+        return output_names(self.system, self.conversion) + self.energy_names()
+
+    def energy_names(self) -> list[str]:
+        """``T_out_K`` (with energy-balance inputs), ``H_out_kJ``, ``heat_kJ``
+        and ``dH_<label>`` where the system's data give them."""
+        names = [T_OUT] if self.balance else []
+        if not self.energy:
+            return names
+        names += [H_OUT, HEAT]
+        return names + ([DH + label for label in self.system.labels] if self.with_dH else [])
 
     def solve(self, batch: Any, options: dict[str, Any]) -> tuple[Any, np.ndarray]:
         """One record batch solved: its columns followed by the outputs, and the statuses."""
@@ -342,21 +421,93 @@ class _Plan:
         for k, col in enumerate(self.feed_cols):
             if col is not None:
                 feed[:, k] = column(col)
-        kw: dict[str, Any] = {}
-        if self.p_col:
-            kw["P"] = np.ascontiguousarray(column(self.p_col))
+        P = np.ascontiguousarray(column(self.p_col)) if self.p_col else np.full(n, self.system.P0)
         if self.lnk_cols:
-            kw["lnK"] = np.column_stack([column(c) for c in self.lnk_cols])
-        elif self.t_col:
-            kw["T"] = column(self.t_col)
-        res = self.system.solve(feed, **kw, **options)
-        conversions = {sp: res.conversion(sp) for sp in self.conversion}
-        outs = output_columns(
-            self.system, res.amounts, res.mole_fractions, res.extents, res.status, res.iterations, conversions
-        )
+            res = self.system.solve(
+                feed, lnK=np.column_stack([column(c) for c in self.lnk_cols]), P=P, **options
+            )
+            outs = self._outputs([(np.arange(n), res, column(self.t_col) if self.t_col else None)], n)
+        elif not (self.balance or self.approach_cols or self.t_in_col):
+            T = column(self.t_col) if self.t_col else None
+            res = self.system.solve(feed, P=P, T=T, **options)
+            outs = self._outputs([(np.arange(n), res, T)], n)
+        else:
+            outs = self._outputs(self._solve_rows(column, feed, P, n, options), n)
         arrays = list(batch.columns) + [pa.array(v) for v in outs.values()]
         table = pa.Table.from_arrays(arrays, names=self.names + list(outs))
-        return table, res.status
+        return table, outs[STATUS]
+
+    def _solve_rows(
+        self, column: Any, feed: np.ndarray, P: np.ndarray, n: int, options: dict[str, Any]
+    ) -> list:
+        """Rows with energy-balance, inlet-temperature or approach columns:
+        the isothermal rows and the energy-balance rows solved apart. A row
+        whose approach is not a finite, non-negative number, or an
+        energy-balance row with an approach, gets a NaN temperature (invalid
+        input)."""
+        T = column(self.t_col) if self.t_col else np.full(n, np.nan)
+        T_in = column(self.t_in_col) if self.t_in_col else None
+        balance = np.zeros(n, dtype=bool)
+        heat = np.zeros(n)
+        if self.adiabatic_col:
+            flag = column(self.adiabatic_col)
+            balance |= np.nan_to_num(flag) != 0
+        if self.duty_col:
+            duty = column(self.duty_col)
+            given = np.isfinite(duty)
+            balance |= given
+            heat = np.where(given, duty, 0.0)
+        approach = {label: column(col) for label, col in self.approach_cols.items()}
+        bad = np.zeros(n, dtype=bool)
+        for dT in approach.values():
+            bad |= ~((dT >= 0.0) & (dT < np.inf)) | (balance & (dT != 0.0))
+        parts = []
+        iso = np.flatnonzero(~balance)
+        if iso.size:
+            kw: dict[str, Any] = {"T": np.where(bad[iso], np.nan, T[iso]), "P": P[iso]}
+            if approach:
+                kw["approach"] = {label: np.where(bad[iso], 0.0, dT[iso]) for label, dT in approach.items()}
+            res = self.system.solve(feed[iso], **kw, **options)
+            parts.append((iso, res, None if T_in is None else T_in[iso]))
+        hot = np.flatnonzero(balance)
+        if hot.size:
+            inlet = T_in[hot] if T_in is not None else T[hot]
+            res = self.system.solve(
+                feed[hot], T=np.where(bad[hot], np.nan, inlet), P=P[hot], duty=heat[hot], **options
+            )
+            parts.append((hot, res, None))
+        return parts
+
+    def _outputs(self, parts: list, n: int) -> dict[str, np.ndarray]:
+        """The output columns of ``n`` rows from the solves of their parts:
+        ``(rows, result, feed temperature for the heat duty or None)``."""
+        s, r = self.system.n_species, self.system.n_reactions
+        if len(parts) == 1 and parts[0][0].size == n and not self.energy_names():  # one solve: its arrays
+            res = parts[0][1]
+            conv = {sp: res.conversion(sp) for sp in self.conversion}
+            return output_columns(
+                self.system, res.amounts, res.mole_fractions, res.extents, res.status, res.iterations, conv
+            )
+        amounts, fractions, extents = np.empty((n, s)), np.empty((n, s)), np.empty((n, r))
+        status, iterations = np.empty(n, dtype=np.uint8), np.empty(n, dtype=np.uint32)
+        conversions = {sp: np.empty(n) for sp in self.conversion}
+        energy = {name: np.full(n, np.nan) for name in self.energy_names()}
+        for rows, res, T_feed in parts:
+            amounts[rows], fractions[rows], extents[rows] = res.amounts, res.mole_fractions, res.extents
+            status[rows], iterations[rows] = res.status, res.iterations
+            for sp in self.conversion:
+                conversions[sp][rows] = res.conversion(sp)
+            if T_OUT in energy and res.T is not None:
+                energy[T_OUT][rows] = res.T
+            if self.energy and res.T is not None:
+                energy[H_OUT][rows] = res.enthalpy
+                energy[HEAT][rows] = res.duty(T_feed)
+                if self.with_dH:
+                    dH = res.reaction_enthalpy
+                    for j, label in enumerate(self.system.labels):
+                        energy[DH + label][rows] = dH[:, j]
+        outs = output_columns(self.system, amounts, fractions, extents, status, iterations, conversions)
+        return outs | energy
 
 
 def _refuse_unknown_columns(system: ReactionSystem, path: Path, names: list[str]) -> None:
@@ -378,6 +529,12 @@ def _refuse_unknown_columns(system: ReactionSystem, path: Path, names: list[str]
     if feeds:
         problems.append(
             f"{', '.join(feeds)} name(s) no species of the system (its species: {', '.join(system.species)})"
+        )
+    approaches = unknown(APPROACH, system.labels)
+    if approaches:
+        problems.append(
+            f"{', '.join(approaches)} name(s) no reaction of the system "
+            f"(its reactions: {', '.join(system.labels)})"
         )
     lnks = unknown(LNK, system.labels)
     if lnks:
@@ -541,6 +698,7 @@ def sweep_file(
     tol: float = 1e-10,
     max_iter: int = 200,
     threads: int | None = None,
+    energy: bool | None = None,
 ) -> SweepSummary:
     """Sweep one Parquet file into one output file (see the module docs)."""
     src, dst = Path(input), Path(output)
@@ -553,7 +711,7 @@ def sweep_file(
     if dst.exists() and not (overwrite or resume):
         raise SweepError(_exists_message(dst))
     pf = _open(src)
-    plan = _Plan(system, src, pf.schema_arrow, say, allow_extra_columns)
+    plan = _Plan(system, src, pf.schema_arrow, say, allow_extra_columns, energy)
     options = {"tol": tol, "max_iter": max_iter, "threads": threads}
     partial = dst.parent / f".{dst.name}.partial"
     lock = _Lock(partial, dst, say)
@@ -598,7 +756,7 @@ def _sweep_locked(
         raise SweepError(
             f"{dst}: an interrupted sweep left {partial}; resume it (--resume) or start over (--overwrite)"
         )
-    identity = json.loads(json.dumps(_identity(system, src, pf, options)))
+    identity = json.loads(json.dumps(_identity(system, src, pf, options) | {"outputs": plan.energy_names()}))
     if dst.exists():
         if resume:
             problems = _finished_problems(dst, identity, src)
@@ -899,6 +1057,7 @@ def sweep(
     tol: float = 1e-10,
     max_iter: int = 200,
     allow_extra_columns: bool = False,
+    energy: bool | None = None,
 ) -> SweepSummary:
     """Solve every row of a Parquet file, or of every file in a folder.
 
@@ -919,8 +1078,15 @@ def sweep(
     overwrite : bool
         Replace an existing output (otherwise it is an error).
     allow_extra_columns : bool
-        Let ``feed_<x>`` and ``lnK_<x>`` columns that name no species or
-        reaction of the system pass through unchanged (otherwise an error).
+        Let ``feed_<x>``, ``lnK_<x>`` and ``approach_<x>`` columns that name
+        no species or reaction of the system pass through unchanged
+        (otherwise an error).
+    energy : bool, optional
+        Add the energy outputs ``H_out_kJ`` (the outlet's enthalpy),
+        ``heat_kJ`` (the heat the reactor takes, from a feed at ``T_in_K``,
+        else at ``T_K``) and ``dH_<label>`` (J/mol) (needs species data for
+        every species). Default: on when the file has ``adiabatic``,
+        ``duty_kJ`` or ``T_in_K`` columns.
     quiet : bool, optional
         Progress bar off (default: on only when standard error is a terminal).
     client, scheduler
@@ -963,6 +1129,7 @@ def sweep(
         "resume": resume,
         "overwrite": overwrite,
         "allow_extra_columns": allow_extra_columns,
+        "energy": energy,
         **options,
     }
     if quiet:

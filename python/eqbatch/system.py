@@ -271,7 +271,7 @@ class ReactionSystem(SystemSpec):
         sensitivities : bool, default False
             Also compute exact derivatives of the converged cases, read with
             :meth:`EquilibriumResult.sensitivity`.
-        approach : mapping label -> kelvin, optional
+        approach : mapping label -> kelvin (a value or one per case), optional
             Temperature approach to equilibrium per reaction (needs ``T`` and
             K(T) data): the reaction is held ``dT`` short of equilibrium in
             the direction it runs for that case (the sign of its extent at
@@ -387,6 +387,11 @@ class ReactionSystem(SystemSpec):
             for name, count in zip(("feed", "equilibrium constants", "P", "T"), rows):
                 if count != n and count != 1:
                     raise CaseInputError(f"{name} has {count} cases but other inputs have {n}; give 1 or {n}")
+        for label, dT in (approach or {}).items():
+            if np.ndim(dT) and np.shape(dT)[0] not in (1, n):
+                raise CaseInputError(
+                    f"approach[{label!r}] has {np.shape(dT)[0]} cases but other inputs have {n}"
+                )
         bad_T = None if T_arr is None else bad_temperatures(T_arr)
         if bad_T is not None:
             # The core does not see T: a NaN ln K makes it mark the case INVALID_INPUT.
