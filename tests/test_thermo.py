@@ -298,11 +298,11 @@ def test_chemicals_source_against_published_correlations() -> None:
 def test_chemicals_source_records_provenance_and_warns_outside_range(tmp_path) -> None:
     s = chem(["N2", "H2", "NH3"], "0.5 N2 + 1.5 H2 = NH3")
     source = s.species_data["NH3"].source
-    assert "Poling, Prausnitz and O'Connell" in source and "50-1000 K" in source and "ATCT" in source
+    assert "NIST-JANAF" in source and "200-6000 K" in source and "(JANAF)" in source
     with pytest.warns(
-        eqbatch.ExtrapolationWarning, match=r"species data of 'NH3' \(chemicals: ammonia.*50-1000 K"
+        eqbatch.ExtrapolationWarning, match=r"species data of 'NH3' \(chemicals: ammonia.*200-6000 K"
     ):
-        s.lnK(1200.0)
+        s.lnK(7000.0)
     # user data override the source species by species
     own = CpPolynomial(a=(4.0,), dHf=-46.0, S298=192.0, source="my own NH3")
     mixed = eqbatch.ReactionSystem(

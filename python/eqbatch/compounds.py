@@ -23,15 +23,18 @@ from __future__ import annotations
 
 import functools
 import itertools
+import math
 import re
 from collections import Counter
 from collections.abc import Callable, Iterator
 from dataclasses import dataclass
 from typing import Any
 
+import numpy as np
+
 from eqbatch.equations import ELEMENTS
 from eqbatch.errors import SystemDefinitionError
-from eqbatch.speciesdata import CpPolynomial
+from eqbatch.speciesdata import CpPolynomial, Tabulated
 
 # Normal valences (bond-order sums) of the elements structural formulas use.
 _VALENCES = {
@@ -620,6 +623,31 @@ def _consistent(compound: Compound, text: str) -> bool:
     return readings is None or fits_structure(compound.smiles, readings) is not False
 
 
+#: Radicals and atoms the identifier database lacks but whose data the package
+#: holds (NIST-JANAF tables, formation data): Hill formula -> (name, CAS number,
+#: SMILES). CAS registry numbers (outside reference).
+_RADICALS = {
+    "HO": ("hydroxyl radical", "3352-57-6", "[OH]"),
+    "H": ("hydrogen atom", "12385-13-6", "[H]"),
+    "O": ("oxygen atom", "17778-80-2", "[O]"),
+    "N": ("nitrogen atom", "17778-88-0", "[N]"),
+}
+
+
+def _radical(texts: list[str], has_data: Callable[[str], bool]) -> Compound | None:
+    """The radical or atom a formula names (see :data:`_RADICALS`), if the
+    data source holds it."""
+    for text in texts:
+        read = _read_formula(text)
+        if read is not None and read[1] is None and read[0] in _RADICALS:
+            name, cas, smiles = _RADICALS[read[0]]
+            if has_data(cas):
+                return Compound(
+                    name, cas, read[0], smiles, f"the radical or atom of formula {text}, by its CAS number"
+                )
+    return None
+
+
 def identify(species: str, formula: str | None, has_data: Callable[[str], bool]) -> Compound:
     """The compound a species is, from its name and its formula (if given),
     name first (see the module notes); ``has_data(cas)`` says which
@@ -642,6 +670,8 @@ def identify(species: str, formula: str | None, has_data: Callable[[str], bool])
         if detail is not None:
             failures.append((kind, detail))
     prefix = f"thermo='chemicals': species {species!r}"
+    if found is None:
+        found = _radical(texts, has_data)
     if found is None:
         for kind in ("ambiguous", "nodata"):
             for k, detail in failures:
@@ -677,13 +707,19 @@ def identify(species: str, formula: str | None, has_data: Callable[[str], bool])
 # --- the data ---------------------------------------------------------------------------
 
 
-def chemicals_data(name: str, formula: str | None = None) -> CpPolynomial:
+def chemicals_data(name: str, formula: str | None = None) -> CpPolynomial | Tabulated:
     """Standard-state data of one gas from the ``chemicals`` package.
 
-    The ideal-gas heat-capacity polynomial of Poling, Prausnitz and
-    O'Connell, *The Properties of Gases and Liquids* (its table's validity
-    range), with the formation enthalpy and entropy at 298.15 K from the
-    package's first ranked source for each, on a 1 bar standard state.
+    The heat capacity comes from the source that reaches highest in
+    temperature: the NIST-JANAF Thermochemical Tables (1998; rows from 200 K
+    to 6000 K for many species, radicals included) where the package holds
+    the compound's table, else the TRC ideal-gas correlation (usually to
+    5000 K) sampled every 100 K, else the ideal-gas polynomial of Poling,
+    Prausnitz and O'Connell, *The Properties of Gases and Liquids* (its
+    table's validity range). Tables are :class:`Tabulated` data (a cubic
+    spline through the rows, ``H`` and ``S`` its integrals). The formation
+    enthalpy and entropy at 298.15 K are JANAF's with a JANAF table, else the
+    package's first ranked source for each; all on a 1 bar standard state.
 
     The compound is found by name first, then from the formula: a condensed
     structural formula (``C2H5OH``) is read as the structure it writes, and a
@@ -699,7 +735,7 @@ def chemicals_data(name: str, formula: str | None = None) -> CpPolynomial:
 
     Returns
     -------
-    CpPolynomial
+    CpPolynomial or Tabulated
         Its ``source`` records the compound's name and registry number, how
         it was found, and where each value came from.
 
@@ -714,37 +750,60 @@ def chemicals_data(name: str, formula: str | None = None) -> CpPolynomial:
     >>> water = chemicals_data("H2O")
     >>> water.source.split(";")[0]
     'chemicals: water, CAS 7732-18-5 (the only compound of formula H2O with data in chemicals)'
-    >>> round(water.dHf, 3), water.P_ref
-    (-241.822, 1.0)
+    >>> round(water.dHf, 3), water.P_ref, water.range
+    (-241.826, 1.0, (200.0, 6000.0))
     """
     try:
-        from chemicals.heat_capacity import Cp_data_Poling
+        from chemicals.heat_capacity import Cp_data_Poling, Cp_dict_JANAF_gas, TRC_gas_data, TRCCp
         from chemicals.reaction import Hfg, Hfg_methods, S0g, S0g_methods
     except ImportError:
         raise SystemDefinitionError(
             "thermo='chemicals' needs the chemicals package: pip install chemicals"
         ) from None
 
+    def has_cp(cas: str) -> bool:
+        return cas in Cp_dict_JANAF_gas or cas in TRC_gas_data.index or cas in Cp_data_Poling.index
+
     def has_data(cas: str) -> bool:
-        return cas in Cp_data_Poling.index and bool(Hfg_methods(cas)) and bool(S0g_methods(cas))
+        return has_cp(cas) and bool(Hfg_methods(cas)) and bool(S0g_methods(cas))
 
     compound = identify(name, formula, has_data)
     cas = compound.cas
     what = f"species {name!r} = {compound.label()}"
-    if cas not in Cp_data_Poling.index:
-        raise SystemDefinitionError(f"thermo='chemicals': no ideal-gas Cp polynomial for {what}")
+    if not has_cp(cas):
+        raise SystemDefinitionError(f"thermo='chemicals': no ideal-gas heat capacity for {what}")
     h_methods, s_methods = Hfg_methods(cas), S0g_methods(cas)
     if not h_methods or not s_methods:
         raise SystemDefinitionError(f"thermo='chemicals': no formation enthalpy or entropy for {what}")
-    hf = Hfg(cas, method=h_methods[0])
-    s0 = S0g(cas, method=s_methods[0])
+    janaf = cas in Cp_dict_JANAF_gas and "JANAF" in h_methods and "JANAF" in s_methods
+    h_method = "JANAF" if janaf else h_methods[0]
+    s_method = "JANAF" if janaf else s_methods[0]
+    hf = Hfg(cas, method=h_method)
+    s0 = S0g(cas, method=s_method)
+    head = f"chemicals: {compound.name}, CAS {cas} ({compound.how}); "
+    tail = (
+        f"dfH(298.15 K) = {hf / 1000:.3f} kJ/mol ({h_method}); "
+        f"S(298.15 K) = {s0:.2f} J/mol/K ({s_method}); ideal gas at 1 bar"
+    )
+    if janaf:
+        T_rows, cp_rows = (np.asarray(v, dtype=float) for v in Cp_dict_JANAF_gas[cas])
+        keep = T_rows >= 200.0
+        T_rows, cp_rows = T_rows[keep], cp_rows[keep]
+        cp_text = f"Cp table of NIST-JANAF 1998 ({T_rows[0]:g}-{T_rows[-1]:g} K, spline); "
+        return Tabulated.from_cp(T_rows, cp_rows, hf / 1000.0, s0, head + cp_text + tail, 1.0)
+    poling_max = float(Cp_data_Poling.loc[cas]["Tmax"]) if cas in Cp_data_Poling.index else -math.inf
+    trc_max = float(TRC_gas_data.loc[cas]["Tmax"]) if cas in TRC_gas_data.index else -math.inf
+    if trc_max > poling_max:
+        row = TRC_gas_data.loc[cas]
+        coef = [float(row[f"a{i}"]) for i in range(8)]
+        t_min, t_max = max(float(row["Tmin"]), 200.0), float(row["Tmax"])
+        grid = np.unique(np.concatenate([[t_min, 298.15], np.arange(300.0, t_max, 100.0), [t_max]]))
+        grid = grid[(grid >= t_min) & (grid <= t_max)]
+        cp_rows = np.array([TRCCp(t, *coef) for t in grid])
+        cp_text = f"TRC ideal-gas Cp correlation ({t_min:g}-{t_max:g} K, sampled every 100 K, spline); "
+        return Tabulated.from_cp(grid, cp_rows, hf / 1000.0, s0, head + cp_text + tail, 1.0)
     row = Cp_data_Poling.loc[cas]
     a = tuple(float(row[k]) for k in ("a0", "a1", "a2", "a3", "a4"))
     t_min, t_max = float(row["Tmin"]), float(row["Tmax"])
-    source = (
-        f"chemicals: {compound.name}, CAS {cas} ({compound.how}); "
-        f"Cp/R polynomial of Poling, Prausnitz and O'Connell ({t_min:g}-{t_max:g} K); "
-        f"dfH(298.15 K) = {hf / 1000:.3f} kJ/mol ({h_methods[0]}); "
-        f"S(298.15 K) = {s0:.2f} J/mol/K ({s_methods[0]}); ideal gas at 1 bar"
-    )
+    source = head + f"Cp/R polynomial of Poling, Prausnitz and O'Connell ({t_min:g}-{t_max:g} K); " + tail
     return CpPolynomial(a=a, dHf=hf / 1000.0, S298=s0, T_min=t_min, T_max=t_max, source=source, P_ref=1.0)

@@ -696,6 +696,29 @@ def _segment_values(segments: list[Segment], T: np.ndarray) -> tuple[np.ndarray,
     return cp, hh - e / T + h, ss - e / (2 * T * T) + s
 
 
+def _spline_segments(T: np.ndarray, Cp: np.ndarray, h0: float, s0: float) -> tuple[Segment, ...]:
+    """Kelvin-scale segments of the cubic spline (scipy ``CubicSpline``,
+    not-a-knot) through ``Cp`` (J/(mol K)) at the rows ``T``, one a row
+    interval, the last one extended above; ``H/R`` and ``S/R`` continuous,
+    ``h0`` and ``s0`` at ``T[0]``."""
+    from scipy.interpolate import CubicSpline
+
+    spline = CubicSpline(T, Cp / R)
+    out: list[Segment] = []
+    h_at, s_at = h0, s0
+    for k in range(len(T) - 1):
+        # c3 u^3 + c2 u^2 + c1 u + c0 with u = T - T_k, in powers of T
+        a = np.polynomial.Polynomial(spline.c[::-1, k])(np.polynomial.Polynomial([-T[k], 1.0])).coef
+        a = np.concatenate([a, np.zeros(5 - len(a))])
+        upto = math.inf if k == len(T) - 2 else float(T[k + 1])
+        seg: Segment = (upto, False, 1.0, *map(float, a), 0.0, 0.0, 0.0)  # type: ignore[assignment]
+        _, h_k, s_k = _segment_values([seg], np.array([T[k]]))
+        out.append((*seg[:9], float(h_at - h_k[0]), float(s_at - s_k[0])))
+        _, h1, s1 = _segment_values([out[-1]], np.array([T[k + 1]]))
+        h_at, s_at = float(h1[0]), float(s1[0])
+    return tuple(out)
+
+
 @dataclass(frozen=True)
 class Tabulated:
     """Species data as thermochemical tables print them: rows of ``T``,
@@ -796,23 +819,38 @@ class Tabulated:
 
     @cached_property
     def _fit(self) -> tuple[Segment, ...]:
-        from scipy.interpolate import CubicSpline
+        h0, s0 = 1000.0 * (self.dHf + self.H_rel[0]) / R, self.S[0] / R
+        return _spline_segments(np.array(self.T, dtype=float), np.array(self.Cp, dtype=float), h0, s0)
 
-        T = np.array(self.T, dtype=float)
-        spline = CubicSpline(T, np.array(self.Cp, dtype=float) / R)
-        out: list[Segment] = []
-        h_at, s_at = 1000.0 * (self.dHf + self.H_rel[0]) / R, self.S[0] / R
-        for k in range(len(T) - 1):
-            # c3 u^3 + c2 u^2 + c1 u + c0 with u = T - T_k, in powers of T
-            a = np.polynomial.Polynomial(spline.c[::-1, k])(np.polynomial.Polynomial([-T[k], 1.0])).coef
-            a = np.concatenate([a, np.zeros(5 - len(a))])
-            upto = math.inf if k == len(T) - 2 else float(T[k + 1])
-            seg: Segment = (upto, False, 1.0, *map(float, a), 0.0, 0.0, 0.0)  # type: ignore[assignment]
-            _, h0, s0 = _segment_values([seg], np.array([T[k]]))
-            out.append((*seg[:9], float(h_at - h0[0]), float(s_at - s0[0])))
-            _, h1, s1 = _segment_values([out[-1]], np.array([T[k + 1]]))
-            h_at, s_at = float(h1[0]), float(s1[0])
-        return tuple(out)
+    @classmethod
+    def from_cp(
+        cls,
+        T: Any,
+        Cp: Any,
+        dHf: float,
+        S298: float,
+        source: str = "tabulated Cp (given)",
+        P_ref: float = 1.0,
+    ) -> Tabulated:
+        """A table from its ``Cp`` rows and the formation data at 298.15 K:
+        ``H - H298`` and ``S`` are the integrals of the spline through the
+        rows from 298.15 K, which must lie within them.
+
+        Examples
+        --------
+        >>> T = [200.0, 298.15, 500.0, 1000.0]   # H_rel at 1000 K: 29 J/K x 701.85 K
+        >>> x = Tabulated.from_cp(T, [29.0] * 4, dHf=0.0, S298=130.0)
+        >>> round(x.H_rel[-1], 6), round(float(x.s(500.0) - 29.0 * np.log(500.0 / 298.15)), 6)
+        (20.35365, 130.0)
+        """
+        T_rows, cp_rows = np.asarray(T, dtype=float), np.asarray(Cp, dtype=float)
+        if T_rows.ndim != 1 or T_rows.size < 3 or not (T_rows[0] <= T_REF <= T_rows[-1]):
+            raise SystemDefinitionError(f"tabulated Cp ({source}): rows must span 298.15 K (at least 3 rows)")
+        segments = _spline_segments(T_rows, cp_rows, 0.0, 0.0)
+        _, h, s_ = _segment_values(list(segments), np.concatenate([[T_REF], T_rows]))
+        h_rel = R * (h[1:] - h[0]) / 1000.0
+        entropy = S298 + R * (s_[1:] - s_[0])
+        return cls(tuple(T_rows), tuple(cp_rows), tuple(h_rel), tuple(entropy), dHf, source, P_ref)
 
     def _values(self, T: Any) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
         T = np.asarray(T, dtype=float)

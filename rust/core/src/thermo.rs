@@ -130,13 +130,22 @@ impl SpeciesThermo {
         })
     }
 
+    /// The range that applies at `t`: the first whose upper end is above `t`
+    /// (or at it, when closed); the last one beyond them all. The ends
+    /// increase, so the test is false then true along the ranges: a binary
+    /// search (tables have tens of rows).
     #[inline]
     fn range(&self, t: f64) -> &Range {
         let last = self.ranges.len() - 1;
-        self.ranges[..last]
-            .iter()
-            .find(|g| t < g.upto || (g.closed && t == g.upto))
-            .unwrap_or(&self.ranges[last])
+        let k = if last < 4 {
+            self.ranges[..last]
+                .iter()
+                .position(|g| t < g.upto || (g.closed && t == g.upto))
+                .unwrap_or(last)
+        } else {
+            self.ranges[..last].partition_point(|g| !(t < g.upto || (g.closed && t == g.upto)))
+        };
+        &self.ranges[k]
     }
 
     /// `(H/R, S/R)` at `t` (K): `H` in K on the formation scale.
@@ -483,5 +492,31 @@ mod tests {
         assert!((h[1] - (-110_530.0 + 3.5 * GAS_CONSTANT * (900.0 - 298.15))).abs() < 1e-8);
         assert_eq!(cp[0], 3.5 * GAS_CONSTANT);
         assert!(h[2].is_nan() && cp[2].is_nan());
+    }
+
+    #[test]
+    fn many_ranges_are_found_by_binary_search_as_by_a_scan() {
+        // 40 open ranges of Cp/R = k on [10k, 10(k+1)): the one found is the
+        // one a linear scan finds, at every end and between.
+        let ranges: Vec<Segment> = (0..40)
+            .map(|k| Segment {
+                upto: if k == 39 {
+                    f64::INFINITY
+                } else {
+                    10.0 * (k + 1) as f64
+                },
+                closed: false,
+                scale: 1.0,
+                a: [k as f64, 0.0, 0.0, 0.0, 0.0],
+                e: 0.0,
+                h: 0.0,
+                s: 0.0,
+            })
+            .collect();
+        let data = SpeciesThermo::new(ranges).unwrap();
+        for t in [0.5f64, 9.999, 10.0, 10.5, 155.0, 389.9, 390.0, 1e6] {
+            let expect = ((t / 10.0).floor() as usize).min(39) as f64;
+            assert_eq!(data.cp(t), expect, "at {t}");
+        }
     }
 }
