@@ -208,3 +208,64 @@ def test_optimiser_example_finds_the_grid_optimum_with_a_correct_gradient() -> N
         assert grad[i] == pytest.approx(fd, rel=1e-5, abs=1e-9)
     # warm starts save Newton iterations
     assert warm.iterations / warm.calls < 0.85 * cold.iterations / cold.calls
+
+
+# --- uncertain temperatures and adiabatic beds -------------------------------------
+
+
+def test_uncertain_inlet_temperature_of_an_adiabatic_bed() -> None:
+    # A reformer bed fed at 800 K +- 5 K: the outlet's spread against finite differences
+    # of direct adiabatic solves (an independent computation of dT_out/dT_in), and each
+    # sample against a direct adiabatic solve of its own inlet temperature.
+    from eqbatch.demo import reformer_system
+
+    system = reformer_system()
+    feed = {"CH4": 1.0, "H2O": 3.0}
+    mc = monte_carlo(system, feed=feed, T=800.0, P=20.0, adiabatic=True, T_sigma=5.0, samples=3000, seed=5)
+    assert mc.converged.all() and mc.T is not None
+    rng = np.random.default_rng(5)
+    rng.standard_normal((3000, system.n_reactions))  # the ln K draws come first
+    inlets = 800.0 + 5.0 * rng.standard_normal(3000)
+    direct = system.solve(feed, T=inlets[:20], P=20.0, adiabatic=True)
+    np.testing.assert_allclose(mc.T[:20], direct.T, rtol=1e-9)
+    up, down = (system.solve(feed, T=t, P=20.0, adiabatic=True).T[0] for t in (801.0, 799.0))
+    slope = (up - down) / 2.0
+    summary = mc.summary("T")
+    assert summary.std[0] == pytest.approx(abs(slope) * 5.0, rel=0.05)  # sampling error about 1.3 %
+    assert summary.linear_std[0] == pytest.approx(abs(slope) * 5.0, rel=1e-3)
+
+
+def test_uncertain_gibbs_energy_in_an_adiabatic_bed_keeps_each_sample_balanced() -> None:
+    # CH4 formation Gibbs energy +- 1 kJ/mol: only reforming's ln K moves, by 1 kJ/(R T)
+    # at the outlet temperature (the definition ln K = -dG / (R T)); every sample is at
+    # equilibrium with its own constants and keeps the feed's enthalpy (energy balance
+    # from the species data's numpy formulas).
+    from eqbatch.demo import reformer_system
+
+    system = reformer_system()
+    feed = np.array([1.0, 3.0, 0.0, 0.0, 0.0, 0.0])
+    mc = monte_carlo(
+        system,
+        feed=feed,
+        T=800.0,
+        P=20.0,
+        adiabatic=True,
+        species_dG_sigma={"CH4": 1.0},
+        samples=3000,
+        seed=7,
+    )
+    assert mc.converged.all()
+    shift = mc.lnK - system.lnK(mc.T)
+    assert np.std(shift[:, 0]) == pytest.approx(1000.0 / (8.314462618 * float(mc.nominal.T[0])), rel=0.05)
+    assert np.abs(shift[:, 1]).max() < 1e-12
+    iso = system.solve(feed, lnK=mc.lnK[:50], P=20.0, tol=1e-12)
+    np.testing.assert_allclose(iso.amounts, mc.amounts[:50], rtol=1e-8, atol=1e-12)
+    data = [system.species_data[s] for s in system.species]
+    h_in = sum(f * float(d.h(800.0)) for f, d in zip(feed, data))
+    h_out = [sum(n * float(d.h(t)) for n, d in zip(row, data)) for row, t in zip(mc.amounts[:20], mc.T[:20])]
+    np.testing.assert_allclose(h_out, h_in, rtol=1e-9)
+
+
+def test_temperature_sigma_needs_a_temperature() -> None:
+    with pytest.raises(eqbatch.CaseInputError, match="need T="):
+        monte_carlo(WGS, feed=[1, 1, 0, 0], lnK=[0.8], T_sigma=5.0, samples=10)

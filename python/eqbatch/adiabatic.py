@@ -35,7 +35,8 @@ class IsothermalSolve(Protocol):
         self,
         feed: Any,
         *,
-        T: Any,
+        T: Any = ...,
+        lnK: Any = ...,
         P: Any,
         tol: float,
         max_iter: int,
@@ -63,6 +64,7 @@ def adiabatic_solve(
     energy_tol: float = 1e-11,
     duty: Any = None,
     H_in: Any = None,
+    lnk_shift: np.ndarray | None = None,
 ) -> EquilibriumResult:
     """The adiabatic outlet of every case (see :meth:`ReactionSystem.solve`
     with ``adiabatic=True``), or with ``duty`` (kJ per case, heat added) the
@@ -74,7 +76,9 @@ def adiabatic_solve(
     bounds the temperature iterations. ``H_in`` (kJ per case, the feed's
     enthalpy on the formation scale) may replace the inlet temperature ``T``:
     the inlet temperature is then the one at which the feed has that
-    enthalpy.
+    enthalpy. ``lnk_shift`` ((R,) or (N, R)) is added to every ln K the
+    species data give (a Monte Carlo sample of uncertain Gibbs energies;
+    constant in T, so d ln K / dT is unchanged).
     """
     _, lo, hi = system._enthalpy_data()
     species = system._species_h_cp
@@ -93,14 +97,22 @@ def adiabatic_solve(
         if T_rows.shape[0] not in (1, heat.shape[0]):
             raise CaseInputError(f"duty has {heat.shape[0]} cases and T has {T_rows.shape[0]}")
         T = np.ascontiguousarray(np.broadcast_to(T_rows, heat.shape))
-    base = solve(feed, T=T, P=P, invalid=invalid, x0=x0, **options)
+    if lnk_shift is None:
+        base = solve(feed, T=T, P=P, invalid=invalid, x0=x0, **options)
+    else:
+        T_given = case_column(T, "T")
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore")  # the range is reported by the temperature iterations' bracket
+            lnk0 = system.lnK(T_given) + lnk_shift
+        base = solve(feed, lnK=lnk0, P=P, invalid=invalid, x0=x0, **options)
     n = len(base)
     if heat is not None and heat.shape[0] not in (1, n):
         raise CaseInputError(f"duty has {heat.shape[0]} cases and the other inputs {n}")
     feed_rows = np.ascontiguousarray(
         np.broadcast_to(np.asarray(base.feed, dtype=float), (n, system.n_species))
     )
-    T_in = np.broadcast_to(np.asarray(base.T, dtype=float), (n,)).copy()
+    T_in = np.broadcast_to(np.asarray(base.T if lnk_shift is None else T_given, dtype=float), (n,)).copy()
+    shift = None if lnk_shift is None else np.broadcast_to(lnk_shift, (n, system.n_reactions))
     P_rows = np.ascontiguousarray(np.broadcast_to(np.asarray(base.P, dtype=float), (n,)))
     bad = base.status == Status.INVALID_INPUT
     newton = base.iterations.astype(np.int64)
@@ -125,7 +137,10 @@ def adiabatic_solve(
             absent, ln K, and the energy residual and its exact derivative
             ``sum n cp + sum h dn/dT`` (``dn/dT = dn/dlnK . dlnK/dT``)."""
             fr, pr = feed_rows[rows], P_rows[rows]
-            r = solve(fr, T=Tr, P=pr, x0=start, **options)
+            if shift is None:
+                r = solve(fr, T=Tr, P=pr, x0=start, **options)
+            else:
+                r = solve(fr, lnK=system.lnK(Tr) + shift[rows], P=pr, x0=start, **options)
             ab = r.absent if r.absent is not None else np.zeros(rows.size, dtype=np.uint8)
             fv, dfv = _residual_at(system, species, fr, pr, r.amounts, r.status, ab, Tr, H_in[rows], threads)
             return r.amounts, r.extents, r.status, r.iterations, ab, r.lnK, fv, dfv

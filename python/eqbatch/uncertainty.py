@@ -23,6 +23,7 @@ from typing import Any
 
 import numpy as np
 
+from eqbatch.adiabatic import adiabatic_solve
 from eqbatch.errors import CaseInputError
 from eqbatch.result import EquilibriumResult
 from eqbatch.system import ReactionSystem
@@ -287,6 +288,11 @@ class MonteCarloResult:
     covariance: np.ndarray
     feed: np.ndarray
     percentiles: tuple[float, ...] = (5.0, 50.0, 95.0)
+    #: (samples,) the temperature of each sample's equilibrium (an adiabatic
+    #: outlet, or the sampled temperature), K, or None without ``T``.
+    T: np.ndarray | None = None
+    #: Standard deviation of the (inlet) temperature sampled, K.
+    T_sigma: float = 0.0
     _cache: dict = field(default_factory=dict, repr=False)
 
     @property
@@ -304,11 +310,18 @@ class MonteCarloResult:
             return fractions, tuple(self.system.species)
         if of == "extents":
             return extents, tuple(self.system.labels)
+        if of == "T":
+            if self.T is None:
+                raise CaseInputError("of='T' needs a Monte Carlo study with T")
+            T = self.T if amounts.shape[0] == self.samples else np.asarray(self.nominal.T)
+            return np.asarray(T, dtype=float).reshape(-1, 1)[: amounts.shape[0]], ("T",)
         if of == "conversion":
             names = self._converted()
             idx = [self.system.index(s) for s in names]
             return 1.0 - amounts[:, idx] / self.feed[idx], names
-        raise CaseInputError(f"of must be 'amounts', 'mole_fractions', 'extents' or 'conversion', got {of!r}")
+        raise CaseInputError(
+            f"of must be 'amounts', 'mole_fractions', 'extents', 'conversion' or 'T', got {of!r}"
+        )
 
     def _converted(self) -> tuple[str, ...]:
         """Fed species that take part in a reaction, on either side (a
@@ -329,8 +342,15 @@ class MonteCarloResult:
             idx = [self.system.index(s) for s in names]
             jac = -self.nominal.sensitivity("lnK")[0][idx] / self.feed[idx][:, None]
         else:
-            jac = self.nominal.sensitivity("lnK", of=of)[0]
+            jac = np.atleast_2d(self.nominal.sensitivity("lnK", of=of)[0])
         return values, names, jac
+
+    def _temperature_jacobian(self, of: str) -> np.ndarray:
+        """d output / d T (the inlet's, for an adiabatic study) at nominal."""
+        if of == "conversion":
+            idx = [self.system.index(s) for s in self._converted()]
+            return -self.nominal.sensitivity("T")[0][idx] / self.feed[idx]
+        return np.atleast_1d(self.nominal.sensitivity("T", of=of)[0])
 
     def summary(self, of: str = "mole_fractions") -> Summary:
         """Statistics of an output over the converged samples.
@@ -364,7 +384,10 @@ class MonteCarloResult:
         values, names, jac = self._output(of)
         ok = self.converged
         out = summarise(values[ok], names, self.percentiles)
-        out.linear_std = np.sqrt(np.maximum(np.einsum("kr,rs,ks->k", jac, self.covariance, jac), 0.0))
+        variance = np.einsum("kr,rs,ks->k", jac, self.covariance, jac)
+        if self.T_sigma:
+            variance = variance + (self._temperature_jacobian(of) * self.T_sigma) ** 2
+        out.linear_std = np.sqrt(np.maximum(variance, 0.0))
         return out
 
     def nominal_value(self, of: str, name: str) -> float:
@@ -571,6 +594,8 @@ def monte_carlo(
     seed: int | np.random.SeedSequence | None = None,
     percentiles: Sequence[float] = (5.0, 50.0, 95.0),
     threads: int | None = None,
+    T_sigma: float | None = None,
+    adiabatic: bool = False,
 ) -> MonteCarloResult:
     """Sample ln K from a multivariate normal around its nominal value and
     solve every sample (batched through the core).
@@ -594,6 +619,16 @@ def monte_carlo(
         Percentiles the summaries report.
     threads : int, optional
         Worker threads of the solves.
+    T_sigma : float, optional
+        Standard deviation of the temperature, K (needs ``T`` and K(T)
+        data): each sample's ln K is taken at its own sampled temperature,
+        plus its sampled deviation. With ``adiabatic`` it is the inlet's.
+    adiabatic : bool, default False
+        Each sample is an adiabatic bed with inlet temperature ``T`` (needs
+        species data): the sampled ln K deviations (from ``species_dG_sigma``
+        and the rest, converted at the nominal outlet temperature) shift the
+        species data's ln K at every temperature, and ``result.T`` holds the
+        outlet temperatures (``summary("T")``).
 
     Returns
     -------
@@ -615,21 +650,48 @@ def monte_carlo(
     """
     if isinstance(samples, bool) or not (isinstance(samples, (int, np.integer)) and samples >= 1):
         raise CaseInputError(f"samples must be a positive integer, got {samples!r}")
-    nominal = system.solve(feed, lnK=lnK, T=T, P=P, sensitivities=True)
+    if (T_sigma is not None or adiabatic) and (T is None or lnK is not None):
+        raise CaseInputError("T_sigma= and adiabatic=True need T= and the system's K(T) data, not lnK=")
+    sigma_T = 0.0 if T_sigma is None else float(T_sigma)
+    if not (0.0 <= sigma_T < math.inf):
+        raise CaseInputError(
+            f"T_sigma must be a finite, non-negative temperature difference (K), got {T_sigma!r}"
+        )
+    if adiabatic:
+        nominal = system.solve(feed, T=T, P=P, adiabatic=True, sensitivities=True)
+    else:
+        nominal = system.solve(feed, lnK=lnK, T=T, P=P, sensitivities=True)
     if len(nominal) != 1:
         raise CaseInputError("monte_carlo takes one case; use monte_carlo_table for many")
-    cov = lnK_covariance(
-        system,
-        lnK_sigma=lnK_sigma,
-        dG_sigma=dG_sigma,
-        correlation=correlation,
-        species_dG_sigma=species_dG_sigma,
-        T=T,
-    )
+    if sigma_T and lnK_sigma is None and dG_sigma is None and species_dG_sigma is None:
+        cov = np.zeros((system.n_reactions, system.n_reactions))  # the temperature alone is uncertain
+    else:
+        cov = lnK_covariance(
+            system,
+            lnK_sigma=lnK_sigma,
+            dG_sigma=dG_sigma,
+            correlation=correlation,
+            species_dG_sigma=species_dG_sigma,
+            T=float(nominal.T[0]) if adiabatic and nominal.T is not None else T,
+        )
     rng = np.random.default_rng(seed)
     z = rng.standard_normal((int(samples), system.n_reactions))
-    lnk = nominal.lnK[0] + z @ _sqrt_psd(cov).T
-    res = system.solve(nominal.feed[0], lnK=lnk, P=nominal.P[0], threads=threads)
+    shift = z @ _sqrt_psd(cov).T
+    T_samples = None
+    if T is not None:
+        T_samples = np.full(int(samples), float(np.asarray(T, dtype=float).reshape(-1)[0]))
+        if sigma_T:
+            T_samples = T_samples + sigma_T * rng.standard_normal(int(samples))
+    if adiabatic:
+        res = adiabatic_solve(
+            system, system.solve, nominal.feed[0], T_samples, nominal.P[0], threads=threads, lnk_shift=shift
+        )
+        lnk = res.lnK
+        T_out = res.T
+    else:
+        lnk = (system.lnK(T_samples) if sigma_T else nominal.lnK[0]) + shift
+        res = system.solve(nominal.feed[0], lnK=lnk, P=nominal.P[0], threads=threads)
+        T_out = T_samples
     return MonteCarloResult(
         system,
         res.amounts,
@@ -641,6 +703,8 @@ def monte_carlo(
         cov,
         nominal.feed[0].copy(),
         tuple(percentiles),
+        T_out,
+        sigma_T,
     )
 
 
