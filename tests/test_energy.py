@@ -217,3 +217,59 @@ def test_sweep_energy_outputs_on_request(reformer, tmp_path) -> None:
     )
     with pytest.raises(eqbatch.SweepError, match="energy outputs need species data"):
         eqbatch.sweep(no_data, src, tmp_path / "none.parquet", quiet=True, energy=True)
+
+
+def test_inlet_enthalpy_derivatives_hold_the_enthalpy_not_the_temperature(reformer) -> None:
+    # With H_in fixed, adding feed water adds no enthalpy: d T_out / d n0(H2O) by central
+    # differences of solves at the same H_in (an independent computation).
+    H_in = mixture_enthalpy(FEED, [900.0])
+    res = reformer.solve(FEED, H_in=H_in, P=20.0, adiabatic=True, sensitivities=True, tol=1e-13)
+    dT = res.sensitivity("feed", of="T")
+    h = 1e-4
+    k = SPECIES.index("H2O")
+    up, down = FEED.copy(), FEED.copy()
+    up[k] += h
+    down[k] -= h
+    T_up, T_down = (reformer.solve(f, H_in=H_in, P=20.0, adiabatic=True, tol=1e-13).T[0] for f in (up, down))
+    assert float(dT[0, k]) == pytest.approx((T_up - T_down) / (2 * h), rel=1e-5)
+    with pytest.raises(CaseInputError, match="enthalpy"):
+        res.sensitivity("T")
+
+
+def test_a_duty_that_is_not_a_number_is_invalid_input(reformer) -> None:
+    from eqbatch import InvalidCaseError
+
+    res = reformer.solve(FEED, T=900.0, P=20.0, duty=[10.0, np.inf, np.nan])
+    assert res.status.tolist() == [Status.CONVERGED, Status.INVALID_INPUT, Status.INVALID_INPUT]
+    with pytest.raises(InvalidCaseError, match="case 1: duty"):
+        reformer.solve(FEED, T=900.0, P=20.0, duty=[10.0, np.inf], invalid="raise")
+
+
+def test_sweep_energy_outputs_with_lnk_columns_and_contradictory_rows(reformer, tmp_path) -> None:
+    import pyarrow as pa
+
+    lnk = reformer.lnK([900.0])[0]
+    table = pa.table(
+        {
+            "feed_CH4": [1.0],
+            "feed_H2O": [3.0],
+            "T_K": [900.0],
+            "T_in_K": [700.0],
+            "lnK_reforming": [lnk[0]],
+            "lnK_shift": [lnk[1]],
+        }
+    )
+    out = _sweep(reformer, table, tmp_path, "lnk")
+    res = reformer.solve({"CH4": 1.0, "H2O": 3.0}, T=900.0)
+    np.testing.assert_allclose(out["H_out_kJ"], mixture_enthalpy(res.amounts, [900.0]), rtol=1e-10)
+    both = pa.table(
+        {
+            "feed_CH4": [1.0, 1.0],
+            "feed_H2O": [3.0, 3.0],
+            "T_K": [800.0, 800.0],
+            "adiabatic": [True, True],
+            "duty_kJ": [0.0, 25.0],
+        }
+    )
+    out = _sweep(reformer, both, tmp_path, "both")
+    assert out["status"].tolist() == [Status.CONVERGED, Status.INVALID_INPUT]

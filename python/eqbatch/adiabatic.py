@@ -22,7 +22,7 @@ from typing import Any, Protocol
 
 import numpy as np
 
-from eqbatch.errors import CaseInputError
+from eqbatch.errors import CaseInputError, InvalidCaseError
 from eqbatch.inputs import case_column, feed_array
 from eqbatch.result import EnergyBalance, EquilibriumResult, Status
 from eqbatch.spec import SystemSpec
@@ -115,6 +115,11 @@ def adiabatic_solve(
     shift = None if lnk_shift is None else np.broadcast_to(lnk_shift, (n, system.n_reactions))
     P_rows = np.ascontiguousarray(np.broadcast_to(np.asarray(base.P, dtype=float), (n,)))
     bad = base.status == Status.INVALID_INPUT
+    if heat is not None:
+        bad_heat = ~np.isfinite(np.broadcast_to(heat, (n,)))
+        if bad_heat.any() and invalid == "raise":
+            raise InvalidCaseError(f"case {int(np.argmax(bad_heat))}: duty must be a finite heat, kJ")
+        bad = bad | bad_heat
     newton = base.iterations.astype(np.int64)
     T_steps = np.zeros(n, dtype=np.int64)
     heat = np.zeros(n) if heat is None else np.broadcast_to(heat, (n,))
@@ -189,10 +194,15 @@ def adiabatic_solve(
             for end, f_end, need in ((lo, f_lo, ~below & (a == lo)), (hi, f_hi, below & (b == hi))):
                 ask = np.flatnonzero(~done & ~inside & need & np.isnan(f_end))
                 if ask.size:
-                    f_end[ask] = evaluate(ask, np.full(ask.size, end), extents[ask])[6]
-                    # same sign at the end as here: no root between them
-                    out_of_range[ask] = np.isfinite(f_end[ask]) & (np.sign(f_end[ask]) == np.sign(f[ask]))
-                    out_of_range[ask] |= ~np.isfinite(f_end[ask])
+                    _, _, st_end, it_end, _, _, f_at_end, _ = evaluate(
+                        ask, np.full(ask.size, end), extents[ask]
+                    )
+                    newton[ask] += it_end
+                    solved = (st_end == Status.CONVERGED) | (st_end == Status.UNDERFLOW)
+                    # same sign at the end as here: no root between them (decided only from an
+                    # equilibrium at the end; otherwise the end stays a bisection bound)
+                    f_end[ask] = np.where(solved & np.isfinite(f_at_end), f_at_end, 0.0)
+                    out_of_range[ask] = (f_end[ask] != 0.0) & (np.sign(f_end[ask]) == np.sign(f[ask]))
                     done |= out_of_range
             active = np.flatnonzero(~done)
             if active.size == 0:
@@ -227,11 +237,14 @@ def adiabatic_solve(
             h_out, cp_out = species(T_safe)
             out._energy = EnergyBalance(
                 h_out=h_out,
-                h_in=h_in,
+                h_in=h_in
+                if H_given is None
+                else np.zeros_like(h_in),  # H_in fixed: the feed adds no enthalpy
                 cp_feed=np.sum(feed_rows * cp_in, axis=1),
                 cp_out=cp_out,
                 slope_out=system.dlnK_dT(T_safe),
                 T_in=T_in,
+                by_enthalpy=H_given is not None,
             )
         for array in out._sens:
             array[~out.converged] = np.nan
@@ -274,9 +287,10 @@ def _feed_temperature(
     species: Any, feed: np.ndarray, H: np.ndarray, lo: float, hi: float, iterations: int = 100
 ) -> np.ndarray:
     """The temperature at which each feed (N, S) has the enthalpy ``H`` (J):
-    Newton on ``sum n0 h(T) - H`` (rising with T, by ``sum n0 cp``) kept inside
-    a bracket; the bracket starts as the data's range and widens to half its
-    lower end and twice its upper one; NaN where no temperature there fits."""
+    Newton on ``sum n0 h(T) - H`` (rising with T, by ``sum n0 cp``) from the
+    middle of the data's range, kept inside the bracket from half the data's
+    lowest temperature to twice their highest; NaN where no temperature there
+    fits or the iteration does not close."""
     n = feed.shape[0]
     a, b = np.full(n, 0.5 * lo), np.full(n, 2.0 * hi)
     with warnings.catch_warnings():
@@ -295,4 +309,6 @@ def _feed_temperature(
             with np.errstate(divide="ignore", invalid="ignore"):
                 step = T - f / np.sum(feed * cp, axis=1)
             T = np.where(ok, np.where((step > a) & (step < b), step, 0.5 * (a + b)), np.nan)
-    return T
+        h = species(np.where(ok, T, lo))[0]
+        closed = np.abs(np.sum(feed * h, axis=1) - H) <= 1e-9 * (np.sum(np.abs(feed * h), axis=1) + 1.0)
+    return np.where(ok & closed, T, np.nan)

@@ -552,6 +552,10 @@ class EquilibriumResult:
                 raise CaseInputError("no temperature was given to the solve: d/dT is undefined")
             if energy is None:
                 dn, dT = np.einsum("nsr,nr->ns", d_lnk, self._lnk_slope()), np.ones(n)
+            elif energy.by_enthalpy:
+                raise CaseInputError(
+                    "the inlet was given as an enthalpy (H_in=), not a temperature: d/dT is not an input's"
+                )
             else:
                 dn, dT = np.zeros((n, S)), np.zeros(n)
         else:
@@ -691,7 +695,7 @@ class EnergyBalance:
     ``dn/dtheta + dn/dT dT/dtheta``.
     """
 
-    __slots__ = ("h_out", "h_in", "cp_feed", "cp_out", "slope_out", "T_in")
+    __slots__ = ("h_out", "h_in", "cp_feed", "cp_out", "slope_out", "T_in", "by_enthalpy")
 
     def __init__(
         self,
@@ -701,6 +705,7 @@ class EnergyBalance:
         cp_out: np.ndarray,
         slope_out: np.ndarray,
         T_in: np.ndarray,
+        by_enthalpy: bool = False,
     ) -> None:
         self.h_out = h_out
         self.h_in = h_in
@@ -708,6 +713,9 @@ class EnergyBalance:
         self.cp_out = cp_out
         self.slope_out = slope_out
         self.T_in = T_in
+        #: The inlet was given as an enthalpy (``H_in=``): it, not the inlet
+        #: temperature, is the fixed input (``h_in`` is then zero).
+        self.by_enthalpy = by_enthalpy
 
     def hold(
         self,

@@ -594,6 +594,11 @@ class MaierKelley:
     entropy ``S298`` (J/(mol K)) at 298.15 K; ``H`` and ``S`` are the
     integrals of that ``Cp`` from 298.15 K.
 
+    Mind the letters: here ``c`` multiplies ``T^2`` and ``d`` multiplies
+    ``T^-2``. Many handbooks print Kelley's three-term form as
+    ``a + b T + c / T^2``: their ``c`` goes in ``d`` (the ``T^2`` term is an
+    extension of that form).
+
     Parameters
     ----------
     a, b, c, d : float

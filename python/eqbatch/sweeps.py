@@ -14,15 +14,17 @@ Optional inputs (K from the system's data): ``adiabatic`` (true: an adiabatic
 row, ``T_K`` or ``T_in_K`` its inlet), ``duty_kJ`` (a finite value: a row with
 that heat added, kJ per case), ``T_in_K`` (the feed's temperature: the inlet of
 energy-balance rows, and for the others the temperature the heat duty is
-counted from) and ``approach_<label>`` (K, per row; a negative or missing
-value, or a non-zero one on an energy-balance row, makes the row invalid
-input). With energy-balance columns the outputs end with ``T_out_K``; with
-``energy=True`` (the default when any of ``adiabatic``, ``duty_kJ``,
-``T_in_K`` is present) also ``H_out_kJ``, ``heat_kJ`` and ``dH_<label>``.
+counted from) and ``approach_<label>`` (K, per row). A negative or missing
+approach, a non-zero one on an energy-balance row, or ``adiabatic`` true with
+a non-zero ``duty_kJ`` makes the row invalid input. With energy-balance
+columns the outputs end with ``T_out_K``; with ``energy=True`` (the default
+when any of ``adiabatic``, ``duty_kJ``, ``T_in_K`` is present) also
+``H_out_kJ``, ``heat_kJ`` and ``dH_<label>``.
 
-A ``feed_<name>``, ``lnK_<name>`` or ``approach_<name>`` column that names no species or reaction
-of the system is refused (a typo would be a silently wrong feed) unless
-``allow_extra_columns=True``; such columns then pass through like any other.
+A ``feed_<name>``, ``lnK_<name>`` or ``approach_<name>`` column that names no
+species or reaction of the system is refused (a typo would be a silently wrong
+feed) unless ``allow_extra_columns=True``; such columns then pass through like
+any other.
 
 Never losing work: each finished batch is also written as its own part file
 (Arrow IPC, its CRC-32 in its name) in a hidden ``.<name>.partial`` folder
@@ -423,9 +425,9 @@ class _Plan:
                 feed[:, k] = column(col)
         P = np.ascontiguousarray(column(self.p_col)) if self.p_col else np.full(n, self.system.P0)
         if self.lnk_cols:
-            res = self.system.solve(
-                feed, lnK=np.column_stack([column(c) for c in self.lnk_cols]), P=P, **options
-            )
+            T_given = column(self.t_col) if self.t_col else None  # kept for the energy outputs
+            lnk = np.column_stack([column(c) for c in self.lnk_cols])
+            res = self.system.solve(feed, lnK=lnk, T=T_given, P=P, **options)
             outs = self._outputs([(np.arange(n), res, column(self.t_col) if self.t_col else None)], n)
         elif not (self.balance or self.approach_cols or self.t_in_col):
             T = column(self.t_col) if self.t_col else None
@@ -449,16 +451,18 @@ class _Plan:
         T_in = column(self.t_in_col) if self.t_in_col else None
         balance = np.zeros(n, dtype=bool)
         heat = np.zeros(n)
+        bad = np.zeros(n, dtype=bool)
+        adiabatic = np.zeros(n, dtype=bool)
         if self.adiabatic_col:
-            flag = column(self.adiabatic_col)
-            balance |= np.nan_to_num(flag) != 0
+            adiabatic = np.nan_to_num(column(self.adiabatic_col)) != 0
+            balance |= adiabatic
         if self.duty_col:
             duty = column(self.duty_col)
             given = np.isfinite(duty)
             balance |= given
             heat = np.where(given, duty, 0.0)
+            bad |= adiabatic & (heat != 0.0)  # adiabatic with heat added: a contradiction, invalid
         approach = {label: column(col) for label, col in self.approach_cols.items()}
-        bad = np.zeros(n, dtype=bool)
         for dT in approach.values():
             bad |= ~((dT >= 0.0) & (dT < np.inf)) | (balance & (dT != 0.0))
         parts = []
