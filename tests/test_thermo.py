@@ -316,3 +316,16 @@ def test_chemicals_source_records_provenance_and_warns_outside_range(tmp_path) -
     np.testing.assert_allclose(from_file.lnK(800.0)[0, 0], 2 * s.lnK(800.0)[0, 0], rtol=1e-12)
     with pytest.raises(eqbatch.SystemDefinitionError, match="no compound found for species 'Xq'"):
         eqbatch.ReactionSystem(["N2", "Xq"], ["N2 = Xq"], thermo="chemicals", check_balance=False)
+
+
+def test_equilibrium_temperature_at_a_break_of_the_species_data() -> None:
+    # Shomate fits join at 1000 K (H2) and 1200 K (CO2) with a small step in ln K; a
+    # composition solved exactly at a break lies in that step. Its equilibrium
+    # temperature is the break (the temperature of the solve), not NaN.
+    species = ["CH4", "H2O", "CO", "H2", "CO2"]
+    s = system(species, ["CH4 + H2O = CO + 3 H2", "CO + H2O = CO2 + H2"])
+    feed = {"CH4": 1.0, "H2O": 3.0}
+    for T in (1000.0, 1200.0):
+        res = s.solve(feed, T=T, P=20.0, tol=1e-12)
+        found = equilibrium_temperature(s, res.amounts, 20.0)
+        np.testing.assert_allclose(found, T, atol=0.01)

@@ -135,5 +135,25 @@ def equilibrium_temperature(
                 if np.all(~np.isfinite(step) | (np.abs(step) <= tol * T)):
                     break
             ok = np.abs(data(T) - ln_q) <= 1e-8 * np.maximum(1.0, np.abs(ln_q))
+            if not ok.all():
+                T = np.where(ok, T, _at_a_data_break(data, ln_q, ~ok))
+                ok |= np.isfinite(T)
         out[:, j] = np.where(ok, T, np.nan)
+    return out
+
+
+def _at_a_data_break(data: Any, ln_q: np.ndarray, cases: np.ndarray) -> np.ndarray:
+    """For ``cases`` without a root: the end of a species-data range at which
+    ``ln K - ln Q`` changes sign (data sets fitted range by range join with a
+    small step in ln K, and a composition in that step is at equilibrium at
+    the break itself); NaN elsewhere."""
+    out = np.full(ln_q.shape, np.nan)
+    breaks = sorted({end for _, d in getattr(data, "terms", []) for span in d.spans for end in span})
+    for T_b in breaks:
+        below = data(np.array([T_b * (1 - 1e-12)]))[0] - ln_q
+        above = data(np.array([T_b * (1 + 1e-12)]))[0] - ln_q
+        at = data(np.array([T_b]))[0] - ln_q
+        hit = cases & np.isnan(out) & ((np.sign(below) != np.sign(above)) | (at == 0.0))
+        hit &= np.isfinite(below) & np.isfinite(above)
+        out[hit] = T_b
     return out
