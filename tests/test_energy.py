@@ -93,6 +93,10 @@ def test_inlet_given_as_an_enthalpy(reformer) -> None:
     # an enthalpy no temperature gives the feed is invalid input, not a guess
     far = reformer.solve(FEED, H_in=[H_in[0], -1e6], P=20.0, adiabatic=True)
     assert far.status.tolist() == [Status.CONVERGED, Status.INVALID_INPUT]
+    from eqbatch import InvalidCaseError
+
+    with pytest.raises(InvalidCaseError, match=r"case 1: .*H_in = -1e\+06 kJ"):
+        reformer.solve(FEED, H_in=[H_in[0], -1e6], P=20.0, adiabatic=True, invalid="raise")
 
 
 def test_energy_options_are_checked(reformer) -> None:
@@ -273,3 +277,40 @@ def test_sweep_energy_outputs_with_lnk_columns_and_contradictory_rows(reformer, 
     )
     out = _sweep(reformer, both, tmp_path, "both")
     assert out["status"].tolist() == [Status.CONVERGED, Status.INVALID_INPUT]
+
+
+def test_sweep_empty_feed_temperature_falls_back_to_T_K_and_failed_balances_are_nan(
+    reformer, tmp_path
+) -> None:
+    import pyarrow as pa
+
+    table = pa.table(
+        {
+            "feed_CH4": [1.0] * 4,
+            "feed_H2O": [3.0] * 4,
+            "T_K": [800.0, 800.0, 900.0, 900.0],
+            "adiabatic": [True, True, False, False],
+            "T_in_K": [None, 820.0, None, 700.0],
+        },
+        schema=pa.schema(
+            [
+                ("feed_CH4", pa.float64()),
+                ("feed_H2O", pa.float64()),
+                ("T_K", pa.float64()),
+                ("adiabatic", pa.bool_()),
+                ("T_in_K", pa.float64()),
+            ]
+        ),
+    )
+    out = _sweep(reformer, table, tmp_path, "fallback")
+    assert (out["status"] == Status.CONVERGED).all()
+    by_t = reformer.solve({"CH4": 1.0, "H2O": 3.0}, T=[800.0, 820.0], P=1.0, adiabatic=True)
+    np.testing.assert_allclose(out.loc[[0, 1], "T_out_K"], by_t.T, rtol=1e-12)
+    iso = reformer.solve({"CH4": 1.0, "H2O": 3.0}, T=900.0, P=1.0)
+    np.testing.assert_allclose(out.loc[2, "heat_kJ"], iso.duty()[0], rtol=1e-12)  # feed at T_K
+    assert out.loc[3, "heat_kJ"] > out.loc[2, "heat_kJ"]  # a colder feed takes more heat
+    # a duty no temperature in the data's range can take: OUT_OF_RANGE with NaN outputs
+    far = pa.table({"feed_CH4": [1.0], "feed_H2O": [3.0], "T_K": [900.0], "duty_kJ": [-1e5]})
+    row = _sweep(reformer, far, tmp_path, "far")
+    assert row["status"].tolist() == [Status.OUT_OF_RANGE]
+    assert np.isnan(row.loc[0, ["T_out_K", "n_CH4", "heat_kJ"]].to_numpy(float)).all()

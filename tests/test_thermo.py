@@ -269,6 +269,8 @@ def test_adiabatic_outside_the_data_range_is_reported() -> None:
     res = s.solve([[1.0, 0.0], [0.001, 1.0]], T=650.0, adiabatic=True)
     assert res.status[0] == eqbatch.Status.OUT_OF_RANGE and "temperature range" in res.message(0)
     assert res.status[1] == eqbatch.Status.CONVERGED
+    # no outlet: NaN outputs, not the last iterate (which would read as an answer)
+    assert np.isnan(res.T[0]) and np.isnan(res.amounts[0]).all() and np.isfinite(res.amounts[1]).all()
 
 
 # --- the chemicals data source -------------------------------------------------

@@ -346,3 +346,24 @@ def test_tabulated_data_from_a_system_file(tmp_path) -> None:
     assert system.species_data["H2O"] == table
     assert system._thermo_table is not None
     np.testing.assert_allclose(system.lnK(T), python_lnk(system, T), rtol=1e-12, atol=1e-11)
+
+
+def test_species_data_refuse_slips_a_user_makes(tmp_path) -> None:
+    from eqbatch.speciesdata import species_data_from_table
+
+    # a boolean or a quoted number in a system file is not a number
+    for bad in ({"a": 49.62, "dHf": True, "S298": 38.1}, {"a": "49.62", "dHf": -635.1, "S298": 38.1}):
+        with pytest.raises(eqbatch.SystemDefinitionError, match="is not a number"):
+            species_data_from_table("CaO", {"maier_kelley": bad})
+    with pytest.raises(eqbatch.SystemDefinitionError, match="missing key 'S298'"):
+        species_data_from_table("CaO", {"maier_kelley": {"a": 49.62, "dHf": -635.1}})
+    # formation data are required, in kJ/mol
+    with pytest.raises(eqbatch.SystemDefinitionError, match="no default"):
+        MaierKelley(a=49.62, b=4.52e-3)
+    with pytest.raises(eqbatch.SystemDefinitionError, match="kJ/mol"):
+        MaierKelley(a=49.62, dHf=-635_100.0, S298=38.1)
+    # H - H298 is zero at 298.15 K by its definition
+    T = (298.15, 400.0, 500.0, 600.0)
+    good = Tabulated.from_cp(T, (30.0,) * 4, dHf=-10.0, S298=200.0)
+    with pytest.raises(eqbatch.SystemDefinitionError, match="not zero"):
+        Tabulated(good.T, good.Cp, tuple(h + 1.0 for h in good.H_rel), good.S, dHf=-10.0)

@@ -91,6 +91,12 @@ def adiabatic_solve(
         feed = np.ascontiguousarray(np.broadcast_to(feed, (m, system.n_species)))
         H_given = np.ascontiguousarray(np.broadcast_to(H_given, (m,)))
         T = _feed_temperature(species, feed, H_given, lo, hi)
+        if invalid == "raise" and np.isnan(T).any():
+            k = int(np.argmax(np.isnan(T)))
+            raise InvalidCaseError(
+                f"case {k}: no temperature between {0.5 * lo:g} and {2 * hi:g} K gives the feed the "
+                f"enthalpy H_in = {H_given[k] / 1000.0:g} kJ"
+            )
     heat = None if duty is None else 1000.0 * case_column(duty, "duty")
     if heat is not None and heat.shape[0] > 1:  # one case per duty: the inlet temperature sets the rows
         T_rows = case_column(T, "T")
@@ -214,11 +220,15 @@ def adiabatic_solve(
     status[out_of_range & at_equilibrium] = Status.OUT_OF_RANGE
     not_closed = ~out_of_range & ~(np.abs(f) <= energy_tol * scale) & at_equilibrium
     status[not_closed] = Status.ITERATION_LIMIT
+    # no outlet (out of range) or bad input: NaN outputs, so that nothing downstream
+    # (a duty, a plot) reads the last iterate as an answer
+    bad_out = bad | (status == Status.OUT_OF_RANGE)
     if bad.any():
         status[bad] = Status.INVALID_INPUT
-        amounts[bad] = np.nan
-        extents[bad] = np.nan
-        Tc = np.where(bad, np.nan, Tc)
+    if bad_out.any():
+        amounts[bad_out] = np.nan
+        extents[bad_out] = np.nan
+        Tc = np.where(bad_out, np.nan, Tc)
     out = EquilibriumResult(
         system, amounts, extents, None, status, newton.astype(np.uint32), feed_rows, P_rows, Tc, lnK
     )

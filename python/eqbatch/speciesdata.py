@@ -26,6 +26,7 @@ term).
 from __future__ import annotations
 
 import math
+import numbers
 from collections.abc import Mapping
 from dataclasses import dataclass
 from functools import cached_property
@@ -604,9 +605,9 @@ class MaierKelley:
     a, b, c, d : float
         Coefficients of ``Cp``: J/(mol K), J/(mol K^2), J/(mol K^3), J K/mol.
     dHf : float
-        Formation enthalpy at 298.15 K, kJ/mol.
+        Formation enthalpy at 298.15 K, kJ/mol (required).
     S298 : float
-        Entropy at 298.15 K and ``P_ref``, J/(mol K).
+        Entropy at 298.15 K and ``P_ref``, J/(mol K) (required).
     T_min, T_max : float
         Where the data are valid, K.
     source : str
@@ -617,7 +618,9 @@ class MaierKelley:
     Raises
     ------
     SystemDefinitionError
-        ``P_ref`` is not a positive pressure.
+        ``P_ref`` is not a positive pressure; a value that is not a finite
+        number, ``dHf`` or ``S298`` missing, ``|dHf|`` above 20,000 kJ/mol
+        (J/mol given by mistake), a negative ``S298`` or an empty range.
 
     Examples
     --------
@@ -633,8 +636,8 @@ class MaierKelley:
     b: float = 0.0
     c: float = 0.0
     d: float = 0.0
-    dHf: float = 0.0
-    S298: float = 0.0
+    dHf: float = math.nan
+    S298: float = math.nan
     T_min: float = 298.15
     T_max: float = 1500.0
     source: str = "Maier-Kelley Cp (given)"
@@ -643,6 +646,18 @@ class MaierKelley:
 
     def __post_init__(self) -> None:
         _check_p_ref(self)
+        values = (self.a, self.b, self.c, self.d, self.dHf, self.S298, self.T_min, self.T_max)
+        if not all(isinstance(v, numbers.Real) and math.isfinite(v) for v in values):
+            raise SystemDefinitionError(
+                f"MaierKelley ({self.source}): a, b, c, d, dHf and S298 must be finite numbers "
+                "(dHf and S298 have no default)"
+            )
+        if abs(self.dHf) > 2e4 or not (0.0 <= self.S298 < 2e4) or not (0.0 < self.T_min < self.T_max):
+            raise SystemDefinitionError(
+                f"MaierKelley ({self.source}): dHf = {self.dHf!r} kJ/mol, S298 = {self.S298!r} J/(mol K), "
+                f"T {self.T_min!r}-{self.T_max!r} K: dHf is in kJ/mol (not J/mol), S298 is not negative, "
+                "and T_min is below T_max"
+            )
 
     def _h_int(self, T: Any) -> Any:
         return T * (self.a + T * (self.b / 2 + T * self.c / 3)) - self.d / T
@@ -805,6 +820,13 @@ class Tabulated:
                 f"tabulated data ({self.source}): temperatures must be positive and increasing"
             )
         segments = self._segments()
+        if T[0] <= T_REF <= T[-1]:  # H - H298 is zero at 298.15 K, by its definition
+            _, h298, _ = _segment_values(segments, np.array([T_REF]))
+            if abs(R * h298[0] / 1000.0 - dhf) > 0.2:
+                raise SystemDefinitionError(
+                    f"tabulated data ({self.source}): H - H298 at 298.15 K is "
+                    f"{R * h298[0] / 1000.0 - dhf:.3g} kJ/mol, not zero (H_rel is H(T) - H(298.15 K))"
+                )
         _, h, s = _segment_values(segments, T)
         dh = np.abs(R * h / 1000.0 - (dhf + np.array(cols[2])))
         ds = np.abs(R * s - np.array(cols[3]))
@@ -1032,6 +1054,13 @@ class ThermoLnK:
         return self.dH(T) / (R * T * T)
 
 
+def _number(value: Any) -> float:
+    """A system file's number: an int or a float, not a boolean or a string."""
+    if isinstance(value, (bool, np.bool_)) or not isinstance(value, numbers.Real):
+        raise TypeError(f"{value!r} is not a number")
+    return float(value)
+
+
 _TABLE_KEYS = ("nasa7", "shomate", "cp_poly", "maier_kelley", "tabulated", "source", "P_ref")
 
 
@@ -1083,17 +1112,17 @@ def species_data_from_table(name: str, table: Mapping[str, Any]) -> SpeciesData:
     try:
         if keys[0] == "nasa7":
             return NASA7(
-                tuple(value["low"]),
-                tuple(value["high"]),
-                float(value.get("T_mid", 1000.0)),
-                float(value.get("T_min", 200.0)),
-                float(value.get("T_max", 3500.0)),
+                tuple(_number(x) for x in value["low"]),
+                tuple(_number(x) for x in value["high"]),
+                _number(value.get("T_mid", 1000.0)),
+                _number(value.get("T_min", 200.0)),
+                _number(value.get("T_max", 3500.0)),
                 source,
                 p_ref,
             )
         if keys[0] == "shomate":
             ranges = tuple(
-                tuple(float(r[k]) for k in ("T_min", "T_max", "A", "B", "C", "D", "E", "F", "G", "H"))
+                tuple(_number(r[k]) for k in ("T_min", "T_max", "A", "B", "C", "D", "E", "F", "G", "H"))
                 for r in value
             )
             return Shomate(ranges, source, p_ref)
@@ -1104,11 +1133,11 @@ def species_data_from_table(name: str, table: Mapping[str, Any]) -> SpeciesData:
                     f"species_data.{name}.tabulated: unknown key(s) {extra}; valid are T, Cp, H_rel, S, dHf"
                 )
             return Tabulated(
-                tuple(value["T"]),
-                tuple(value["Cp"]),
-                tuple(value["H_rel"]),
-                tuple(value["S"]),
-                float(value["dHf"]),
+                tuple(_number(x) for x in value["T"]),
+                tuple(_number(x) for x in value["Cp"]),
+                tuple(_number(x) for x in value["H_rel"]),
+                tuple(_number(x) for x in value["S"]),
+                _number(value["dHf"]),
                 source,
                 p_ref,
             )
@@ -1120,25 +1149,26 @@ def species_data_from_table(name: str, table: Mapping[str, Any]) -> SpeciesData:
                     "valid are a, b, c, d, dHf, S298, T_min, T_max"
                 )
             return MaierKelley(
-                a=float(value["a"]),
-                b=float(value.get("b", 0.0)),
-                c=float(value.get("c", 0.0)),
-                d=float(value.get("d", 0.0)),
-                dHf=float(value["dHf"]),
-                S298=float(value["S298"]),
-                T_min=float(value.get("T_min", T_REF)),
-                T_max=float(value.get("T_max", 1500.0)),
+                a=_number(value["a"]),
+                b=_number(value.get("b", 0.0)),
+                c=_number(value.get("c", 0.0)),
+                d=_number(value.get("d", 0.0)),
+                dHf=_number(value["dHf"]),
+                S298=_number(value["S298"]),
+                T_min=_number(value.get("T_min", T_REF)),
+                T_max=_number(value.get("T_max", 1500.0)),
                 source=source,
                 P_ref=p_ref,
             )
         return CpPolynomial(
-            tuple(float(x) for x in value["a"]),
-            float(value["dHf"]),
-            float(value["S298"]),
-            float(value.get("T_min", 200.0)),
-            float(value.get("T_max", 1500.0)),
+            tuple(_number(x) for x in value["a"]),
+            _number(value["dHf"]),
+            _number(value["S298"]),
+            _number(value.get("T_min", 200.0)),
+            _number(value.get("T_max", 1500.0)),
             source,
             p_ref,
         )
     except (KeyError, TypeError, ValueError) as err:
-        raise SystemDefinitionError(f"species_data.{name}.{keys[0]}: malformed ({err})") from None
+        what = f"missing key {err}" if isinstance(err, KeyError) else str(err)
+        raise SystemDefinitionError(f"species_data.{name}.{keys[0]}: malformed ({what})") from None

@@ -472,10 +472,12 @@ class _Plan:
             if approach:
                 kw["approach"] = {label: np.where(bad[iso], 0.0, dT[iso]) for label, dT in approach.items()}
             res = self.system.solve(feed[iso], **kw, **options)
-            parts.append((iso, res, None if T_in is None else T_in[iso]))
+            parts.append(
+                (iso, res, None if T_in is None else np.where(np.isnan(T_in[iso]), T[iso], T_in[iso]))
+            )
         hot = np.flatnonzero(balance)
         if hot.size:
-            inlet = T_in[hot] if T_in is not None else T[hot]
+            inlet = T[hot] if T_in is None else np.where(np.isnan(T_in[hot]), T[hot], T_in[hot])
             res = self.system.solve(
                 feed[hot], T=np.where(bad[hot], np.nan, inlet), P=P[hot], duty=heat[hot], **options
             )
