@@ -180,7 +180,7 @@ def test_failed_adiabatic_case_says_so_on_the_solve_screen(tmp_path, capsys) -> 
     assert code == 1
     assert "no equilibrium outlet temperature found" in out
     assert "outlet T =" not in out
-    assert "NOT AN EQUILIBRIUM" in out
+    assert "NO OUTLET" in out and "no amounts" in out  # the outputs of a case without an outlet are NaN
 
 
 def test_a_reaction_already_within_its_approach_is_held_at_the_feed() -> None:

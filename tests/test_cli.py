@@ -115,6 +115,22 @@ def test_solve_adiabatic_and_approach_from_the_command_line(capsys) -> None:
     )
 
 
+def test_solve_with_a_heat_duty_from_the_command_line(capsys) -> None:
+    import eqbatch
+
+    path = str(Path(eqbatch.__file__).parent / "data" / "reformer.toml")
+    system = eqbatch.ReactionSystem.from_toml(path)
+    expect = system.solve({"CH4": 1.0, "H2O": 3.0}, T=900.0, P=20.0, duty=100.0)
+    assert main(["solve", path, "--feed", "CH4=1,H2O=3", "--T", "900", "--P", "20", "--duty", "100"]) == 0
+    out = capsys.readouterr().out
+    assert f"heat added 100 kJ, inlet 900 K, outlet T = {float(expect.T[0]):.2f} K" in out
+    assert "heat taken by the reactor 100 kJ (the feed at 900 K" in out
+    # a heat no temperature in the data's range can take: no outlet, exit status 1
+    assert main(["solve", path, "--feed", "CH4=1,H2O=3", "--T", "900", "--P", "20", "--duty=-1e6"]) == 1
+    out = capsys.readouterr().out
+    assert "NO OUTLET" in out and "balances the enthalpy" in out
+
+
 def test_bad_pressure_on_the_command_line_is_one_line(system_file, capsys) -> None:
     assert main(["solve", str(system_file), "--feed", "CH4=1,H2O=3", "--T", "1000", "--P", "-5"]) == 2
     err = capsys.readouterr().err

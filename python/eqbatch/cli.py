@@ -33,6 +33,7 @@ from eqbatch.inputs import MAX_ITER
 from eqbatch.kdata import collect_extrapolation
 from eqbatch.spec import SystemSpec
 from eqbatch.speciesdata import R, ThermoLnK
+from eqbatch.status import Status
 from eqbatch.sweeps import sweep
 from eqbatch.system import ReactionSystem
 from eqbatch.uncertainty import monte_carlo
@@ -146,6 +147,8 @@ def _cmd_solve(args: argparse.Namespace) -> int:
         kwargs["approach"] = _pairs(args.approach, "--approach")
     if args.adiabatic:
         kwargs["adiabatic"] = True
+    if args.duty is not None:
+        kwargs["duty"] = args.duty
     res = system.solve(
         feed, T=args.T, P=args.P, tol=args.tol, max_iter=args.max_iter, invalid="raise", **kwargs
     )
@@ -153,16 +156,19 @@ def _cmd_solve(args: argparse.Namespace) -> int:
     converged = bool(res.converged[0])
     outlet_T = math.nan if res.T is None else float(res.T[0])
     conditions = []
-    if args.adiabatic:
+    if args.adiabatic or args.duty is not None:
         outlet = f"outlet T = {outlet_T:.2f} K" if converged else "no equilibrium outlet temperature found"
-        conditions.append(f"adiabatic, inlet {args.T:g} K, {outlet}")
+        kind = "adiabatic" if args.adiabatic else f"heat added {args.duty:g} kJ"
+        conditions.append(f"{kind}, inlet {args.T:g} K, {outlet}")
     elif args.T is not None:
         conditions.append(f"T = {args.T:g} K")
     conditions.append(f"P = {float(res.P[0]):g} bar")
     print(f"Equilibrium of {args.system}: {', '.join(conditions)} (P0 = {system.P0:g} bar)")
     print(res.message(0))
-    if not converged:
-        where = f" (at {outlet_T:.2f} K)" if args.adiabatic and np.isfinite(outlet_T) else ""
+    if res.status[0] == Status.OUT_OF_RANGE:
+        print("NO OUTLET: no temperature within the species data's range balances the enthalpy; no amounts.")
+    elif not converged:
+        where = f" (at {outlet_T:.2f} K)" if np.isfinite(outlet_T) and res.T_in is not None else ""
         print(
             f"NOT AN EQUILIBRIUM: the amounts below are the solver's last iterate{where}, "
             "shown to help find the cause; do not use them as a result."
@@ -191,6 +197,14 @@ def _cmd_solve(args: argparse.Namespace) -> int:
         print(_table(["fed species", "conversion"], [[name, f"{c:.4g} %"] for name, c in conversions]))
         if any(c < 0 for _, c in conversions):
             print("(a negative conversion is net production: the equilibrium holds more than was fed)")
+        print()
+    if converged and res.T is not None and all(name in system.species_data for name in system.species):
+        heat = float(res.duty()[0])
+        fed_at = f"the feed at {float(res.T_in[0]):g} K" if res.T_in is not None else "the feed at T"
+        print(
+            f"Energy: outlet enthalpy {float(res.enthalpy[0]):.6g} kJ (formation scale); heat taken by the "
+            f"reactor {heat:.6g} kJ ({fed_at}; positive: heat in)"
+        )
         print()
     if system.species_data:
         print("\n".join(_species_data_lines(system, short=True)))
@@ -430,6 +444,13 @@ def _parser() -> argparse.ArgumentParser:
         "--adiabatic",
         action="store_true",
         help="--T is the inlet: find the adiabatic outlet temperature (needs species data)",
+    )
+    solve.add_argument(
+        "--duty",
+        type=float,
+        metavar="KJ",
+        help="--T is the inlet: find the outlet with this heat added, kJ (negative: removed, as --duty=-50; "
+        "needs species data)",
     )
     solve.add_argument("--tol", type=float, default=1e-10, help="convergence tolerance on |ln Q - ln K|")
     solve.add_argument("--max-iter", type=int, default=200, help="Newton iteration limit")

@@ -69,12 +69,12 @@ impl Status {
             Status::Converged => "converged",
             Status::IterationLimit => "iteration limit reached before convergence",
             Status::InvalidInput => {
-                "invalid input (negative/NaN feed, zero total, bad ln K, pressure or temperature)"
+                "invalid input (negative/NaN feed, zero total, bad ln K, pressure, temperature or heat)"
             }
             Status::Infeasible => "infeasible: the extents are unbounded for this feed",
             Status::Stalled => "stalled: no further decrease of the Gibbs function",
             Status::OutOfRange => {
-                "no adiabatic outlet temperature within the data's temperature range"
+                "no outlet temperature within the data's temperature range balances the enthalpy"
             }
             Status::Underflow => {
                 "converged, with species below float64's range held at about 1e-305 mol (upper bounds)"
