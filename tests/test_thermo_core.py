@@ -362,6 +362,10 @@ def test_species_data_refuse_slips_a_user_makes(tmp_path) -> None:
         MaierKelley(a=49.62, b=4.52e-3)
     with pytest.raises(eqbatch.SystemDefinitionError, match="kJ/mol"):
         MaierKelley(a=49.62, dHf=-635_100.0, S298=38.1)
+    with pytest.raises(eqbatch.SystemDefinitionError, match="same number of rows"):
+        Tabulated.from_cp((298.15, 400.0, 500.0), (30.0, 30.0), dHf=0.0, S298=1.0)
+    with pytest.raises(eqbatch.SystemDefinitionError, match="increasing"):
+        Tabulated.from_cp((500.0, 400.0, 298.15), (30.0,) * 3, dHf=0.0, S298=1.0)
     # H - H298 is zero at 298.15 K by its definition
     T = (298.15, 400.0, 500.0, 600.0)
     good = Tabulated.from_cp(T, (30.0,) * 4, dHf=-10.0, S298=200.0)

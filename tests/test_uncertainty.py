@@ -226,6 +226,7 @@ def test_uncertain_inlet_temperature_of_an_adiabatic_bed() -> None:
     rng = np.random.default_rng(5)
     rng.standard_normal((3000, system.n_reactions))  # the ln K draws come first
     inlets = 800.0 + 5.0 * rng.standard_normal(3000)
+    np.testing.assert_array_equal(mc.T_in, inlets)
     direct = system.solve(feed, T=inlets[:20], P=20.0, adiabatic=True)
     np.testing.assert_allclose(mc.T[:20], direct.T, rtol=1e-9)
     up, down = (system.solve(feed, T=t, P=20.0, adiabatic=True).T[0] for t in (801.0, 799.0))

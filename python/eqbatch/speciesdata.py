@@ -871,8 +871,17 @@ class Tabulated:
         (20.35365, 130.0)
         """
         T_rows, cp_rows = np.asarray(T, dtype=float), np.asarray(Cp, dtype=float)
-        if T_rows.ndim != 1 or T_rows.size < 3 or not (T_rows[0] <= T_REF <= T_rows[-1]):
-            raise SystemDefinitionError(f"tabulated Cp ({source}): rows must span 298.15 K (at least 3 rows)")
+        if T_rows.ndim != 1 or T_rows.shape != cp_rows.shape or T_rows.size < 3:
+            raise SystemDefinitionError(
+                f"tabulated Cp ({source}): T and Cp need the same number of rows, at least 3 "
+                f"(got {T_rows.size} and {cp_rows.size})"
+            )
+        if not (np.all(np.diff(T_rows) > 0) and np.all(np.isfinite(cp_rows))):
+            raise SystemDefinitionError(
+                f"tabulated Cp ({source}): temperatures must be increasing and Cp finite"
+            )
+        if not (T_rows[0] <= T_REF <= T_rows[-1]):
+            raise SystemDefinitionError(f"tabulated Cp ({source}): the rows must span 298.15 K")
         segments = _spline_segments(T_rows, cp_rows, 0.0, 0.0)
         _, h, s_ = _segment_values(list(segments), np.concatenate([[T_REF], T_rows]))
         h_rel = R * (h[1:] - h[0]) / 1000.0

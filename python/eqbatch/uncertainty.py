@@ -293,6 +293,8 @@ class MonteCarloResult:
     T: np.ndarray | None = None
     #: Standard deviation of the (inlet) temperature sampled, K.
     T_sigma: float = 0.0
+    #: (samples,) the sampled inlet temperatures of an adiabatic study, K, else None.
+    T_in: np.ndarray | None = None
     _cache: dict = field(default_factory=dict, repr=False)
 
     @property
@@ -705,6 +707,7 @@ def monte_carlo(
         tuple(percentiles),
         T_out,
         sigma_T,
+        T_samples if adiabatic else None,
     )
 
 
