@@ -357,6 +357,13 @@ def test_species_data_refuse_slips_a_user_makes(tmp_path) -> None:
             species_data_from_table("CaO", {"maier_kelley": bad})
     with pytest.raises(eqbatch.SystemDefinitionError, match="missing key 'S298'"):
         species_data_from_table("CaO", {"maier_kelley": {"a": 49.62, "dHf": -635.1}})
+    # a NaN coefficient is named with its species when the system is built
+    nan_data = {
+        "A": CpPolynomial(a=(float("nan"),), dHf=0.0, S298=1.0),
+        "B": CpPolynomial(a=(4.0,), dHf=0.0, S298=1.0),
+    }
+    with pytest.raises(eqbatch.SystemDefinitionError, match="species_data.A: .* finite"):
+        eqbatch.ReactionSystem(["A", "B"], ["A = B"], species_data=nan_data, check_balance=False)
     # formation data are required, in kJ/mol
     with pytest.raises(eqbatch.SystemDefinitionError, match="no default"):
         MaierKelley(a=49.62, b=4.52e-3)

@@ -328,4 +328,10 @@ def _read_species_data(index: Mapping[str, int], data: Mapping[str, Any] | None)
                     f"species_data.{name}: temperature range {lo:g}-{hi:g} K is empty or inverted "
                     "(each T_min must be below its T_max, and a NASA7 T_mid between them)"
                 )
+        segments = out[name]._segments()
+        if not all(math.isfinite(v) for g in segments for v in (g[2], *g[3:])):
+            raise SystemDefinitionError(
+                f"species_data.{name}: coefficients and formation data must be finite numbers "
+                f"({out[name].source})"
+            )
     return out
