@@ -314,3 +314,24 @@ def test_sweep_empty_feed_temperature_falls_back_to_T_K_and_failed_balances_are_
     row = _sweep(reformer, far, tmp_path, "far")
     assert row["status"].tolist() == [Status.OUT_OF_RANGE]
     assert np.isnan(row.loc[0, ["T_out_K", "n_CH4", "heat_kJ"]].to_numpy(float)).all()
+
+
+def test_sweep_inlet_enthalpy_column(reformer, tmp_path) -> None:
+    import pyarrow as pa
+
+    H = float(mixture_enthalpy(FEED, [760.0])[0])  # the feed's enthalpy at 760 K, by numpy
+    table = pa.table(
+        {
+            "feed_CH4": [1.0, 1.0],
+            "feed_H2O": [3.0, 3.0],
+            "feed_H2": [0.05, 0.05],
+            "feed_N2": [0.1, 0.1],
+            "T_K": [800.0, 800.0],
+            "adiabatic": [True, True],
+            "H_in_kJ": [H, None],
+        }
+    )
+    out = _sweep(reformer, table, tmp_path, "h_in")
+    assert (out["status"] == Status.CONVERGED).all()
+    by_t = reformer.solve(FEED, T=[760.0, 800.0], P=1.0, adiabatic=True)
+    np.testing.assert_allclose(out["T_out_K"], by_t.T, rtol=1e-9)  # row 1 falls back to T_K

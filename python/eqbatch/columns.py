@@ -27,6 +27,7 @@ ITERATIONS = "iterations"
 ADIABATIC = "adiabatic"
 DUTY = "duty_kJ"
 T_IN = "T_in_K"
+H_IN = "H_in_kJ"
 APPROACH = "approach_"
 #: Energy outputs of sweeps whose species all have data: the equilibrium
 #: temperature (with energy-balance inputs), the outlet's enthalpy, the heat the

@@ -14,7 +14,8 @@ Optional inputs (K from the system's data): ``adiabatic`` (true: an adiabatic
 row, ``T_K`` or ``T_in_K`` its inlet), ``duty_kJ`` (a finite value: a row with
 that heat added, kJ per case), ``T_in_K`` (the feed's temperature: the inlet of
 energy-balance rows, and for the others the temperature the heat duty is
-counted from) and ``approach_<label>`` (K, per row). A negative or missing
+counted from), ``H_in_kJ`` (where given, an energy-balance row's inlet as the
+feed's enthalpy, kJ) and ``approach_<label>`` (K, per row). A negative or missing
 approach, a non-zero one on an energy-balance row, or ``adiabatic`` true with
 a non-zero ``duty_kJ`` makes the row invalid input. With energy-balance
 columns the outputs end with ``T_out_K``; with ``energy=True`` (the default
@@ -80,6 +81,7 @@ from eqbatch.columns import (
     DH,
     DUTY,
     FEED,
+    H_IN,
     H_OUT,
     HEAT,
     ITERATIONS,
@@ -354,9 +356,10 @@ class _Plan:
             if system.needs_T and self.t_col is None:
                 raise SweepError(f"{path}: missing column {TEMPERATURE!r}, needed for the system's K(T) data")
         self.t_in_col = T_IN if T_IN in names else None
+        self.h_in_col = H_IN if H_IN in names else None
         self.duty_col = DUTY if DUTY in names else None
         self.adiabatic_col = ADIABATIC if ADIABATIC in names else None
-        for maybe in (self.t_in_col, self.duty_col):
+        for maybe in (self.t_in_col, self.h_in_col, self.duty_col):
             if maybe:
                 need_numeric(maybe)
         if self.adiabatic_col and not pa.types.is_boolean(schema.field(ADIABATIC).type):
@@ -370,10 +373,12 @@ class _Plan:
                 f"{path}: {ADIABATIC}, {DUTY} and {APPROACH}<label> columns take K from the system's data; "
                 "drop the lnK_<label> columns"
             )
-        if self.balance and self.t_col is None and self.t_in_col is None:
+        if self.balance and self.t_col is None and self.t_in_col is None and self.h_in_col is None:
             raise SweepError(
-                f"{path}: {ADIABATIC} or {DUTY} rows need the inlet temperature: {T_IN} or {TEMPERATURE}"
+                f"{path}: {ADIABATIC} or {DUTY} rows need the inlet: {T_IN}, {H_IN} or {TEMPERATURE}"
             )
+        if self.h_in_col and not self.balance:
+            raise SweepError(f"{path}: {H_IN} is the inlet of energy-balance rows: add {ADIABATIC} or {DUTY}")
         if self.balance:
             try:
                 system._enthalpy_data(f"{path}: the {ADIABATIC} and {DUTY} columns")
@@ -387,7 +392,7 @@ class _Plan:
             raise SweepError(
                 f"{path}: energy outputs need species data for every species and a {TEMPERATURE} column"
             )
-        wanted = energy if energy is not None else bool(self.balance or self.t_in_col)
+        wanted = energy if energy is not None else bool(self.balance or self.t_in_col or self.h_in_col)
         self.energy = bool(wanted and has_data and (self.t_col or self.balance))
         self.with_dH = self.energy and all(callable(system.lnK_data.get(label)) for label in system.labels)
         fed = [sp for sp, col in zip(system.species, self.feed_cols) if col is not None]
@@ -475,11 +480,19 @@ class _Plan:
             parts.append(
                 (iso, res, None if T_in is None else np.where(np.isnan(T_in[iso]), T[iso], T_in[iso]))
             )
-        hot = np.flatnonzero(balance)
+        H_in = column(self.h_in_col) if self.h_in_col else np.full(n, np.nan)
+        by_h = balance & np.isfinite(H_in)  # an inlet enthalpy, where given, rather than a temperature
+        hot = np.flatnonzero(balance & ~by_h)
         if hot.size:
             inlet = T[hot] if T_in is None else np.where(np.isnan(T_in[hot]), T[hot], T_in[hot])
             res = self.system.solve(
                 feed[hot], T=np.where(bad[hot], np.nan, inlet), P=P[hot], duty=heat[hot], **options
+            )
+            parts.append((hot, res, None))
+        hot = np.flatnonzero(by_h)
+        if hot.size:
+            res = self.system.solve(
+                feed[hot], H_in=np.where(bad[hot], np.nan, H_in[hot]), P=P[hot], duty=heat[hot], **options
             )
             parts.append((hot, res, None))
         return parts
