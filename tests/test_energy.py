@@ -335,3 +335,12 @@ def test_sweep_inlet_enthalpy_column(reformer, tmp_path) -> None:
     assert (out["status"] == Status.CONVERGED).all()
     by_t = reformer.solve(FEED, T=[760.0, 800.0], P=1.0, adiabatic=True)
     np.testing.assert_allclose(out["T_out_K"], by_t.T, rtol=1e-9)  # row 1 falls back to T_K
+
+
+def test_energy_balance_tables_name_the_inlet_and_the_outlet(reformer) -> None:
+    # as in sweeps: T_K is the inlet temperature and T_out_K the outlet's
+    res = reformer.solve(FEED, T=[800.0, 900.0], P=20.0, adiabatic=True)
+    table = res.to_pandas()
+    np.testing.assert_allclose(table["T_K"], [800.0, 900.0])
+    np.testing.assert_allclose(table["T_out_K"], res.T)
+    assert "T_out_K" not in reformer.solve(FEED, T=900.0, P=20.0).to_pandas()

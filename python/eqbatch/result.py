@@ -9,7 +9,7 @@ from typing import Any
 import numpy as np
 
 from eqbatch import _core, outputs
-from eqbatch.columns import input_columns, output_columns
+from eqbatch.columns import T_OUT, input_columns, output_columns
 from eqbatch.errors import CaseInputError
 from eqbatch.spec import PHASES, SystemSpec
 from eqbatch.status import CONVERGED_CODES, Status, status_words
@@ -615,7 +615,10 @@ class EquilibriumResult:
         -------
         dict of str to ndarray
             Then ``n_<species>``, ``y_<species>``, ``extent_<label>``,
-            ``status`` and ``iterations`` (names from :mod:`eqbatch.columns`).
+            ``status`` and ``iterations`` (names from :mod:`eqbatch.columns`);
+            for an energy balance (``adiabatic=True`` or ``duty=``) ``T_K`` is
+            the inlet temperature and a last column ``T_out_K`` the outlet's,
+            as in sweeps.
 
         Examples
         --------
@@ -626,9 +629,13 @@ class EquilibriumResult:
          'status', 'iterations']
         """
         spec = self.system
-        out = input_columns(spec, self.feed, self.P, self.T, self.lnK) if inputs else {}
+        balance = self.T_in is not None  # an energy balance: T_K is the inlet, T_out_K the outlet
+        T_given = self._rows(self.T_in) if self.T_in is not None else self.T
+        out = input_columns(spec, self.feed, self.P, T_given, self.lnK) if inputs else {}
         fractions = self.mole_fractions
         out.update(output_columns(spec, self.amounts, fractions, self.extents, self.status, self.iterations))
+        if balance and self.T is not None:
+            out[T_OUT] = self.T
         return out
 
     def to_pandas(self, inputs: bool = True) -> Any:
