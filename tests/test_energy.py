@@ -263,7 +263,14 @@ def test_sweep_energy_outputs_with_lnk_columns_and_contradictory_rows(reformer, 
             "lnK_shift": [lnk[1]],
         }
     )
-    out = _sweep(reformer, table, tmp_path, "lnk")
+    import pyarrow.parquet as pq
+    from eqbatch.sweeps import sweep_file
+
+    notes: list[str] = []
+    pq.write_table(table, tmp_path / "lnk.parquet")
+    sweep_file(reformer, tmp_path / "lnk.parquet", tmp_path / "lnk_out.parquet", quiet=True, say=notes.append)
+    assert any("consistent only if those constants come from the same data" in note for note in notes)
+    out = pq.read_table(tmp_path / "lnk_out.parquet").to_pandas()
     res = reformer.solve({"CH4": 1.0, "H2O": 3.0}, T=900.0)
     np.testing.assert_allclose(out["H_out_kJ"], mixture_enthalpy(res.amounts, [900.0]), rtol=1e-10)
     both = pa.table(

@@ -394,6 +394,11 @@ class _Plan:
             )
         wanted = energy if energy is not None else bool(self.balance or self.t_in_col or self.h_in_col)
         self.energy = bool(wanted and has_data and (self.t_col or self.balance))
+        if self.energy and self.lnk_cols:
+            say(
+                f"{path}: energy outputs combine the species data's enthalpies with compositions from the "
+                "lnK_<label> columns; they are consistent only if those constants come from the same data"
+            )
         self.with_dH = self.energy and all(callable(system.lnK_data.get(label)) for label in system.labels)
         fed = [sp for sp, col in zip(system.species, self.feed_cols) if col is not None]
         # every fed species that takes part in a reaction, on either side
