@@ -739,13 +739,16 @@ def monte_carlo_table(
     samples : int, default 1000
         Samples per case.
     seed : int, optional
-    of : {"mole_fractions", "amounts", "extents", "conversion"}
-        The output summarised.
+    of : {"mole_fractions", "amounts", "extents", "conversion", "T"}
+        The output summarised (``"T"``: the equilibrium temperature, with
+        ``T_sigma`` or ``adiabatic``).
     percentiles : sequence of float, default (5, 50, 95)
     threads : int, optional
     **uncertainty
         ``lnK_sigma``, ``dG_sigma``, ``correlation`` or ``species_dG_sigma``
-        (see :func:`lnK_covariance`).
+        (see :func:`lnK_covariance`), and ``T_sigma`` and ``adiabatic`` (see
+        :func:`monte_carlo`; ``of="T"`` then summarises the outlet
+        temperatures).
 
     Returns
     -------
