@@ -153,7 +153,7 @@ def adiabatic_solve(
             else:
                 r = solve(fr, lnK=system.lnK(Tr) + shift[rows], P=pr, x0=start, **options)
             ab = r.absent if r.absent is not None else np.zeros(rows.size, dtype=np.uint8)
-            fv, dfv = _residual_at(system, species, fr, pr, r.amounts, r.status, ab, Tr, H_in[rows], threads)
+            fv, dfv = _residual_at(system, fr, pr, r.amounts, r.status, ab, Tr, H_in[rows], threads)
             return r.amounts, r.extents, r.status, r.iterations, ab, r.lnK, fv, dfv
 
         def update(rows: np.ndarray, Tr: np.ndarray, start: np.ndarray | None) -> None:
@@ -170,7 +170,6 @@ def adiabatic_solve(
         if kept.size:  # the first solve is the solve at the inlet temperature: only f and f' are new
             f[kept], df[kept] = _residual_at(
                 system,
-                species,
                 feed_rows[kept],
                 P_rows[kept],
                 amounts[kept],
@@ -263,7 +262,6 @@ def adiabatic_solve(
 
 def _residual_at(
     system: SystemSpec,
-    species: Any,
     feed: np.ndarray,
     P: np.ndarray,
     amounts: np.ndarray,
@@ -277,7 +275,7 @@ def _residual_at(
     its exact derivative along the equilibrium, ``sum n cp + sum h dn/dT``
     with ``dn/dT = dn/dlnK . dlnK/dT`` (the core's derivatives without the
     feed columns)."""
-    h, cp = species(T)
+    h, cp = system._species_h_cp(T)
     dk = system._engine.sensitivities(
         np.ascontiguousarray(feed),
         np.ascontiguousarray(P),

@@ -149,11 +149,12 @@ def approach_temperatures(
     for label in approach:
         if not callable(system.lnK_data[label]):
             raise CaseInputError(f"approach: reaction {label!r} has no K(T) data to take an approach on")
+    if not approach:
+        return T_eff
     with quiet_ranges():  # ln K at the same temperatures reports extrapolation
-        slopes = system.dlnK_dT(np.ascontiguousarray(T_rows)) if approach else None
+        slopes = system.dlnK_dT(np.ascontiguousarray(T_rows))
     for label, dT in approach.items():
         j = system.labels.index(label)
-        assert slopes is not None
         T_eff[:, j] = T_rows - np.sign(slopes[:, j]) * np.nan_to_num(direction[:, j]) * dT
     return T_eff
 

@@ -151,7 +151,7 @@ class SystemSpec:
     def _thermo_table(self) -> tuple[np.ndarray, _core.ThermoTable] | None:
         """The reactions whose K come from species data (:class:`ThermoLnK`)
         and the core's table that evaluates their ln K and dH per temperature;
-        None if there are none, or if some data set has no core form."""
+        None if there are none."""
         rows = [j for j, label in enumerate(self.labels) if isinstance(self.lnK_data.get(label), ThermoLnK)]
         datasets: list[Any] = []
         where: dict[int, int] = {}
@@ -160,7 +160,7 @@ class SystemSpec:
                 if id(d) not in where:
                     where[id(d)] = len(datasets)
                     datasets.append(d)
-        if not rows or not all(hasattr(d, "_segments") for d in datasets):
+        if not rows:
             return None
         coef = np.zeros((len(rows), len(datasets)))
         shift = np.zeros(len(rows))
@@ -174,14 +174,11 @@ class SystemSpec:
         return np.array(rows, dtype=np.intp), table
 
     @cached_property
-    def _species_table(self) -> _core.ThermoTable | None:
-        """The core's table of every species' data (for enthalpies and heat
-        capacities), or None if some species has no data or no core form."""
-        if not self.species or not all(name in self.species_data for name in self.species):
-            return None
+    def _species_table(self) -> _core.ThermoTable:
+        """The core's table of every species' data, for enthalpies and heat
+        capacities (callers check first that every species has data:
+        :meth:`_enthalpy_data`)."""
         data = [self.species_data[name] for name in self.species]
-        if not all(hasattr(d, "_segments") for d in data):
-            return None
         return _core.ThermoTable([d._segments() for d in data], np.zeros((0, len(data))), np.zeros(0))
 
     def _enthalpy_data(self, what: str = "adiabatic=True") -> tuple[list[SpeciesData], float, float]:
@@ -202,15 +199,10 @@ class SystemSpec:
 
     def _species_h_cp(self, T: np.ndarray, what: str = "adiabatic=True") -> tuple[np.ndarray, np.ndarray]:
         """Every species' enthalpy (J/mol, formation scale) and heat capacity
-        (J/(mol K)) at ``T`` (N,): in the core where every data set has a
-        core form (no range warnings: callers report or bound the range)."""
-        data, _, _ = self._enthalpy_data(what)
-        table = self._species_table
-        T = np.ascontiguousarray(T, dtype=float)
-        if table is not None:
-            return table.species(T)
-        with quiet_ranges():
-            return np.column_stack([d.h(T) for d in data]), np.column_stack([d.cp(T) for d in data])
+        (J/(mol K)) at ``T`` (N,), in the core (no range warnings: callers
+        report or bound the range)."""
+        self._enthalpy_data(what)
+        return self._species_table.species(np.ascontiguousarray(T, dtype=float))
 
     def _thermo_columns(self, T: np.ndarray, out: np.ndarray, dh: bool = False) -> np.ndarray:
         """Write ln K (or, with ``dh``, the reaction enthalpy, J/mol) of the
@@ -490,10 +482,8 @@ class SystemSpec:
         done = np.zeros(self.n_reactions, dtype=bool)
         if fast is not None:  # species data: in the core, one column at a time
             rows, table = fast
-            for j in rows:
-                out[:, j] = table.evaluate(np.ascontiguousarray(good[:, j]))[0][
-                    :, np.flatnonzero(rows == j)[0]
-                ]
+            for k, j in enumerate(rows):
+                out[:, j] = table.evaluate(np.ascontiguousarray(good[:, j]))[0][:, k]
                 done[j] = True
         with quiet_ranges(), np.errstate(invalid="ignore"):
             for j in np.flatnonzero(~done):

@@ -438,7 +438,7 @@ class _Plan:
             T_given = column(self.t_col) if self.t_col else None  # kept for the energy outputs
             lnk = np.column_stack([column(c) for c in self.lnk_cols])
             res = self.system.solve(feed, lnK=lnk, T=T_given, P=P, **options)
-            outs = self._outputs([(np.arange(n), res, column(self.t_col) if self.t_col else None)], n)
+            outs = self._outputs([(np.arange(n), res, T_given)], n)
         elif not (self.balance or self.approach_cols or self.t_in_col):
             T = column(self.t_col) if self.t_col else None
             res = self.system.solve(feed, P=P, T=T, **options)
@@ -458,7 +458,10 @@ class _Plan:
         energy-balance row with an approach, gets a NaN temperature (invalid
         input)."""
         T = column(self.t_col) if self.t_col else np.full(n, np.nan)
-        T_in = column(self.t_in_col) if self.t_in_col else None
+        T_feed = T  # the feed's temperature: T_in_K where given, else T_K
+        if self.t_in_col:
+            T_in = column(self.t_in_col)
+            T_feed = np.where(np.isnan(T_in), T, T_in)
         balance = np.zeros(n, dtype=bool)
         heat = np.zeros(n)
         bad = np.zeros(n, dtype=bool)
@@ -482,24 +485,15 @@ class _Plan:
             if approach:
                 kw["approach"] = {label: np.where(bad[iso], 0.0, dT[iso]) for label, dT in approach.items()}
             res = self.system.solve(feed[iso], **kw, **options)
-            parts.append(
-                (iso, res, None if T_in is None else np.where(np.isnan(T_in[iso]), T[iso], T_in[iso]))
-            )
+            parts.append((iso, res, T_feed[iso] if self.t_in_col else None))
         H_in = column(self.h_in_col) if self.h_in_col else np.full(n, np.nan)
         by_h = balance & np.isfinite(H_in)  # an inlet enthalpy, where given, rather than a temperature
-        hot = np.flatnonzero(balance & ~by_h)
-        if hot.size:
-            inlet = T[hot] if T_in is None else np.where(np.isnan(T_in[hot]), T[hot], T_in[hot])
-            res = self.system.solve(
-                feed[hot], T=np.where(bad[hot], np.nan, inlet), P=P[hot], duty=heat[hot], **options
-            )
-            parts.append((hot, res, None))
-        hot = np.flatnonzero(by_h)
-        if hot.size:
-            res = self.system.solve(
-                feed[hot], H_in=np.where(bad[hot], np.nan, H_in[hot]), P=P[hot], duty=heat[hot], **options
-            )
-            parts.append((hot, res, None))
+        for rows, key, inlet in ((balance & ~by_h, "T", T_feed), (by_h, "H_in", H_in)):
+            hot = np.flatnonzero(rows)
+            if hot.size:
+                given = {key: np.where(bad[hot], np.nan, inlet[hot])}
+                res = self.system.solve(feed[hot], **given, P=P[hot], duty=heat[hot], **options)
+                parts.append((hot, res, None))
         return parts
 
     def _outputs(self, parts: list, n: int) -> dict[str, np.ndarray]:

@@ -209,95 +209,103 @@ impl ThermoTable {
     /// `n x n_data` (row-major); NaN where a temperature is not positive and
     /// finite.
     pub fn species(&self, temps: &[f64], h: &mut [f64], cp: &mut [f64]) -> Result<(), CoreError> {
-        const CHUNK: usize = 4096;
-        let d = self.data.len();
-        if h.len() != temps.len() * d || cp.len() != temps.len() * d {
-            return Err(CoreError::Shape(
-                "species outputs do not match the temperatures".into(),
-            ));
-        }
-        if d == 0 {
-            return Ok(());
-        }
-        let work = |h: &mut [f64], cp: &mut [f64], temps: &[f64]| {
-            for (c, &t) in temps.iter().enumerate() {
-                let (h, cp) = (&mut h[c * d..(c + 1) * d], &mut cp[c * d..(c + 1) * d]);
-                if !(t > 0.0 && t < f64::INFINITY) {
-                    h.fill(f64::NAN);
-                    cp.fill(f64::NAN);
-                    continue;
-                }
-                let (ln_t, inv_t) = (t.ln(), 1.0 / t);
+        per_temperature(
+            temps,
+            h,
+            cp,
+            self.data.len(),
+            || (),
+            |_, t, ln_t, inv_t, h, cp| {
                 for (k, data) in self.data.iter().enumerate() {
                     let range = data.range(t);
                     h[k] = GAS_CONSTANT * range.h_s(t, ln_t, inv_t).0;
                     cp[k] = GAS_CONSTANT * range.cp(t);
                 }
-            }
-        };
-        if temps.len() <= CHUNK {
-            work(h, cp, temps);
-        } else {
-            h.par_chunks_mut(CHUNK * d)
-                .zip(cp.par_chunks_mut(CHUNK * d))
-                .zip(temps.par_chunks(CHUNK))
-                .for_each(|((h, cp), temps)| work(h, cp, temps));
-        }
-        Ok(())
+            },
+        )
     }
 
     /// `ln K` and `dH` of every reaction at every temperature of `temps`
     /// (K); NaN where a temperature is not positive and finite.
     pub fn evaluate(&self, temps: &[f64], out: ThermoOutputs) -> Result<(), CoreError> {
-        const CHUNK: usize = 4096;
-        let r = self.n_reactions();
-        if out.ln_k.len() != temps.len() * r || out.dh.len() != temps.len() * r {
-            return Err(CoreError::Shape(
-                "thermo outputs do not match the temperatures".into(),
-            ));
-        }
-        if r == 0 {
-            return Ok(());
-        }
-        let work = |ln_k: &mut [f64], dh: &mut [f64], temps: &[f64]| {
-            let mut g = vec![0.0; self.data.len()];
-            let mut h = vec![0.0; self.data.len()];
-            for (c, &t) in temps.iter().enumerate() {
-                let (ln_k, dh) = (&mut ln_k[c * r..(c + 1) * r], &mut dh[c * r..(c + 1) * r]);
-                if !(t > 0.0 && t < f64::INFINITY) {
-                    ln_k.fill(f64::NAN);
-                    dh.fill(f64::NAN);
-                    continue;
-                }
-                let (ln_t, inv_t) = (t.ln(), 1.0 / t);
-                for (d, data) in self.data.iter().enumerate() {
+        let d = self.data.len();
+        // per data set: G/(RT) and H/R at the temperature
+        let scratch = || (vec![0.0; d], vec![0.0; d]);
+        per_temperature(
+            temps,
+            out.ln_k,
+            out.dh,
+            self.n_reactions(),
+            scratch,
+            |(g, h), t, ln_t, inv_t, ln_k, dh| {
+                for (k, data) in self.data.iter().enumerate() {
                     let (hr, sr) = data.range(t).h_s(t, ln_t, inv_t);
-                    g[d] = hr * inv_t - sr;
-                    h[d] = hr;
+                    g[k] = hr * inv_t - sr;
+                    h[k] = hr;
                 }
-                for j in 0..r {
-                    let row = &self.coef[j * self.data.len()..(j + 1) * self.data.len()];
+                for (j, (ln_k, dh)) in ln_k.iter_mut().zip(dh.iter_mut()).enumerate() {
+                    let row = &self.coef[j * d..(j + 1) * d];
                     let (mut sum_g, mut sum_h) = (0.0, 0.0);
-                    for (d, &c) in row.iter().enumerate() {
-                        sum_g += c * g[d];
-                        sum_h += c * h[d];
+                    for (k, &c) in row.iter().enumerate() {
+                        sum_g += c * g[k];
+                        sum_h += c * h[k];
                     }
-                    ln_k[j] = -sum_g + self.shift[j];
-                    dh[j] = GAS_CONSTANT * sum_h;
+                    *ln_k = -sum_g + self.shift[j];
+                    *dh = GAS_CONSTANT * sum_h;
                 }
-            }
-        };
-        if temps.len() <= CHUNK {
-            work(out.ln_k, out.dh, temps);
-        } else {
-            out.ln_k
-                .par_chunks_mut(CHUNK * r)
-                .zip(out.dh.par_chunks_mut(CHUNK * r))
-                .zip(temps.par_chunks(CHUNK))
-                .for_each(|((ln_k, dh), temps)| work(ln_k, dh, temps));
-        }
-        Ok(())
+            },
+        )
     }
+}
+
+/// Fills two outputs of `width` values a temperature (row-major): `row(scratch,
+/// t, ln t, 1/t, a_row, b_row)` at every positive, finite `t`, NaN rows
+/// elsewhere. Beyond one chunk of temperatures the chunks go to the thread
+/// pool, each with its own `scratch()` (the same bits either way).
+fn per_temperature<S, F>(
+    temps: &[f64],
+    a: &mut [f64],
+    b: &mut [f64],
+    width: usize,
+    scratch: impl Fn() -> S + Sync,
+    row: F,
+) -> Result<(), CoreError>
+where
+    F: Fn(&mut S, f64, f64, f64, &mut [f64], &mut [f64]) + Sync,
+{
+    const CHUNK: usize = 4096;
+    if a.len() != temps.len() * width || b.len() != temps.len() * width {
+        return Err(CoreError::Shape(
+            "thermo outputs do not match the temperatures".into(),
+        ));
+    }
+    if width == 0 {
+        return Ok(());
+    }
+    let work = |a: &mut [f64], b: &mut [f64], temps: &[f64]| {
+        let mut s = scratch();
+        for ((&t, a), b) in temps
+            .iter()
+            .zip(a.chunks_mut(width))
+            .zip(b.chunks_mut(width))
+        {
+            if t > 0.0 && t < f64::INFINITY {
+                row(&mut s, t, t.ln(), 1.0 / t, a, b);
+            } else {
+                a.fill(f64::NAN);
+                b.fill(f64::NAN);
+            }
+        }
+    };
+    if temps.len() <= CHUNK {
+        work(a, b, temps);
+    } else {
+        a.par_chunks_mut(CHUNK * width)
+            .zip(b.par_chunks_mut(CHUNK * width))
+            .zip(temps.par_chunks(CHUNK))
+            .for_each(|((a, b), temps)| work(a, b, temps));
+    }
+    Ok(())
 }
 
 #[cfg(test)]

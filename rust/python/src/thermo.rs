@@ -57,49 +57,52 @@ impl PyThermoTable {
     /// `(ln_k, dh)`, each (N, R): ln K on the system's standard pressure and
     /// the standard reaction enthalpy (J/mol) at every temperature of `T`
     /// (N,), K; NaN rows where a temperature is not positive and finite.
-    #[allow(clippy::type_complexity)]
     fn evaluate<'py>(
         &self,
         py: Python<'py>,
         temperature: PyReadonlyArray1<'py, f64>,
-    ) -> PyResult<(Bound<'py, PyArray2<f64>>, Bound<'py, PyArray2<f64>>)> {
-        let n = temperature.len()?;
-        let r = self.inner.n_reactions();
-        let ln_k = PyArray2::zeros(py, [n, r], false);
-        let dh = PyArray2::zeros(py, [n, r], false);
-        {
-            let temps = temperature.as_slice()?;
-            let (mut a, mut b) = (ln_k.try_readwrite()?, dh.try_readwrite()?);
-            let (a, b) = (a.as_slice_mut()?, b.as_slice_mut()?);
-            let table = &self.inner;
-            py.detach(move || table.evaluate(temps, ThermoOutputs { ln_k: a, dh: b }))
-                .map_err(to_py)?;
-        }
-        Ok((ln_k, dh))
+    ) -> PyResult<Pair<'py>> {
+        let table = &self.inner;
+        two_per_temperature(py, &temperature, table.n_reactions(), |temps, ln_k, dh| {
+            table.evaluate(temps, ThermoOutputs { ln_k, dh })
+        })
     }
 
     /// `(h, cp)`, each (N, D): every data set's molar enthalpy (J/mol, on
     /// the formation scale) and heat capacity (J/(mol K)) at every
     /// temperature of `T` (N,), K; NaN rows where a temperature is not
     /// positive and finite.
-    #[allow(clippy::type_complexity)]
     fn species<'py>(
         &self,
         py: Python<'py>,
         temperature: PyReadonlyArray1<'py, f64>,
-    ) -> PyResult<(Bound<'py, PyArray2<f64>>, Bound<'py, PyArray2<f64>>)> {
-        let n = temperature.len()?;
-        let d = self.inner.n_data();
-        let h = PyArray2::zeros(py, [n, d], false);
-        let cp = PyArray2::zeros(py, [n, d], false);
-        {
-            let temps = temperature.as_slice()?;
-            let (mut a, mut b) = (h.try_readwrite()?, cp.try_readwrite()?);
-            let (a, b) = (a.as_slice_mut()?, b.as_slice_mut()?);
-            let table = &self.inner;
-            py.detach(move || table.species(temps, a, b))
-                .map_err(to_py)?;
-        }
-        Ok((h, cp))
+    ) -> PyResult<Pair<'py>> {
+        let table = &self.inner;
+        two_per_temperature(py, &temperature, table.n_data(), |temps, h, cp| {
+            table.species(temps, h, cp)
+        })
     }
+}
+
+/// Two (N, width) float64 arrays.
+type Pair<'py> = (Bound<'py, PyArray2<f64>>, Bound<'py, PyArray2<f64>>);
+
+/// Two new (N, `width`) arrays filled by `fill(temperatures, a, b)` with the
+/// GIL released.
+fn two_per_temperature<'py>(
+    py: Python<'py>,
+    temperature: &PyReadonlyArray1<'py, f64>,
+    width: usize,
+    fill: impl FnOnce(&[f64], &mut [f64], &mut [f64]) -> Result<(), eqbatch_core::CoreError> + Send,
+) -> PyResult<Pair<'py>> {
+    let n = temperature.len()?;
+    let first = PyArray2::zeros(py, [n, width], false);
+    let second = PyArray2::zeros(py, [n, width], false);
+    {
+        let temps = temperature.as_slice()?;
+        let (mut a, mut b) = (first.try_readwrite()?, second.try_readwrite()?);
+        let (a, b) = (a.as_slice_mut()?, b.as_slice_mut()?);
+        py.detach(move || fill(temps, a, b)).map_err(to_py)?;
+    }
+    Ok((first, second))
 }
