@@ -28,7 +28,9 @@ CAO = MaierKelley(a=49.62, b=4.52e-3, d=-6.95e5, dHf=-635.1, S298=38.1, T_max=12
 
 def mixed_system() -> eqbatch.ReactionSystem:
     """Every data form in one system: Shomate (two ranges), NASA 7 (two
-    ranges), a Cp polynomial and a Maier-Kelley Cp."""
+    ranges), a Cp polynomial and a Maier-Kelley Cp. X's coefficients are
+    illustrative inputs (not check values): the tests compare two
+    evaluations of the same data."""
     ar = CpPolynomial(a=(2.5,), dHf=0.0, S298=154.85, T_min=200.0, T_max=6000.0)  # NASA Glenn: S298 of Ar
     x = MaierKelley(a=30.0, b=8e-3, c=-1e-6, d=-2.0e5, dHf=-50.0, S298=180.0, T_min=298.15, T_max=3000.0)
     return eqbatch.ReactionSystem(
