@@ -26,7 +26,8 @@ def log_residuals(
     nu = system.stoich
     ln_a = np.zeros(system.n_species)
     phases = np.array(system.phases)
-    for phase in ("gas", "liquid"):
+    # Each mixture by its name; a pure species (solid, pure_liquid) has a = 1.
+    for phase in set(phases) - {"solid", "pure_liquid"}:
         mask = phases == phase
         total = amounts[mask].sum()
         with np.errstate(divide="ignore"):
@@ -42,6 +43,25 @@ def log_residuals(
         else:
             out[j] = nu[j, involved] @ ln_a[involved] - lnK[j]
     return out
+
+
+def gibbs(system, amounts: np.ndarray, lnK: np.ndarray, P: float) -> float:
+    """G/RT of amounts, with standard potentials g solving nu g = -ln K (any
+    solution gives the same differences between states of one feed); mixtures
+    by phase name, a pure species only its n g (activity 1)."""
+    from scipy.special import xlogy
+
+    g = -np.linalg.lstsq(system.stoich, lnK, rcond=None)[0]
+    phases = np.array(system.phases)
+    total = float(amounts @ g)
+    for phase in set(phases) - {"solid", "pure_liquid"}:
+        part = amounts[phases == phase]
+        size = part.sum()
+        if size > 0:
+            total += float(np.sum(xlogy(part, part / size)))
+            if phase == "gas":
+                total += size * np.log(P / system.P0)
+    return total
 
 
 def conservation_basis(system: eqbatch.ReactionSystem) -> np.ndarray:

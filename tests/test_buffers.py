@@ -51,8 +51,9 @@ def in_pieces(system, feed, lnK, P, piece=2_000, **options):
 
 
 def set_bytes(n: int) -> int:
-    """Bytes of one output set of the reforming system (6 species, 2 reactions)."""
-    return n * (6 * 8 + 2 * 8 + 1 + 4 + 1)
+    """Bytes of one output set of the reforming system (6 species, 2 reactions):
+    amounts, extents, status (uint8), iterations (uint32), absent (uint64)."""
+    return n * (6 * 8 + 2 * 8 + 1 + 4 + 8)
 
 
 @pytest.mark.parametrize(

@@ -6,25 +6,37 @@ from __future__ import annotations
 import eqbatch
 import numpy as np
 import pytest
-from conftest import conservation_basis, log_residuals
+from conftest import conservation_basis, gibbs, log_residuals
 from test_reference import random_system
 
 
-def random_two_phase_batch(rng, liquid_share: float, cases: int, decades: float):
-    """A random system (test_reference.random_system) with some species liquid,
-    and ``cases`` random feeds (some zeros), ln K (+-20 around random species
-    data) and pressures; None if the phases make the system invalid."""
+def random_phase_batch(rng, choose_phases, cases: int, lnk_noise, decades: float):
+    """A random system (test_reference.random_system) with the phases
+    ``choose_phases(rng, names)`` gives, and ``cases`` random feeds (some
+    zeros), ln K (random species data plus ``lnk_noise(rng, shape)``) and
+    pressures (``decades`` either side of 1 bar); None if the phases make the
+    system invalid."""
     A, names, eqs, mu = random_system(rng)
-    phases = {n: "liquid" for n in names if rng.uniform() < liquid_share}
     try:
-        system = eqbatch.ReactionSystem(names, eqs, phases=phases)
+        system = eqbatch.ReactionSystem(names, eqs, phases=choose_phases(rng, names))
     except eqbatch.SystemDefinitionError:
         return None
     feed = rng.uniform(0, 2, (cases, len(names))) * (rng.uniform(size=(cases, len(names))) < 0.6)
     feed[feed.sum(1) == 0, 0] = 1.0
-    lnK = -(system.stoich @ mu)[None, :] + rng.normal(0, 20, (cases, system.n_reactions))
+    lnK = -(system.stoich @ mu)[None, :] + lnk_noise(rng, (cases, system.n_reactions))
     P = 10 ** rng.uniform(-decades, decades, cases)
     return system, feed, lnK, P
+
+
+def random_two_phase_batch(rng, liquid_share: float, cases: int, decades: float):
+    """:func:`random_phase_batch` with some species liquid, ln K +-20 (normal)."""
+    return random_phase_batch(
+        rng,
+        lambda rng, names: {n: "liquid" for n in names if rng.uniform() < liquid_share},
+        cases,
+        lambda rng, shape: rng.normal(0, 20, shape),
+        decades,
+    )
 
 
 @pytest.mark.parametrize("K", [0.5, 1.0, 1.9])
@@ -73,24 +85,6 @@ def test_random_two_phase_systems_converge_and_are_right() -> None:
 
 
 # --- an empty phase must be stable, and repaired cases must be honest -------------
-
-
-def gibbs(system, amounts: np.ndarray, lnK: np.ndarray, P: float) -> float:
-    """G/RT of amounts, with standard potentials g solving nu g = -ln K (any
-    solution gives the same differences between states of one feed)."""
-    from scipy.special import xlogy
-
-    g = -np.linalg.lstsq(system.stoich, lnK, rcond=None)[0]
-    phases = np.array(system.phases)
-    total = float(amounts @ g)
-    for phase in ("gas", "liquid"):
-        part = amounts[phases == phase]
-        size = part.sum()
-        if size > 0:
-            total += float(np.sum(xlogy(part, part / size)))
-            if phase == "gas":
-                total += size * np.log(P / system.P0)
-    return total
 
 
 def scipy_minimum(system, feed: np.ndarray, lnK: np.ndarray, P: float, rng) -> float:

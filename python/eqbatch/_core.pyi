@@ -16,11 +16,16 @@ class StoichiometryError(ValueError):
     'dependent', 'unbounded', 'empty', 'non-finite'."""
 
 class System:
-    def __init__(self, stoich: npt.NDArray[np.float64], phases: list[int], p0: float) -> None: ...
+    def __init__(self, stoich: npt.NDArray[np.float64], phases: list[int], p0: float) -> None:
+        """phases: 0 gas, 1 + k ideal solution k (1 the liquid), 255 a pure species."""
     @property
     def n_species(self) -> int: ...
     @property
     def n_reactions(self) -> int: ...
+    @property
+    def phase_index(self) -> list[int]: ...
+    @property
+    def n_phases(self) -> int: ...
     def solve(
         self,
         feed: npt.NDArray[np.float64],
@@ -37,7 +42,7 @@ class System:
             npt.NDArray[np.float64],
             npt.NDArray[np.uint8],
             npt.NDArray[np.uint32],
-            npt.NDArray[np.uint8],
+            npt.NDArray[np.uint64],
         ]
         | None = None,
     ) -> tuple[
@@ -45,7 +50,7 @@ class System:
         npt.NDArray[np.float64],
         npt.NDArray[np.uint8],
         npt.NDArray[np.uint32],
-        npt.NDArray[np.uint8],
+        npt.NDArray[np.uint64],
     ]: ...
     def mole_fractions(self, amounts: npt.NDArray[np.float64]) -> npt.NDArray[np.float64]: ...
     def sensitivities(
@@ -54,7 +59,7 @@ class System:
         pressure: npt.NDArray[np.float64],
         amounts: npt.NDArray[np.float64],
         status: npt.NDArray[np.uint8],
-        absent: npt.NDArray[np.uint8] | None = None,
+        absent: npt.NDArray[np.uint64] | None = None,
         threads: int | None = None,
         with_feed: bool = True,
     ) -> tuple[npt.NDArray[np.float64], npt.NDArray[np.float64], npt.NDArray[np.float64]]: ...

@@ -133,7 +133,7 @@ def adiabatic_solve(
     Tc = np.clip(np.where(bad, lo, T_in), lo, hi)
     amounts, extents = np.array(base.amounts), np.array(base.extents)
     status = np.array(base.status)
-    absent = np.array(base.absent) if base.absent is not None else np.zeros(n, dtype=np.uint8)
+    absent = np.array(base.absent) if base.absent is not None else np.zeros(n, dtype=np.uint64)
     lnK = np.array(base.lnK)
     f, df = np.full(n, np.nan), np.full(n, np.nan)
     with warnings.catch_warnings():
@@ -152,7 +152,7 @@ def adiabatic_solve(
                 r = solve(fr, T=Tr, P=pr, x0=start, **options)
             else:
                 r = solve(fr, lnK=system.lnK(Tr) + shift[rows], P=pr, x0=start, **options)
-            ab = r.absent if r.absent is not None else np.zeros(rows.size, dtype=np.uint8)
+            ab = r.absent if r.absent is not None else np.zeros(rows.size, dtype=np.uint64)
             fv, dfv = _residual_at(system, fr, pr, r.amounts, r.status, ab, Tr, H_in[rows], threads)
             return r.amounts, r.extents, r.status, r.iterations, ab, r.lnK, fv, dfv
 

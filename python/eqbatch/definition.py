@@ -28,7 +28,7 @@ from eqbatch.errors import (
     UnknownSpeciesError,
 )
 from eqbatch.kdata import as_lnk_data
-from eqbatch.spec import PHASES, KData, ReactionK, SystemSpec, compile_system
+from eqbatch.spec import MAX_SOLUTIONS, PHASES, KData, ReactionK, SystemSpec, compile_system, phase_key
 from eqbatch.speciesdata import (
     NASA7,
     CpPolynomial,
@@ -212,12 +212,19 @@ def _read_phases(
             raise UnknownSpeciesError(
                 f"phases: {name!r} is not a species of this system (species are {', '.join(species)})"
             )
-        key = str(phase).strip().lower()
-        if key not in PHASES:
+        key = phase_key(phase)
+        if key is None:
             raise SystemDefinitionError(
-                f"phase of {name!r} is {phase!r}; valid phases are {', '.join(PHASES)}"
+                f"phase of {name!r} is {phase!r}; valid phases are {', '.join(PHASES)} "
+                "and liquid:<name> (a further liquid solution, name of letters, digits and _)"
             )
         out[index[name]] = key
+    solutions = {p for p in out if p.startswith("liquid")}
+    if len(solutions) > MAX_SOLUTIONS:
+        raise SystemDefinitionError(
+            f"{len(solutions)} liquid solution phases ({', '.join(sorted(solutions))}); "
+            f"at most {MAX_SOLUTIONS} are supported"
+        )
     return tuple(out)
 
 

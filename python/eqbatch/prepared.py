@@ -73,7 +73,7 @@ class PreparedSolve:
             np.zeros((n, r)),
             np.zeros(n, dtype=np.uint8),
             np.zeros(n, dtype=np.uint32),
-            np.zeros(n, dtype=np.uint8),
+            np.zeros(n, dtype=np.uint64),
         )
         self._pressure = np.zeros(1)  # a float P of the fast path, written in place
         amounts, extents, status, iterations, absent = self._arrays

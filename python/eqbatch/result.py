@@ -11,11 +11,8 @@ import numpy as np
 from eqbatch import _core, outputs
 from eqbatch.columns import T_OUT, input_columns, output_columns
 from eqbatch.errors import CaseInputError
-from eqbatch.spec import PHASES, SystemSpec
+from eqbatch.spec import SystemSpec
 from eqbatch.status import CONVERGED_CODES, Status, status_words
-
-#: Phase names by bit of the core's mask of absent phases.
-PHASE_BITS = tuple(PHASES)
 
 #: Amounts at or below this are held at (or fell below) the core's float
 #: floor, the smallest amount it follows.
@@ -132,8 +129,9 @@ class EquilibriumResult:
         #: (N,) inlet temperature of an energy-balance solve (``adiabatic=True``
         #: or ``duty=``), K, else None.
         self.T_in: np.ndarray | None = None
-        #: (N,) uint8 mask of the phases found absent (and stable) at
-        #: equilibrium: bit 0 the gas, bit 1 the liquid (see ``absent_phases``).
+        #: (N,) uint64 mask of the phases found absent (and stable) at
+        #: equilibrium: bit ``k`` is phase ``k`` of ``system.phase_names`` (see
+        #: ``absent_phases`` and ``present``).
         self.absent: np.ndarray | None = None
         #: (N, R) bool, with ``approach=``: reactions held at zero extent
         #: because the feed is already within their approach of equilibrium.
@@ -383,13 +381,14 @@ class EquilibriumResult:
             text += f" after {count} iteration{'' if count == 1 else 's'}"
         feed = self.feed[case]
         absent = self.absent_phases(case)
+        names = self.system.phase_names
         zero = [
             name
             for k, name in enumerate(self.system.species)
             if feed[k] == 0
             and self.amounts[case, k] == 0
             and self.system._reactive[k]
-            and self.system.phases[k] not in absent
+            and names[self.system.phase_index[k]] not in absent
         ]
         for phase in absent:
             text += f"; the {phase} phase is absent (it would not form: it is stable empty)"
@@ -424,7 +423,7 @@ class EquilibriumResult:
         Returns
         -------
         list of str
-            ``[]``, ``["liquid"]`` or ``["gas"]``.
+            Names from ``system.phase_names`` (``"liquid"``, ``"C(solid)"``, ...).
 
         Examples
         --------
@@ -436,7 +435,67 @@ class EquilibriumResult:
         if self.absent is None:
             return []
         mask = int(self.absent[case])
-        return [name for bit, name in enumerate(PHASE_BITS) if mask >> bit & 1]
+        return [name for bit, name in enumerate(self.system.phase_names) if mask >> bit & 1]
+
+    @property
+    def phase_amounts(self) -> np.ndarray:
+        """(N, P) total amount of each phase (``system.phase_names``), mol; 0 for
+        a phase absent at equilibrium, NaN for invalid or infeasible cases.
+
+        Examples
+        --------
+        >>> import numpy as np
+        >>> from eqbatch import ReactionSystem
+        >>> system = ReactionSystem(["C", "CO2", "CO"], ["C + CO2 = 2 CO"], phases={"C": "solid"})
+        >>> res = system.solve([0.1, 1.0, 0.0], lnK=np.log(2.0), P=3.0)  # too little carbon
+        >>> res.phase_amounts.round(12).tolist(), res.present.tolist()
+        ([[1.1, 0.0]], [[True, False]])
+        """
+        index = self.system.phase_index
+        out = np.zeros((len(self), len(self.system.phase_names)))
+        np.add.at(out.T, index, self.amounts.T)
+        return out
+
+    @property
+    def present(self) -> np.ndarray:
+        """(N, P) bool: which phases (``system.phase_names``) hold material at
+        equilibrium (False for invalid or infeasible cases)."""
+        return self.phase_amounts > 0
+
+    @property
+    def activities(self) -> np.ndarray:
+        """(N, S) activity of each species at equilibrium: ``y P / P0`` in the
+        gas, ``x`` in a solution, 1 for a pure species that is present.
+
+        A species at zero gets the activity it would have in equilibrium with
+        the mixture, where the reactions fix it (``exp`` of the solution of
+        ``nu[:, zero] ln a = ln K - nu[:, rest] ln a_rest``): for an absent pure
+        species that is the figure practice quotes (the carbon activity), below
+        1 exactly when it cannot form. NaN where the reactions do not fix it
+        (a species no reaction with the present ones makes) and for invalid or
+        infeasible cases.
+
+        Examples
+        --------
+        >>> import numpy as np
+        >>> from eqbatch import ReactionSystem
+        >>> system = ReactionSystem(["C", "CO2", "CO"], ["C + CO2 = 2 CO"], phases={"C": "solid"})
+        >>> res = system.solve([0.0, 1.0, 1.0], lnK=np.log(0.55))  # Q = 0.5 < K: no carbon
+        >>> round(float(res.activities[0, 0]), 12)  # a_C = Q / K
+        0.909090909091
+        """
+        ln_a = self.system.ln_activities(self.amounts, self.P)
+        nu = self.system.stoich
+        # the unknowns: species of phases holding nothing (ln_activities: NaN)
+        unknown = np.isnan(ln_a) & np.isfinite(self.amounts).all(axis=1)[:, None]
+        rows = np.flatnonzero(unknown.any(axis=1))
+        if rows.size:
+            patterns, which = np.unique(unknown[rows], axis=0, return_inverse=True)
+            for k, pattern in enumerate(patterns):
+                cases = rows[which.reshape(-1) == k]
+                ln_a[np.ix_(cases, pattern)] = _implied_ln_a(nu, ln_a[cases], self.lnK[cases], pattern)
+        with np.errstate(over="ignore"):
+            return np.exp(ln_a)
 
     def summary(self) -> str:
         """Counts of cases by status, e.g. ``'998 converged, 2 invalid input'``.
@@ -586,13 +645,11 @@ class EquilibriumResult:
         return self.system.dlnK_dT(self.T)
 
     def _fraction_derivative(self, dn: np.ndarray) -> np.ndarray:
-        phases = np.array(self.system.phases)
+        index = self.system.phase_index
         out = np.empty_like(dn)
         n = self.amounts
-        for phase in PHASE_BITS:
-            mask = phases == phase
-            if not mask.any():
-                continue
+        for phase in np.unique(index):
+            mask = index == phase
             total = n[:, mask].sum(axis=1)
             d_total = dn[:, mask].sum(axis=1)
             shape = (-1,) + (1,) * (dn.ndim - 2)
@@ -749,3 +806,27 @@ class EnergyBalance:
         # feed: df/dn0_k = sum_i h_out_i dn_i/dn0_k - h_in_k
         dT = -(np.einsum("ns,nsk->nk", self.h_out, dn) - self.h_in) / df_dT[:, None]
         return dn + dn_dT[:, :, None] * dT[:, None, :], dT
+
+
+def _implied_ln_a(nu: np.ndarray, ln_a: np.ndarray, lnK: np.ndarray, unknown: np.ndarray) -> np.ndarray:
+    """(N, U) ln a of the ``unknown`` species (columns) of cases whose other
+    species have ``ln_a`` (N, S; -inf at zero): from the reactions whose other
+    species are all present (least squares) where those fix every unknown,
+    else from a reaction in which it is the only unknown (which may give
+    +-inf), else NaN."""
+    cols = np.flatnonzero(unknown)
+    known_cols = np.flatnonzero(~unknown)
+    with np.errstate(invalid="ignore"):
+        known = ln_a[:, known_cols] @ nu[:, known_cols].T  # (N, R), -inf where a zero takes part
+    rhs = lnK - known
+    finite = np.isfinite(rhs).all(axis=0)
+    a = nu[np.ix_(finite, cols)]
+    if finite.any() and np.linalg.matrix_rank(a) == cols.size:
+        return np.linalg.lstsq(a, rhs[:, finite].T, rcond=None)[0].T
+    out = np.full((ln_a.shape[0], cols.size), np.nan)
+    for c, i in enumerate(cols):
+        alone = (nu[:, i] != 0) & (np.count_nonzero(nu[:, cols], axis=1) == 1)
+        for j in np.flatnonzero(alone & finite) if (alone & finite).any() else np.flatnonzero(alone)[:1]:
+            out[:, c] = rhs[:, j] / nu[j, i]
+            break
+    return out

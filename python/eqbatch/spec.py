@@ -26,9 +26,46 @@ from eqbatch.errors import CaseInputError, UnknownSpeciesError
 from eqbatch.kdata import LnKFunction, quiet_ranges, report_extrapolation
 from eqbatch.speciesdata import R, SpeciesData, ThermoLnK
 
-#: Phase names accepted in ``phases=`` and system files, with their codes in
-#: the core (bit ``code`` of a result's ``absent`` mask is that phase).
-PHASES = {"gas": 0, "liquid": 1}
+#: Phase kinds accepted in ``phases=`` and system files: the ideal-gas
+#: mixture, the default ideal liquid solution (``"liquid:<name>"`` adds
+#: further solutions), and pure condensed species (each a phase of its own,
+#: activity 1 while present).
+PHASES = ("gas", "liquid", "solid", "pure_liquid")
+#: Kinds that make a species a phase of its own.
+PURE_KINDS = ("solid", "pure_liquid")
+#: The core's phase code of a pure condensed species.
+_PURE_CODE = 255
+#: Most solution phases the core takes (the default liquid and six named).
+MAX_SOLUTIONS = 7
+
+
+def phase_key(phase: str) -> str | None:
+    """The canonical form of a phase given by a user (lower case, stripped;
+    ``"liquid:<name>"`` with a name of letters, digits and underscores), or
+    None if it is not one.
+
+    Examples
+    --------
+    >>> phase_key(" Solid"), phase_key("liquid:Organic"), phase_key("plasma")
+    ('solid', 'liquid:organic', None)
+    """
+    key = str(phase).strip().lower()
+    if key in PHASES:
+        return key
+    kind, _, name = key.partition(":")
+    if kind == "liquid" and name and name.replace("_", "a").isalnum() and name.isascii():
+        return key
+    return None
+
+
+def _phase_codes(phases: Sequence[str]) -> list[int]:
+    """The core's code of each species' phase: 0 the gas, 1 the liquid,
+    2.. the named solutions (in sorted order of their names), 255 a pure
+    species."""
+    named = sorted({p for p in phases if p.startswith("liquid:")})
+    codes = {"gas": 0, "liquid": 1, **{name: 2 + k for k, name in enumerate(named)}}
+    return [_PURE_CODE if p in PURE_KINDS else codes[p] for p in phases]
+
 
 #: K data a reaction can be given: a constant ln K, or ln K as a function of T.
 KData = float | LnKFunction
@@ -52,7 +89,7 @@ def compile_system(stoich: np.ndarray, phases: Sequence[str], P0: float) -> _cor
         check; :func:`eqbatch.definition.define` turns it into a
         :class:`~eqbatch.SystemDefinitionError` naming the reactions).
     """
-    return _core.System(np.ascontiguousarray(stoich), [PHASES[p] for p in phases], P0)
+    return _core.System(np.ascontiguousarray(stoich), _phase_codes(phases), P0)
 
 
 def bad_temperatures(T: np.ndarray) -> np.ndarray | None:
@@ -84,7 +121,8 @@ class SystemSpec:
     stoich : ndarray, shape (R, S)
         Stoichiometric coefficients, products positive (read-only).
     phases : tuple of str
-        Phase of each species (``"gas"`` or ``"liquid"``).
+        Phase of each species: ``"gas"``, ``"liquid"``, ``"liquid:<name>"``,
+        ``"solid"`` or ``"pure_liquid"`` (see :data:`PHASES`).
     P0 : float
         Standard-state pressure of the K data, bar.
     formulas : dict
@@ -146,6 +184,56 @@ class SystemSpec:
     def _engine(self) -> _core.System:
         """The compiled system the core solves."""
         return compile_system(self.stoich, self.phases, self.P0)
+
+    @cached_property
+    def phase_index(self) -> np.ndarray:
+        """(S,) index of each species' phase: 0 the gas, then the solution
+        phases (``"liquid"``, then ``"liquid:<name>"`` in sorted order), then
+        one per pure condensed species, in species order (bit ``k`` of a
+        result's ``absent`` mask is phase ``k``)."""
+        out = np.array(self._engine.phase_index, dtype=np.intp)
+        out.setflags(write=False)
+        return out
+
+    @cached_property
+    def phase_names(self) -> tuple[str, ...]:
+        """Name of each phase, by :attr:`phase_index`: ``"gas"``, ``"liquid"``,
+        ``"liquid:<name>"``, and ``"<species>(solid)"`` or
+        ``"<species>(pure_liquid)"`` for a pure species.
+
+        Examples
+        --------
+        >>> from eqbatch import ReactionSystem
+        >>> system = ReactionSystem(["C", "CO2", "CO"], ["C + CO2 = 2 CO"], phases={"C": "solid"})
+        >>> system.phase_names
+        ('gas', 'C(solid)')
+        """
+        names = ["gas"] + [""] * (self._engine.n_phases - 1)
+        for name, phase, k in zip(self.species, self.phases, self.phase_index):
+            names[k] = f"{name}({phase})" if phase in PURE_KINDS else phase
+        return tuple(names)
+
+    def ln_activities(self, amounts: np.ndarray, P: np.ndarray) -> np.ndarray:
+        """(N, S) ln of each species' activity at ``amounts`` (N, S) and
+        pressures ``P`` (N,), bar: ``ln(y P / P0)`` in the gas, ``ln x`` in a
+        solution, 0 for a pure species that is present; -inf for a species
+        at zero in a phase that holds something, NaN where its phase is empty
+        (an absent pure species included) or the amounts are NaN."""
+        amounts = np.asarray(amounts, dtype=float)
+        out = np.empty_like(amounts)
+        index = self.phase_index
+        with np.errstate(divide="ignore", invalid="ignore"):
+            for k in np.unique(index):
+                mask = index == k
+                part = amounts[:, mask]
+                if self.phases[int(np.flatnonzero(mask)[0])] in PURE_KINDS:
+                    out[:, mask] = np.where(part > 0, 0.0, np.nan)
+                    continue
+                total = part.sum(axis=1, keepdims=True)
+                out[:, mask] = np.log(part) - np.log(np.where(total > 0, total, np.nan))
+                if k == 0:
+                    out[:, mask] += np.log(np.asarray(P, dtype=float) / self.P0).reshape(-1, 1)
+        return out
 
     @cached_property
     def _thermo_table(self) -> tuple[np.ndarray, _core.ThermoTable] | None:

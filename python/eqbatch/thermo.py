@@ -23,7 +23,7 @@ import numpy as np
 from eqbatch.approach import approach_temperatures, check_approach
 from eqbatch.compounds import chemicals_data
 from eqbatch.equations import element_matrix, independent_reactions
-from eqbatch.spec import PHASES, SystemSpec
+from eqbatch.spec import SystemSpec
 from eqbatch.speciesdata import (
     NASA7,
     T_REF,
@@ -106,16 +106,7 @@ def equilibrium_temperature(
     amounts = np.atleast_2d(np.asarray(amounts, dtype=float))
     n, S = amounts.shape
     P = np.full(n, system.P0) if P is None else np.broadcast_to(np.asarray(P, dtype=float), (n,))
-    phases = np.array(system.phases)
-    ln_a = np.zeros((n, S))
-    with np.errstate(divide="ignore"):
-        for phase in PHASES:
-            mask = phases == phase
-            if mask.any():
-                total = amounts[:, mask].sum(axis=1, keepdims=True)
-                ln_a[:, mask] = np.log(amounts[:, mask]) - np.log(total)
-                if phase == "gas":
-                    ln_a[:, mask] += np.log(P / system.P0)[:, None]
+    ln_a = system.ln_activities(amounts, P)
     out = np.full((n, system.n_reactions), np.nan)
     for j, label in enumerate(system.labels):
         data = system.lnK_data.get(label)

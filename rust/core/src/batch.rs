@@ -12,24 +12,26 @@ use std::sync::{Arc, Mutex};
 
 use rayon::prelude::*;
 
+use crate::condensed::ReducedRun;
 use crate::error::CoreError;
 use crate::face::{analyse, Face, FaceError};
 use crate::lanes::{lane_kernel_for, LaneCase, LaneKernel};
 use crate::presence;
 use crate::solver::{kernel_for, solve_on_face, Case, FixedKernel, SolveOptions, Workspace};
 use crate::status::Status;
-use crate::system::{Phase, System, N_PHASES};
+use crate::system::{System, MAX_PHASES};
 
 /// Mole fraction of each species within its own phase, from one case's
 /// `amounts` (S): `n_i / N_phase`, 0 in an empty phase, NaN where the amounts
 /// are NaN. The one definition the batch outputs and the Python results use.
 pub fn mole_fractions(system: &System, amounts: &[f64], fractions: &mut [f64]) {
-    let mut totals = [0.0; N_PHASES];
-    for (i, phase) in system.phases().iter().enumerate() {
-        totals[phase.index()] += amounts[i];
+    let mut totals = [0.0; MAX_PHASES];
+    let s = system.n_species();
+    for i in 0..s {
+        totals[system.phase_index(i)] += amounts[i];
     }
-    for (i, phase) in system.phases().iter().enumerate() {
-        let total = totals[phase.index()];
+    for i in 0..s {
+        let total = totals[system.phase_index(i)];
         fractions[i] = if total > 0.0 {
             amounts[i] / total
         } else if total.is_nan() {
@@ -80,7 +82,7 @@ pub struct BatchOutputs<'a> {
     pub iterations: &'a mut [u32],
     /// Per case, the phases found absent and stable ([`crate::presence`]),
     /// one bit per phase index ([`crate::presence::phase_bit`]), when wanted.
-    pub absent: Option<&'a mut [u8]>,
+    pub absent: Option<&'a mut [u64]>,
 }
 
 /// Where a broadcastable input's row for case `k` starts.
@@ -304,7 +306,20 @@ pub fn solve_batch(
         Some(pool) => pool.install(|| faces_for(system, inputs, rows.feed, true)),
         None => faces_for(system, inputs, rows.feed, !serial),
     };
-    let plan = BatchPlan::new(system, inputs, rows, options, faces, threads);
+    // Systems with pure species: every case on the system without them
+    // first (crate::condensed), in the same pool.
+    let reduced = match system.reduced() {
+        Some(reduced) if system.has_pure() => {
+            let run = || ReducedRun::new(reduced, system, inputs, options, threads);
+            Some(match &pool {
+                Some(pool) => pool.install(run)?,
+                None => run()?,
+            })
+        }
+        _ => None,
+    };
+    let mut plan = BatchPlan::new(system, inputs, rows, options, faces, threads);
+    plan.reduced = reduced;
     let chunks = Chunk::split(outputs, plan.chunk_len, plan.s, plan.r);
     if serial {
         let mut state = ChunkState::new(system);
@@ -398,6 +413,8 @@ struct BatchPlan<'a> {
     chunk_len: usize,
     s: usize,
     r: usize,
+    /// With pure species: every case solved without them first.
+    reduced: Option<ReducedRun<'a>>,
 }
 
 impl<'a> BatchPlan<'a> {
@@ -411,7 +428,7 @@ impl<'a> BatchPlan<'a> {
         threads: Option<usize>,
     ) -> Self {
         let (n, s, r) = (inputs.n_cases, system.n_species(), system.n_reactions());
-        let gas_only = system.phases().iter().all(|&p| p == Phase::Gas);
+        let gas_only = system.gas_only();
         let kernel = kernel_for(r, s, gas_only);
         // All-gas small systems solve their eligible cases in vector lanes
         // (chained starts, which need the case before, go one at a time).
@@ -439,6 +456,7 @@ impl<'a> BatchPlan<'a> {
             chunk_len,
             s,
             r,
+            reduced: None,
         }
     }
 
@@ -460,7 +478,7 @@ impl<'a> BatchPlan<'a> {
     /// The rest of a solved case's outputs: NaN amounts and extents for a
     /// bad case, the absent-phase mask and the mole fractions (when wanted).
     #[inline(always)]
-    fn finish(&self, out: CaseOut, st: Status, absent: u8) {
+    fn finish(&self, out: CaseOut, st: Status, absent: u64) {
         let bad = st == Status::InvalidInput || st == Status::Infeasible;
         if bad {
             out.amounts.fill(f64::NAN);
@@ -520,7 +538,7 @@ impl<'a> BatchPlan<'a> {
                     pressure,
                     start,
                     self.options,
-                    self.kernel,
+                    (self.kernel, None),
                     case.amounts,
                     case.extents,
                 );
@@ -584,6 +602,10 @@ impl<'a> BatchPlan<'a> {
             } else {
                 start
             };
+            let reduced = self
+                .reduced
+                .as_ref()
+                .map(|run| (run, index * self.chunk_len + local));
             let (st, it, absent) = ws.solve(
                 self.system,
                 &self.faces,
@@ -592,7 +614,7 @@ impl<'a> BatchPlan<'a> {
                 pressure,
                 start,
                 self.options,
-                self.kernel,
+                (self.kernel, reduced),
                 case.amounts,
                 case.extents,
             );
@@ -697,7 +719,7 @@ struct ChunkOut<'w> {
     amounts: &'w mut [f64],
     extents: &'w mut [f64],
     fractions: Option<&'w mut [f64]>,
-    absent: Option<&'w mut [u8]>,
+    absent: Option<&'w mut [u64]>,
     status: &'w mut [u8],
     iterations: &'w mut [u32],
 }
@@ -707,7 +729,7 @@ struct CaseOut<'c> {
     amounts: &'c mut [f64],
     extents: &'c mut [f64],
     fractions: Option<&'c mut [f64]>,
-    absent: Option<&'c mut u8>,
+    absent: Option<&'c mut u64>,
     status: &'c mut u8,
     iterations: &'c mut u32,
 }
@@ -721,7 +743,7 @@ impl<'w> Chunk<'w> {
             Some(y) => y.chunks_mut(len * s).map(Some).collect(),
             None => (0..n_chunks).map(|_| None).collect(),
         };
-        let mut absent: Vec<Option<&'w mut [u8]>> = match outputs.absent.as_deref_mut() {
+        let mut absent: Vec<Option<&'w mut [u64]>> = match outputs.absent.as_deref_mut() {
             Some(mask) => mask.chunks_mut(len).map(Some).collect(),
             None => (0..n_chunks).map(|_| None).collect(),
         };
@@ -800,12 +822,18 @@ impl ChunkState {
         pressure: f64,
         start: Option<&[f64]>,
         options: &SolveOptions,
-        kernel: Option<FixedKernel>,
+        (kernel, reduced): (Option<FixedKernel>, Option<(&ReducedRun, usize)>),
         amounts: &mut [f64],
         extents: &mut [f64],
-    ) -> (Status, u32, u8) {
+    ) -> (Status, u32, u64) {
         if !case_is_valid(feed, ln_k, pressure) {
             return (Status::InvalidInput, 0, 0);
+        }
+        // (a case the system without its pure species settles needs no face)
+        if let Some((run, index)) = reduced {
+            if let Some(outcome) = run.take(system, index, feed, ln_k, pressure, amounts, extents) {
+                return outcome;
+            }
         }
         let Some(Ok(face)) = self.faces.face(faces, feed) else {
             return (Status::Infeasible, 0, 0);
@@ -818,19 +846,22 @@ impl ChunkState {
             start,
         };
         let workspace = self.workspace.get_or_insert_with(|| Workspace::new(system));
+        if system.has_pure() {
+            let absent = presence::initially_absent(system, feed);
+            let found = presence::decide_phases(
+                system, &case, options, workspace, amounts, extents, absent,
+            );
+            return (found.status, found.iterations, found.absent);
+        }
         let (status, iterations) =
             solve_on_face(system, &case, options, kernel, workspace, amounts, extents);
         if !presence::worth_retrying(system, status) {
             return (status, iterations, 0);
         }
-        match presence::solve_with_a_phase_absent(
+        match presence::retry_with_a_phase_absent(
             system, &case, options, workspace, amounts, extents,
         ) {
-            Some(repair) => (
-                repair.status,
-                iterations + repair.iterations,
-                repair.absent.map_or(0, presence::phase_bit),
-            ),
+            Some(found) => (found.status, iterations + found.iterations, found.absent),
             None => (status, iterations, 0),
         }
     }
@@ -955,7 +986,14 @@ mod tests {
         const POISON: u64 = 0x7ff8_dead_beef_0001; // a NaN no solve produces
         let gas = reforming();
         let nu = vec![-1.0, 1.0]; // A(g) = B(l)
-        let two_phase = System::new(nu, 1, 2, vec![Phase::Gas, Phase::Liquid], 1.0).unwrap();
+        let two_phase = System::new(
+            nu,
+            1,
+            2,
+            vec![crate::system::Phase::Gas, crate::system::Phase::Solution(0)],
+            1.0,
+        )
+        .unwrap();
         for sys in [&gas, &two_phase] {
             let (s, r) = (sys.n_species(), sys.n_reactions());
             let n = 1000;

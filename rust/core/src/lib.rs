@@ -23,6 +23,7 @@
 
 pub mod basis;
 pub mod batch;
+pub mod condensed;
 pub mod error;
 pub mod face;
 pub mod lanes;

@@ -1,167 +1,417 @@
-//! Phases that are absent at equilibrium.
+//! Which phases are present at equilibrium.
 //!
-//! With a gas and a liquid solution, the minimum of the Gibbs function can
-//! lie where one phase holds no material at all: a condensate above its dew
-//! point, liquid products that cannot coexist with their gas. The Newton
-//! iteration then drives that phase towards zero without meeting the
-//! equilibrium conditions, and the case ends stalled or at the iteration
-//! limit. For such a case each phase is tried absent in turn:
+//! A phase may hold no material at all at the minimum of the Gibbs
+//! function: a condensate above its dew point, liquid products that cannot
+//! coexist with their gas, carbon where the gas is not carburising enough,
+//! a carbonate above its decomposition temperature. A pure condensed species
+//! (a phase of one species, activity 1) is the common case: its Gibbs
+//! function is linear in its amount, so nothing but the constraint
+//! `n >= 0` decides whether it is there. The phase set is decided per case
+//! by an active-set search over phases ([`decide_phases`]):
 //!
-//! 1. its species' feed is moved onto the others by the reactions (a linear
-//!    programme; impossible if the phase holds something no reaction takes);
-//! 2. the reactions are restricted to the face that keeps the phase's
-//!    species at zero ([`crate::face::analyse_with`]) and the case is solved
-//!    there with the caller's tolerance and iteration limit (each attempt
-//!    gets `max_iter`);
-//! 3. the absent phase is accepted only if it is stable: no composition of it
-//!    that the reactions could form from the present species lowers the
-//!    Gibbs function ([`implied_fraction_sum`] at most one), the
-//!    tangent-plane condition for an ideal solution (M. L. Michelsen, "The
-//!    isothermal flash problem. Part I. Stability", Fluid Phase Equilibria 9,
-//!    1982) written in the reactions' terms.
+//! 1. the phases held absent have their species' feed moved onto the
+//!    others by the reactions (a linear programme, [`shift_out`];
+//!    impossible if a phase holds something no reaction takes), the
+//!    reactions are restricted to the face that keeps those species at zero
+//!    ([`crate::face::analyse_with`], memoised per pattern) and the case is
+//!    solved there (each attempt gets `max_iter`);
+//! 2. a converged attempt is the equilibrium if every absent phase is
+//!    stable empty: no composition of it that the reactions could form from
+//!    the present species lowers the Gibbs function ([`implied_fraction_sum`]
+//!    at most one: for a pure species, its activity in equilibrium with the
+//!    mixture at most one), the tangent-plane condition for ideal phases
+//!    (M. L. Michelsen, "The isothermal flash problem. Part I. Stability",
+//!    Fluid Phase Equilibria 9, 1982) written in the reactions' terms;
+//!    otherwise the least stable absent phase is introduced (a little of it,
+//!    in its most favourable composition, added to the equilibrium found)
+//!    and the case solved again;
+//! 3. an attempt that stalls because a present phase is leaving (a pure
+//!    species below a 1e-12 share of the feed and still shrinking, see
+//!    [`SolveOptions::drop_vanishing`], or a mixture whose total fell below
+//!    a 1e-6 share) is repeated with that phase absent.
 //!
-//! Otherwise the first status stands: a case is never called converged with
-//! an absent phase that would form.
+//! Phase sets already tried are not tried again, and the search ends after
+//! `2 P + 2` attempts (P phases) with the last attempt's status: a case is
+//! never called converged with an absent phase that would form. Pure
+//! species without feed start absent (the common case: carbon that does not
+//! form costs one solve and one stability test); a system without pure
+//! species first solves with every phase present and searches only when
+//! that stalls ([`worth_retrying`]).
 
 use crate::face::{analyse_with, Face};
 use crate::linalg::{null_space, particular_solution, solve_spd_scaled};
 use crate::lp::{maximize, LpOutcome};
-use crate::solver::{solve_case, Case, SolveOptions, Workspace};
+use crate::solver::{solve_case, Case, SolveOptions, Workspace, PURE_VANISHING};
 use crate::status::Status;
-use crate::system::{Phase, System};
+use crate::system::System;
 
 /// Feed entries below this (relative to the feed's total) are zero after a
 /// shift by the linear programme (its own round-off).
 const SHIFT_ROUND_OFF: f64 = 1e-13;
 /// Slack of the stability test (sum of implied mole fractions).
 const STABLE_SLACK: f64 = 1e-9;
+/// A mixture phase whose total is below this share of the feed when a solve
+/// stalls is taken to be leaving the equilibrium.
+const MIXTURE_VANISHING: f64 = 1e-6;
 
-/// Phases tried absent, in this order: a condensate that should not form is
-/// the common case, a gas that should vanish the rarer one.
-const ORDER: [Phase; 2] = [Phase::Liquid, Phase::Gas];
-
-/// A case solved again after its first attempt stalled.
-pub struct Repair {
+/// The phase set a case was solved with and how it ended.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub struct Decided {
     pub status: Status,
-    /// Newton iterations of the second solve.
+    /// Newton iterations of every attempt.
     pub iterations: u32,
-    /// The phase found absent and stable; `None` where the phase turned out
-    /// to belong at equilibrium and the case was solved with it formed.
-    pub absent: Option<Phase>,
+    /// Bit `k` set: phase `k` ([`System::phase_index`]) is absent (and
+    /// stable empty, when the status is a converged one).
+    pub absent: u64,
 }
 
-/// Bit of `phase` in the per-case mask of absent phases.
-pub fn phase_bit(phase: Phase) -> u8 {
-    1 << phase.index()
+/// Bit of phase `phase` in a mask of absent phases.
+pub fn phase_bit(phase: usize) -> u64 {
+    1 << phase
 }
 
-/// Whether a case that ended `status` on `system` is worth retrying with a
-/// phase absent (a system with more than one phase, a case that stalled or
-/// ran out of iterations).
+/// Per species, whether its phase is in the mask `absent`.
+fn species_of(system: &System, absent: u64) -> Vec<bool> {
+    (0..system.n_species())
+        .map(|i| absent & phase_bit(system.phase_index(i)) != 0)
+        .collect()
+}
+
+/// Whether a case of a system without pure species that ended `status`
+/// with every phase present is worth a phase-set search (species in more
+/// than one phase; the case stalled or ran out of iterations).
 pub fn worth_retrying(system: &System, status: Status) -> bool {
     matches!(status, Status::Stalled | Status::IterationLimit)
-        && system.phases().iter().any(|&p| p != system.phases()[0])
+        && (1..system.n_species()).any(|i| system.phase_index(i) != system.phase_index(0))
 }
 
-/// Try each phase absent (see the module docs) for `case` (its face and
-/// start are those of the first attempt, not used here); on success the
-/// amounts and extents are written and the outcome returned, otherwise the
-/// outputs are left as they were.
-pub fn solve_with_a_phase_absent(
+/// The phases a case starts the search with held absent: the pure species
+/// that are not fed.
+pub fn initially_absent(system: &System, feed: &[f64]) -> u64 {
+    let mut mask = 0;
+    for (i, &n) in feed.iter().enumerate() {
+        if system.is_pure(i) && system.is_reactive(i) && n <= 0.0 {
+            mask |= phase_bit(system.phase_index(i));
+        }
+    }
+    mask
+}
+
+/// For a case that stalled with every phase present: try each phase absent
+/// first (solutions, then the gas: a condensate that should not form is the
+/// common case) and search from there ([`decide_phases`]). `None` when no
+/// attempt converged (the outputs are then left as they were).
+pub fn retry_with_a_phase_absent(
     system: &System,
     case: &Case,
     options: &SolveOptions,
     ws: &mut Workspace,
     amounts: &mut [f64],
     extents: &mut [f64],
-) -> Option<Repair> {
-    let Case {
-        feed,
-        ln_k,
-        pressure,
-        ..
-    } = *case;
+) -> Option<Decided> {
     let (s, r) = (system.n_species(), system.n_reactions());
-    // The caller's options for this attempt too (`max_iter` bounds each
-    // attempt: a case that ran out of iterations because a phase was
-    // vanishing slowly must still be able to find it absent).
-    let budget = SolveOptions {
-        chain: false,
-        ..*options
-    };
-    let mut trial_amounts = vec![0.0; s];
-    let mut trial_extents = vec![0.0; r];
-    for phase in ORDER {
-        let absent: Vec<bool> = system.phases().iter().map(|&p| p == phase).collect();
-        if !absent.iter().any(|&a| a) || absent.iter().all(|&a| a) {
+    let (mut n, mut xi) = (vec![0.0; s], vec![0.0; r]);
+    let mut iterations = 0;
+    let order = (1..system.n_phases()).chain(std::iter::once(0));
+    for phase in order {
+        let members = system.in_phase(phase);
+        if !members.iter().any(|&m| m) || members.iter().all(|&m| m) {
             continue;
         }
-        let Some((shift, shifted)) = shift_out(system, feed, &absent) else {
-            continue;
-        };
-        let zero: Vec<bool> = shifted.iter().map(|&v| v <= 0.0).collect();
-        let Ok(face) = analyse_with(system, &zero, &absent) else {
-            continue;
-        };
-        let (status, iterations) = if face.dim == 0 {
-            trial_amounts.copy_from_slice(&shifted);
-            trial_extents.fill(0.0);
-            (Status::Converged, 0)
-        } else {
-            let case = Case {
-                face: &face,
-                feed: &shifted,
-                ln_k,
-                pressure,
-                start: None,
-            };
-            solve_case(
-                system,
-                &case,
-                &budget,
-                ws,
-                &mut trial_amounts,
-                &mut trial_extents,
-            )
-        };
-        if !status.is_converged() {
-            continue;
-        }
-        for j in 0..r {
-            trial_extents[j] += shift[j];
-        }
-        let implied = implied_phase(system, &face, &trial_amounts, ln_k, pressure, &absent);
-        if implied.sum <= 1.0 + STABLE_SLACK {
-            amounts.copy_from_slice(&trial_amounts);
-            extents.copy_from_slice(&trial_extents);
-            return Some(Repair {
-                status,
+        let found = decide_phases(system, case, options, ws, &mut n, &mut xi, phase_bit(phase));
+        iterations += found.iterations;
+        if found.status.is_converged() {
+            amounts.copy_from_slice(&n);
+            extents.copy_from_slice(&xi);
+            return Some(Decided {
                 iterations,
-                absent: Some(phase),
-            });
-        }
-        // The phase would form: the first attempt lost it on the way (a whole
-        // phase shrinking to the float floor is where Newton's steps on the
-        // straight line stall). Start again from the equilibrium without it,
-        // plus a little of it in the composition the stability test found
-        // most favourable (as flash calculations introduce a new phase).
-        if let Some(more) = introduce(
-            system,
-            case,
-            &budget,
-            ws,
-            &trial_extents,
-            &implied,
-            (amounts, extents),
-        ) {
-            return Some(Repair {
-                status: more.0,
-                iterations: iterations + more.1,
-                absent: None,
+                ..found
             });
         }
     }
     None
+}
+
+/// The active-set search of the module docs for `case` (its face is that
+/// of the feed's zero pattern; its start is not used), from the phases in
+/// `absent`; where it fails, every phase set in turn (at most
+/// [`ENUMERATED_PHASES`] phases with species). Always writes `amounts` and
+/// `extents`: those of the converged attempt, else of the last one (NaN if
+/// no attempt could be made).
+#[allow(clippy::too_many_arguments)]
+pub fn decide_phases(
+    system: &System,
+    case: &Case,
+    options: &SolveOptions,
+    ws: &mut Workspace,
+    amounts: &mut [f64],
+    extents: &mut [f64],
+    mut absent: u64,
+) -> Decided {
+    let budget = SolveOptions {
+        chain: false,
+        drop_vanishing: true,
+        ..*options
+    };
+    let feed_total: f64 = case.feed.iter().sum();
+    let mut tried: Vec<u64> = Vec::new();
+    let mut start: Option<Vec<f64>> = None;
+    let mut iterations = 0;
+    let mut last = Status::Stalled;
+    let mut written = false;
+    for _ in 0..2 * system.n_phases() + 2 {
+        if tried.contains(&absent) && start.is_none() {
+            break;
+        }
+        tried.push(absent);
+        let Some((status, its, face)) = solve_with_absent(
+            system,
+            case,
+            &budget,
+            ws,
+            absent,
+            start.as_deref(),
+            amounts,
+            extents,
+        ) else {
+            break; // this set cannot be emptied: no candidate
+        };
+        written = true;
+        iterations += its;
+        last = status;
+        start = None;
+        if status.is_converged() {
+            match instability(system, case, &face, amounts, absent) {
+                None => {
+                    return Decided {
+                        status,
+                        iterations,
+                        absent,
+                    }
+                }
+                Some((phase, implied)) => {
+                    absent &= !phase_bit(phase);
+                    // (without a start inside the new face, the solve starts
+                    // from its own interior point)
+                    start = implied.and_then(|implied| {
+                        introduction(
+                            system,
+                            case.feed,
+                            extents,
+                            &implied,
+                            &species_of(system, absent),
+                        )
+                    });
+                }
+            }
+            continue;
+        }
+        // Stalled: a present phase is leaving. The smallest first (a phase
+        // whose total fell below its vanishing share is certainly leaving;
+        // a whole phase that the reactions empty, a gas of one species
+        // turning into a solid, stalls while still large), skipping sets
+        // already tried.
+        let mut totals = vec![0.0; system.n_phases()];
+        for i in 0..system.n_species() {
+            totals[system.phase_index(i)] += amounts[i];
+        }
+        let mut candidates: Vec<(f64, usize)> = (0..system.n_phases())
+            .filter(|&phase| {
+                absent & phase_bit(phase) == 0 && system.in_phase(phase).iter().any(|&m| m)
+            })
+            .map(|phase| {
+                let share = if phase < system.n_mixtures() {
+                    MIXTURE_VANISHING
+                } else {
+                    10.0 * PURE_VANISHING
+                };
+                // (vanishing ones sort first, by how far below their share)
+                (totals[phase] / (share * feed_total), phase)
+            })
+            .collect();
+        candidates.sort_by(|a, b| a.0.total_cmp(&b.0));
+        let Some(&(_, phase)) = candidates
+            .iter()
+            .find(|&&(_, phase)| !tried.contains(&(absent | phase_bit(phase))))
+        else {
+            break;
+        };
+        absent |= phase_bit(phase);
+    }
+    // Every phase set not tried yet (or tried only with vanishing pure
+    // species dropped), fewest absent phases first: the first
+    // that converges with every absent phase stable is the equilibrium (the
+    // Gibbs function is convex: a stable point is its minimum).
+    let phases: Vec<usize> = (0..system.n_phases())
+        .filter(|&phase| system.in_phase(phase).iter().any(|&m| m))
+        .collect();
+    if phases.len() <= ENUMERATED_PHASES {
+        let mut sets: Vec<u64> = (0..1u64 << phases.len())
+            .map(|bits| {
+                (0..phases.len())
+                    .filter(|&k| bits >> k & 1 != 0)
+                    .fold(0, |mask, k| mask | phase_bit(phases[k]))
+            })
+            .collect();
+        sets.sort_by_key(|set| set.count_ones());
+        // (pure species are followed down to any amount here: one present
+        // in a trace, made only with a trace product, is no vanishing one)
+        let patient = SolveOptions {
+            drop_vanishing: false,
+            ..budget
+        };
+        for set in sets {
+            let Some((status, its, face)) =
+                solve_with_absent(system, case, &patient, ws, set, None, amounts, extents)
+            else {
+                continue;
+            };
+            written = true;
+            iterations += its;
+            last = status;
+            absent = set;
+            if status.is_converged() && instability(system, case, &face, amounts, set).is_none() {
+                return Decided {
+                    status,
+                    iterations,
+                    absent,
+                };
+            }
+        }
+    }
+    if !written {
+        amounts.fill(f64::NAN);
+        extents.fill(f64::NAN);
+    }
+    Decided {
+        status: if last.is_converged() {
+            Status::Stalled
+        } else {
+            last
+        },
+        iterations,
+        absent,
+    }
+}
+
+/// Phases with species beyond which a case whose active-set search failed
+/// is not solved for every phase set (2^P solves).
+const ENUMERATED_PHASES: usize = 8;
+
+/// Why the equilibrium found with the phases of `absent` held empty (on
+/// `face`) is not the equilibrium: an absent phase that would form, and
+/// what the stability test found for it (`None` for a phase needed because
+/// a species the feed can make is starved without it); `None` if every
+/// absent phase is stable empty.
+fn instability(
+    system: &System,
+    case: &Case,
+    face: &Face,
+    amounts: &[f64],
+    absent: u64,
+) -> Option<(usize, Option<Implied>)> {
+    // A species the feed can make that holding these phases absent keeps at
+    // zero: a phase that forms with it must be present (its chemical
+    // potential is -inf at zero, so making a little of both always lowers
+    // the Gibbs function).
+    if let Some(phase) = starving_phase(system, case.face, face, absent) {
+        return Some((phase, None));
+    }
+    // The least stable absent phase, if any would form.
+    let mut worst: Option<(usize, Implied)> = None;
+    for phase in 0..system.n_phases() {
+        if absent & phase_bit(phase) == 0 {
+            continue;
+        }
+        let members = system.in_phase(phase);
+        let implied = implied_phase(system, face, amounts, case.ln_k, case.pressure, &members);
+        if implied.sum > 1.0 + STABLE_SLACK
+            && worst.as_ref().is_none_or(|(_, w)| implied.sum > w.sum)
+        {
+            worst = Some((phase, implied));
+        }
+    }
+    worst.map(|(phase, implied)| (phase, Some(implied)))
+}
+
+/// An absent phase (of mask `absent`) that a species reachable on the
+/// feed's face `reachable` needs to form: the species is unreachable on
+/// `face` (the face with `absent` held empty), belongs to no absent phase
+/// and shares a reaction with one of the phase's species. `None` if no
+/// species is starved so.
+fn starving_phase(system: &System, reachable: &Face, face: &Face, absent: u64) -> Option<usize> {
+    let (s, r) = (system.n_species(), system.n_reactions());
+    let nu = system.stoich();
+    let held = species_of(system, absent);
+    for i in 0..s {
+        if held[i] || !face.unreachable[i] || reachable.unreachable[i] {
+            continue;
+        }
+        for j in (0..r).filter(|&j| nu[j * s + i] != 0.0) {
+            if let Some(k) = (0..s).find(|&k| held[k] && nu[j * s + k] != 0.0) {
+                return Some(system.phase_index(k));
+            }
+        }
+    }
+    None
+}
+
+/// Solve `case` with the phases of `absent` held empty, from `start`
+/// (extents of the user's reactions) where it is strictly inside the face:
+/// the status, the iterations and the face solved on, with the amounts and
+/// extents written; `None` if the phases cannot be emptied (outputs left as
+/// they were).
+#[allow(clippy::too_many_arguments)]
+fn solve_with_absent(
+    system: &System,
+    case: &Case,
+    options: &SolveOptions,
+    ws: &mut Workspace,
+    absent: u64,
+    start: Option<&[f64]>,
+    amounts: &mut [f64],
+    extents: &mut [f64],
+) -> Option<(Status, u32, Face)> {
+    let r = system.n_reactions();
+    let held = species_of(system, absent);
+    let (shift, shifted) = shift_out(system, case.feed, &held)?;
+    let zero: Vec<bool> = shifted.iter().map(|&v| v <= 0.0).collect();
+    let face = face_with(system, &zero, &held)?;
+    let (status, iterations) = if face.dim == 0 {
+        amounts.copy_from_slice(&shifted);
+        extents.fill(0.0);
+        (Status::Converged, 0)
+    } else {
+        let start: Option<Vec<f64>> = start.map(|x| (0..r).map(|j| x[j] - shift[j]).collect());
+        let again = Case {
+            face: &face,
+            feed: &shifted,
+            start: start.as_deref(),
+            ..*case
+        };
+        solve_case(system, &again, options, ws, amounts, extents)
+    };
+    for j in 0..r {
+        extents[j] += shift[j];
+    }
+    Some((status, iterations, face))
+}
+
+/// The face of zero pattern `zero` with the species `held` forbidden to
+/// form, from the system's memo where it was analysed before.
+fn face_with(system: &System, zero: &[bool], held: &[bool]) -> Option<Face> {
+    let words = zero.len().div_ceil(64);
+    // (two bit sets and a marker word: never the key of a plain pattern)
+    let mut key = vec![0u64; 2 * words + 1];
+    for (i, (&z, &h)) in zero.iter().zip(held).enumerate() {
+        key[i / 64] |= u64::from(z) << (i % 64);
+        key[words + i / 64] |= u64::from(h) << (i % 64);
+    }
+    key[2 * words] = u64::MAX;
+    let face = system
+        .face_memo()
+        .get_or_analyse(&key, || analyse_with(system, zero, held));
+    face.as_ref().as_ref().ok().cloned()
 }
 
 /// Extents that move everything of the `absent` species onto the others
@@ -262,21 +512,21 @@ fn implied_phase(
 ) -> Implied {
     let (s, r) = (system.n_species(), system.n_reactions());
     let nu = system.stoich();
-    let phases = system.phases();
     let ln_p = (pressure / system.p0()).ln();
-    // ln a of the present species.
-    let mut totals = [0.0; 2];
+    // ln a of the present species (0 for a pure one).
+    let mut totals = vec![0.0; system.n_phases()];
     for i in 0..s {
         if !absent[i] && amounts[i] > 0.0 {
-            totals[phases[i].index()] += amounts[i];
+            totals[system.phase_index(i)] += amounts[i];
         }
     }
     let ln_a = |i: usize| {
-        let own = amounts[i].ln() - totals[phases[i].index()].ln();
-        if phases[i] == Phase::Gas {
-            own + ln_p
+        if system.is_pure(i) {
+            0.0
+        } else if system.phase_index(i) == 0 {
+            amounts[i].ln() - totals[0].ln() + ln_p
         } else {
-            own
+            amounts[i].ln() - totals[system.phase_index(i)].ln()
         }
     };
     // W: combinations of the reactions that leave the species the face
@@ -336,7 +586,7 @@ fn implied_phase(
         .iter()
         .enumerate()
         .map(|(col, &i)| {
-            if phases[i] == Phase::Gas {
+            if system.phase_index(i) == 0 {
                 particular[col] - ln_p
             } else {
                 particular[col]
@@ -352,75 +602,55 @@ fn implied_phase(
     }
 }
 
-/// Solve the case from the equilibrium found without the phase
-/// (`extents`), plus a small amount of the phase in the composition
-/// `implied` found, on the case's own face; `Some((status, iterations))`
-/// if that converges (outputs written), else `None` (outputs untouched).
-#[allow(clippy::too_many_arguments)]
-fn introduce(
+/// A start for the case with the phase `implied` found unstable now
+/// present: the equilibrium found without it (`extents`) plus a little of
+/// it (1e-3 of the feed, else 1e-6, else 1e-9) in the composition the
+/// stability test found most favourable, strictly inside the face that
+/// keeps the species still `held` absent at zero. `None` if there is none.
+fn introduction(
     system: &System,
-    case: &Case,
-    options: &SolveOptions,
-    ws: &mut Workspace,
+    feed: &[f64],
     extents: &[f64],
     implied: &Implied,
-    (amounts_out, extents_out): (&mut [f64], &mut [f64]),
-) -> Option<(Status, u32)> {
+    held: &[bool],
+) -> Option<Vec<f64>> {
     let (s, r) = (system.n_species(), system.n_reactions());
     let nu = system.stoich();
     if implied.species.is_empty() {
         return None;
     }
-    // Extents that make one mole of the phase in that composition:
-    // (nu^T d)_i = x_i for its species.
-    let p = implied.species.len();
-    let mut a = vec![0.0; p * r];
-    let mut b = vec![0.0; p];
-    for (row, &i) in implied.species.iter().enumerate() {
+    // Extents that make one mole of the phase in that composition,
+    // (nu^T d)_i = x_i for its species, and leave the held species alone.
+    let rows: Vec<usize> = implied
+        .species
+        .iter()
+        .copied()
+        .chain((0..s).filter(|&i| held[i] && system.is_reactive(i)))
+        .collect();
+    let mut a = vec![0.0; rows.len() * r];
+    let mut b = vec![0.0; rows.len()];
+    for (row, &i) in rows.iter().enumerate() {
         for j in 0..r {
             a[row * r + j] = nu[j * s + i];
         }
-        b[row] = if case.face.unreachable[i] {
-            0.0
-        } else {
-            implied.fractions[row]
-        };
+        if row < implied.species.len() {
+            b[row] = implied.fractions[row];
+        }
     }
-    let unit = particular_solution(&a, &b, p, r)?;
-    let total: f64 = case.feed.iter().sum();
-    let mut start = vec![0.0; r];
-    let mut amounts = vec![0.0; s];
-    let mut extents_found = vec![0.0; r];
+    let unit = particular_solution(&a, &b, rows.len(), r)?;
+    let total: f64 = feed.iter().sum();
     for eps in [1e-3, 1e-6, 1e-9] {
-        for j in 0..r {
-            start[j] = extents[j] + eps * total * unit[j];
-        }
-        // Strictly inside: every species the face lets be present is.
+        let start: Vec<f64> = (0..r).map(|j| extents[j] + eps * total * unit[j]).collect();
+        // Feasible, with the phase formed (whether every species the new
+        // face reaches is present is the solve's own test of a start).
         let inside = (0..s).all(|i| {
-            let v = case.feed[i] + (0..r).map(|j| nu[j * s + i] * start[j]).sum::<f64>();
-            case.face.unreachable[i] || !system.is_reactive(i) || v > 0.0
+            let v = feed[i] + (0..r).map(|j| nu[j * s + i] * start[j]).sum::<f64>();
+            let forming = implied.species.contains(&i);
+            held[i] || !system.is_reactive(i) || v > 0.0 || (v == 0.0 && !forming)
         });
-        if !inside {
-            continue;
+        if inside {
+            return Some(start);
         }
-        let again = Case {
-            start: Some(&start),
-            ..*case
-        };
-        let (status, iterations) = solve_case(
-            system,
-            &again,
-            options,
-            ws,
-            &mut amounts,
-            &mut extents_found,
-        );
-        if status.is_converged() {
-            amounts_out.copy_from_slice(&amounts);
-            extents_out.copy_from_slice(&extents_found);
-            return Some((status, iterations));
-        }
-        return None;
     }
     None
 }
@@ -516,6 +746,10 @@ mod tests {
     use super::*;
     use crate::face::analyse;
 
+    use crate::system::Phase;
+
+    /// Solve one case as the batch driver does: every phase present first,
+    /// a phase-set search where that stalls; pure species decided at once.
     fn solve(
         nu: Vec<f64>,
         r: usize,
@@ -523,12 +757,13 @@ mod tests {
         feed: &[f64],
         ln_k: &[f64],
         pressure: f64,
-    ) -> (Option<Repair>, Vec<f64>) {
+    ) -> (Decided, Vec<f64>) {
         let s = feed.len();
         let sys = System::new(nu, r, s, phases, 1.0).unwrap();
         let mut ws = Workspace::new(&sys);
         let (mut n, mut xi) = (vec![f64::NAN; s], vec![0.0; r]);
-        let face = analyse(&sys, &vec![false; s]).unwrap();
+        let zero: Vec<bool> = feed.iter().map(|&v| v <= 0.0).collect();
+        let face = analyse(&sys, &zero).unwrap();
         let case = Case {
             face: &face,
             feed,
@@ -536,15 +771,93 @@ mod tests {
             pressure,
             start: None,
         };
-        let out = solve_with_a_phase_absent(
-            &sys,
-            &case,
-            &SolveOptions::default(),
-            &mut ws,
-            &mut n,
-            &mut xi,
-        );
+        let options = SolveOptions::default();
+        if sys.has_pure() {
+            let absent = initially_absent(&sys, feed);
+            let out = decide_phases(&sys, &case, &options, &mut ws, &mut n, &mut xi, absent);
+            return (out, n);
+        }
+        let (status, iterations) = solve_case(&sys, &case, &options, &mut ws, &mut n, &mut xi);
+        let out = if worth_retrying(&sys, status) {
+            retry_with_a_phase_absent(&sys, &case, &options, &mut ws, &mut n, &mut xi)
+                .expect("a phase set converges")
+        } else {
+            Decided {
+                status,
+                iterations,
+                absent: 0,
+            }
+        };
         (out, n)
+    }
+
+    #[test]
+    fn a_gas_of_one_species_that_turns_into_a_solid_leaves_no_gas() {
+        // 3 X0 = X4(s) with ln K = 25 from X0 alone: a_X4 / a_X0^3 = 1 / (P/P0)^3
+        // at any gas left, far below K, so every X0 goes (X4 = n0 / 3); the
+        // other reactions need X1 or X6, which nothing makes. Once stalled
+        // (a one-species gas has no curvature), the gas must be tried absent.
+        let nu = vec![
+            -3.0, -1.0, 2.0, 0.0, 0.0, 0.0, 0.0, -1.0, -1.0, 0.0, 2.0, 0.0, 0.0, 0.0, -3.0, 0.0,
+            0.0, 0.0, 1.0, 0.0, 0.0, -1.0, -1.0, 0.0, 0.0, 0.0, 2.0, 0.0, 3.0, -1.0, 0.0, 0.0, 0.0,
+            0.0, 1.0,
+        ];
+        let g = Phase::Gas;
+        let (out, n) = solve(
+            nu,
+            5,
+            vec![g, g, g, g, Phase::Pure, g, Phase::Pure],
+            &[1.4153557958007406, 0.0, 0.0, 0.0, 0.0, 0.0, 0.0],
+            &[
+                -14.016171148883627,
+                5.867770456408326,
+                25.178941554338564,
+                3.0620252078618915,
+                7.701320445954691,
+            ],
+            0.14764071097509157,
+        );
+        assert_eq!(out.status, Status::Converged);
+        assert_eq!(out.absent, phase_bit(0) | phase_bit(2)); // the gas and X6
+        assert_eq!(n[0], 0.0);
+        assert!((n[4] - 1.4153557958007406 / 3.0).abs() < 1e-15);
+    }
+
+    #[test]
+    fn a_solid_that_the_gas_composition_cannot_coexist_with_is_found_absent() {
+        // X0(l) = 3 X1, 2 X0 = 3 X2(s), X0 = X3 (ln K 37, 29, -19): X2 = 2 X1 has
+        // ln K = 44.5 / 6 = 7.4, so X2 would need y_X1 P = e^7.4 to coexist: it
+        // goes, and X3 = 3 X1 (ln K 56) leaves a trace of X3. With X2 present
+        // the gas composition is fixed and the Gibbs function linear along
+        // gas <-> X2 (a singular Hessian; its Newton steps wander), so the
+        // search must reach the set {X0, X2} absent. Conserved: X1 + 2 X2 + 3 X3.
+        let nu = vec![
+            -1.0, 3.0, 0.0, 0.0, -2.0, 0.0, 3.0, 0.0, -1.0, 0.0, 0.0, 1.0,
+        ];
+        let g = Phase::Gas;
+        let (out, n) = solve(
+            nu,
+            3,
+            vec![Phase::Pure, g, Phase::Pure, g],
+            &[
+                0.0,
+                1.9164726416626026,
+                1.7312160401194956,
+                1.8933158142394317,
+            ],
+            &[36.95178615516027, 29.36358667852172, -19.25824509935729],
+            1.4903608762167695,
+        );
+        assert_eq!(out.status, Status::Converged);
+        assert_eq!(out.absent, phase_bit(1) | phase_bit(2));
+        let conserved = 1.9164726416626026 + 2.0 * 1.7312160401194956 + 3.0 * 1.8933158142394317;
+        assert!((n[1] + 3.0 * n[3] - conserved).abs() < 1e-12 * conserved);
+        // y3 P / (y1 P)^3 = e^-56.2 (closed form for the trace)
+        let p = 1.4903608762167695;
+        let ln_k = 36.95178615516027 + 19.25824509935729;
+        let y3 = n[3] / (n[1] + n[3]);
+        let y1 = n[1] / (n[1] + n[3]);
+        assert!(((y3 * p).ln() - 3.0 * (y1 * p).ln() + ln_k).abs() < 1e-9);
     }
 
     #[test]
@@ -555,15 +868,105 @@ mod tests {
         let (out, n) = solve(
             vec![-1.0, 1.0, 1.0],
             1,
-            vec![Phase::Gas, Phase::Liquid, Phase::Liquid],
+            vec![Phase::Gas, Phase::Solution(0), Phase::Solution(0)],
             &[1.0, 0.0, 0.0],
             &[5.0],
             1.0,
         );
-        let out = out.expect("the gas can be absent");
-        assert_eq!(out.absent, Some(Phase::Gas));
+        assert_eq!(out.absent, phase_bit(0));
         assert_eq!(out.status, Status::Converged);
         assert_eq!(n, vec![0.0, 1.0, 1.0]);
+    }
+
+    /// Boudouard: C(s) + CO2 = 2 CO, species C, CO2, CO.
+    fn boudouard(feed: &[f64], k: f64, p: f64) -> (Decided, Vec<f64>) {
+        solve(
+            vec![-1.0, -1.0, 2.0],
+            1,
+            vec![Phase::Pure, Phase::Gas, Phase::Gas],
+            feed,
+            &[k.ln()],
+            p,
+        )
+    }
+
+    #[test]
+    fn boudouard_with_graphite_left_over_meets_the_closed_form() {
+        // Carbon present: y_CO^2 / y_CO2 = K P0 / P, so with r = K / P,
+        // y_CO = (-r + sqrt(r^2 + 4 r)) / 2 (closed form). From 1 mol CO2 and
+        // 5 mol C: y_CO = 2 xi / (1 + xi).
+        let (k, p) = (2.0_f64, 3.0);
+        let ratio = k / p;
+        let y = (-ratio + (ratio * ratio + 4.0 * ratio).sqrt()) / 2.0;
+        let xi = y / (2.0 - y);
+        let (out, n) = boudouard(&[5.0, 1.0, 0.0], k, p);
+        assert_eq!(out.status, Status::Converged);
+        assert_eq!(out.absent, 0);
+        assert!((n[2] - 2.0 * xi).abs() < 1e-9 * xi, "{n:?}");
+        assert!((n[0] - (5.0 - xi)).abs() < 1e-9);
+    }
+
+    #[test]
+    fn boudouard_uses_up_scarce_graphite_and_says_it_is_absent() {
+        // With 0.1 mol C and the same K, P the closed-form extent (0.28) is
+        // more than the carbon: all of it reacts (xi = 0.1), carbon is absent
+        // and the gas is short of equilibrium: y_CO^2 P / y_CO2 < K.
+        let (out, n) = boudouard(&[0.1, 1.0, 0.0], 2.0, 3.0);
+        assert_eq!(out.status, Status::Converged);
+        assert_eq!(out.absent, phase_bit(1)); // the gas is 0, C is phase 1
+        assert_eq!(n[0], 0.0);
+        assert!((n[2] - 0.2).abs() < 1e-12 && (n[1] - 0.9).abs() < 1e-12);
+    }
+
+    #[test]
+    fn carbon_forms_from_co_exactly_where_the_closed_form_says() {
+        // 2 CO = C + CO2 from a CO + CO2 gas: carbon forms iff
+        // y_CO^2 P / y_CO2 > K (the Boudouard K). Feed 1 CO + 1 CO2 at P = 1:
+        // Q = 0.5, so carbon forms for K < 0.5 and not for K > 0.5.
+        let (out, n) = boudouard(&[0.0, 1.0, 1.0], 0.45, 1.0);
+        assert_eq!(out.status, Status::Converged);
+        assert_eq!(out.absent, 0);
+        assert!(n[0] > 0.0);
+        let y_co = n[2] / (n[1] + n[2]);
+        let q = y_co * y_co / (1.0 - y_co);
+        assert!((q / 0.45 - 1.0).abs() < 1e-9, "{q}");
+        let (out, n) = boudouard(&[0.0, 1.0, 1.0], 0.55, 1.0);
+        assert_eq!(out.status, Status::Converged);
+        assert_eq!(out.absent, phase_bit(1));
+        assert_eq!(n, vec![0.0, 1.0, 1.0]);
+    }
+
+    #[test]
+    fn calcite_decomposes_until_the_co2_pressure_is_k_p0() {
+        // CaCO3(s) = CaO(s) + CO2 with N2: both solids present while
+        // y_CO2 = K / P; xi = N y / (1 - y) (closed form). With too little
+        // CaCO3 for that, all of it decomposes and CaCO3 is absent.
+        let sys = |feed: &[f64]| {
+            solve(
+                vec![-1.0, 1.0, 1.0, 0.0],
+                1,
+                vec![Phase::Pure, Phase::Pure, Phase::Gas, Phase::Gas],
+                feed,
+                &[0.2_f64.ln()],
+                1.0,
+            )
+        };
+        let (out, n) = sys(&[1.0, 0.0, 0.0, 1.0]);
+        assert_eq!((out.status, out.absent), (Status::Converged, 0));
+        let xi = 1.0 * 0.2 / 0.8;
+        assert!(
+            (n[2] - xi).abs() < 1e-9 * xi && (n[0] - (1.0 - xi)).abs() < 1e-9,
+            "{n:?}"
+        );
+        let (out, n) = sys(&[0.1, 0.0, 0.0, 1.0]);
+        assert_eq!(out.status, Status::Converged);
+        assert_eq!(out.absent, phase_bit(1)); // CaCO3 is phase 1, CaO phase 2
+        assert_eq!(n[0], 0.0);
+        assert!((n[1] - 0.1).abs() < 1e-15 && (n[2] - 0.1).abs() < 1e-15);
+        // and a CaO + CO2 feed at a CO2 pressure above K P0 carbonates
+        let (out, n) = sys(&[0.0, 1.0, 1.0, 1.0]);
+        assert_eq!((out.status, out.absent), (Status::Converged, 0));
+        assert!((n[2] / (n[2] + n[3]) - 0.2).abs() < 1e-10, "{n:?}");
     }
 
     #[test]
@@ -575,7 +978,7 @@ mod tests {
             vec![-1.0, 1.0, 0.0],
             1,
             3,
-            vec![Phase::Gas, Phase::Liquid, Phase::Gas],
+            vec![Phase::Gas, Phase::Solution(0), Phase::Gas],
             1.0,
         )
         .unwrap();
@@ -596,7 +999,7 @@ mod tests {
             vec![-1.0, 1.0, 1.0],
             1,
             3,
-            vec![Phase::Gas, Phase::Liquid, Phase::Liquid],
+            vec![Phase::Gas, Phase::Solution(0), Phase::Solution(0)],
             1.0,
         )
         .unwrap();

@@ -20,9 +20,8 @@ use crate::face::{analyse_with, Face};
 use crate::linalg::particular_solution;
 use crate::linalg::solve_spd;
 use crate::newton::{hessian, PhaseTerm};
-use crate::presence::phase_bit;
 use crate::status::Status;
-use crate::system::{Phase, System};
+use crate::system::{System, MAX_MIXTURES};
 
 /// Derivative outputs, all `n_cases` rows, row-major.
 #[derive(Debug)]
@@ -51,7 +50,7 @@ pub fn sensitivities_batch(
     inputs: &BatchInputs,
     amounts: &[f64],
     status: &[u8],
-    absent: Option<&[u8]>,
+    absent: Option<&[u64]>,
     out: &mut SensitivityOutputs,
     threads: Option<usize>,
 ) -> Result<(), CoreError> {
@@ -107,10 +106,8 @@ pub fn sensitivities_batch(
             let ok = converged
                 && if mask != 0 {
                     // The face of the equilibrium with the phase held absent.
-                    let held: Vec<bool> = system
-                        .phases()
-                        .iter()
-                        .map(|&p| mask & phase_bit(p) != 0)
+                    let held: Vec<bool> = (0..s)
+                        .map(|i| mask >> system.phase_index(i) & 1 != 0)
                         .collect();
                     let zero: Vec<bool> = n_case.iter().map(|&v| v <= 0.0).collect();
                     match analyse_with(system, &zero, &held) {
@@ -179,8 +176,9 @@ struct Scratch {
     work: Vec<f64>,
     rhs: Vec<f64>,
     scale: Vec<f64>,
-    gas: Vec<f64>,
-    liquid: Vec<f64>,
+    /// Per mixture phase `k` and basis reaction `j` (at `k * r + j`): the
+    /// reaction's change of the phase's moles.
+    phase_change: Vec<f64>,
     /// The feed change of one species, moved onto present species.
     moved: Vec<f64>,
     /// `1 / n` of every species (0 where it is absent).
@@ -199,8 +197,7 @@ impl Scratch {
             work: vec![0.0; r * r],
             rhs: vec![0.0; r],
             scale: vec![0.0; r],
-            gas: vec![0.0; r],
-            liquid: vec![0.0; r],
+            phase_change: vec![0.0; MAX_MIXTURES * r],
             moved: vec![0.0; s],
             weight: vec![0.0; s],
         }
@@ -221,7 +218,10 @@ fn case_sensitivities(
     d_feed: &mut [f64],
 ) -> bool {
     let (s, r, dim) = (system.n_species(), system.n_reactions(), face.dim);
-    let phases = system.phases();
+    let n_mix = system.n_mixtures();
+    // The mixture phase of species `i`, `None` for a pure species (activity
+    // 1 whatever its amount: no term of its own).
+    let mixture = |i: usize| Some(system.phase_index(i)).filter(|&k| k < n_mix);
     let with_feed = !d_feed.is_empty();
     d_ln_k.fill(0.0);
     d_ln_p.fill(0.0);
@@ -250,52 +250,46 @@ fn case_sensitivities(
     {
         return false;
     }
-    let (mut n_gas, mut n_liquid) = (0.0, 0.0);
+    let mut totals = [0.0; MAX_MIXTURES];
     for i in 0..s {
-        match phases[i] {
-            Phase::Gas => n_gas += amounts[i],
-            Phase::Liquid => n_liquid += amounts[i],
+        if let Some(k) = mixture(i) {
+            totals[k] += amounts[i];
         }
     }
     for j in 0..dim {
         let nu = &sc.basis_stoich[..dim * s];
-        let (mut g, mut l) = (0.0, 0.0);
+        let mut change = [0.0; MAX_MIXTURES];
         for i in 0..s {
-            match phases[i] {
-                Phase::Gas => g += nu[j * s + i],
-                Phase::Liquid => l += nu[j * s + i],
+            if let Some(k) = mixture(i) {
+                change[k] += nu[j * s + i];
             }
         }
-        sc.gas[j] = g;
-        sc.liquid[j] = l;
+        for k in 0..n_mix {
+            sc.phase_change[k * r + j] = change[k];
+        }
     }
-    let inv_gas = if n_gas > 0.0 { 1.0 / n_gas } else { 0.0 };
-    let inv_liquid = if n_liquid > 0.0 { 1.0 / n_liquid } else { 0.0 };
+    let inv_total = totals.map(|n| if n > 0.0 { 1.0 / n } else { 0.0 });
     // The Newton system's Hessian (the shared assembly of crate::newton), in
-    // this basis over every species; species at zero carry no weight.
+    // this basis over every species; species at zero and pure species carry
+    // no weight.
     for i in 0..s {
-        sc.weight[i] = if amounts[i] > 0.0 {
+        sc.weight[i] = if amounts[i] > 0.0 && mixture(i).is_some() {
             1.0 / amounts[i]
         } else {
             0.0
         };
     }
-    let phase_terms = [
-        PhaseTerm {
-            change: &sc.gas[..dim],
-            inv_total: inv_gas,
-        },
-        PhaseTerm {
-            change: &sc.liquid[..dim],
-            inv_total: inv_liquid,
-        },
-    ];
+    let phase_change = &sc.phase_change;
+    let phase_terms: [PhaseTerm<f64>; MAX_MIXTURES] = std::array::from_fn(|k| PhaseTerm {
+        change: &phase_change[k * r..k * r + dim],
+        inv_total: inv_total[k],
+    });
     hessian(
         &sc.basis_stoich[..dim * s],
         s,
         &sc.weight[..s],
         None,
-        &phase_terms,
+        &phase_terms[..n_mix],
         dim,
         &mut sc.hessian[..dim * dim],
         dim,
@@ -338,7 +332,7 @@ fn case_sensitivities(
     }
     // ln P: dF_b/d ln P = gas change.
     for j in 0..dim {
-        sc.rhs[j] = -sc.gas[j];
+        sc.rhs[j] = -sc.phase_change[j];
     }
     if !solve_into(sc, &mut |i, v| d_ln_p[i] = v) {
         return false;
@@ -364,16 +358,16 @@ fn case_sensitivities(
                 if m == 0.0 {
                     continue;
                 }
+                let Some(phase) = mixture(i) else {
+                    continue; // a pure species' activity stays 1
+                };
                 let unreachable = face.unreachable[i] || amounts[i] < TINY_FEED;
                 let own = if unreachable {
                     0.0
                 } else {
                     sc.basis_stoich[j * s + i] / amounts[i]
                 };
-                let dilution = match phases[i] {
-                    Phase::Gas => sc.gas[j] * inv_gas,
-                    Phase::Liquid => sc.liquid[j] * inv_liquid,
-                };
+                let dilution = sc.phase_change[phase * r + j] * inv_total[phase];
                 v += m * (own - dilution);
             }
             sc.rhs[j] = -v;
@@ -429,10 +423,15 @@ mod tests {
     use crate::system::Phase;
 
     /// Amounts of one case, solved tightly (for finite differences).
-    fn amounts(system: &System, feed: &[f64], ln_k: &[f64], pressure: f64) -> (Vec<f64>, Vec<u8>) {
+    fn amounts(system: &System, feed: &[f64], ln_k: &[f64], pressure: f64) -> (Vec<f64>, Vec<u64>) {
         let (s, r) = (system.n_species(), system.n_reactions());
-        let (mut n, mut xi, mut st, mut it, mut ab) =
-            (vec![0.0; s], vec![0.0; r], vec![0u8], vec![0u32], vec![0u8]);
+        let (mut n, mut xi, mut st, mut it, mut ab) = (
+            vec![0.0; s],
+            vec![0.0; r],
+            vec![0u8],
+            vec![0u32],
+            vec![0u64],
+        );
         let inputs = BatchInputs {
             n_cases: 1,
             feed,
@@ -598,7 +597,7 @@ mod tests {
         let nu = vec![-1.0, 1.0, 0.0, 0.0, 0.0, 0.0, 0.0, -1.0, 1.0, 0.0];
         let phases = vec![
             Phase::Gas,
-            Phase::Liquid,
+            Phase::Solution(0),
             Phase::Gas,
             Phase::Gas,
             Phase::Gas,
@@ -621,7 +620,7 @@ mod tests {
         let nu = vec![-1.0, 1.0, 0.0, 0.0, 0.0, 0.0, 0.0, -1.0, 1.0, 0.0];
         let phases = vec![
             Phase::Gas,
-            Phase::Liquid,
+            Phase::Solution(0),
             Phase::Gas,
             Phase::Gas,
             Phase::Gas,
@@ -629,7 +628,7 @@ mod tests {
         let sys = System::new(nu, 2, 5, phases, 1.0).unwrap();
         let (n, absent) = amounts(&sys, &[1.0, 0.2, 1.0, 0.5, 0.1], &[0.2_f64.ln(), 0.3], 1.0);
         assert_eq!(n[1], 0.0);
-        assert_eq!(absent[0], crate::presence::phase_bit(Phase::Liquid));
+        assert_eq!(absent[0], crate::presence::phase_bit(1));
         check(
             &sys,
             &[1.0, 0.2, 1.0, 0.5, 0.1],

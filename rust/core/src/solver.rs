@@ -47,7 +47,7 @@ use crate::newton::{
     TO_BOUNDARY,
 };
 use crate::status::Status;
-use crate::system::{Phase, System, N_PHASES};
+use crate::system::{System, MAX_MIXTURES};
 
 /// Solver settings shared by every case of a batch.
 #[derive(Clone, Copy, Debug, PartialEq)]
@@ -62,6 +62,10 @@ pub struct SolveOptions {
     /// the tolerance) on the order of the cases, though still not on the
     /// number of threads, since chunks are fixed.
     pub chain: bool,
+    /// End a solve as [`Status::Stalled`] as soon as a pure condensed
+    /// species is leaving the equilibrium (below a 1e-12 share of the feed
+    /// and still shrinking), for [`crate::presence`] to solve without it.
+    pub drop_vanishing: bool,
 }
 
 impl Default for SolveOptions {
@@ -70,6 +74,7 @@ impl Default for SolveOptions {
             tol: 1e-10,
             max_iter: 200,
             chain: false,
+            drop_vanishing: false,
         }
     }
 }
@@ -159,8 +164,9 @@ struct Scratch<'a> {
     on_log_path: &'a mut [bool],
     frozen: &'a mut [bool],
     scale: &'a mut [f64],
-    gas_change: &'a mut [f64],
-    liquid_change: &'a mut [f64],
+    /// Per mixture phase `k` and basis reaction `j` (at `k * R + j`): the
+    /// reaction's change of that phase's moles.
+    phase_change: &'a mut [f64],
     basis_step: &'a mut [f64],
     face_step: &'a mut [f64],
     extents: &'a mut [f64],
@@ -173,6 +179,7 @@ pub struct Workspace {
     species: Vec<f64>,
     species_idx: Vec<usize>,
     reactions: Vec<f64>,
+    phase_change: Vec<f64>,
     reactions_idx: Vec<usize>,
     flags: Vec<bool>,
     by_species: Vec<f64>,
@@ -183,8 +190,9 @@ pub struct Workspace {
 
 /// Number of per-species `f64` arrays in a [`Scratch`].
 const SPECIES_ARRAYS: usize = 9;
-/// Number of per-reaction `f64` arrays in a [`Scratch`].
-const REACTION_ARRAYS: usize = 13;
+/// Number of per-reaction `f64` arrays in a [`Scratch`] (besides
+/// `phase_change`, [`MAX_MIXTURES`] of them).
+const REACTION_ARRAYS: usize = 11;
 
 impl Workspace {
     pub fn new(system: &System) -> Self {
@@ -194,6 +202,7 @@ impl Workspace {
             species: vec![0.0; SPECIES_ARRAYS * s],
             species_idx: vec![0; 3 * s],
             reactions: vec![0.0; REACTION_ARRAYS * r],
+            phase_change: vec![0.0; MAX_MIXTURES * r],
             reactions_idx: vec![0; r],
             flags: vec![false; 2 * r],
             by_species: vec![0.0; 2 * r * s],
@@ -209,7 +218,7 @@ impl Workspace {
             split_n::<SPECIES_ARRAYS, _>(&mut self.species, s);
         let [order, pivot_of, components] = split_n::<3, _>(&mut self.species_idx, s);
         let [basis_stoich, comp_stoich] = split_n::<2, _>(&mut self.by_species, r * s);
-        let [ln_k_face, basis_constant, pivot_mu, residual, trial_residual, step, du, scale, gas_change, liquid_change, basis_step, face_step, extents] =
+        let [ln_k_face, basis_constant, pivot_mu, residual, trial_residual, step, du, scale, basis_step, face_step, extents] =
             split_n::<REACTION_ARRAYS, _>(&mut self.reactions, r);
         let [on_log_path, frozen] = split_n::<2, _>(&mut self.flags, r);
         let [transform, hessian] = split_n::<2, _>(&mut self.square, r * r);
@@ -241,8 +250,7 @@ impl Workspace {
             on_log_path,
             frozen,
             scale,
-            gas_change,
-            liquid_change,
+            phase_change: &mut self.phase_change,
             basis_step,
             face_step,
             extents,
@@ -309,6 +317,7 @@ fn solve_fixed<const R: usize, const S: usize, const G: bool>(
     let mut species = [[0.0; S]; SPECIES_ARRAYS];
     let mut species_idx = [[0usize; S]; 3];
     let mut reactions = [[0.0; R]; REACTION_ARRAYS];
+    let mut phase_change = [[0.0; R]; MAX_MIXTURES];
     let mut pivots = [0usize; R];
     let mut flags = [[false; R]; 2];
     let mut by_species = [[[0.0; S]; R]; 2];
@@ -317,7 +326,7 @@ fn solve_fixed<const R: usize, const S: usize, const G: bool>(
         &mut species;
     let [order, pivot_of, components] = &mut species_idx;
     let [basis_stoich, comp_stoich] = &mut by_species;
-    let [ln_k_face, basis_constant, pivot_mu, residual, trial_residual, step, du, scale, gas_change, liquid_change, basis_step, face_step, extents] =
+    let [ln_k_face, basis_constant, pivot_mu, residual, trial_residual, step, du, scale, basis_step, face_step, extents] =
         &mut reactions;
     let [on_log_path, frozen] = &mut flags;
     let [transform, hessian] = &mut square;
@@ -349,8 +358,7 @@ fn solve_fixed<const R: usize, const S: usize, const G: bool>(
         on_log_path,
         frozen,
         scale,
-        gas_change,
-        liquid_change,
+        phase_change: phase_change.as_flattened_mut(),
         basis_step,
         face_step,
         extents,
@@ -639,18 +647,28 @@ fn basis_residuals(
     mu: &mut [f64],
     pivot_mu: &mut [f64],
     ln_n: &[f64],
-    ln_totals: &[f64; N_PHASES],
+    ln_totals: &[f64; SLOTS],
     phase_of: impl Fn(usize) -> usize,
+    pure: impl Fn(usize) -> bool,
     pivots: &[usize],
     components: &[usize],
     comp_stoich: &[f64],
     constant: &[f64],
 ) {
+    // (a pure species' activity is 1: no term)
     for (m, &i) in mu.iter_mut().zip(components) {
-        *m = ln_n[i] - ln_totals[phase_of(i)];
+        *m = if pure(i) {
+            0.0
+        } else {
+            ln_n[i] - ln_totals[phase_of(i)]
+        };
     }
     for (m, &p) in pivot_mu.iter_mut().zip(pivots) {
-        *m = ln_n[p] - ln_totals[phase_of(p)];
+        *m = if pure(p) {
+            0.0
+        } else {
+            ln_n[p] - ln_totals[phase_of(p)]
+        };
     }
     residuals(
         comp_stoich,
@@ -670,8 +688,6 @@ struct Problem<'a> {
     face: &'a Face,
     /// Feed amounts (S).
     feed: &'a [f64],
-    /// The phase of each species (S).
-    phases: &'a [Phase],
     /// `ln(P / P0)`.
     ln_pressure: f64,
     s: usize,
@@ -683,7 +699,24 @@ struct Problem<'a> {
     /// Every species is a gas. With this a compile-time constant (the
     /// specialised kernels), every phase lookup folds away.
     gas_only: bool,
+    /// Mixture phases (the gas and the solutions): slots `0..n_mix` of the
+    /// phase totals.
+    n_mix: usize,
+    /// Total feed, the scale of a pure species' amount.
+    feed_total: f64,
 }
+
+/// Slots of the per-phase totals: one per mixture phase and, last, [`SINK`].
+const SLOTS: usize = MAX_MIXTURES + 1;
+/// The slot pure species add their amounts to: never read (a pure species
+/// is a phase of its own, with mole fraction 1).
+const SINK: usize = MAX_MIXTURES;
+/// A pure species below this fraction of the total feed that a Newton step
+/// would shrink further is taken to be leaving the equilibrium (with
+/// [`SolveOptions::drop_vanishing`]): its Gibbs function is linear, so
+/// nothing slows it down but the fraction-to-boundary rule, and a
+/// phase-set change ([`crate::presence`]) finds the answer sooner.
+pub(crate) const PURE_VANISHING: f64 = 1e-12;
 
 impl<'a> Problem<'a> {
     /// The fixed part of a solve of `case` with sizes `sizes`.
@@ -694,14 +727,36 @@ impl<'a> Problem<'a> {
             system,
             face: case.face,
             feed: &case.feed[..s],
-            phases: &system.phases()[..s],
             ln_pressure: (case.pressure / system.p0()).ln(),
             s,
             r: sizes.reactions,
             dim: sizes.dim,
             nc: s - sizes.dim,
             gas_only,
+            n_mix: if gas_only { 1 } else { system.n_mixtures() },
+            feed_total: if gas_only {
+                0.0
+            } else {
+                case.feed[..s].iter().sum()
+            },
         }
+    }
+
+    /// What a component's amount is compared with to call it a trace: its
+    /// phase's total, or for a pure species (a phase of its own) the feed's.
+    #[inline(always)]
+    fn trace_scale(&self, i: usize, totals: &[f64; SLOTS]) -> f64 {
+        if self.is_pure(i) {
+            self.feed_total
+        } else {
+            totals[self.phase_of(i)]
+        }
+    }
+
+    /// Whether species `i` is a pure condensed species.
+    #[inline(always)]
+    fn is_pure(&self, i: usize) -> bool {
+        !self.gas_only && self.system.is_pure(i)
     }
 
     /// The phase index of species `i`.
@@ -710,7 +765,12 @@ impl<'a> Problem<'a> {
         if self.gas_only {
             0
         } else {
-            self.phases[i].index()
+            let k = self.system.phase_index(i);
+            if k < self.n_mix {
+                k
+            } else {
+                SINK
+            }
         }
     }
 }
@@ -719,9 +779,9 @@ impl<'a> Problem<'a> {
 /// per-species and per-reaction arrays are in the [`Scratch`]).
 struct Iterate {
     /// Phase totals of the current amounts.
-    totals: [f64; N_PHASES],
+    totals: [f64; SLOTS],
     /// Their logarithms ([`ln_of_totals`]).
-    ln_totals: [f64; N_PHASES],
+    ln_totals: [f64; SLOTS],
     /// The scratch holds a basis valid for the current abundance order.
     basis_ready: bool,
     /// How much of the abundance order the basis was chosen from: a reorder
@@ -743,13 +803,13 @@ struct Trial {
     /// The largest `|change| / n` of any species.
     largest_relative: f64,
     /// Phase totals at the trial point, and their logarithms.
-    totals: [f64; N_PHASES],
-    ln_totals: [f64; N_PHASES],
+    totals: [f64; SLOTS],
+    ln_totals: [f64; SLOTS],
 }
 
 /// `ln` of each phase total, 0 for an empty phase.
 #[inline(always)]
-fn ln_of_totals(totals: [f64; N_PHASES]) -> [f64; N_PHASES] {
+fn ln_of_totals(totals: [f64; SLOTS]) -> [f64; SLOTS] {
     totals.map(|n| if n > 0.0 { n.ln() } else { 0.0 })
 }
 
@@ -796,9 +856,12 @@ fn run(
         if !newton_step(&p, sc, &it) {
             return (Status::Stalled, it.iterations);
         }
-        let Some((slope, alpha_max)) = step_bound(&p, sc, &it) else {
+        let Some((slope, alpha_max, vanishing)) = step_bound(&p, sc, &it) else {
             return (Status::Stalled, it.iterations);
         };
+        if vanishing && options.drop_vanishing {
+            return (Status::Stalled, it.iterations);
+        }
         let Some(trial) = line_search(&p, sc, &it, slope, alpha_max) else {
             return (Status::Stalled, it.iterations);
         };
@@ -841,14 +904,15 @@ impl Iterate {
             }
             sc.ln_k_face[f] = v;
         }
-        let mut totals = [0.0; N_PHASES];
+        let mut totals = [0.0; SLOTS];
         for i in 0..s {
             let n = amounts[i];
             totals[p.phase_of(i)] += n;
             sc.ln_amount[i] = if n > 0.0 { n.ln() } else { 0.0 };
             // Species in no reaction never enter the Hessian; leaving their
             // 1/n at zero keeps a subnormal inert from turning 0 * inf into NaN.
-            sc.inv_amount[i] = if n > 0.0 && p.system.is_reactive(i) {
+            // A pure species' Gibbs function is linear: no curvature either.
+            sc.inv_amount[i] = if n > 0.0 && p.system.is_reactive(i) && !p.is_pure(i) {
                 1.0 / n
             } else {
                 0.0
@@ -952,7 +1016,7 @@ fn rebase_trace_components(p: &Problem, sc: &mut Scratch, it: &mut Iterate) {
     for c in 0..nc {
         let i = components[c];
         let touched = (0..dim).any(|j| comp_stoich[j * nc + c] != 0.0);
-        let trace = amounts[i] < TRACE_COMPONENT_SHARE * it.totals[p.phase_of(i)];
+        let trace = amounts[i] < TRACE_COMPONENT_SHARE * p.trace_scale(i, &it.totals);
         sc.comp_base[c] = match (touched, trace) {
             (false, _) => f64::NAN,
             (true, false) => NOT_YET,
@@ -969,12 +1033,12 @@ fn rebase_trace_components(p: &Problem, sc: &mut Scratch, it: &mut Iterate) {
         if v > 0.0 && v < f64::INFINITY && v != amounts[i] {
             amounts[i] = v;
             sc.ln_amount[i] = v.ln();
-            sc.inv_amount[i] = 1.0 / v;
+            sc.inv_amount[i] = if p.is_pure(i) { 0.0 } else { 1.0 / v };
             moved = true;
         }
     }
     if moved {
-        it.totals = [0.0; N_PHASES];
+        it.totals = [0.0; SLOTS];
         for i in 0..s {
             it.totals[p.phase_of(i)] += amounts[i];
         }
@@ -982,8 +1046,8 @@ fn rebase_trace_components(p: &Problem, sc: &mut Scratch, it: &mut Iterate) {
     }
 }
 
-/// Per reaction of a new basis: its gas and liquid mole changes and the
-/// constant part of its residual, `gas change * ln(P/P0) - ln K`.
+/// Per reaction of a new basis: its change of each mixture phase's moles
+/// and the constant part of its residual, `gas change * ln(P/P0) - ln K`.
 #[inline(always)]
 fn basis_constants(p: &Problem, sc: &mut Scratch) {
     let (s, dim) = (p.s, p.dim);
@@ -994,17 +1058,14 @@ fn basis_constants(p: &Problem, sc: &mut Scratch) {
         for k in 0..dim {
             v += transform[j * dim + k] * sc.ln_k_face[k];
         }
-        let (mut gas, mut liquid) = (0.0, 0.0);
+        let mut change = [0.0; SLOTS];
         for i in 0..s {
-            if p.phase_of(i) == 0 {
-                gas += basis_stoich[j * s + i];
-            } else {
-                liquid += basis_stoich[j * s + i];
-            }
+            change[p.phase_of(i)] += basis_stoich[j * s + i];
         }
-        sc.gas_change[j] = gas;
-        sc.liquid_change[j] = liquid;
-        sc.basis_constant[j] = gas * p.ln_pressure - v;
+        for k in 0..p.n_mix {
+            sc.phase_change[k * p.r + j] = change[k];
+        }
+        sc.basis_constant[j] = change[0] * p.ln_pressure - v;
     }
 }
 
@@ -1025,6 +1086,7 @@ fn residual_test(p: &Problem, sc: &mut Scratch, it: &Iterate, tol: f64) -> (f64,
             sc.ln_amount,
             &it.ln_totals,
             |i| p.phase_of(i),
+            |i| p.is_pure(i),
             &sc.pivots[..dim],
             &sc.components[..nc],
             &sc.comp_stoich[..dim * nc],
@@ -1038,7 +1100,8 @@ fn residual_test(p: &Problem, sc: &mut Scratch, it: &Iterate, tol: f64) -> (f64,
         // whole phase shrinks there (a phase that should vanish), its
         // species keep their share and the case must not pass as converged.
         let ln_total = it.ln_totals[p.phase_of(sp)];
-        sc.frozen[j] = res > 0.0
+        sc.frozen[j] = !p.is_pure(sp)
+            && res > 0.0
             && sc.ln_amount[sp] <= LN_FLOOR + 1e-6
             && sc.ln_amount[sp] - ln_total <= LN_MINOR_SHARE;
         if !sc.frozen[j] {
@@ -1058,16 +1121,6 @@ fn residual_test(p: &Problem, sc: &mut Scratch, it: &Iterate, tol: f64) -> (f64,
 fn newton_step(p: &Problem, sc: &mut Scratch, it: &Iterate) -> bool {
     let (dim, nc) = (p.dim, p.nc);
     let hess = &mut sc.hessian[..dim * dim];
-    let inv_gas = if it.totals[0] > 0.0 {
-        1.0 / it.totals[0]
-    } else {
-        0.0
-    };
-    let inv_liquid = if it.totals[1] > 0.0 {
-        1.0 / it.totals[1]
-    } else {
-        0.0
-    };
     for c in 0..nc {
         sc.comp_w[c] = sc.inv_amount[sc.components[c]];
     }
@@ -1075,21 +1128,16 @@ fn newton_step(p: &Problem, sc: &mut Scratch, it: &Iterate) -> bool {
     for j in 0..dim {
         sc.du[j] = sc.inv_amount[sc.pivots[j]];
     }
-    let phase_terms = [
-        PhaseTerm {
-            change: &sc.gas_change[..dim],
-            inv_total: inv_gas,
+    let r = p.r;
+    let phase_terms: [PhaseTerm<f64>; MAX_MIXTURES] = std::array::from_fn(|k| PhaseTerm {
+        change: &sc.phase_change[k * r..k * r + dim],
+        inv_total: if it.totals[k] > 0.0 {
+            1.0 / it.totals[k]
+        } else {
+            0.0
         },
-        PhaseTerm {
-            change: &sc.liquid_change[..dim],
-            inv_total: inv_liquid,
-        },
-    ];
-    let phase_terms = if p.gas_only {
-        &phase_terms[..1]
-    } else {
-        &phase_terms[..]
-    };
+    });
+    let phase_terms = &phase_terms[..p.n_mix];
     hessian(
         &sc.comp_stoich[..dim * nc],
         nc,
@@ -1118,22 +1166,32 @@ fn newton_step(p: &Problem, sc: &mut Scratch, it: &Iterate) -> bool {
 /// positive. Returns the slope `residual . step` and that largest step
 /// (at most 1); `None` if the step is no descent direction.
 #[inline(always)]
-fn step_bound(p: &Problem, sc: &mut Scratch, it: &Iterate) -> Option<(f64, f64)> {
+fn step_bound(p: &Problem, sc: &mut Scratch, it: &Iterate) -> Option<(f64, f64, bool)> {
     let (s, dim, nc) = (p.s, p.dim, p.nc);
     let amounts = &sc.amounts[..s];
     let mut slope = 0.0;
     let mut alpha_max = 1.0_f64;
+    let mut vanishing = false;
     for j in 0..dim {
         slope += sc.residual[j] * sc.step[j];
         let sp = sc.pivots[j];
-        let du = sc.step[j] * sc.inv_amount[sp];
+        let pure = p.is_pure(sp);
+        // (a pure species carries no 1/n in the Hessian: its own here)
+        let du = if pure {
+            sc.step[j] / sc.amounts[sp]
+        } else {
+            sc.step[j] * sc.inv_amount[sp]
+        };
         sc.du[j] = du;
         let ln_share = sc.ln_amount[sp] - it.ln_totals[p.phase_of(sp)];
-        let on_log = ln_share < LN_MINOR_SHARE || du < 0.0;
+        // A shrinking pivot moves in ln n (a pure one too: a trace of solid
+        // made with a trace product follows it down in a few steps).
+        let on_log = du < 0.0 || (!pure && ln_share < LN_MINOR_SHARE);
         sc.on_log_path[j] = on_log;
         if !on_log {
             continue;
         }
+        vanishing |= pure && sc.amounts[sp] < PURE_VANISHING * p.feed_total;
         if du > 0.0 {
             // Do not let a minor species grow past its whole phase in one go.
             let room = 1.0 - ln_share;
@@ -1151,10 +1209,13 @@ fn step_bound(p: &Problem, sc: &mut Scratch, it: &Iterate) -> Option<(f64, f64)>
     if slope.is_nan() || slope >= 0.0 {
         return None;
     }
+    let tiny = PURE_VANISHING * p.feed_total;
     for j in 0..dim {
         let lin = sc.step[j];
         if !sc.on_log_path[j] && lin < 0.0 {
-            alpha_max = alpha_max.min(TO_BOUNDARY * amounts[sc.pivots[j]] / -lin);
+            let sp = sc.pivots[j];
+            alpha_max = alpha_max.min(TO_BOUNDARY * amounts[sp] / -lin);
+            vanishing |= p.is_pure(sp) && amounts[sp] < tiny;
         }
     }
     let comp_stoich = &sc.comp_stoich[..dim * nc];
@@ -1164,10 +1225,12 @@ fn step_bound(p: &Problem, sc: &mut Scratch, it: &Iterate) -> Option<(f64, f64)>
             lin += comp_stoich[j * nc + c] * sc.step[j];
         }
         if lin < 0.0 {
-            alpha_max = alpha_max.min(TO_BOUNDARY * amounts[sc.components[c]] / -lin);
+            let i = sc.components[c];
+            alpha_max = alpha_max.min(TO_BOUNDARY * amounts[i] / -lin);
+            vanishing |= p.is_pure(i) && amounts[i] < tiny;
         }
     }
-    Some((slope, alpha_max))
+    Some((slope, alpha_max, vanishing))
 }
 
 /// Step 5: backtracking along the path from `alpha_max`, halving the step
@@ -1220,7 +1283,7 @@ fn trial_point(p: &Problem, sc: &mut Scratch, it: &Iterate, alpha: f64) -> Optio
     }
     for c in 0..nc {
         let i = sc.components[c];
-        let trace = amounts[i] < TRACE_COMPONENT_SHARE * it.totals[p.phase_of(i)];
+        let trace = amounts[i] < TRACE_COMPONENT_SHARE * p.trace_scale(i, &it.totals);
         if trace && sc.comp_base[c] == NOT_YET {
             sc.comp_base[c] = conserved_base(p.feed, i, &comp_stoich[c..], nc, &sc.pivots[..dim]);
         }
@@ -1238,7 +1301,7 @@ fn trial_point(p: &Problem, sc: &mut Scratch, it: &Iterate, alpha: f64) -> Optio
         sc.trial[i] = new;
     }
     let mut largest_relative = 0.0_f64;
-    let mut totals = [0.0; N_PHASES];
+    let mut totals = [0.0; SLOTS];
     for i in 0..s {
         let d = sc.change[i];
         let new = if d != 0.0 { sc.trial[i] } else { amounts[i] };
@@ -1285,6 +1348,7 @@ fn trial_accepted(
         sc.trial_ln,
         &trial.ln_totals,
         |i| p.phase_of(i),
+        |i| p.is_pure(i),
         &sc.pivots[..dim],
         &sc.components[..nc],
         &sc.comp_stoich[..dim * nc],
@@ -1305,12 +1369,14 @@ fn trial_accepted(
     }
     let amounts = &sc.amounts[..s];
     let mut second_order = 0.0;
-    let mut phase_delta = [0.0; N_PHASES];
+    let mut phase_delta = [0.0; SLOTS];
     for i in 0..s {
-        second_order += h(amounts[i], sc.change[i]);
-        phase_delta[p.phase_of(i)] += sc.change[i];
+        if !p.is_pure(i) {
+            second_order += h(amounts[i], sc.change[i]);
+            phase_delta[p.phase_of(i)] += sc.change[i];
+        }
     }
-    for k in 0..N_PHASES {
+    for k in 0..p.n_mix {
         second_order -= h(it.totals[k], phase_delta[k]);
     }
     sufficient_decrease(trial.first_order, second_order, alpha, slope)
@@ -1327,7 +1393,7 @@ fn take_step(p: &Problem, sc: &mut Scratch, it: &mut Iterate, trial: &Trial) {
         if sc.change[i] != 0.0 {
             amounts[i] = sc.trial[i];
             sc.ln_amount[i] = sc.trial_ln[i];
-            sc.inv_amount[i] = 1.0 / sc.trial[i];
+            sc.inv_amount[i] = if p.is_pure(i) { 0.0 } else { 1.0 / sc.trial[i] };
         }
     }
     it.totals = trial.totals;

@@ -45,6 +45,11 @@ impl Status {
         Status::Underflow,
     ];
 
+    /// The status of code `code`, if there is one.
+    pub fn from_code(code: u8) -> Option<Status> {
+        Status::ALL.get(usize::from(code)).copied()
+    }
+
     /// Whether the case reached equilibrium (as far as float64 can hold it).
     pub fn is_converged(self) -> bool {
         matches!(self, Status::Converged | Status::Underflow)

@@ -5,27 +5,24 @@ use crate::error::CoreError;
 use crate::face::FaceMemo;
 use crate::lp::{maximize, LpOutcome};
 
-/// The mixture a species belongs to. Activities are ideal in both.
-#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+/// The phase a species belongs to. Activities are ideal.
+#[derive(Clone, Copy, Debug, PartialEq, Eq, PartialOrd, Ord, Hash)]
 pub enum Phase {
-    /// Ideal-gas mixture: `a = y P / P0`.
+    /// The ideal-gas mixture: `a = y P / P0`.
     Gas,
-    /// Ideal liquid solution: `a = x`.
-    Liquid,
+    /// Ideal solution number `k` (`a = x`); species with the same `k` share
+    /// it (0 is the default liquid).
+    Solution(u8),
+    /// A pure condensed species (a solid, or a liquid of its own): a phase
+    /// of one species, `a = 1` while present.
+    Pure,
 }
 
-impl Phase {
-    /// Index of the phase in per-phase arrays.
-    pub fn index(self) -> usize {
-        match self {
-            Phase::Gas => 0,
-            Phase::Liquid => 1,
-        }
-    }
-}
-
-/// Number of phases the engine knows.
-pub const N_PHASES: usize = 2;
+/// Most mixture phases a system may have: the gas and seven solutions.
+pub const MAX_MIXTURES: usize = 8;
+/// Most phases a system may have (mixtures and pure species together): the
+/// per-case masks of absent phases are 64-bit words.
+pub const MAX_PHASES: usize = 64;
 
 /// Relative tolerance for linear dependence of reactions.
 const DEPENDENCE_TOL: f64 = 1e-9;
@@ -39,6 +36,15 @@ pub struct System {
     /// products positive.
     stoich: Vec<f64>,
     phases: Vec<Phase>,
+    /// Per species, the index of its phase: 0 the gas, then the solutions
+    /// (`1..n_mixtures`, in order of their numbers), then one per pure
+    /// species (in species order).
+    phase_index: Vec<usize>,
+    /// Mixture phases (the gas, whether or not it has species, and the
+    /// solutions).
+    n_mixtures: usize,
+    /// Every phase: the mixtures, then the pure species.
+    n_phases: usize,
     /// Standard-state pressure of the equilibrium constants, bar.
     p0: f64,
     /// Species with a non-zero coefficient in some reaction.
@@ -47,6 +53,8 @@ pub struct System {
     basis_gain: std::sync::OnceLock<Option<f64>>,
     /// Faces of the zero patterns met so far (see [`FaceMemo`]).
     faces: FaceMemo,
+    /// [`System::reduced`], computed on first use.
+    reduced: std::sync::OnceLock<Option<Box<crate::condensed::Reduced>>>,
 }
 
 impl System {
@@ -97,15 +105,20 @@ impl System {
         let reactive = (0..n_species)
             .map(|i| (0..n_reactions).any(|j| stoich[j * n_species + i] != 0.0))
             .collect();
+        let (phase_index, n_mixtures, n_phases) = index_phases(&phases)?;
         Ok(System {
             n_species,
             n_reactions,
             stoich,
             phases,
+            phase_index,
+            n_mixtures,
+            n_phases,
             p0,
             reactive,
             basis_gain: std::sync::OnceLock::new(),
             faces: FaceMemo::default(),
+            reduced: std::sync::OnceLock::new(),
         })
     }
 
@@ -130,9 +143,55 @@ impl System {
         self.p0
     }
 
+    /// The index of species `i`'s phase (see [`System::n_phases`]).
+    #[inline(always)]
+    pub fn phase_index(&self, i: usize) -> usize {
+        self.phase_index[i]
+    }
+
+    /// Number of phases: index 0 is the gas, `1..n_mixtures()` the
+    /// solutions, the rest one pure species each.
+    pub fn n_phases(&self) -> usize {
+        self.n_phases
+    }
+
+    /// Number of mixture phases (the gas and the solutions).
+    pub fn n_mixtures(&self) -> usize {
+        self.n_mixtures
+    }
+
+    /// Whether species `i` is a pure condensed species.
+    #[inline(always)]
+    pub fn is_pure(&self, i: usize) -> bool {
+        self.phases[i] == Phase::Pure
+    }
+
+    /// Whether any species is a pure condensed species.
+    pub fn has_pure(&self) -> bool {
+        self.n_phases > self.n_mixtures
+    }
+
+    /// Whether every species is a gas.
+    pub fn gas_only(&self) -> bool {
+        self.phases.iter().all(|&p| p == Phase::Gas)
+    }
+
+    /// Which species belong to phase `phase`.
+    pub fn in_phase(&self, phase: usize) -> Vec<bool> {
+        self.phase_index.iter().map(|&p| p == phase).collect()
+    }
+
     /// Whether species `i` takes part in any reaction (otherwise it is inert).
     pub fn is_reactive(&self, i: usize) -> bool {
         self.reactive[i]
+    }
+
+    /// The system without its pure species ([`crate::condensed::reduce`]),
+    /// computed on first use.
+    pub fn reduced(&self) -> Option<&crate::condensed::Reduced> {
+        self.reduced
+            .get_or_init(|| crate::condensed::reduce(self).map(Box::new))
+            .as_deref()
     }
 
     /// Faces already analysed for this system.
@@ -162,6 +221,47 @@ impl System {
             )
         })
     }
+}
+
+/// Each species' phase index, the number of mixture phases and of phases
+/// (see [`System::phase_index`]); an error past [`MAX_MIXTURES`] or
+/// [`MAX_PHASES`].
+fn index_phases(phases: &[Phase]) -> Result<(Vec<usize>, usize, usize), CoreError> {
+    let mut solutions: Vec<u8> = phases
+        .iter()
+        .filter_map(|p| match p {
+            Phase::Solution(k) => Some(*k),
+            _ => None,
+        })
+        .collect();
+    solutions.sort_unstable();
+    solutions.dedup();
+    let n_mixtures = 1 + solutions.len();
+    if n_mixtures > MAX_MIXTURES {
+        return Err(CoreError::Shape(format!(
+            "{} solution phases; at most {} are supported",
+            solutions.len(),
+            MAX_MIXTURES - 1
+        )));
+    }
+    let mut next = n_mixtures;
+    let mut index = Vec::with_capacity(phases.len());
+    for p in phases {
+        index.push(match p {
+            Phase::Gas => 0,
+            Phase::Solution(k) => 1 + solutions.binary_search(k).unwrap_or(0),
+            Phase::Pure => {
+                next += 1;
+                next - 1
+            }
+        });
+    }
+    if next > MAX_PHASES {
+        return Err(CoreError::Shape(format!(
+            "{next} phases (mixtures and pure species); at most {MAX_PHASES} are supported"
+        )));
+    }
+    Ok((index, n_mixtures, next))
 }
 
 /// Component sets [`System::basis_gain`] examines at most (binomial(M, M -

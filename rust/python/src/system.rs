@@ -18,7 +18,7 @@ type Solved<'py> = (
     Bound<'py, PyArray2<f64>>,
     Bound<'py, PyArray1<u8>>,
     Bound<'py, PyArray1<u32>>,
-    Bound<'py, PyArray1<u8>>,
+    Bound<'py, PyArray1<u64>>,
 );
 
 type Sensitivities<'py> = (
@@ -87,7 +87,8 @@ pub struct PySystem {
 #[pymethods]
 impl PySystem {
     /// `stoich`: (R, S) coefficients, products positive; `phases`: one code
-    /// per species (0 gas, 1 liquid); `p0`: standard pressure, bar.
+    /// per species (0 gas, `1 + k` ideal solution `k` (1 the liquid), 255 a
+    /// pure condensed species); `p0`: standard pressure, bar.
     #[new]
     fn new(stoich: PyReadonlyArray2<'_, f64>, phases: Vec<u8>, p0: f64) -> PyResult<Self> {
         let shape = stoich.shape();
@@ -96,8 +97,8 @@ impl PySystem {
             .into_iter()
             .map(|code| match code {
                 0 => Ok(Phase::Gas),
-                1 => Ok(Phase::Liquid),
-                other => Err(PyValueError::new_err(format!("unknown phase code {other}"))),
+                255 => Ok(Phase::Pure),
+                k => Ok(Phase::Solution(k - 1)),
             })
             .collect::<PyResult<Vec<_>>>()?;
         let inner = System::new(
@@ -119,6 +120,22 @@ impl PySystem {
     #[getter]
     fn n_reactions(&self) -> usize {
         self.inner.n_reactions()
+    }
+
+    /// Per species, the index of its phase: 0 the gas, then the solutions
+    /// in order of their codes, then one per pure species (bit `k` of a
+    /// solve's `absent` mask is phase `k`).
+    #[getter]
+    fn phase_index(&self) -> Vec<usize> {
+        (0..self.inner.n_species())
+            .map(|i| self.inner.phase_index(i))
+            .collect()
+    }
+
+    /// Number of phases (mixtures and pure species).
+    #[getter]
+    fn n_phases(&self) -> usize {
+        self.inner.n_phases()
     }
 
     /// Solve `n_cases` cases. `feed` (1 or N, S) or (S,), `ln_k` (1 or N, R)
@@ -190,6 +207,7 @@ impl PySystem {
                 tol,
                 max_iter,
                 chain,
+                drop_vanishing: false,
             };
             let system = &self.inner;
             py.detach(move || {
@@ -251,7 +269,7 @@ impl PySystem {
         pressure: PyReadonlyArray1<'py, f64>,
         amounts: PyReadonlyArray2<'py, f64>,
         status: PyReadonlyArray1<'py, u8>,
-        absent: Option<PyReadonlyArray1<'py, u8>>,
+        absent: Option<PyReadonlyArray1<'py, u64>>,
         threads: Option<usize>,
         with_feed: bool,
     ) -> PyResult<Sensitivities<'py>> {

@@ -1,0 +1,307 @@
+"""Pure condensed species (solids, pure liquids) and several solution phases:
+which phases are present is decided per case in the core. Checked against
+closed forms, a published correlation, a reference formulation of water's
+vapour pressure and an independent minimisation of the Gibbs function."""
+
+from __future__ import annotations
+
+import math
+
+import eqbatch
+import numpy as np
+import pytest
+from conftest import conservation_basis, gibbs, log_residuals
+from eqbatch.speciesdata import CpPolynomial
+from test_phases import random_phase_batch
+from test_thermo_core import CACO3, CAO, SHOMATE
+
+BOUDOUARD = ["C", "CO2", "CO"]
+
+
+def boudouard_closed_form(c: np.ndarray, c2: np.ndarray, co: np.ndarray, K: np.ndarray, P: np.ndarray):
+    """C(s) + CO2 = 2 CO from c mol C, c2 mol CO2, co mol CO (closed form).
+
+    With graphite present y_CO^2 / (1 - y_CO) = K P0 / P, so
+    y* = (-r + sqrt(r^2 + 4 r)) / 2 with r = K / P; the extent that gives it
+    is xi = (y* (c2 + co) - co) / (2 - y*). Graphite stays exactly when c > xi;
+    otherwise it is used up (xi = c). Returns the extents and whether graphite
+    is present."""
+    r = K / P
+    y = (-r + np.sqrt(r * r + 4 * r)) / 2
+    xi = (y * (c2 + co) - co) / (2 - y)
+    present = c - xi > 0
+    return np.where(present, xi, c), present, c - xi
+
+
+def test_boudouard_with_graphite_matches_the_closed_form_case_by_case() -> None:
+    rng = np.random.default_rng(7)
+    n = 4000
+    c = rng.uniform(0, 2, n) * (rng.uniform(size=n) < 0.7)
+    c2 = rng.uniform(0.1, 2, n)
+    co = rng.uniform(0, 2, n) * (rng.uniform(size=n) < 0.7)
+    K = 10 ** rng.uniform(-3, 3, n)
+    P = 10 ** rng.uniform(-1, 1.5, n)
+    system = eqbatch.ReactionSystem(BOUDOUARD, ["C + CO2 = 2 CO"], phases={"C": "solid"})
+    assert system.phase_names == ("gas", "C(solid)")
+    feed = np.column_stack([c, c2, co])
+    res = system.solve(feed, K=K[:, None], P=P)
+    assert res.converged.all(), np.unique(res.status, return_counts=True)
+    xi, present, margin = boudouard_closed_form(c, c2, co, K, P)
+    clear = np.abs(margin) > 1e-7
+    np.testing.assert_array_equal(res.present[clear, 1], present[clear])
+    assert res.present[:, 0].all()
+    np.testing.assert_allclose(res.extents[:, 0], xi, rtol=1e-8, atol=1e-12)
+    # where graphite is absent its amount is exactly zero and its activity,
+    # a_C = y_CO^2 P / (y_CO2 K), is below one; where present it is one
+    absent = ~res.present[:, 1]
+    assert np.all(res.amounts[absent, 0] == 0.0)
+    y = res.mole_fractions
+    a_c = y[:, 2] ** 2 * P / (y[:, 1] * K)
+    np.testing.assert_allclose(res.activities[absent, 0], a_c[absent], rtol=1e-9)
+    assert np.all(res.activities[absent & clear, 0] < 1.0)
+    np.testing.assert_array_equal(res.activities[~absent, 0], 1.0)
+    assert all(res.absent_phases(k) == ["C(solid)"] for k in np.flatnonzero(absent)[:5])
+
+
+def test_carbon_limit_of_a_co_co2_gas() -> None:
+    # 2 CO = C + CO2 from 1 CO + 1 CO2 at 1 bar: Q = y_CO^2 / y_CO2 = 0.5, so
+    # carbon forms for a Boudouard K below 0.5 and not above (closed form).
+    system = eqbatch.ReactionSystem(BOUDOUARD, ["C + CO2 = 2 CO"], phases={"C": "solid"})
+    K = np.array([0.3, 0.45, 0.499, 0.501, 0.55, 2.0])
+    res = system.solve([0.0, 1.0, 1.0], K=K[:, None], P=1.0)
+    np.testing.assert_array_equal(res.present[:, 1], K < 0.5)
+    np.testing.assert_allclose(res.activities[K > 0.5, 0], 0.5 / K[K > 0.5], rtol=1e-12)
+
+
+def calcination() -> eqbatch.ReactionSystem:
+    return eqbatch.ReactionSystem(
+        ["CaCO3", "CaO", "CO2", "N2"],
+        ["CaCO3 = CaO + CO2"],
+        phases={"CaCO3": "solid", "CaO": "solid"},
+        species_data={"CaCO3": CACO3, "CaO": CAO, "CO2": SHOMATE["CO2"], "N2": SHOMATE["N2"]},
+    )
+
+
+def test_calcite_decomposition_pressure_against_baker() -> None:
+    # Baker, J. Chem. Soc. 1962, 464 (from memory): log10(P_CO2 / atm) =
+    # 7.079 - 38000 / (4.574 T) over 900-1200 K. From 40 mol CaCO3 in 50 mol N2
+    # at 1 bar, calcite decomposes until CO2 reaches that pressure (both solids
+    # present) while there is calcite enough, else completely.
+    T = np.linspace(900.0, 1200.0, 13)
+    p_baker = 10 ** (7.079 - 38000.0 / (4.574 * T)) * 1.01325  # bar
+    res = calcination().solve([40.0, 0.0, 0.0, 50.0], T=T, P=1.0)
+    assert res.converged.all()
+    y_co2 = res.mole_fractions[:, 2]
+    with np.errstate(divide="ignore"):
+        needed = np.where(p_baker < 1.0, 50.0 * p_baker / (1.0 - p_baker), np.inf)  # CO2 at P_baker
+    both = needed < 0.8 * 40.0  # clearly short of full decomposition
+    assert both.sum() >= 8
+    np.testing.assert_array_equal(res.present[both], True)
+    np.testing.assert_allclose(np.log(y_co2[both]), np.log(p_baker[both]), atol=0.25)
+    # the model's own equilibrium pressure is its K P0 exactly
+    np.testing.assert_allclose(y_co2[both], np.exp(calcination().lnK(T[both])[:, 0]), rtol=1e-9)
+    gone = needed > 1.25 * 40.0
+    assert gone.sum() >= 2
+    np.testing.assert_array_equal(res.amounts[gone, 0], 0.0)
+    assert not res.present[gone, 1].any()  # CaCO3 is phase 1 (gas 0, CaCO3 1, CaO 2)
+    np.testing.assert_allclose(res.amounts[gone, 2], 40.0, rtol=1e-12)
+
+
+# Water: CODATA key values (Cox, Wagman and Medvedev, CODATA Key Values for
+# Thermodynamics, 1989; from memory): dHf(l) -285.83, dHf(g) -241.826 kJ/mol,
+# S(l) 69.95, S(g) 188.835 J/(mol K); Cp(l) 75.3, Cp(g) 33.6 J/(mol K) near 25 C.
+STEAM = CpPolynomial(a=(33.6 / 8.314462618,), dHf=-241.826, S298=188.835, source="CODATA key values")
+WATER = CpPolynomial(a=(75.3 / 8.314462618,), dHf=-285.83, S298=69.95, source="CODATA key values")
+
+
+def test_water_condenses_to_its_vapour_pressure_below_the_dew_point() -> None:
+    from chemicals.iapws import iapws95_Psat  # the IAPWS-95 formulation
+
+    system = eqbatch.ReactionSystem(
+        ["H2O", "water", "N2"],
+        ["H2O = water"],
+        phases={"water": "pure_liquid"},
+        species_data={"H2O": STEAM, "water": WATER, "N2": SHOMATE["N2"]},
+        formulas={"water": "H2O"},
+    )
+    # 1 H2O : 1 N2 at 1 bar: the dew point is where Psat = 0.5 bar, near 354.5 K
+    T = np.array([300.0, 320.0, 340.0, 350.0, 358.0, 370.0])
+    res = system.solve([1.0, 0.0, 1.0], T=T, P=1.0)
+    assert res.converged.all()
+    psat = np.array([iapws95_Psat(t) for t in T]) / 1e5  # bar
+    wet = psat < 0.5
+    np.testing.assert_array_equal(res.present[:, 1], wet)
+    y = res.mole_fractions[:, 0]
+    # vapour fraction = Psat / P where condensate is present (the constant-Cp
+    # data reproduce IAPWS-95 within 2 % here), the feed's 1/2 where it is not
+    np.testing.assert_allclose(y[wet], psat[wet], rtol=0.02)
+    np.testing.assert_allclose(y[~wet], 0.5, rtol=1e-12)
+    assert np.all(res.activities[~wet, 1] < 1.0)
+
+
+def test_a_solute_shares_itself_between_two_liquid_solutions() -> None:
+    # A(aq) = A(org) with K = x_org / x_aq: from 1 A in 10 W (aqueous) and 10 O
+    # (organic), xi / (10 + xi) = K (1 - xi) / (11 - xi): a quadratic (numpy roots).
+    system = eqbatch.ReactionSystem(
+        ["Aaq", "Aorg", "W", "O"],
+        ["Aaq = Aorg"],
+        phases={"Aaq": "liquid", "W": "liquid", "Aorg": "liquid:organic", "O": "liquid:organic"},
+    )
+    assert system.phase_names == ("gas", "liquid", "liquid:organic")
+    for K in (0.2, 1.0, 7.0):
+        # xi (11 - xi) = K (1 - xi)(10 + xi)  ->  (K - 1) xi^2 + (11 + 9 K) xi - 10 K = 0
+        roots = np.roots([K - 1.0, 11.0 + 9.0 * K, -10.0 * K]) if K != 1.0 else np.array([10.0 / 20.0])
+        xi = float(roots[(roots > 0) & (roots < 1)][0].real)
+        res = system.solve([1.0, 0.0, 10.0, 10.0], K=[K])
+        assert res.converged[0]
+        assert math.isclose(res.extents[0, 0], xi, rel_tol=1e-10)
+        np.testing.assert_allclose(res.phase_amounts[0], [0.0, 11.0 - xi, 10.0 + xi], rtol=1e-12)
+        np.testing.assert_array_equal(res.present[0], [False, True, True])
+
+
+@pytest.mark.parametrize(
+    "phase, message",
+    [("plasma", "valid phases are"), ("liquid:", "valid phases are"), ("liquid:a b", "valid phases are")],
+)
+def test_bad_phases_are_refused_naming_the_valid_ones(phase: str, message: str) -> None:
+    with pytest.raises(eqbatch.SystemDefinitionError, match=message):
+        eqbatch.ReactionSystem(BOUDOUARD, ["C + CO2 = 2 CO"], phases={"C": phase})
+
+
+def test_more_solution_phases_than_the_core_takes_are_refused() -> None:
+    names = [f"X{k}" for k in range(9)]
+    phases = {name: f"liquid:p{k}" for k, name in enumerate(names)}
+    with pytest.raises(eqbatch.SystemDefinitionError, match="at most 7"):
+        eqbatch.ReactionSystem(names, ["X0 = X1"], phases=phases)
+
+
+# --- random systems with condensed species --------------------------------------
+
+
+def implied_ln_activity(system, amounts: np.ndarray, lnK: np.ndarray, P: float, k: int) -> float:
+    """ln a of species k (at zero) in equilibrium with the present species, from
+    the reactions alone (least squares on nu[:, zero]; independent of eqbatch)."""
+    nu = system.stoich
+    phases = np.array(system.phases)
+    ln_a = np.zeros(system.n_species)
+    for phase in set(phases) - {"solid", "pure_liquid"}:
+        mask = (phases == phase) & (amounts > 0)
+        if mask.any():
+            ln_a[mask] = np.log(amounts[mask] / amounts[phases == phase].sum())
+            if phase == "gas":
+                ln_a[mask] += np.log(P / system.P0)
+    zero = amounts == 0
+    sol = np.linalg.lstsq(nu[:, zero], lnK - nu[:, ~zero] @ ln_a[~zero], rcond=None)[0]
+    return float(sol[list(np.flatnonzero(zero)).index(k)])
+
+
+def condensed_phases(rng, names: list[str]) -> dict[str, str]:
+    """One to three species made pure: solid (70 %) or pure liquid."""
+    pure = rng.choice(len(names), size=int(rng.integers(1, min(3, len(names) - 1) + 1)), replace=False)
+    return {names[k]: "solid" if rng.uniform() < 0.7 else "pure_liquid" for k in pure}
+
+
+def random_condensed_batch(rng, cases: int):
+    """A random system with condensed species, ln K +-30 (uniform), P 0.1-10 bar."""
+    return random_phase_batch(
+        rng, condensed_phases, cases, lambda rng, shape: rng.uniform(-30, 30, shape), 1.0
+    )
+
+
+def test_random_systems_with_condensed_species_converge_to_the_stable_phase_set() -> None:
+    rng = np.random.default_rng(2026)
+    total = 0
+    for _ in range(40):
+        batch = random_condensed_batch(rng, cases=60)
+        if batch is None:
+            continue
+        system, feed, lnk, P = batch
+        res = system.solve(feed, lnK=lnk, P=P)
+        total += len(P)
+        assert res.converged.all(), (system.equations, np.unique(res.status, return_counts=True))
+        basis = conservation_basis(system)
+        pure = [k for k, p in enumerate(system.phases) if p in ("solid", "pure_liquid")]
+        for k in range(len(P)):
+            a = res.amounts[k]
+            assert np.all(a >= 0)
+            np.testing.assert_allclose(basis @ a, basis @ feed[k], atol=1e-9 * feed[k].sum())
+            r = log_residuals(system, a, lnk[k], P[k])
+            assert np.all(np.abs(r[np.isfinite(r)]) < 1e-7), (k, r)
+            # every absent pure species that the reactions tie to the present
+            # ones would have an activity of at most one (it cannot form)
+            for i in pure:
+                if a[i] == 0 and system._reactive[i]:
+                    zero = a == 0
+                    if np.linalg.matrix_rank(system.stoich[:, zero]) == zero.sum():
+                        assert implied_ln_activity(system, a, lnk[k], P[k], i) <= 1e-7
+    assert total >= 1500
+
+
+def lowest_gibbs(system, feed: np.ndarray, lnK: np.ndarray, P: float, starts) -> float:
+    """The lowest G/RT scipy's SLSQP finds over the extents under n >= 0 from
+    ``starts`` (states that exist only; independent of eqbatch)."""
+    from scipy.optimize import minimize
+
+    nu = system.stoich
+    best = np.inf
+    for x0 in starts:
+        sol = minimize(
+            lambda x: gibbs(system, np.maximum(feed + nu.T @ x, 0.0), lnK, P),
+            x0,
+            method="SLSQP",
+            constraints=[{"type": "ineq", "fun": lambda x: feed + nu.T @ x, "jac": lambda x: nu.T}],
+            options={"ftol": 1e-12, "maxiter": 400},
+        )
+        amounts = feed + nu.T @ sol.x
+        if amounts.min() >= -1e-12 * feed.sum():
+            best = min(best, gibbs(system, np.maximum(amounts, 0.0), lnK, P))
+    return best
+
+
+def test_the_answer_has_the_lowest_gibbs_energy_of_any_phase_set() -> None:
+    # an independent minimisation (scipy SLSQP over the extents with n >= 0, from
+    # two starts) never finds a lower Gibbs energy than eqbatch's answer
+    rng = np.random.default_rng(11)
+    checked = 0
+    while checked < 60:
+        batch = random_condensed_batch(rng, cases=3)
+        if batch is None or batch[0].n_reactions > 3:
+            continue
+        system, feed, lnk, P = batch
+        res = system.solve(feed, lnK=lnk, P=P)
+        for k in range(3):
+            mine = gibbs(system, res.amounts[k], lnk[k], P[k])
+            starts = (np.zeros(system.n_reactions), res.extents[k] * 0.5)
+            other = lowest_gibbs(system, feed[k], lnk[k], P[k], starts)
+            assert mine <= other + 1e-7 * max(1.0, abs(other)), (system.equations, k)
+            checked += 1
+
+
+@pytest.mark.parametrize("feed", [[5.0, 1.0, 0.0], [0.1, 1.0, 0.0], [0.0, 1.0, 1.0]])
+def test_derivatives_in_the_phase_set_present_match_finite_differences(feed) -> None:
+    # Boudouard at K = 0.45, P = 2 bar: graphite left over (first feed), used up
+    # (second: absent, the gas short of equilibrium) and formed from CO (third)
+    system = eqbatch.ReactionSystem(BOUDOUARD, ["C + CO2 = 2 CO"], phases={"C": "solid"})
+    feed, lnK, P = np.array(feed), np.array([np.log(0.45)]), 2.0
+    res = system.solve(feed, lnK=lnK, P=P, sensitivities=True)
+    assert res.converged[0]
+    h = 1e-6
+    fd = (
+        system.solve(feed, lnK=lnK + h, P=P, tol=1e-13).amounts[0]
+        - system.solve(feed, lnK=lnK - h, P=P, tol=1e-13).amounts[0]
+    ) / (2 * h)
+    np.testing.assert_allclose(res.sensitivity("lnK")[0][:, 0], fd, atol=1e-7)
+    fd = (
+        system.solve(feed, lnK=lnK, P=P * np.exp(h), tol=1e-13).amounts[0]
+        - system.solve(feed, lnK=lnK, P=P * np.exp(-h), tol=1e-13).amounts[0]
+    ) / (2 * h)
+    np.testing.assert_allclose(res.sensitivity("P")[0] * P, fd, atol=1e-7)
+    for k in (1, 2):  # the gas species' feeds (one-sided at a zero feed)
+        step = np.zeros(3)
+        step[k] = h
+        below = feed - step if feed[k] > 0 else feed
+        fd = (
+            system.solve(feed + step, lnK=lnK, P=P, tol=1e-13).amounts[0]
+            - system.solve(below, lnK=lnK, P=P, tol=1e-13).amounts[0]
+        ) / (h + (feed[k] > 0) * h)
+        np.testing.assert_allclose(res.sensitivity("feed")[0][:, k], fd, atol=1e-7 if feed[k] > 0 else 1e-5)
