@@ -260,6 +260,19 @@ def single_call(problem: Problem, calls: int, rounds: int) -> dict[str, float]:
     }
 
 
+def take_turns(kinds: dict, turns: int) -> tuple[dict, dict]:
+    """Run each of ``kinds`` (name -> call) in turn, ``turns`` times: the best
+    time of each and its last result."""
+    best = dict.fromkeys(kinds, float("inf"))
+    results = {}
+    for _ in range(turns):
+        for kind, fn in kinds.items():
+            t0 = time.perf_counter()
+            results[kind] = fn()
+            best[kind] = min(best[kind], time.perf_counter() - t0)
+    return best, results
+
+
 def temperature_driven(n: int, n_adiabatic: int, turns: int) -> dict:
     """Issue 15's figures: the demo reformer (Shomate data for every species),
     workload (a)'s ranges; solve given ln K against solve given T (ln K from
@@ -285,13 +298,7 @@ def temperature_driven(n: int, n_adiabatic: int, turns: int) -> dict:
             "approach": lambda: system.solve(feed, T=T, P=P, approach={label: 10.0}),
             "adiabatic": lambda: system.solve(feed[:m], T=T[:m], P=P[:m], adiabatic=True),
         }
-        best = dict.fromkeys(kinds, float("inf"))
-        results = {}
-        for _ in range(turns):
-            for kind, fn in kinds.items():
-                t0 = time.perf_counter()
-                results[kind] = fn()
-                best[kind] = min(best[kind], time.perf_counter() - t0)
+        best, results = take_turns(kinds, turns)
     adiabatic = results["adiabatic"]
     return {
         "n": n,
@@ -303,6 +310,93 @@ def temperature_driven(n: int, n_adiabatic: int, turns: int) -> dict:
         "adiabatic_ratio": (m / best["adiabatic"]) / (n / best["T"]),
         "converged": {k: float(np.mean(results[k].converged)) for k in ("lnK", "T", "approach")},
         "adiabatic_converged": float(np.mean(adiabatic.converged)),
+    }
+
+
+def condensed_phases(n: int, systems: int, network_cases: int, turns: int) -> dict:
+    """Issue 16's figures. (1) The demo reformer with graphite and the cracking
+    reaction against the reformer alone on the same cases (S/C 0.5-5, so some
+    cases deposit carbon), taking turns, best of ``turns``. (2) Random
+    networks with one to three pure condensed species, ln K +-30: the share of
+    cases converged. (3) A random nine-reaction network with a third of its
+    species liquid against the same network all gas, ln K +-50."""
+    from eqbatch.demo import reformer_system
+    from eqbatch.speciesdata import MaierKelley
+
+    base = reformer_system()
+    # graphite, Cp = a + bT + d/T^2 (Kelley 1960, from memory), CODATA S298
+    graphite = MaierKelley(a=17.15, b=4.27e-3, d=-8.79e5, dHf=0.0, S298=5.74, T_max=2500.0, source="graphite")
+    with_c = eqbatch.ReactionSystem(
+        [*base.species, "C"],
+        {**dict(zip(base.labels, base.equations)), "cracking": "CH4 = C + 2 H2"},
+        phases={"C": "solid"},
+        species_data={**base.species_data, "C": graphite},
+    )
+    rng = np.random.default_rng(16)
+    T, P = rng.uniform(700.0, 1200.0, n), rng.uniform(1.0, 40.0, n)
+    feed = np.zeros((n, len(base.species)))
+    feed[:, 0] = 1.0
+    feed[:, 1] = rng.uniform(0.5, 5.0, n)
+    feed_c = np.column_stack([feed, np.zeros(n)])
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", eqbatch.ExtrapolationWarning)
+        lnk, lnk_c = base.lnK(T), with_c.lnK(T)
+    kinds = {
+        "reformer": lambda: base.solve(feed, lnK=lnk, P=P),
+        "with graphite": lambda: with_c.solve(feed_c, lnK=lnk_c, P=P),
+    }
+    best, results = take_turns(kinds, turns)
+    carbon = results["with graphite"]
+
+    # random networks with condensed species
+    total = converged = 0
+    for k in range(systems):
+        p = workloads.random_network(60, n_reactions=int(rng.integers(2, 6)), seed=1000 + k)
+        pure = rng.choice(len(p.species), size=int(rng.integers(1, 4)), replace=False)
+        phases = {p.species[i]: ("solid" if rng.uniform() < 0.7 else "pure_liquid") for i in pure}
+        system = eqbatch.ReactionSystem(
+            list(p.species), [str(e) for e in system_for(p).equations], phases=phases, check_balance=False
+        )
+        f = p.feed * (rng.uniform(size=p.feed.shape) < 0.6)
+        f[f.sum(axis=1) == 0, 0] = 1.0
+        lk = p.lnK + rng.uniform(-30.0, 30.0, p.lnK.shape)
+        res = system.solve(f, lnK=lk, P=p.P)
+        total += len(res)
+        converged += int(res.converged.sum())
+
+    # gas + liquid against all gas, the same cases
+    net = workloads.random_network(network_cases, n_reactions=9, seed=9)
+    lk = net.lnK + rng.uniform(-50.0, 50.0, net.lnK.shape)
+    liquid = {s: "liquid" for s in net.species if rng.uniform() < 1 / 3}
+    equations = list(system_for(net).equations)
+    two = {
+        "all gas": eqbatch.ReactionSystem(list(net.species), equations, check_balance=False),
+        "gas + liquid": eqbatch.ReactionSystem(
+            list(net.species), equations, phases=liquid, check_balance=False
+        ),
+    }
+    net_best, net_results = take_turns(
+        {
+            kind: (lambda system=system: system.solve(net.feed, lnK=lk, P=net.P))
+            for kind, system in two.items()
+        },
+        turns,
+    )
+    net_converged = {kind: float(np.mean(res.converged)) for kind, res in net_results.items()}
+    return {
+        "n": n,
+        "turns": turns,
+        "seconds": best,
+        "ratio": best["reformer"] / best["with graphite"],
+        "carbon_share": float(np.mean(carbon.present[:, 1])),
+        "converged": {k: float(np.mean(r.converged)) for k, r in results.items()},
+        "random_cases": total,
+        "random_converged": converged / total,
+        "network_cases": network_cases,
+        "network_seconds": net_best,
+        "network_converged": net_converged,
+        "liquid_species": len(liquid),
+        "network_ratio": net_best["gas + liquid"] / net_best["all gas"],
     }
 
 
@@ -608,6 +702,11 @@ def main(argv: list[str] | None = None) -> int:
     # temperature-driven solves (issue 15)
     thermo = temperature_driven(2_000 if smoke else 1_000_000, 200 if smoke else 20_000, 1 if smoke else 5)
 
+    # condensed phases (issue 16)
+    condensed = condensed_phases(
+        2_000 if smoke else 1_000_000, 10 if smoke else 400, 500 if smoke else 5_000, 1 if smoke else 5
+    )
+
     # memory
     memory = peak_memory(20_000 if smoke else 10_000_000)
 
@@ -736,6 +835,41 @@ def main(argv: list[str] | None = None) -> int:
         f"{met(thermo['T_ratio'] >= 0.8)} |",
         f"| adiabatic at least 0.3x the throughput of the isothermal solve | {thermo['adiabatic_ratio']:.3f}x | "
         f"{met(thermo['adiabatic_ratio'] >= 0.3)} |",
+    ]
+    cs = condensed["seconds"]
+    report += [
+        "",
+        "### Condensed phases (issue 16)",
+        "",
+        f"The demo's reformer with graphite (C, phase solid) and `CH4 = C + 2 H2` against the reformer "
+        f"alone, {condensed['n']:,} cases (T 700-1200 K, P 1-40 bar, steam 0.5-5 per CH4; carbon present "
+        f"in {100 * condensed['carbon_share']:.1f} % of them), taking turns, best of {condensed['turns']}. "
+        f"Random networks (2-5 reactions, one to three species solid or pure liquid, ln K +-30, "
+        f"{condensed['random_cases']:,} cases). A random nine-reaction, thirteen-species network with "
+        f"{condensed['liquid_species']} species liquid against the same network all gas, "
+        f"{condensed['network_cases']:,} cases, ln K +-50.",
+        "",
+        "| call | seconds | cases/s | converged |",
+        "|---|---:|---:|---:|",
+        *(
+            f"| {kind} | {cs[kind]:.3f} | {condensed['n'] / cs[kind]:,.0f} | "
+            f"{100 * condensed['converged'][kind]:.3f} % |"
+            for kind in cs
+        ),
+        *(
+            f"| network, {kind} | {sec:.3f} | {condensed['network_cases'] / sec:,.0f} | "
+            f"{100 * condensed['network_converged'][kind]:.3f} % |"
+            for kind, sec in condensed["network_seconds"].items()
+        ),
+        "",
+        "| target | measured | met |",
+        "|---|---|---|",
+        f"| reformer with graphite at least 0.5x the throughput without it | {condensed['ratio']:.2f}x | "
+        f"{met(condensed['ratio'] >= 0.5)} |",
+        f"| random networks with condensed phases: 100 % converged | "
+        f"{100 * condensed['random_converged']:.3f} % | {met(condensed['random_converged'] == 1.0)} |",
+        f"| gas + liquid within 2x the all-gas time | {condensed['network_ratio']:.2f}x | "
+        f"{met(condensed['network_ratio'] <= 2.0)} |",
     ]
     report += [
         "",
@@ -876,6 +1010,7 @@ def main(argv: list[str] | None = None) -> int:
                 "lean": duel,
                 "single": single,
                 "thermo": thermo,
+                "condensed": condensed,
                 "memory": memory,
                 "threads": {"one": one.seconds, "two": two.seconds},
             },

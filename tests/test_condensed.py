@@ -305,3 +305,20 @@ def test_derivatives_in_the_phase_set_present_match_finite_differences(feed) -> 
             - system.solve(below, lnK=lnK, P=P, tol=1e-13).amounts[0]
         ) / (h + (feed[k] > 0) * h)
         np.testing.assert_allclose(res.sensitivity("feed")[0][:, k], fd, atol=1e-7 if feed[k] > 0 else 1e-5)
+
+
+def test_condensed_results_do_not_depend_on_the_thread_count() -> None:
+    # many cases (several chunks and the parallel reduced solve), with graphite
+    # left over, used up, or formed from CO; the same bits on one and two threads
+    rng = np.random.default_rng(5)
+    n = 3000
+    feed = np.column_stack(
+        [rng.uniform(0, 1, n) * (rng.uniform(size=n) < 0.5), np.ones(n), rng.uniform(0, 3, n)]
+    )
+    K = 10 ** rng.uniform(-2, 2, n)
+    system = eqbatch.ReactionSystem(BOUDOUARD, ["C + CO2 = 2 CO"], phases={"C": "solid"})
+    one = system.solve(feed, K=K[:, None], P=2.0, threads=1)
+    two = system.solve(feed, K=K[:, None], P=2.0, threads=2)
+    assert one.converged.all() and 0.1 < one.present[:, 1].mean() < 0.9
+    for a, b in ((one.amounts, two.amounts), (one.extents, two.extents), (one.absent, two.absent)):
+        np.testing.assert_array_equal(a, b)

@@ -29,6 +29,7 @@ MODULES = [
     "eqbatch.prepared",
     "eqbatch.thermo",
     "eqbatch.uncertainty",
+    "eqbatch.boundary",
     "eqbatch.sweeps",
     "eqbatch.hazards",
 ]

@@ -42,6 +42,7 @@ from eqbatch.system import ReactionSystem
 
 if TYPE_CHECKING:
     from eqbatch import thermo as thermo
+    from eqbatch.boundary import PhaseBoundary, phase_boundary
     from eqbatch.sweeps import SweepError, SweepSummary, sweep
     from eqbatch.uncertainty import MonteCarloResult, lnK_covariance, monte_carlo, monte_carlo_table
 
@@ -51,6 +52,8 @@ __version__ = _core_version
 #: and the thermochemistry functions): ``import eqbatch`` then loads only what
 #: a solve needs.
 _ON_FIRST_USE = {
+    "PhaseBoundary": "eqbatch.boundary",
+    "phase_boundary": "eqbatch.boundary",
     "SweepError": "eqbatch.sweeps",
     "SweepSummary": "eqbatch.sweeps",
     "sweep": "eqbatch.sweeps",
@@ -87,6 +90,7 @@ __all__ = [
     "InvalidCaseError",
     "LnKFunction",
     "MonteCarloResult",
+    "PhaseBoundary",
     "PreparedSolve",
     "ReactionSystem",
     "Status",
@@ -101,6 +105,7 @@ __all__ = [
     "monte_carlo_table",
     "parse_equation",
     "parse_formula",
+    "phase_boundary",
     "release_memory",
     "reuse_output_memory",
     "sweep",

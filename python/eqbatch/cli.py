@@ -25,6 +25,7 @@ from typing import Any
 import numpy as np
 
 from eqbatch import _core, demo, plots
+from eqbatch.boundary import boundary_file
 from eqbatch.columns import parse_output
 from eqbatch.errors import EqbatchError
 from eqbatch.grid import make_grid, write_grid
@@ -305,6 +306,36 @@ def _cmd_sweep(args: argparse.Namespace) -> int:
     return 0
 
 
+def _cmd_boundary(args: argparse.Namespace) -> int:
+    system = ReactionSystem.from_toml(args.system)
+    found = boundary_file(
+        system,
+        args.input,
+        args.output,
+        args.species,
+        args.vary,
+        args.lo,
+        args.hi,
+        threads=args.threads,
+        overwrite=args.overwrite,
+    )
+    counts = {name: int(np.sum(found.status == code)) for name, code in (("found", 0), ("no boundary", 7))}
+    other = found.status.size - sum(counts.values())
+    print(
+        f"{args.output}: {found.status.size:,} cases; {args.species} boundary found in "
+        f"{counts['found']:,}, none in the bracket in {counts['no boundary']:,}"
+        + (f", search failed in {other:,}" if other else "")
+        + f" ({found.iterations} batched solves)"
+    )
+    if not args.quiet:
+        print(
+            "note: a phase boundary at equilibrium is a thermodynamic limit, not a design margin; "
+            "carbon can form short of it (kinetics, hot spots), and designers add their own margins"
+        )
+        print(caution(system))
+    return 0
+
+
 def _parse_range(text: str) -> tuple[str, tuple[float, float, int]]:
     name, sep, spec = text.partition("=")
     parts = spec.split(":")
@@ -519,6 +550,26 @@ def _parser() -> argparse.ArgumentParser:
         help="add H_out_kJ, heat_kJ and dH_<label> (on by default with adiabatic, duty_kJ or T_in_K columns)",
     )
     sw.set_defaults(run=_cmd_sweep)
+
+    bd = sub.add_parser(
+        "boundary",
+        help="where a pure condensed species just appears, for every row of a Parquet case table",
+    )
+    bd.add_argument("system", help="system file (TOML)")
+    bd.add_argument("input", help="Parquet case table (a sweep's input columns, less the varied one)")
+    bd.add_argument(
+        "output", help="output Parquet file: the input plus boundary_<column>, present_below, status"
+    )
+    bd.add_argument(
+        "--species", required=True, help="the pure condensed species (phase solid or pure_liquid)"
+    )
+    bd.add_argument("--vary", required=True, help="T (K), P (bar) or a species whose feed (mol) is varied")
+    bd.add_argument("--lo", type=float, required=True, help="low end of the bracket")
+    bd.add_argument("--hi", type=float, required=True, help="high end of the bracket")
+    bd.add_argument("--threads", type=int, default=None, help="worker threads (default: all cores)")
+    bd.add_argument("--overwrite", action="store_true", help="replace an existing output")
+    bd.add_argument("--quiet", action="store_true", help="no caution line")
+    bd.set_defaults(run=_cmd_boundary)
 
     gr = sub.add_parser("grid", help="write a Parquet case table: factorial grid or space-filling sample")
     gr.add_argument("output", help="Parquet file to write")

@@ -390,8 +390,17 @@ class EquilibriumResult:
             and self.system._reactive[k]
             and names[self.system.phase_index[k]] not in absent
         ]
+        pure = {
+            f"{name}({kind})": k
+            for k, (name, kind) in enumerate(zip(self.system.species, self.system.phases))
+        }
         for phase in absent:
-            text += f"; the {phase} phase is absent (it would not form: it is stable empty)"
+            k = pure.get(phase)
+            a = float(self._activities([case])[0, k]) if k is not None else np.nan
+            if np.isfinite(a):
+                text += f"; the {phase} phase is absent (activity {a:.4g} < 1: it would not form)"
+            else:
+                text += f"; the {phase} phase is absent (it would not form: it is stable empty)"
         if self.held is not None and self.held[case].any():
             labels = [lab for lab, h in zip(self.system.labels, self.held[case]) if h]
             text += (
@@ -484,16 +493,22 @@ class EquilibriumResult:
         >>> round(float(res.activities[0, 0]), 12)  # a_C = Q / K
         0.909090909091
         """
-        ln_a = self.system.ln_activities(self.amounts, self.P)
+        return self._activities(slice(None))
+
+    def _activities(self, rows: Any) -> np.ndarray:
+        """:attr:`activities` of the cases ``rows`` (a slice or index array)."""
+        amounts = self.amounts[rows]
+        ln_a = self.system.ln_activities(amounts, self.P[rows])
+        lnK = self.lnK[rows]
         nu = self.system.stoich
         # the unknowns: species of phases holding nothing (ln_activities: NaN)
-        unknown = np.isnan(ln_a) & np.isfinite(self.amounts).all(axis=1)[:, None]
-        rows = np.flatnonzero(unknown.any(axis=1))
-        if rows.size:
-            patterns, which = np.unique(unknown[rows], axis=0, return_inverse=True)
+        unknown = np.isnan(ln_a) & np.isfinite(amounts).all(axis=1)[:, None]
+        open_rows = np.flatnonzero(unknown.any(axis=1))
+        if open_rows.size:
+            patterns, which = np.unique(unknown[open_rows], axis=0, return_inverse=True)
             for k, pattern in enumerate(patterns):
-                cases = rows[which.reshape(-1) == k]
-                ln_a[np.ix_(cases, pattern)] = _implied_ln_a(nu, ln_a[cases], self.lnK[cases], pattern)
+                cases = open_rows[which.reshape(-1) == k]
+                ln_a[np.ix_(cases, pattern)] = _implied_ln_a(nu, ln_a[cases], lnK[cases], pattern)
         with np.errstate(over="ignore"):
             return np.exp(ln_a)
 

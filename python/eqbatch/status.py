@@ -50,6 +50,9 @@ class Status(IntEnum):
     #: upper bound) and the reactions that would push them lower are unmet.
     #: Counted as converged (``result.converged``); ``message`` names them.
     UNDERFLOW = 6
+    #: :func:`eqbatch.phase_boundary`: the phase does not just appear anywhere
+    #: in the bracket (present at both ends, or at neither); the value is NaN.
+    NO_BOUNDARY = 7
 
     @property
     def description(self) -> str:

@@ -64,8 +64,12 @@ class ReactionSystem(SystemSpec):
         Equations such as ``"CH4 + H2O = CO + 3 H2"`` (``<=>`` also accepted,
         coefficients may be fractions: ``"0.5 N2 + 1.5 H2 = NH3"``). Labels
         default to ``r1``, ``r2``, ...
-    phases : mapping species -> {"gas", "liquid"}, optional
-        Phase of each species; unlisted species are ideal-gas.
+    phases : mapping species -> str, optional
+        Phase of each species; unlisted species are ideal-gas. ``"liquid"``
+        is the ideal liquid solution and ``"liquid:<name>"`` another one;
+        ``"solid"`` and ``"pure_liquid"`` make a species a phase of its own
+        (activity 1 while present). Which phases are present is decided per
+        case.
     P0 : float, default 1.0
         Standard-state pressure of the K data, bar (1.01325 for data on an
         atmosphere basis).

@@ -7,7 +7,8 @@
     check_balance = true    # optional
 
     [phases]                # optional; unlisted species are gas
-    # EtOH = "liquid"
+    # EtOH = "liquid"       # the liquid solution; "liquid:<name>" for another one
+    # C = "solid"           # a pure species ("solid" or "pure_liquid")
 
     [formulas]              # optional explicit formulas for label-named species
     # EtOH = "C2H5OH"

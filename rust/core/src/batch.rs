@@ -829,10 +829,13 @@ impl ChunkState {
         if !case_is_valid(feed, ln_k, pressure) {
             return (Status::InvalidInput, 0, 0);
         }
-        // (a case the system without its pure species settles needs no face)
+        // (a case the system without its pure species settles needs no face;
+        // one where it finds pure phases that form starts from its answer)
+        let mut forming = None;
         if let Some((run, index)) = reduced {
-            if let Some(outcome) = run.take(system, index, feed, ln_k, pressure, amounts, extents) {
-                return outcome;
+            match run.take(system, index, feed, ln_k, pressure, amounts, extents) {
+                Ok(outcome) => return outcome,
+                Err(found) => forming = found,
             }
         }
         let Some(Ok(face)) = self.faces.face(faces, feed) else {
@@ -848,9 +851,13 @@ impl ChunkState {
         let workspace = self.workspace.get_or_insert_with(|| Workspace::new(system));
         if system.has_pure() {
             let absent = presence::initially_absent(system, feed);
-            let found = presence::decide_phases(
-                system, &case, options, workspace, amounts, extents, absent,
-            );
+            let start = forming.map(|mask| (absent & !mask, extents.to_vec()));
+            let from = match &start {
+                Some((absent, x)) => (*absent, Some(x.as_slice())),
+                None => (absent, None),
+            };
+            let found =
+                presence::decide_phases(system, &case, options, workspace, amounts, extents, from);
             return (found.status, found.iterations, found.absent);
         }
         let (status, iterations) =

@@ -146,7 +146,10 @@ impl<'a> ReducedRun<'a> {
     /// Case `case` as the reduced solve left it, if that is the
     /// equilibrium of the full system (see the module docs): its amounts
     /// and extents are written and the status, iterations and mask of
-    /// absent phases returned.
+    /// absent phases returned. Otherwise, where the reduced solve converged
+    /// and the quick test found pure phases that would form, their mask
+    /// (the full search starts from the reduced equilibrium, whose extents
+    /// are then in `extents`, with those phases present).
     #[allow(clippy::too_many_arguments)]
     pub(crate) fn take(
         &self,
@@ -157,18 +160,18 @@ impl<'a> ReducedRun<'a> {
         pressure: f64,
         amounts: &mut [f64],
         extents: &mut [f64],
-    ) -> Option<(Status, u32, u64)> {
-        let status = Status::from_code(self.status[case])?;
+    ) -> Result<(Status, u32, u64), Option<u64>> {
+        let status = Status::from_code(self.status[case]).ok_or(None)?;
         if !status.is_converged() {
-            return None;
+            return Err(None);
         }
-        let (s, r) = (system.n_species(), system.n_reactions());
+        let s = system.n_species();
         let (k, d) = (self.reduced.kept.len(), self.reduced.dim);
         let mut absent = self.absent[case];
         for i in 0..s {
             if system.is_pure(i) {
                 if system.is_reactive(i) && feed[i] != 0.0 {
-                    return None;
+                    return Err(None);
                 }
                 amounts[i] = feed[i];
                 if feed[i] == 0.0 {
@@ -179,31 +182,36 @@ impl<'a> ReducedRun<'a> {
         for (col, &i) in self.reduced.kept.iter().enumerate() {
             amounts[i] = self.amounts[case * k + col];
         }
-        if !quick_stability(system, amounts, ln_k, pressure) {
-            return None;
+        let verdict = quick_stability(system, amounts, ln_k, pressure);
+        if verdict.is_some() {
+            for (j, e) in extents.iter_mut().enumerate() {
+                *e = (0..d)
+                    .map(|f| self.reduced.w[j * d + f] * self.extents[case * d + f])
+                    .sum();
+            }
         }
-        for (j, e) in extents.iter_mut().enumerate().take(r) {
-            *e = (0..d)
-                .map(|f| self.reduced.w[j * d + f] * self.extents[case * d + f])
-                .sum();
+        match verdict {
+            Some(0) => Ok((status, self.iterations[case], absent)),
+            Some(forming) => Err(Some(forming)),
+            None => Err(None),
         }
-        Some((status, self.iterations[case], absent))
     }
 }
 
-/// Whether every reactive pure species at zero in `amounts` (a converged
-/// equilibrium of the other species) is stable absent by one reaction: one
-/// whose other species are all present and not pure-and-absent gives its
-/// activity, `ln a_k = (ln K_j - sum_i nu_ji ln a_i) / nu_jk` (any such
-/// reaction gives the same: the others are at equilibrium), which must be
-/// at most one. `false` where some such species has no such reaction (the
-/// full test decides).
+/// The reactive pure species at zero in `amounts` (a converged equilibrium
+/// of the other species) that would form, by one reaction each: one whose
+/// other species are all present and not pure-and-absent gives the
+/// species' activity, `ln a_k = (ln K_j - sum_i nu_ji ln a_i) / nu_jk` (any
+/// such reaction gives the same: the others are at equilibrium), which is
+/// at most one for a stable absent species. Returns the mask of their
+/// phases (0: every one is stable), or `None` where some such species has
+/// no such reaction (the full test decides).
 pub(crate) fn quick_stability(
     system: &System,
     amounts: &[f64],
     ln_k: &[f64],
     pressure: f64,
-) -> bool {
+) -> Option<u64> {
     let (s, r) = (system.n_species(), system.n_reactions());
     let nu = system.stoich();
     let ln_p = (pressure / system.p0()).ln();
@@ -213,6 +221,11 @@ pub(crate) fn quick_stability(
             totals[system.phase_index(i)] += amounts[i];
         }
     }
+    let mut ln_totals = [0.0; crate::system::MAX_MIXTURES];
+    for k in 0..system.n_mixtures() {
+        ln_totals[k] = totals[k].ln();
+    }
+    let mut forming = 0;
     for k in 0..s {
         if !(system.is_pure(k) && system.is_reactive(k) && amounts[k] == 0.0) {
             continue;
@@ -232,7 +245,7 @@ pub(crate) fn quick_stability(
                 }
                 if !system.is_pure(i) {
                     let phase = system.phase_index(i);
-                    let mut ln_a = amounts[i].ln() - totals[phase].ln();
+                    let mut ln_a = amounts[i].ln() - ln_totals[phase];
                     if phase == 0 {
                         ln_a += ln_p;
                     }
@@ -243,14 +256,14 @@ pub(crate) fn quick_stability(
                 continue;
             }
             if (ln_k[j] - rest) / c > LN_STABLE_SLACK {
-                return false;
+                forming |= phase_bit(system.phase_index(k));
             }
             decided = true;
             break;
         }
         if !decided {
-            return false;
+            return None;
         }
     }
-    true
+    Some(forming)
 }

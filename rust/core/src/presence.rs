@@ -38,10 +38,10 @@
 //! species first solves with every phase present and searches only when
 //! that stalls ([`worth_retrying`]).
 
-use crate::face::{analyse_with, Face};
+use crate::face::{analyse_with, Face, SharedFace};
 use crate::linalg::{null_space, particular_solution, solve_spd_scaled};
 use crate::lp::{maximize, LpOutcome};
-use crate::solver::{solve_case, Case, SolveOptions, Workspace, PURE_VANISHING};
+use crate::solver::{interior_start, solve_case, Case, SolveOptions, Workspace, PURE_VANISHING};
 use crate::status::Status;
 use crate::system::System;
 
@@ -118,7 +118,15 @@ pub fn retry_with_a_phase_absent(
         if !members.iter().any(|&m| m) || members.iter().all(|&m| m) {
             continue;
         }
-        let found = decide_phases(system, case, options, ws, &mut n, &mut xi, phase_bit(phase));
+        let found = decide_phases(
+            system,
+            case,
+            options,
+            ws,
+            &mut n,
+            &mut xi,
+            (phase_bit(phase), None),
+        );
         iterations += found.iterations;
         if found.status.is_converged() {
             amounts.copy_from_slice(&n);
@@ -134,7 +142,7 @@ pub fn retry_with_a_phase_absent(
 
 /// The active-set search of the module docs for `case` (its face is that
 /// of the feed's zero pattern; its start is not used), from the phases in
-/// `absent`; where it fails, every phase set in turn (at most
+/// `absent` and, where given, from `start` (extents); where it fails, every phase set in turn (at most
 /// [`ENUMERATED_PHASES`] phases with species). Always writes `amounts` and
 /// `extents`: those of the converged attempt, else of the last one (NaN if
 /// no attempt could be made).
@@ -146,7 +154,7 @@ pub fn decide_phases(
     ws: &mut Workspace,
     amounts: &mut [f64],
     extents: &mut [f64],
-    mut absent: u64,
+    (mut absent, start): (u64, Option<&[f64]>),
 ) -> Decided {
     let budget = SolveOptions {
         chain: false,
@@ -155,7 +163,12 @@ pub fn decide_phases(
     };
     let feed_total: f64 = case.feed.iter().sum();
     let mut tried: Vec<u64> = Vec::new();
-    let mut start: Option<Vec<f64>> = None;
+    // (a caller's start is blended with a little of the face's interior
+    // point, so that the phases it holds nothing of are present)
+    let mut start: Option<Start> = start.map(|x| Start {
+        extents: x.to_vec(),
+        toward: Some(Vec::new()),
+    });
     let mut iterations = 0;
     let mut last = Status::Stalled;
     let mut written = false;
@@ -170,7 +183,7 @@ pub fn decide_phases(
             &budget,
             ws,
             absent,
-            start.as_deref(),
+            start.as_ref(),
             amounts,
             extents,
         ) else {
@@ -181,7 +194,7 @@ pub fn decide_phases(
         last = status;
         start = None;
         if status.is_converged() {
-            match instability(system, case, &face, amounts, absent) {
+            match instability(system, case, face_of(&face), amounts, absent) {
                 None => {
                     return Decided {
                         status,
@@ -191,17 +204,13 @@ pub fn decide_phases(
                 }
                 Some((phase, implied)) => {
                     absent &= !phase_bit(phase);
-                    // (without a start inside the new face, the solve starts
-                    // from its own interior point)
-                    start = implied.and_then(|implied| {
-                        introduction(
-                            system,
-                            case.feed,
-                            extents,
-                            &implied,
-                            &species_of(system, absent),
-                        )
-                    });
+                    start = Some(introduction(
+                        system,
+                        case.feed,
+                        (amounts, extents),
+                        implied.as_ref(),
+                        &species_of(system, absent),
+                    ));
                 }
             }
             continue;
@@ -270,7 +279,9 @@ pub fn decide_phases(
             iterations += its;
             last = status;
             absent = set;
-            if status.is_converged() && instability(system, case, &face, amounts, set).is_none() {
+            if status.is_converged()
+                && instability(system, case, face_of(&face), amounts, set).is_none()
+            {
                 return Decided {
                     status,
                     iterations,
@@ -356,8 +367,48 @@ fn starving_phase(system: &System, reachable: &Face, face: &Face, absent: u64) -
     None
 }
 
+/// Species below this share of the feed are left alone by the direction
+/// that introduces a phase ([`introduction`]).
+const TRACE_SHARE: f64 = 1e-6;
+
+/// Share of the face's interior point blended into a start that would
+/// leave species the face reaches at zero.
+const BLEND: f64 = 1e-3;
+
+/// `x` (extents from the `feed` the face was found for) moved to
+/// `(1 - BLEND) (x + eps toward) + BLEND x_in`, `x_in` the face's interior
+/// start: every species the face reaches is then present, and `eps` (at
+/// most 1e-3 of the feed) is as large as keeps each at half or more of its
+/// blended amount.
+fn blended(system: &System, face: &Face, feed: &[f64], x: &mut [f64], toward: &[f64]) {
+    let (s, r) = (system.n_species(), system.n_reactions());
+    let nu = system.stoich();
+    let (mut n_in, mut x_in) = (vec![0.0; s], vec![0.0; r]);
+    interior_start(face, feed, &mut n_in, &mut x_in, s, r);
+    let change = |d: &[f64], i: usize| (0..r).map(|j| nu[j * s + i] * d[j]).sum::<f64>();
+    let mut eps = 1e-3 * feed.iter().sum::<f64>();
+    if !toward.is_empty() {
+        for i in (0..s).filter(|&i| !face.unreachable[i]) {
+            let base = (1.0 - BLEND) * (feed[i] + change(x, i)) + BLEND * n_in[i];
+            let dn = (1.0 - BLEND) * change(toward, i);
+            if dn < 0.0 {
+                eps = eps.min(0.5 * base / -dn);
+            }
+        }
+    }
+    for j in 0..r {
+        let along = if toward.is_empty() {
+            0.0
+        } else {
+            eps * toward[j]
+        };
+        x[j] = (1.0 - BLEND) * (x[j] + along) + BLEND * x_in[j];
+    }
+}
+
 /// Solve `case` with the phases of `absent` held empty, from `start`
-/// (extents of the user's reactions) where it is strictly inside the face:
+/// (extents of the user's reactions; with `true`, blended with a little of
+/// the face's interior point) where it is strictly inside the face:
 /// the status, the iterations and the face solved on, with the amounts and
 /// extents written; `None` if the phases cannot be emptied (outputs left as
 /// they were).
@@ -368,23 +419,30 @@ fn solve_with_absent(
     options: &SolveOptions,
     ws: &mut Workspace,
     absent: u64,
-    start: Option<&[f64]>,
+    start: Option<&Start>,
     amounts: &mut [f64],
     extents: &mut [f64],
-) -> Option<(Status, u32, Face)> {
+) -> Option<(Status, u32, SharedFace)> {
     let r = system.n_reactions();
     let held = species_of(system, absent);
     let (shift, shifted) = shift_out(system, case.feed, &held)?;
     let zero: Vec<bool> = shifted.iter().map(|&v| v <= 0.0).collect();
-    let face = face_with(system, &zero, &held)?;
+    let shared = face_with(system, &zero, &held)?;
+    let face = face_of(&shared);
     let (status, iterations) = if face.dim == 0 {
         amounts.copy_from_slice(&shifted);
         extents.fill(0.0);
         (Status::Converged, 0)
     } else {
-        let start: Option<Vec<f64>> = start.map(|x| (0..r).map(|j| x[j] - shift[j]).collect());
+        let start: Option<Vec<f64>> = start.map(|start| {
+            let mut x: Vec<f64> = (0..r).map(|j| start.extents[j] - shift[j]).collect();
+            if let Some(toward) = &start.toward {
+                blended(system, face, &shifted, &mut x, toward);
+            }
+            x
+        });
         let again = Case {
-            face: &face,
+            face,
             feed: &shifted,
             start: start.as_deref(),
             ..*case
@@ -394,12 +452,20 @@ fn solve_with_absent(
     for j in 0..r {
         extents[j] += shift[j];
     }
-    Some((status, iterations, face))
+    Some((status, iterations, shared))
+}
+
+/// The face of a memo entry [`face_with`] returned (always an analysed one).
+fn face_of(shared: &SharedFace) -> &Face {
+    match shared.as_ref() {
+        Ok(face) => face,
+        Err(_) => unreachable!("face_with returns analysed faces only"),
+    }
 }
 
 /// The face of zero pattern `zero` with the species `held` forbidden to
 /// form, from the system's memo where it was analysed before.
-fn face_with(system: &System, zero: &[bool], held: &[bool]) -> Option<Face> {
+fn face_with(system: &System, zero: &[bool], held: &[bool]) -> Option<SharedFace> {
     let words = zero.len().div_ceil(64);
     // (two bit sets and a marker word: never the key of a plain pattern)
     let mut key = vec![0u64; 2 * words + 1];
@@ -411,7 +477,7 @@ fn face_with(system: &System, zero: &[bool], held: &[bool]) -> Option<Face> {
     let face = system
         .face_memo()
         .get_or_analyse(&key, || analyse_with(system, zero, held));
-    face.as_ref().as_ref().ok().cloned()
+    face.as_ref().is_ok().then_some(face)
 }
 
 /// Extents that move everything of the `absent` species onto the others
@@ -602,30 +668,52 @@ fn implied_phase(
     }
 }
 
+/// Where the next attempt starts: extents of the user's reactions and, with
+/// `toward`, a blend ([`solve_with_absent`]): a little of the new face's
+/// interior point, and as much as stays feasible of the direction that makes
+/// the phase introduced in its most favourable composition (`toward` is
+/// empty where there is none).
+struct Start {
+    extents: Vec<f64>,
+    toward: Option<Vec<f64>>,
+}
+
 /// A start for the case with the phase `implied` found unstable now
 /// present: the equilibrium found without it (`extents`) plus a little of
 /// it (1e-3 of the feed, else 1e-6, else 1e-9) in the composition the
-/// stability test found most favourable, strictly inside the face that
-/// keeps the species still `held` absent at zero. `None` if there is none.
+/// stability test found most favourable, where that keeps every species
+/// the phase does not hold (the species still `held` absent at zero) as it
+/// was or above; else a blend (see [`Start`]).
 fn introduction(
     system: &System,
     feed: &[f64],
-    extents: &[f64],
-    implied: &Implied,
+    (amounts, extents): (&[f64], &[f64]),
+    implied: Option<&Implied>,
     held: &[bool],
-) -> Option<Vec<f64>> {
+) -> Start {
     let (s, r) = (system.n_species(), system.n_reactions());
     let nu = system.stoich();
-    if implied.species.is_empty() {
-        return None;
-    }
+    let blend = |toward: Vec<f64>| Start {
+        extents: extents.to_vec(),
+        toward: Some(toward),
+    };
+    let Some(implied) = implied.filter(|i| !i.species.is_empty()) else {
+        return blend(Vec::new());
+    };
     // Extents that make one mole of the phase in that composition,
-    // (nu^T d)_i = x_i for its species, and leave the held species alone.
+    // (nu^T d)_i = x_i for its species, and leave the held species and the
+    // traces alone (a step that takes from a trace is cut to nothing).
+    let total: f64 = feed.iter().sum();
+    let untouched = |i: usize| {
+        system.is_reactive(i)
+            && !implied.species.contains(&i)
+            && (held[i] || amounts[i] <= TRACE_SHARE * total)
+    };
     let rows: Vec<usize> = implied
         .species
         .iter()
         .copied()
-        .chain((0..s).filter(|&i| held[i] && system.is_reactive(i)))
+        .chain((0..s).filter(|&i| untouched(i)))
         .collect();
     let mut a = vec![0.0; rows.len() * r];
     let mut b = vec![0.0; rows.len()];
@@ -637,8 +725,9 @@ fn introduction(
             b[row] = implied.fractions[row];
         }
     }
-    let unit = particular_solution(&a, &b, rows.len(), r)?;
-    let total: f64 = feed.iter().sum();
+    let Some(unit) = particular_solution(&a, &b, rows.len(), r) else {
+        return blend(Vec::new());
+    };
     for eps in [1e-3, 1e-6, 1e-9] {
         let start: Vec<f64> = (0..r).map(|j| extents[j] + eps * total * unit[j]).collect();
         // Feasible, with the phase formed (whether every species the new
@@ -649,10 +738,13 @@ fn introduction(
             held[i] || !system.is_reactive(i) || v > 0.0 || (v == 0.0 && !forming)
         });
         if inside {
-            return Some(start);
+            return Start {
+                extents: start,
+                toward: None,
+            };
         }
     }
-    None
+    blend(unit)
 }
 
 /// `min over v of ln sum_i exp(base_i + (Z v)_i)` for `Z` (`p x k`,
@@ -774,7 +866,15 @@ mod tests {
         let options = SolveOptions::default();
         if sys.has_pure() {
             let absent = initially_absent(&sys, feed);
-            let out = decide_phases(&sys, &case, &options, &mut ws, &mut n, &mut xi, absent);
+            let out = decide_phases(
+                &sys,
+                &case,
+                &options,
+                &mut ws,
+                &mut n,
+                &mut xi,
+                (absent, None),
+            );
             return (out, n);
         }
         let (status, iterations) = solve_case(&sys, &case, &options, &mut ws, &mut n, &mut xi);
@@ -858,6 +958,66 @@ mod tests {
         let y3 = n[3] / (n[1] + n[3]);
         let y1 = n[1] / (n[1] + n[3]);
         assert!(((y3 * p).ln() - 3.0 * (y1 * p).ln() + ln_k).abs() < 1e-9);
+    }
+
+    #[test]
+    fn a_small_gas_phase_is_introduced_in_its_favourable_composition() {
+        // A random gas + liquid network (13 species, 9 reactions, ln K within
+        // +-60) where every phase present stalls (the gas collapses from a
+        // generic start) and the gas held absent is unstable: the gas must be
+        // introduced in the composition the stability test found, without
+        // touching the liquid's traces. The same case in tests/test_phases.py
+        // is checked against an independent minimisation (scipy SLSQP), which
+        // finds 0.00592 mol X3 and 0.01991 mol X4 in the gas.
+        let (g, l) = (Phase::Gas, Phase::Solution(0));
+        let nu = vec![
+            0.0, 0.0, -1.0, -3.0, 2.0, 0.0, 0.0, 0.0, 0.0, 0.0, 0.0, 0.0, 0.0, -2.0, -3.0, -3.0,
+            -3.0, 0.0, 2.0, 0.0, 0.0, 0.0, 0.0, 0.0, 0.0, 0.0, -2.0, -1.0, -3.0, -3.0, 0.0, 0.0,
+            2.0, 0.0, 0.0, 0.0, 0.0, 0.0, 0.0, -3.0, -2.0, -1.0, 0.0, 0.0, 0.0, 0.0, 2.0, 0.0, 0.0,
+            0.0, 0.0, 0.0, -2.0, -1.0, -3.0, -3.0, 0.0, 0.0, 0.0, 0.0, 2.0, 0.0, 0.0, 0.0, 0.0,
+            -2.0, -3.0, -2.0, 0.0, 0.0, 0.0, 0.0, 0.0, 0.0, 2.0, 0.0, 0.0, 0.0, -3.0, 0.0, -3.0,
+            -3.0, 0.0, 0.0, 0.0, 0.0, 0.0, 0.0, 2.0, 0.0, 0.0, -3.0, -2.0, -1.0, -3.0, 0.0, 0.0,
+            0.0, 0.0, 0.0, 0.0, 0.0, 2.0, 0.0, -3.0, 0.0, -2.0, -3.0, 0.0, 0.0, 0.0, 0.0, 0.0, 0.0,
+            0.0, 0.0, 2.0,
+        ];
+        let (out, n) = solve(
+            nu,
+            9,
+            vec![l, l, g, g, g, l, l, g, g, l, g, l, l],
+            &[
+                0.29417420030962316,
+                0.2681654925941327,
+                0.906327824670275,
+                0.4827348614131633,
+                0.7074548031518766,
+                0.5597317004715281,
+                0.8264045366289907,
+                0.2987268730634432,
+                0.8308034538263424,
+                0.7793723969112725,
+                0.36255142922849604,
+                0.5341632308493014,
+                0.27308202565463324,
+            ],
+            &[
+                20.120699170752914,
+                -61.25361477499236,
+                57.27935048179829,
+                0.32755275710431064,
+                -28.11652485056522,
+                -57.584511344121154,
+                2.9087431875822176,
+                -18.74215293715118,
+                0.18782644740732835,
+            ],
+            5.559400675090287,
+        );
+        assert_eq!(out.status, Status::Converged);
+        assert_eq!(out.absent, 0);
+        assert!(
+            (n[3] - 0.005922).abs() < 2e-6 && (n[4] - 0.019907).abs() < 2e-6,
+            "{n:?}"
+        );
     }
 
     #[test]

@@ -30,12 +30,16 @@ pub enum Status {
     /// their amounts are upper bounds, and the reactions that would push
     /// them lower are not met. Every other species and reaction is converged.
     Underflow = 6,
+    /// Phase-boundary search: the phase does not just appear anywhere in the
+    /// bracket (present at both ends, or absent at both); set by the Python
+    /// layer, which runs the search. Outputs are NaN.
+    NoBoundary = 7,
 }
 
 impl Status {
     /// Every status, in code order: the table the Python package, the
     /// command line and result files read.
-    pub const ALL: [Status; 7] = [
+    pub const ALL: [Status; 8] = [
         Status::Converged,
         Status::IterationLimit,
         Status::InvalidInput,
@@ -43,6 +47,7 @@ impl Status {
         Status::Stalled,
         Status::OutOfRange,
         Status::Underflow,
+        Status::NoBoundary,
     ];
 
     /// The status of code `code`, if there is one.
@@ -65,6 +70,7 @@ impl Status {
             Status::Stalled => "STALLED",
             Status::OutOfRange => "OUT_OF_RANGE",
             Status::Underflow => "UNDERFLOW",
+            Status::NoBoundary => "NO_BOUNDARY",
         }
     }
 
@@ -83,6 +89,9 @@ impl Status {
             }
             Status::Underflow => {
                 "converged, with species below float64's range held at about 1e-305 mol (upper bounds)"
+            }
+            Status::NoBoundary => {
+                "no phase boundary in the bracket: the phase is present at both ends or at neither"
             }
         }
     }
