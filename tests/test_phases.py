@@ -365,3 +365,65 @@ def test_a_small_gas_phase_that_a_generic_start_loses_is_found() -> None:
     assert np.all(np.abs(r[np.isfinite(r)]) < 1e-7)
     rng = np.random.default_rng(0)
     assert gibbs(system, res.amounts[0], lnK, P) <= scipy_minimum(system, feed, lnK, P, rng) + 1e-7
+
+
+def test_a_small_liquid_phase_is_introduced_without_collapsing() -> None:
+    # Another case of that network (liquid 1.5 times over-saturated with the
+    # liquid held absent, gas unstable with the gas held absent): the liquid must
+    # be introduced in its favourable composition and both phases end present,
+    # every reaction met and no independent minimisation (scipy SLSQP) lower.
+    system = eqbatch.ReactionSystem(
+        ["X0", "X1", "X2", "X3", "X4", "X5", "X6", "X7", "X8", "X9", "X10", "X11", "X12"],
+        [
+            "1 X2 + 3 X3 = 2 X4",
+            "2 X0 + 3 X1 + 3 X2 + 3 X3 = 2 X5",
+            "2 X0 + 1 X1 + 3 X2 + 3 X3 = 2 X6",
+            "3 X0 + 2 X1 + 1 X2 = 2 X7",
+            "2 X0 + 1 X1 + 3 X2 + 3 X3 = 2 X8",
+            "2 X0 + 3 X1 + 2 X2 = 2 X9",
+            "3 X0 + 3 X2 + 3 X3 = 2 X10",
+            "3 X0 + 2 X1 + 1 X2 + 3 X3 = 2 X11",
+            "3 X0 + 2 X2 + 3 X3 = 2 X12",
+        ],
+        phases={name: "liquid" for name in ["X0", "X1", "X11", "X12", "X5", "X6", "X9"]},
+        check_balance=False,
+    )
+    feed, lnK, P = (
+        np.array(
+            [
+                0.5356305618370537,
+                0.8786790199403988,
+                0.7902707300457305,
+                0.2076104897304833,
+                0.554442987348482,
+                0.5292437632323355,
+                0.5290483637199537,
+                0.6514329105175252,
+                0.8936304371791931,
+                0.6247957284208715,
+                0.9931268211031515,
+                0.36210545986356085,
+                0.8809628107452927,
+            ]
+        ),
+        np.array(
+            [
+                11.567063263417493,
+                -14.232423326741738,
+                -30.18203830756401,
+                40.74058023305899,
+                36.697049284268694,
+                -31.138554461543496,
+                28.508116485266015,
+                36.100765076133754,
+                32.950126385961276,
+            ]
+        ),
+        9.936364795738493,
+    )
+    res = system.solve(feed, lnK=lnK, P=P)
+    assert res.converged[0] and res.present[0].all()
+    r = log_residuals(system, res.amounts[0], lnK, P)
+    assert np.all(np.abs(r[np.isfinite(r)]) < 1e-7)
+    rng = np.random.default_rng(0)
+    assert gibbs(system, res.amounts[0], lnK, P) <= scipy_minimum(system, feed, lnK, P, rng) + 1e-7

@@ -373,7 +373,7 @@ const TRACE_SHARE: f64 = 1e-6;
 
 /// Share of the face's interior point blended into a start that would
 /// leave species the face reaches at zero.
-const BLEND: f64 = 1e-3;
+const BLEND: f64 = 1e-9;
 
 /// `x` (extents from the `feed` the face was found for) moved to
 /// `(1 - BLEND) (x + eps toward) + BLEND x_in`, `x_in` the face's interior
