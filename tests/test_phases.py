@@ -304,92 +304,60 @@ def test_a_phase_lost_on_the_way_is_formed_again() -> None:
     )
 
 
-def test_a_small_gas_phase_that_a_generic_start_loses_is_found() -> None:
-    # A random gas + liquid network (from bench.workloads.random_network, ln K
-    # spread +-50) whose equilibrium holds a small gas phase (about 0.026 of
-    # 9 mol): from a generic start the gas collapses, and with the gas held
-    # absent it is unstable. The answer must be converged, every reaction met
-    # and no independent minimisation (scipy SLSQP, several starts) lower.
-    species = ["X0", "X1", "X2", "X3", "X4", "X5", "X6", "X7", "X8", "X9", "X10", "X11", "X12"]
-    equations = [
-        "1 X2 + 3 X3 = 2 X4",
-        "2 X0 + 3 X1 + 3 X2 + 3 X3 = 2 X5",
-        "2 X0 + 1 X1 + 3 X2 + 3 X3 = 2 X6",
-        "3 X0 + 2 X1 + 1 X2 = 2 X7",
-        "2 X0 + 1 X1 + 3 X2 + 3 X3 = 2 X8",
-        "2 X0 + 3 X1 + 2 X2 = 2 X9",
-        "3 X0 + 3 X2 + 3 X3 = 2 X10",
-        "3 X0 + 2 X1 + 1 X2 + 3 X3 = 2 X11",
-        "3 X0 + 2 X2 + 3 X3 = 2 X12",
-    ]
-    system = eqbatch.ReactionSystem(
-        species,
-        equations,
-        phases={name: "liquid" for name in ["X0", "X1", "X5", "X6", "X9", "X11", "X12"]},
-        check_balance=False,
-    )
-    feed = np.array(
-        [
-            0.29417420030962316,
-            0.2681654925941327,
-            0.906327824670275,
-            0.4827348614131633,
-            0.7074548031518766,
-            0.5597317004715281,
-            0.8264045366289907,
-            0.2987268730634432,
-            0.8308034538263424,
-            0.7793723969112725,
-            0.36255142922849604,
-            0.5341632308493014,
-            0.27308202565463324,
-        ]
-    )
-    lnK = np.array(
-        [
-            20.120699170752914,
-            -61.25361477499236,
-            57.27935048179829,
-            0.32755275710431064,
-            -28.11652485056522,
-            -57.584511344121154,
-            2.9087431875822176,
-            -18.74215293715118,
-            0.18782644740732835,
-        ]
-    )
-    P = 5.559400675090287
-    res = system.solve(feed, lnK=lnK, P=P)
-    assert res.converged[0] and res.present[0].all()
-    r = log_residuals(system, res.amounts[0], lnK, P)
-    assert np.all(np.abs(r[np.isfinite(r)]) < 1e-7)
-    rng = np.random.default_rng(0)
-    assert gibbs(system, res.amounts[0], lnK, P) <= scipy_minimum(system, feed, lnK, P, rng) + 1e-7
+# A random gas + liquid network (bench.workloads.random_network(n_reactions=9, seed=9),
+# a third of its species liquid, ln K spread +-50).
+NETWORK_SPECIES = ["X0", "X1", "X2", "X3", "X4", "X5", "X6", "X7", "X8", "X9", "X10", "X11", "X12"]
+NETWORK_EQUATIONS = [
+    "1 X2 + 3 X3 = 2 X4",
+    "2 X0 + 3 X1 + 3 X2 + 3 X3 = 2 X5",
+    "2 X0 + 1 X1 + 3 X2 + 3 X3 = 2 X6",
+    "3 X0 + 2 X1 + 1 X2 = 2 X7",
+    "2 X0 + 1 X1 + 3 X2 + 3 X3 = 2 X8",
+    "2 X0 + 3 X1 + 2 X2 = 2 X9",
+    "3 X0 + 3 X2 + 3 X3 = 2 X10",
+    "3 X0 + 2 X1 + 1 X2 + 3 X3 = 2 X11",
+    "3 X0 + 2 X2 + 3 X3 = 2 X12",
+]
+NETWORK_LIQUID = ["X0", "X1", "X5", "X6", "X9", "X11", "X12"]
 
 
-def test_a_small_liquid_phase_is_introduced_without_collapsing() -> None:
-    # Another case of that network (liquid 1.5 times over-saturated with the
-    # liquid held absent, gas unstable with the gas held absent): the liquid must
-    # be introduced in its favourable composition and both phases end present,
-    # every reaction met and no independent minimisation (scipy SLSQP) lower.
-    system = eqbatch.ReactionSystem(
-        ["X0", "X1", "X2", "X3", "X4", "X5", "X6", "X7", "X8", "X9", "X10", "X11", "X12"],
-        [
-            "1 X2 + 3 X3 = 2 X4",
-            "2 X0 + 3 X1 + 3 X2 + 3 X3 = 2 X5",
-            "2 X0 + 1 X1 + 3 X2 + 3 X3 = 2 X6",
-            "3 X0 + 2 X1 + 1 X2 = 2 X7",
-            "2 X0 + 1 X1 + 3 X2 + 3 X3 = 2 X8",
-            "2 X0 + 3 X1 + 2 X2 = 2 X9",
-            "3 X0 + 3 X2 + 3 X3 = 2 X10",
-            "3 X0 + 2 X1 + 1 X2 + 3 X3 = 2 X11",
-            "3 X0 + 2 X2 + 3 X3 = 2 X12",
-        ],
-        phases={name: "liquid" for name in ["X0", "X1", "X11", "X12", "X5", "X6", "X9"]},
-        check_balance=False,
-    )
-    feed, lnK, P = (
-        np.array(
+@pytest.mark.parametrize(
+    "feed, lnK, P",
+    [
+        # a small gas phase (about 0.026 of 9 mol): from a generic start the gas
+        # collapses, and held absent it is unstable
+        (
+            [
+                0.29417420030962316,
+                0.2681654925941327,
+                0.906327824670275,
+                0.4827348614131633,
+                0.7074548031518766,
+                0.5597317004715281,
+                0.8264045366289907,
+                0.2987268730634432,
+                0.8308034538263424,
+                0.7793723969112725,
+                0.36255142922849604,
+                0.5341632308493014,
+                0.27308202565463324,
+            ],
+            [
+                20.120699170752914,
+                -61.25361477499236,
+                57.27935048179829,
+                0.32755275710431064,
+                -28.11652485056522,
+                -57.584511344121154,
+                2.9087431875822176,
+                -18.74215293715118,
+                0.18782644740732835,
+            ],
+            5.559400675090287,
+        ),
+        # a small liquid phase: held absent it is 1.5 times over-saturated, and
+        # introduced with too much of a generic point it collapsed again
+        (
             [
                 0.5356305618370537,
                 0.8786790199403988,
@@ -404,9 +372,7 @@ def test_a_small_liquid_phase_is_introduced_without_collapsing() -> None:
                 0.9931268211031515,
                 0.36210545986356085,
                 0.8809628107452927,
-            ]
-        ),
-        np.array(
+            ],
             [
                 11.567063263417493,
                 -14.232423326741738,
@@ -417,10 +383,22 @@ def test_a_small_liquid_phase_is_introduced_without_collapsing() -> None:
                 28.508116485266015,
                 36.100765076133754,
                 32.950126385961276,
-            ]
+            ],
+            9.936364795738493,
         ),
-        9.936364795738493,
+    ],
+    ids=["small gas", "small liquid"],
+)
+def test_a_small_phase_that_a_generic_start_loses_is_found(feed, lnK, P) -> None:
+    # The answer must be converged with both phases present, every reaction met,
+    # and no independent minimisation (scipy SLSQP, several starts) lower.
+    system = eqbatch.ReactionSystem(
+        NETWORK_SPECIES,
+        NETWORK_EQUATIONS,
+        phases=dict.fromkeys(NETWORK_LIQUID, "liquid"),
+        check_balance=False,
     )
+    feed, lnK = np.array(feed), np.array(lnK)
     res = system.solve(feed, lnK=lnK, P=P)
     assert res.converged[0] and res.present[0].all()
     r = log_residuals(system, res.amounts[0], lnK, P)

@@ -850,12 +850,12 @@ impl ChunkState {
         };
         let workspace = self.workspace.get_or_insert_with(|| Workspace::new(system));
         if system.has_pure() {
-            let absent = presence::initially_absent(system, feed);
-            let start = forming.map(|mask| (absent & !mask, extents.to_vec()));
-            let from = match &start {
-                Some((absent, x)) => (*absent, Some(x.as_slice())),
-                None => (absent, None),
-            };
+            let mut absent = presence::initially_absent(system, feed);
+            let start = forming.map(|mask| {
+                absent &= !mask;
+                extents.to_vec()
+            });
+            let from = (absent, start.as_deref());
             let found =
                 presence::decide_phases(system, &case, options, workspace, amounts, extents, from);
             return (found.status, found.iterations, found.absent);

@@ -15,7 +15,7 @@
 
 use crate::batch::{solve_batch, BatchInputs, BatchOutputs};
 use crate::error::CoreError;
-use crate::linalg::null_space;
+use crate::face::analyse_with;
 use crate::presence::phase_bit;
 use crate::solver::SolveOptions;
 use crate::status::Status;
@@ -41,39 +41,29 @@ pub struct Reduced {
 /// has no pure species, no reaction leaves them all untouched, or the
 /// remainder is not a valid system.
 pub fn reduce(system: &System) -> Option<Reduced> {
-    let (s, r) = (system.n_species(), system.n_reactions());
-    let nu = system.stoich();
-    let pure: Vec<usize> = (0..s)
-        .filter(|&i| system.is_pure(i) && system.is_reactive(i))
+    let s = system.n_species();
+    let pure: Vec<bool> = (0..s).map(|i| system.is_pure(i)).collect();
+    if !(0..s).any(|i| pure[i] && system.is_reactive(i)) {
+        return None;
+    }
+    // The face that holds every pure species at zero: its basis is `w`,
+    // its reactions (pure columns zero) the reduced system's.
+    let face = analyse_with(system, &pure, &pure).ok()?;
+    if face.dim == 0 {
+        return None;
+    }
+    let kept: Vec<usize> = (0..s).filter(|&i| !pure[i]).collect();
+    let stoich = (0..face.dim)
+        .flat_map(|f| kept.iter().map(move |&i| (f, i)))
+        .map(|(f, i)| face.stoich[f * s + i])
         .collect();
-    if pure.is_empty() {
-        return None;
-    }
-    let mut rows = vec![0.0; pure.len() * r];
-    for (row, &i) in pure.iter().enumerate() {
-        for j in 0..r {
-            rows[row * r + j] = nu[j * s + i];
-        }
-    }
-    let (w, dim) = null_space(&rows, pure.len(), r, 1e-12);
-    if dim == 0 {
-        return None;
-    }
-    let kept: Vec<usize> = (0..s).filter(|&i| !system.is_pure(i)).collect();
-    let mut stoich = vec![0.0; dim * kept.len()];
-    for f in 0..dim {
-        for (col, &i) in kept.iter().enumerate() {
-            let v: f64 = (0..r).map(|j| w[j * dim + f] * nu[j * s + i]).sum();
-            stoich[f * kept.len() + col] = if v.abs() < 1e-13 { 0.0 } else { v };
-        }
-    }
     let phases = kept.iter().map(|&i| system.phases()[i]).collect();
-    let reduced = System::new(stoich, dim, kept.len(), phases, system.p0()).ok()?;
+    let reduced = System::new(stoich, face.dim, kept.len(), phases, system.p0()).ok()?;
     Some(Reduced {
         system: reduced,
         kept,
-        w,
-        dim,
+        w: face.basis,
+        dim: face.dim,
     })
 }
 
