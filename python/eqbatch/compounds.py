@@ -34,7 +34,7 @@ import numpy as np
 
 from eqbatch.equations import ELEMENTS
 from eqbatch.errors import SystemDefinitionError
-from eqbatch.speciesdata import CpPolynomial, Tabulated
+from eqbatch.speciesdata import CpPolynomial, MaierKelley, Tabulated
 
 # Normal valences (bond-order sums) of the elements structural formulas use.
 _VALENCES = {
@@ -648,7 +648,12 @@ def _radical(texts: list[str], has_data: Callable[[str], bool]) -> Compound | No
     return None
 
 
-def identify(species: str, formula: str | None, has_data: Callable[[str], bool]) -> Compound:
+def identify(
+    species: str,
+    formula: str | None,
+    has_data: Callable[[str], bool],
+    wanted: str = "ideal-gas heat capacity, formation enthalpy and entropy",
+) -> Compound:
     """The compound a species is, from its name and its formula (if given),
     name first (see the module notes); ``has_data(cas)`` says which
     compounds the data source can serve.
@@ -688,8 +693,8 @@ def identify(species: str, formula: str | None, has_data: Callable[[str], bool])
                         f"for {species!r}"
                     )
                 raise SystemDefinitionError(
-                    f"{prefix}: {text} is {listed}, for which chemicals has no ideal-gas heat capacity, "
-                    f"formation enthalpy and entropy; give species_data for {species!r}"
+                    f"{prefix}: {text} is {listed}, for which chemicals has no {wanted}; "
+                    f"give species_data for {species!r}"
                 )
         raise SystemDefinitionError(
             f"thermo='chemicals': no compound found for species {species!r}"
@@ -707,8 +712,21 @@ def identify(species: str, formula: str | None, has_data: Callable[[str], bool])
 # --- the data ---------------------------------------------------------------------------
 
 
-def chemicals_data(name: str, formula: str | None = None) -> CpPolynomial | Tabulated:
-    """Standard-state data of one gas from the ``chemicals`` package.
+#: Joules per calorie (thermochemical): Perry's Table 2-151 gives Cp in cal/(mol K).
+_CAL = 4.184
+#: The condensed states ``chemicals_data`` serves, by the phase a system gives.
+_STATE = {"solid": "s", "pure_liquid": "l", "liquid": "l"}
+
+
+def chemicals_data(
+    name: str, formula: str | None = None, phase: str = "gas"
+) -> CpPolynomial | MaierKelley | Tabulated:
+    """Standard-state data of one species from the ``chemicals`` package.
+
+    A gas (the default) has the ideal-gas data described below; a species in
+    a condensed phase (``phase`` ``"solid"``, ``"pure_liquid"``, ``"liquid"``
+    or ``"liquid:<name>"``) has the pure solid's or pure liquid's data (see
+    :func:`condensed_chemicals_data`), never the gas's.
 
     The heat capacity comes from the source that reaches highest in
     temperature: the NIST-JANAF Thermochemical Tables (1998; rows from 200 K
@@ -753,6 +771,11 @@ def chemicals_data(name: str, formula: str | None = None) -> CpPolynomial | Tabu
     >>> round(water.dHf, 3), water.P_ref, water.range
     (-241.826, 1.0, (200.0, 6000.0))
     """
+    kind = phase.split(":")[0]
+    if kind != "gas":
+        if kind not in _STATE:
+            raise SystemDefinitionError(f"thermo='chemicals': species {name!r} has an unknown phase {phase!r}")
+        return condensed_chemicals_data(name, formula, _STATE[kind])
     try:
         from chemicals.heat_capacity import Cp_data_Poling, Cp_dict_JANAF_gas, TRC_gas_data, TRCCp
         from chemicals.reaction import Hfg, Hfg_methods, S0g, S0g_methods
@@ -807,3 +830,148 @@ def chemicals_data(name: str, formula: str | None = None) -> CpPolynomial | Tabu
     t_min, t_max = float(row["Tmin"]), float(row["Tmax"])
     source = head + f"Cp/R polynomial of Poling, Prausnitz and O'Connell ({t_min:g}-{t_max:g} K); " + tail
     return CpPolynomial(a=a, dHf=hf / 1000.0, S298=s0, T_min=t_min, T_max=t_max, source=source, P_ref=1.0)
+
+
+def condensed_chemicals_data(name: str, formula: str | None, state: str) -> MaierKelley | Tabulated:
+    """Standard-state data of a pure solid (``state`` ``"s"``) or pure
+    liquid (``"l"``) from the ``chemicals`` package.
+
+    The heat capacity is the NIST-JANAF table of that state where the
+    package holds one (a spline through its rows from 200 K up to the
+    table's first transition above 298.15 K; graphite, lime, liquid water
+    and liquid sulfur among them); else, for a liquid, the spline of
+    Zabransky, Ruzicka and Majer (1996; constant-pressure, else averaged,
+    else saturation heat capacity) sampled every 10 K, and for a solid the
+    correlation of Perry's Table 2-151 (``a + b T + c / T^2 [+ d T^2]`` in
+    cal/(mol K), its crystal form named in the source). The formation
+    enthalpy and entropy at 298.15 K are the package's values for that
+    state (JANAF's beside a JANAF table where it has them, else its first
+    ranked source); an element in its reference state (graphite, rhombic
+    sulfur, iron) has a formation enthalpy of zero by definition. A gas's
+    data are never used for a condensed species.
+
+    Raises
+    ------
+    SystemDefinitionError
+        The package lacks a heat capacity, formation enthalpy or entropy of
+        the compound in that state (give ``species_data``).
+
+    Examples
+    --------
+    >>> graphite = condensed_chemicals_data("C", None, "s")
+    >>> round(graphite.dHf, 3), round(float(graphite.cp(298.15)), 2)
+    (0.0, 8.52)
+    """
+    try:
+        from chemicals.elements import periodic_table
+        from chemicals.heat_capacity import (
+            Cp_dict_JANAF_liquid,
+            Cp_dict_JANAF_solid,
+            Cp_dict_PerryI,
+            zabransky_dict_const_s,
+            zabransky_dict_iso_s,
+            zabransky_dict_sat_s,
+        )
+        from chemicals import reaction
+    except ImportError:
+        raise SystemDefinitionError(
+            "thermo='chemicals' needs the chemicals package: pip install chemicals"
+        ) from None
+    word = {"s": "solid", "l": "liquid"}[state]
+    janaf_tables = Cp_dict_JANAF_solid if state == "s" else Cp_dict_JANAF_liquid
+    h_methods_of = reaction.Hfs_methods if state == "s" else reaction.Hfl_methods
+    s_methods_of = reaction.S0s_methods if state == "s" else reaction.S0l_methods
+    h_of = reaction.Hfs if state == "s" else reaction.Hfl
+    s_of = reaction.S0s if state == "s" else reaction.S0l
+
+    def janaf_rows(cas: str) -> tuple[np.ndarray, np.ndarray] | None:
+        if cas not in janaf_tables:
+            return None
+        T_rows, cp_rows = (np.asarray(v, dtype=float) for v in janaf_tables[cas])
+        # A table repeats the temperature of a transition (one row per form)
+        # and may hold gaps: keep the stretch around 298.15 K between them.
+        breaks = np.flatnonzero((np.diff(T_rows) <= 0) | ~np.isfinite(cp_rows[1:]))
+        start = int(breaks[T_rows[breaks] < 298.15].max() + 1) if np.any(T_rows[breaks] < 298.15) else 0
+        later = breaks[T_rows[breaks] >= 298.15]
+        stop = int(later.min() + 1) if later.size else T_rows.size
+        T_rows, cp_rows = T_rows[start:stop], cp_rows[start:stop]
+        keep = (T_rows >= 200.0) & np.isfinite(cp_rows)
+        T_rows, cp_rows = T_rows[keep], cp_rows[keep]
+        if T_rows.size < 3 or not (T_rows[0] <= 298.15 <= T_rows[-1]):
+            return None
+        return T_rows, cp_rows
+
+    def zabransky(cas: str) -> tuple[Any, str] | None:
+        if state != "l":
+            return None
+        for table, kind in (
+            (zabransky_dict_const_s, "constant-pressure"),
+            (zabransky_dict_iso_s, "averaged"),
+            (zabransky_dict_sat_s, "saturation"),
+        ):
+            model = table.get(cas)
+            if model is not None and model.Tmin <= 298.15 <= model.Tmax:
+                return model, kind
+        return None
+
+    def perry(cas: str) -> dict[str, Any] | None:
+        return Cp_dict_PerryI.get(cas, {}).get("c") if state == "s" else None
+
+    def reference_element(cas: str) -> bool:
+        element = next((e for e in periodic_table if e.CAS_standard == cas), None)
+        return element is not None and element.phase == state
+
+    def has_data(cas: str) -> bool:
+        has_cp = janaf_rows(cas) is not None or perry(cas) is not None or zabransky(cas) is not None
+        has_h = bool(h_methods_of(cas)) or reference_element(cas)
+        return has_cp and has_h and bool(s_methods_of(cas))
+
+    compound = identify(name, formula, has_data, f"{word} heat capacity, formation enthalpy and entropy")
+    cas = compound.cas
+    what = f"species {name!r} = {compound.label()} as a {word}"
+    if not has_data(cas):
+        raise SystemDefinitionError(
+            f"thermo='chemicals': no {word} heat capacity, formation enthalpy and entropy for {what}; "
+            f"give species_data for {name!r}"
+        )
+    rows = janaf_rows(cas)
+    h_methods, s_methods = h_methods_of(cas), s_methods_of(cas)
+    h_method = "JANAF" if rows is not None and "JANAF" in h_methods else (h_methods[0] if h_methods else None)
+    s_method = "JANAF" if rows is not None and "JANAF" in s_methods else s_methods[0]
+    if h_method is None:
+        hf, h_text = 0.0, "0 (the element in its reference state)"
+    else:
+        hf = h_of(cas, method=h_method) / 1000.0
+        h_text = f"{hf:.3f} kJ/mol ({h_method})"
+    s0 = float(s_of(cas, method=s_method))
+    head = f"chemicals: {compound.name}, CAS {cas} ({compound.how}), {word}; "
+    tail = f"dfH(298.15 K) = {h_text}; S(298.15 K) = {s0:.2f} J/mol/K ({s_method}); at 1 bar"
+    if rows is not None:
+        T_rows, cp_rows = rows
+        cp_text = f"Cp table of NIST-JANAF 1998, {word} ({T_rows[0]:g}-{T_rows[-1]:g} K, spline); "
+        return Tabulated.from_cp(T_rows, cp_rows, hf, s0, head + cp_text + tail, 1.0)
+    spline = zabransky(cas)
+    if spline is not None:
+        model, kind = spline
+        t_min, t_max = float(model.Tmin), float(model.Tmax)
+        grid = np.unique(np.concatenate([[t_min, 298.15, t_max], np.arange(10.0 * math.ceil(t_min / 10.0), t_max, 10.0)]))
+        cp_rows = np.array([model.calculate(t) for t in grid])
+        cp_text = f"Cp spline of Zabransky et al. (1996), {kind} ({t_min:g}-{t_max:g} K, sampled every 10 K); "
+        return Tabulated.from_cp(grid, cp_rows, hf, s0, head + cp_text + tail, 1.0)
+    entry = perry(cas)
+    assert entry is not None  # has_data said so
+    form = f", {entry['Subphase']}" if entry.get("Subphase") else ""
+    t_min, t_max = float(entry["Tmin"]), float(entry["Tmax"])
+    cp_text = f"Cp correlation of Perry's Table 2-151{form} ({t_min:g}-{t_max:g} K); "
+    return MaierKelley(
+        a=_CAL * float(entry["Const"]),
+        b=_CAL * float(entry["Lin"]),
+        c=_CAL * float(entry["Quad"]),
+        d=_CAL * float(entry["Quadinv"]),
+        dHf=hf,
+        S298=s0,
+        T_min=t_min,
+        T_max=t_max,
+        source=head + cp_text + tail,
+        P_ref=1.0,
+    )

@@ -122,10 +122,10 @@ def define(
             raise SystemDefinitionError(
                 f"thermo must be 'chemicals' (the supported data source), got {thermo!r}"
             )
-        for name in names:
+        for name, phase in zip(names, phase_of):
             if name not in data:
                 text = (formulas or {}).get(name)
-                data[name] = chemicals_data(name, text if isinstance(text, str) else None)
+                data[name] = chemicals_data(name, text if isinstance(text, str) else None, phase)
     lnk_data: dict[str, ReactionK] = dict(given_lnk)
     for label, coefs in zip(labels, coefficients):
         if label not in lnk_data and all(name in data for name in coefs):
