@@ -63,6 +63,38 @@ def test_boudouard_with_graphite_matches_the_closed_form_case_by_case() -> None:
     assert all(res.absent_phases(k) == ["C(solid)"] for k in np.flatnonzero(absent)[:5])
 
 
+def test_sweeps_and_tables_carry_presence_and_activity_of_the_solid(tmp_path) -> None:
+    # A Parquet sweep of the Boudouard system writes present_C and activity_C;
+    # both against the closed form (presence) and a_C = y_CO^2 P / (y_CO2 K)
+    # computed here from the swept mole fractions.
+    import pyarrow as pa
+    import pyarrow.parquet as pq
+    from eqbatch.sweeps import sweep
+
+    rng = np.random.default_rng(11)
+    n = 600
+    c = rng.uniform(0, 2, n) * (rng.uniform(size=n) < 0.6)
+    c2, K, P = rng.uniform(0.1, 2, n), 10 ** rng.uniform(-2, 2, n), 10 ** rng.uniform(-1, 1, n)
+    table = pa.table({"feed_C": c, "feed_CO2": c2, "lnK_r1": np.log(K), "P_bar": P})
+    pq.write_table(table, tmp_path / "in.parquet")
+    system = eqbatch.ReactionSystem(BOUDOUARD, ["C + CO2 = 2 CO"], phases={"C": "solid"})
+    summary = sweep(system, tmp_path / "in.parquet", tmp_path / "out.parquet", batch_size=128, quiet=True)
+    assert summary.converged == n
+    out = pq.read_table(tmp_path / "out.parquet")
+    present, activity = out.column("present_C").to_numpy(), out.column("activity_C").to_numpy()
+    _, expected, margin = boudouard_closed_form(c, c2, np.zeros(n), K, P)
+    clear = np.abs(margin) > 1e-7
+    np.testing.assert_array_equal(present[clear], expected[clear])
+    y_co, y_co2 = out.column("y_CO").to_numpy(), out.column("y_CO2").to_numpy()
+    a_c = np.where(present, 1.0, y_co**2 * P / (y_co2 * K))
+    np.testing.assert_allclose(activity, a_c, rtol=1e-9)
+    assert 0.2 < present.mean() < 0.8  # both kinds of case were swept
+    # the in-memory table has the same columns
+    frame = system.solve(np.column_stack([c, c2, np.zeros(n)]), lnK=np.log(K)[:, None], P=P).to_pandas()
+    np.testing.assert_array_equal(frame["present_C"].to_numpy(), present)
+    np.testing.assert_allclose(frame["activity_C"].to_numpy(), activity, rtol=1e-12)
+
+
 def test_carbon_limit_of_a_co_co2_gas() -> None:
     # 2 CO = C + CO2 from 1 CO + 1 CO2 at 1 bar: Q = y_CO^2 / y_CO2 = 0.5, so
     # carbon forms for a Boudouard K below 0.5 and not above (closed form).

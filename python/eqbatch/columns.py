@@ -4,7 +4,8 @@ A result table (``result.to_pandas()``, ``result.to_arrow()``, a Parquet
 sweep's output) has the inputs ``feed_<species>``, ``P_bar``, ``T_K`` and
 ``lnK_<label>``, then the outputs ``n_<species>``, ``y_<species>``,
 ``extent_<label>``, ``conversion_<species>`` (sweeps: the fed species that
-react), ``status`` and ``iterations``.
+react), ``status`` and ``iterations``; systems with pure condensed species
+add ``present_<species>`` and ``activity_<species>`` for each of them.
 """
 
 from __future__ import annotations
@@ -14,7 +15,7 @@ from collections.abc import Iterable, Mapping
 import numpy as np
 
 from eqbatch.errors import CaseInputError
-from eqbatch.spec import SystemSpec
+from eqbatch.spec import PURE_KINDS, SystemSpec
 
 FEED = "feed_"
 LNK = "lnK_"
@@ -39,6 +40,12 @@ DH = "dH_"
 
 AMOUNT = "n_"
 FRACTION = "y_"
+#: Outputs of each pure condensed species (systems with one): whether its
+#: phase is present, and its activity (1 when present; the activity it would
+#: have in equilibrium with the mixture when absent, the carbon activity of
+#: practice, NaN where the reactions do not fix it).
+PRESENT = "present_"
+ACTIVITY = "activity_"
 EXTENT = "extent_"
 CONVERSION = "conversion_"
 
@@ -104,6 +111,34 @@ def output_columns(
     conversions = conversions or {}
     values = [*amounts.T, *mole_fractions.T, *extents.T, *conversions.values(), status, iterations]
     return dict(zip(output_names(spec, conversions), values))
+
+
+def pure_species(spec: SystemSpec) -> list[str]:
+    """The species that are a phase of their own (solids, pure liquids)."""
+    return [name for name, phase in zip(spec.species, spec.phases) if phase in PURE_KINDS]
+
+
+def phase_names(spec: SystemSpec) -> list[str]:
+    """``present_<s>`` and ``activity_<s>`` for each pure condensed species ``s``.
+
+    Examples
+    --------
+    >>> from eqbatch import ReactionSystem
+    >>> phase_names(ReactionSystem(["C", "CO2", "CO"], ["C + CO2 = 2 CO"], phases={"C": "solid"}))
+    ['present_C', 'activity_C']
+    """
+    return [prefix + name for name in pure_species(spec) for prefix in (PRESENT, ACTIVITY)]
+
+
+def phase_columns(spec: SystemSpec, present: np.ndarray, activities: np.ndarray) -> dict[str, np.ndarray]:
+    """The columns :func:`phase_names` of ``N`` cases from ``result.present``
+    (N, P) and ``result.activities`` (N, S)."""
+    out: dict[str, np.ndarray] = {}
+    for name in pure_species(spec):
+        i = spec.species.index(name)
+        out[PRESENT + name] = present[:, spec.phase_index[i]]
+        out[ACTIVITY + name] = activities[:, i]
+    return out
 
 
 def parse_output(name: str) -> tuple[str, str]:

@@ -774,7 +774,9 @@ def chemicals_data(
     kind = phase.split(":")[0]
     if kind != "gas":
         if kind not in _STATE:
-            raise SystemDefinitionError(f"thermo='chemicals': species {name!r} has an unknown phase {phase!r}")
+            raise SystemDefinitionError(
+                f"thermo='chemicals': species {name!r} has an unknown phase {phase!r}"
+            )
         return condensed_chemicals_data(name, formula, _STATE[kind])
     try:
         from chemicals.heat_capacity import Cp_data_Poling, Cp_dict_JANAF_gas, TRC_gas_data, TRCCp
@@ -863,6 +865,7 @@ def condensed_chemicals_data(name: str, formula: str | None, state: str) -> Maie
     (0.0, 8.52)
     """
     try:
+        from chemicals import reaction
         from chemicals.elements import periodic_table
         from chemicals.heat_capacity import (
             Cp_dict_JANAF_liquid,
@@ -872,7 +875,6 @@ def condensed_chemicals_data(name: str, formula: str | None, state: str) -> Maie
             zabransky_dict_iso_s,
             zabransky_dict_sat_s,
         )
-        from chemicals import reaction
     except ImportError:
         raise SystemDefinitionError(
             "thermo='chemicals' needs the chemicals package: pip install chemicals"
@@ -954,9 +956,13 @@ def condensed_chemicals_data(name: str, formula: str | None, state: str) -> Maie
     if spline is not None:
         model, kind = spline
         t_min, t_max = float(model.Tmin), float(model.Tmax)
-        grid = np.unique(np.concatenate([[t_min, 298.15, t_max], np.arange(10.0 * math.ceil(t_min / 10.0), t_max, 10.0)]))
+        grid = np.unique(
+            np.concatenate([[t_min, 298.15, t_max], np.arange(10.0 * math.ceil(t_min / 10.0), t_max, 10.0)])
+        )
         cp_rows = np.array([model.calculate(t) for t in grid])
-        cp_text = f"Cp spline of Zabransky et al. (1996), {kind} ({t_min:g}-{t_max:g} K, sampled every 10 K); "
+        cp_text = (
+            f"Cp spline of Zabransky et al. (1996), {kind} ({t_min:g}-{t_max:g} K, sampled every 10 K); "
+        )
         return Tabulated.from_cp(grid, cp_rows, hf, s0, head + cp_text + tail, 1.0)
     entry = perry(cas)
     assert entry is not None  # has_data said so

@@ -9,7 +9,7 @@ from typing import Any
 import numpy as np
 
 from eqbatch import _core, outputs
-from eqbatch.columns import T_OUT, input_columns, output_columns
+from eqbatch.columns import T_OUT, input_columns, output_columns, phase_columns, phase_names
 from eqbatch.errors import CaseInputError
 from eqbatch.spec import SystemSpec
 from eqbatch.status import CONVERGED_CODES, Status, status_words
@@ -706,6 +706,8 @@ class EquilibriumResult:
         out = input_columns(spec, self.feed, self.P, T_given, self.lnK) if inputs else {}
         fractions = self.mole_fractions
         out.update(output_columns(spec, self.amounts, fractions, self.extents, self.status, self.iterations))
+        if phase_names(spec):
+            out.update(phase_columns(spec, self.present, self.activities))
         if balance and self.T is not None:
             out[T_OUT] = self.T
         return out

@@ -86,6 +86,7 @@ from eqbatch.columns import (
     HEAT,
     ITERATIONS,
     LNK,
+    PRESENT,
     PRESSURE,
     STATUS,
     T_IN,
@@ -93,6 +94,8 @@ from eqbatch.columns import (
     TEMPERATURE,
     output_columns,
     output_names,
+    phase_columns,
+    phase_names,
 )
 from eqbatch.errors import CaseInputError, EqbatchError
 from eqbatch.status import CONVERGED_CODES, Status, status_words
@@ -409,7 +412,7 @@ class _Plan:
 
     def output_names(self) -> list[str]:
         """The columns a batch's solve adds to its input columns."""
-        return output_names(self.system, self.conversion) + self.energy_names()
+        return output_names(self.system, self.conversion) + phase_names(self.system) + self.energy_names()
 
     def energy_names(self) -> list[str]:
         """``T_out_K`` (with energy-balance inputs), ``H_out_kJ``, ``heat_kJ``
@@ -500,17 +503,25 @@ class _Plan:
         """The output columns of ``n`` rows from the solves of their parts:
         ``(rows, result, feed temperature for the heat duty or None)``."""
         s, r = self.system.n_species, self.system.n_reactions
+        pure = phase_names(self.system)
         if len(parts) == 1 and parts[0][0].size == n and not self.energy_names():  # one solve: its arrays
             res = parts[0][1]
             conv = {sp: res.conversion(sp) for sp in self.conversion}
-            return output_columns(
+            outs = output_columns(
                 self.system, res.amounts, res.mole_fractions, res.extents, res.status, res.iterations, conv
             )
+            return outs | (phase_columns(self.system, res.present, res.activities) if pure else {})
         amounts, fractions, extents = np.empty((n, s)), np.empty((n, s)), np.empty((n, r))
         status, iterations = np.empty(n, dtype=np.uint8), np.empty(n, dtype=np.uint32)
         conversions = {sp: np.empty(n) for sp in self.conversion}
         energy = {name: np.full(n, np.nan) for name in self.energy_names()}
+        phases = {
+            name: np.zeros(n, dtype=bool) if name.startswith(PRESENT) else np.full(n, np.nan) for name in pure
+        }
         for rows, res, T_feed in parts:
+            if pure:
+                for name, values in phase_columns(self.system, res.present, res.activities).items():
+                    phases[name][rows] = values
             amounts[rows], fractions[rows], extents[rows] = res.amounts, res.mole_fractions, res.extents
             status[rows], iterations[rows] = res.status, res.iterations
             for sp in self.conversion:
@@ -525,7 +536,7 @@ class _Plan:
                     for j, label in enumerate(self.system.labels):
                         energy[DH + label][rows] = dH[:, j]
         outs = output_columns(self.system, amounts, fractions, extents, status, iterations, conversions)
-        return outs | energy
+        return outs | phases | energy
 
 
 def _refuse_unknown_columns(system: ReactionSystem, path: Path, names: list[str]) -> None:
