@@ -911,13 +911,14 @@ def condensed_chemicals_data(name: str, formula: str | None, state: str) -> Maie
             (zabransky_dict_iso_s, "averaged"),
             (zabransky_dict_sat_s, "saturation"),
         ):
-            model = table.get(cas)
+            model: Any = table.get(cas)  # a PiecewiseHeatCapacity
             if model is not None and model.Tmin <= 298.15 <= model.Tmax:
                 return model, kind
         return None
 
     def perry(cas: str) -> dict[str, Any] | None:
-        return Cp_dict_PerryI.get(cas, {}).get("c") if state == "s" else None
+        entries: dict[str, Any] = Cp_dict_PerryI.get(cas, {})
+        return entries.get("c") if state == "s" else None
 
     def reference_element(cas: str) -> bool:
         element = next((e for e in periodic_table if e.CAS_standard == cas), None)
