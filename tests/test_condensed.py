@@ -354,3 +354,30 @@ def test_condensed_results_do_not_depend_on_the_thread_count() -> None:
     assert one.converged.all() and 0.1 < one.present[:, 1].mean() < 0.9
     for a, b in ((one.amounts, two.amounts), (one.extents, two.extents), (one.absent, two.absent)):
         np.testing.assert_array_equal(a, b)
+
+
+def test_a_large_condensed_batch_equals_its_pieces_and_the_closed_form() -> None:
+    # More cases than the core's block of a batch with pure species (131,072):
+    # one call gives the same bits as the same cases in small calls, with
+    # broadcast pressure and per-case feed and K, and agrees with the
+    # Boudouard closed form (graphite present exactly where it says).
+    rng = np.random.default_rng(17)
+    n = 140_000
+    c = rng.uniform(0, 1, n) * (rng.uniform(size=n) < 0.5)
+    c2, co = np.ones(n), rng.uniform(0, 3, n)
+    K = 10 ** rng.uniform(-2, 2, n)
+    system = eqbatch.ReactionSystem(BOUDOUARD, ["C + CO2 = 2 CO"], phases={"C": "solid"})
+    feed = np.column_stack([c, c2, co])
+    whole = system.solve(feed, K=K[:, None], P=2.0, threads=2)
+    assert whole.converged.all()
+    xi, present, margin = boudouard_closed_form(c, c2, co, K, np.full(n, 2.0))
+    clear = np.abs(margin) > 1e-7
+    np.testing.assert_array_equal(whole.present[clear, 1], present[clear])
+    # (atol: the closed form's xi = (y (c2 + co) - co) / (2 - y) cancels where
+    # the CO fed is near its equilibrium amount)
+    np.testing.assert_allclose(whole.extents[:, 0], xi, rtol=1e-8, atol=1e-10)
+    for lo in (0, 65_536, 131_000):  # pieces across the block boundary
+        hi = lo + 1_500
+        part = system.solve(feed[lo:hi], K=K[lo:hi, None], P=2.0, threads=1)
+        np.testing.assert_array_equal(part.amounts, whole.amounts[lo:hi])
+        np.testing.assert_array_equal(part.absent, whole.absent[lo:hi])

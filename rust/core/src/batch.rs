@@ -14,7 +14,7 @@ use rayon::prelude::*;
 
 use crate::condensed::ReducedRun;
 use crate::error::CoreError;
-use crate::face::{analyse, Face, FaceError};
+use crate::face::{analyse, Face, FaceError, SharedFace};
 use crate::lanes::{lane_kernel_for, LaneCase, LaneKernel};
 use crate::presence;
 use crate::solver::{kernel_for, solve_on_face, Case, FixedKernel, SolveOptions, Workspace};
@@ -202,6 +202,10 @@ pub(crate) struct FaceCursor {
     key: Vec<u64>,
     last_key: Vec<u64>,
     last: Option<usize>,
+    /// [`FaceCursor::face_or_analyse`]'s last face and its pattern, and
+    /// every face it analysed (a thread analyses a pattern at most once).
+    held: Option<(Vec<u64>, SharedFace)>,
+    seen: HashMap<Vec<u64>, SharedFace>,
 }
 
 impl FaceCursor {
@@ -211,6 +215,40 @@ impl FaceCursor {
             key: vec![0; words],
             last_key: vec![0; words],
             last: None,
+            held: None,
+            seen: HashMap::new(),
+        }
+    }
+
+    /// The face of `feed`'s zero pattern from `table`, or, for a pattern
+    /// the table lacks (batches whose reduced run settles most cases leave
+    /// it empty), from the system's memo, analysed on first need.
+    pub(crate) fn face_or_analyse(
+        &mut self,
+        table: &FaceTable,
+        system: &System,
+        feed: &[f64],
+    ) -> &Result<Face, FaceError> {
+        zero_pattern(feed, &mut self.key);
+        let same = matches!(&self.held, Some((key, _)) if *key == self.key);
+        if !same {
+            let face = match (table.find(&self.key), self.seen.get(&self.key)) {
+                (Some(k), _) => table.faces[k].clone(),
+                (None, Some(face)) => face.clone(),
+                (None, None) => {
+                    let face = system.face_memo().get_or_analyse(&self.key, || {
+                        let zero: Vec<bool> = feed.iter().map(|&v| v < TINY_FEED).collect();
+                        analyse(system, &zero)
+                    });
+                    self.seen.insert(self.key.clone(), face.clone());
+                    face
+                }
+            };
+            self.held = Some((self.key.clone(), face));
+        }
+        match &self.held {
+            Some((_, face)) => face,
+            None => unreachable!("held was just set"),
         }
     }
 
@@ -299,10 +337,17 @@ pub fn solve_batch(
     if n == 0 {
         return Ok(());
     }
+    if n > PURE_BLOCK && system.has_pure() && system.reduced().is_some() {
+        return solve_in_blocks(system, inputs, rows, outputs, options, threads);
+    }
     let serial = threads == Some(1) || n <= CHUNK;
     // One pool for the whole call (`None`: rayon's global pool).
     let pool = if serial { None } else { pool_for(threads)? };
+    // (with a reduced run, the few cases it does not settle find their faces
+    // as they need them: no scan of every feed)
+    let lazy = system.has_pure() && system.reduced().is_some();
     let faces = match &pool {
+        _ if lazy => FaceTable::default(),
         Some(pool) => pool.install(|| faces_for(system, inputs, rows.feed, true)),
         None => faces_for(system, inputs, rows.feed, !serial),
     };
@@ -329,6 +374,59 @@ pub fn solve_batch(
         return Ok(());
     }
     run_in_parallel(&plan, chunks, pool.as_deref());
+    Ok(())
+}
+
+/// Cases per block of a batch with pure species: each block is solved on
+/// the reduced system and then on the full one, so the reduced run's
+/// buffers stay small and are reused from block to block (one buffer for
+/// a million cases costs more in fresh pages than the blocks' extra
+/// synchronisation).
+const PURE_BLOCK: usize = 131_072;
+
+/// [`solve_batch`] block by block ([`PURE_BLOCK`]); the results do not
+/// depend on the blocks (every case is solved on its own inputs).
+fn solve_in_blocks(
+    system: &System,
+    inputs: &BatchInputs,
+    rows: InputRows,
+    outputs: &mut BatchOutputs,
+    options: &SolveOptions,
+    threads: Option<usize>,
+) -> Result<(), CoreError> {
+    let (n, s, r) = (inputs.n_cases, system.n_species(), system.n_reactions());
+    let part = |data: &'_ [f64], layout: Rows, lo: usize, hi: usize| -> std::ops::Range<usize> {
+        if layout.broadcast {
+            0..data.len()
+        } else {
+            lo * layout.width..hi * layout.width
+        }
+    };
+    for lo in (0..n).step_by(PURE_BLOCK) {
+        let hi = (lo + PURE_BLOCK).min(n);
+        let block = BatchInputs {
+            n_cases: hi - lo,
+            feed: &inputs.feed[part(inputs.feed, rows.feed, lo, hi)],
+            ln_k: &inputs.ln_k[part(inputs.ln_k, rows.ln_k, lo, hi)],
+            pressure: &inputs.pressure[part(inputs.pressure, rows.pressure, lo, hi)],
+            start: match (inputs.start, rows.start) {
+                (Some(x0), Some(layout)) => Some(&x0[part(x0, layout, lo, hi)]),
+                _ => None,
+            },
+        };
+        let mut out = BatchOutputs {
+            amounts: &mut outputs.amounts[lo * s..hi * s],
+            extents: &mut outputs.extents[lo * r..hi * r],
+            mole_fractions: outputs
+                .mole_fractions
+                .as_deref_mut()
+                .map(|y| &mut y[lo * s..hi * s]),
+            status: &mut outputs.status[lo..hi],
+            iterations: &mut outputs.iterations[lo..hi],
+            absent: outputs.absent.as_deref_mut().map(|a| &mut a[lo..hi]),
+        };
+        solve_batch(system, &block, &mut out, options, threads)?;
+    }
     Ok(())
 }
 
@@ -838,7 +936,7 @@ impl ChunkState {
                 Err(found) => forming = found,
             }
         }
-        let Some(Ok(face)) = self.faces.face(faces, feed) else {
+        let Ok(face) = self.faces.face_or_analyse(faces, system, feed) else {
             return (Status::Infeasible, 0, 0);
         };
         let case = Case {

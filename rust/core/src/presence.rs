@@ -41,7 +41,7 @@
 use crate::face::{analyse_with, Face, SharedFace};
 use crate::linalg::{null_space, particular_solution, solve_spd_scaled};
 use crate::lp::{maximize, LpOutcome};
-use crate::solver::{interior_start, solve_case, Case, SolveOptions, Workspace, PURE_VANISHING};
+use crate::solver::{interior_start, Case, SolveOptions, Workspace, PURE_VANISHING};
 use crate::status::Status;
 use crate::system::System;
 
@@ -447,7 +447,7 @@ fn solve_with_absent(
             start: start.as_deref(),
             ..*case
         };
-        solve_case(system, &again, options, ws, amounts, extents)
+        ws.solve(system, &again, options, amounts, extents)
     };
     for j in 0..r {
         extents[j] += shift[j];
@@ -837,6 +837,7 @@ fn smallest_log_sum_exp(base: &[f64], z: &[f64], k: usize) -> (f64, Vec<f64>) {
 mod tests {
     use super::*;
     use crate::face::analyse;
+    use crate::solver::solve_case;
 
     use crate::system::Phase;
 

@@ -186,6 +186,9 @@ pub struct Workspace {
     square: Vec<f64>,
     n_species: usize,
     n_reactions: usize,
+    /// The system's specialised kernel, if its size has one: solves on a
+    /// full face take it (see [`Workspace::solve`]).
+    kernel: Option<FixedKernel>,
 }
 
 /// Number of per-species `f64` arrays in a [`Scratch`].
@@ -209,7 +212,22 @@ impl Workspace {
             square: vec![0.0; 2 * r * r],
             n_species: s,
             n_reactions: r,
+            kernel: kernel_for(r, s, system.gas_only()),
         }
+    }
+
+    /// One valid case on its face: the system's specialised kernel where
+    /// the face is full, else the general path ([`solve_on_face`]); the
+    /// same results either way.
+    pub(crate) fn solve(
+        &mut self,
+        system: &System,
+        case: &Case,
+        options: &SolveOptions,
+        amounts: &mut [f64],
+        extents: &mut [f64],
+    ) -> (Status, u32) {
+        solve_on_face(system, case, options, self.kernel, self, amounts, extents)
     }
 
     fn scratch(&mut self) -> Scratch<'_> {
