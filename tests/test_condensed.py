@@ -290,6 +290,47 @@ def lowest_gibbs(system, feed: np.ndarray, lnK: np.ndarray, P: float, starts) ->
     return best
 
 
+def test_a_trace_that_rounds_to_zero_does_not_spoil_the_introduction_of_a_phase() -> None:
+    # A random network of the benchmark where reaction r1 (ln K -50) leaves X4
+    # at 1e-24 mol of a feed of 0.9: in extents, the equilibrium without the
+    # pure liquid X2 puts X4 at exactly zero, and the start that brings X2
+    # back was refused (the search then stalled with X2 absent at an activity
+    # of 20). The answer: X2 present, with a Gibbs energy no higher than an
+    # independent SLSQP minimisation finds (scipy; lowest_gibbs).
+    system = eqbatch.ReactionSystem(
+        [f"X{k}" for k in range(7)],
+        ["X0 + 3 X1 + X3 = X4", "2 X0 + 4 X1 + 3 X2 + 2 X3 = 2 X5", "2 X0 + 6 X1 + 3 X2 = 2 X6"],
+        phases={"X2": "pure_liquid"},
+        check_balance=False,
+    )
+    feed = np.array([0.0802767787, 0.4563998643, 0.4925174232, 0.5788582598, 0.9075237867, 0.4156935983, 0.0])
+    lnk = np.array([-50.3025158517, -3.4429419633, -10.0554739567])
+    P = 1.0352721344
+    res = system.solve(feed, lnK=lnk, P=P)
+    assert res.converged[0] and res.present[0, system.phase_index[2]]
+    assert res.amounts[0, 2] > 1.0  # about 1.08 mol of the liquid
+    starts = [np.zeros(3), np.array([-0.5, 0.1, 0.0])]
+    g = gibbs(system, res.amounts[0], lnk, P)
+    assert g <= lowest_gibbs(system, feed, lnk, P, starts) + 1e-9
+
+
+def test_an_unsettled_case_does_not_call_a_forming_phase_stable() -> None:
+    # Stopped after one iteration, the X2 liquid of the case above is absent
+    # with an activity above one: the message must not say it would not form.
+    system = eqbatch.ReactionSystem(
+        [f"X{k}" for k in range(7)],
+        ["X0 + 3 X1 + X3 = X4", "2 X0 + 4 X1 + 3 X2 + 2 X3 = 2 X5", "2 X0 + 6 X1 + 3 X2 = 2 X6"],
+        phases={"X2": "pure_liquid"},
+        check_balance=False,
+    )
+    feed = np.array([0.08, 0.46, 0.0, 0.58, 0.91, 0.42, 0.0])
+    res = system.solve(feed, lnK=[-50.3, -3.44, -10.06], P=1.0, max_iter=1)
+    assert not res.converged[0]
+    text = res.message(0)
+    assert res.activities[0, 2] > 1.0
+    assert "> 1 (it would form)" in text and "would not form" not in text
+
+
 def test_the_answer_has_the_lowest_gibbs_energy_of_any_phase_set() -> None:
     # an independent minimisation (scipy SLSQP over the extents with n >= 0, from
     # two starts) never finds a lower Gibbs energy than eqbatch's answer

@@ -394,13 +394,20 @@ class EquilibriumResult:
             f"{name}({kind})": k
             for k, (name, kind) in enumerate(zip(self.system.species, self.system.phases))
         }
+        settled = bool(self.converged[case])
         for phase in absent:
             k = pure.get(phase)
             a = float(self._activities([case])[0, k]) if k is not None else np.nan
-            if np.isfinite(a):
-                text += f"; the {phase} phase is absent (activity {a:.4g} < 1: it would not form)"
-            else:
+            if np.isfinite(a) and a <= 1.0 + 1e-9:
+                text += f"; the {phase} phase is absent (activity {a:.4g} <= 1: it would not form)"
+            elif np.isfinite(a):
+                # only where the search did not settle: a converged case has
+                # every absent phase stable
+                text += f"; the {phase} phase is absent although its activity is {a:.4g} > 1 (it would form)"
+            elif settled:
                 text += f"; the {phase} phase is absent (it would not form: it is stable empty)"
+            else:
+                text += f"; the {phase} phase is absent"
         if self.held is not None and self.held[case].any():
             labels = [lab for lab, h in zip(self.system.labels, self.held[case]) if h]
             text += (

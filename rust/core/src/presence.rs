@@ -732,15 +732,20 @@ fn introduction(
         let start: Vec<f64> = (0..r).map(|j| extents[j] + eps * total * unit[j]).collect();
         // Feasible, with the phase formed (whether every species the new
         // face reaches is present is the solve's own test of a start).
+        let amount = |i: usize| feed[i] + (0..r).map(|j| nu[j * s + i] * start[j]).sum::<f64>();
+        let free = |i: usize| !held[i] && system.is_reactive(i);
         let inside = (0..s).all(|i| {
-            let v = feed[i] + (0..r).map(|j| nu[j * s + i] * start[j]).sum::<f64>();
-            let forming = implied.species.contains(&i);
-            held[i] || !system.is_reactive(i) || v > 0.0 || (v == 0.0 && !forming)
+            let v = amount(i);
+            !free(i) || v > 0.0 || (v == 0.0 && !implied.species.contains(&i))
         });
         if inside {
+            // A trace that the extents round to exactly zero (a species
+            // at 1e-24 of a feed of one mole) would make the solve refuse
+            // the start: blend those back in from the interior point.
+            let rounded_away = (0..s).any(|i| free(i) && amount(i) == 0.0);
             return Start {
                 extents: start,
-                toward: None,
+                toward: rounded_away.then(Vec::new),
             };
         }
     }
