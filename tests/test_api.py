@@ -114,7 +114,7 @@ def test_temperature_dependent_K_and_accessors() -> None:
 
 
 def test_status_enum_and_messages(reforming) -> None:
-    assert [s.value for s in eqbatch.Status] == [0, 1, 2, 3, 4, 5, 6, 7]
+    assert [s.value for s in eqbatch.Status] == [0, 1, 2, 3, 4, 5, 6, 7, 8]
     res = reforming.solve([[1, 3, 0, 0, 0, 0], [-1, 3, 0, 0, 0, 0]], lnK=[1.0, 0.5])
     assert res.summary() == "1 converged, 1 invalid input"
     assert "invalid input" in res.message(1)

@@ -28,6 +28,7 @@ from eqbatch.errors import (
     UnknownSpeciesError,
 )
 from eqbatch.kdata import as_lnk_data
+from eqbatch.realgas import read_gas_model
 from eqbatch.spec import MAX_SOLUTIONS, PHASES, KData, ReactionK, SystemSpec, compile_system, phase_key
 from eqbatch.speciesdata import (
     NASA7,
@@ -58,6 +59,9 @@ def define(
     lnK: Mapping[str, Any] | Sequence[Any] | None = None,
     species_data: Mapping[str, Any] | None = None,
     thermo: str | None = None,
+    gas_model: str | None = None,
+    critical: Mapping[str, Mapping[str, float]] | str | None = None,
+    kij: Mapping[tuple[str, str], float] | None = None,
 ) -> SystemSpec:
     """The checked description of a system from the arguments of
     :class:`~eqbatch.ReactionSystem` (see there for each).
@@ -65,6 +69,8 @@ def define(
     Parameters
     ----------
     species, reactions, phases, P0, formulas, check_balance, lnK, species_data, thermo
+        As for :class:`~eqbatch.ReactionSystem`.
+    gas_model, critical, kij
         As for :class:`~eqbatch.ReactionSystem`.
 
     Returns
@@ -144,6 +150,7 @@ def define(
         given_formulas=dict(formulas or {}),
         check_balance=check_balance,
         given_lnK=given_lnk,
+        gas=read_gas_model(names, phase_of, gas_model, critical, kij, formulas),
     )
 
 

@@ -223,3 +223,13 @@ class ExtrapolationWarning(UserWarning):
             (self.subject, self.count, self.cases, self.T_low, self.T_high, self.valid)
             + (self.what, self.unit, self.tail),
         )
+
+
+class NonIdealGasWarning(UserWarning):
+    """An ideal-gas solve at conditions where the ideal-gas law is off by
+    more than a few percent: the equilibrium mixture's compressibility
+    factor, from the Peng-Robinson equation with the critical constants the
+    system was given, differs from 1 by more than 5 % in some cases. Give
+    ``gas_model="peng-robinson"`` (or ``"srk"``) to include the fugacity
+    coefficients. Said once per call, with how many cases.
+    """

@@ -94,6 +94,7 @@ class EquilibriumResult:
         "T_in",
         "absent",
         "held",
+        "_ln_phi",
     )
 
     def __init__(
@@ -136,6 +137,8 @@ class EquilibriumResult:
         #: (N, R) bool, with ``approach=``: reactions held at zero extent
         #: because the feed is already within their approach of equilibrium.
         self.held: np.ndarray | None = None
+        #: (N, S) ln phi of a non-ideal gas's species at the answer (None: ideal).
+        self._ln_phi: np.ndarray | None = None
 
     def invalidate(self) -> None:
         """Forget what was computed from the arrays (mole fractions, derivatives).
@@ -479,9 +482,34 @@ class EquilibriumResult:
         return self.phase_amounts > 0
 
     @property
+    def fugacity_coefficients(self) -> np.ndarray:
+        """(N, S) fugacity coefficient ``phi`` of each gas species at
+        equilibrium (1 for an ideal gas; from the system's ``gas_model``
+        otherwise); NaN for species not in the gas and for cases without an
+        answer.
+
+        Examples
+        --------
+        >>> from eqbatch import ReactionSystem
+        >>> s = ReactionSystem(["Xa", "Xb"], ["Xa = Xb"])
+        >>> s.solve([1.0, 0.0], lnK=0.0).fugacity_coefficients.tolist()
+        [[1.0, 1.0]]
+        """
+        gas = np.array([p == "gas" for p in self.system.phases])
+        if self._ln_phi is not None:
+            out = np.exp(self._ln_phi)
+        else:
+            out = np.where(np.isfinite(self.amounts).all(axis=1, keepdims=True), 1.0, np.nan) * np.ones(
+                (1, self.system.n_species)
+            )
+        out[:, ~gas] = np.nan
+        return out
+
+    @property
     def activities(self) -> np.ndarray:
         """(N, S) activity of each species at equilibrium: ``y P / P0`` in the
-        gas, ``x`` in a solution, 1 for a pure species that is present.
+        gas (``y phi P / P0`` with a real gas), ``x`` in a solution, 1 for a
+        pure species that is present.
 
         A species at zero gets the activity it would have in equilibrium with
         the mixture, where the reactions fix it (``exp`` of the solution of
@@ -506,6 +534,8 @@ class EquilibriumResult:
         """:attr:`activities` of the cases ``rows`` (a slice or index array)."""
         amounts = self.amounts[rows]
         ln_a = self.system.ln_activities(amounts, self.P[rows])
+        if self._ln_phi is not None:  # a real gas: a = y phi P / P0
+            ln_a = ln_a + self._ln_phi[rows]
         lnK = self.lnK[rows]
         nu = self.system.stoich
         # the unknowns: species of phases holding nothing (ln_activities: NaN)

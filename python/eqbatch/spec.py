@@ -139,6 +139,9 @@ class SystemSpec:
         Whether the reactions' atom balance was checked.
     given_lnK : dict
         The K data given (without those from species data).
+    gas : GasModel or None
+        The gas's equation of state (:mod:`eqbatch.realgas`); None for an
+        ideal gas.
 
     Examples
     --------
@@ -162,6 +165,7 @@ class SystemSpec:
     given_formulas: dict[str, str | None]
     check_balance: bool
     given_lnK: dict[str, KData]
+    gas: Any = None  # an eqbatch.realgas.GasModel (the description sits below that module)
 
     def __post_init__(self) -> None:
         self.stoich.setflags(write=False)
@@ -179,6 +183,11 @@ class SystemSpec:
         return f"<{type(self).__name__} {self.n_species} species, {self.n_reactions} reactions: {eqs}>"
 
     # ------------------------------------------------------ derived, cached
+
+    @property
+    def real_gas(self) -> Any:
+        """The gas's equation of state when it is not ideal (else None)."""
+        return self.gas if self.gas is not None and self.gas.kind != "ideal" else None
 
     @cached_property
     def _engine(self) -> _core.System:
@@ -451,7 +460,8 @@ class SystemSpec:
         -------
         dict
             ``species``, ``reactions`` (label, equation pairs), ``phases``,
-            ``P0``, ``formulas``, ``check_balance``, ``species_data`` and ``lnK``.
+            ``P0``, ``formulas``, ``check_balance``, ``species_data`` and ``lnK``
+            (and ``gas_model``, ``critical`` and ``kij`` of a non-ideal gas).
 
         Examples
         --------
@@ -469,7 +479,7 @@ class SystemSpec:
             "check_balance": self.check_balance,
             "species_data": dict(self.species_data),
             "lnK": dict(self.given_lnK),
-        }
+        } | (self.gas.arguments() if self.gas is not None else {})
 
     @property
     def _spec(self) -> dict[str, Any]:

@@ -53,6 +53,9 @@ class Status(IntEnum):
     #: :func:`eqbatch.phase_boundary`: the phase does not just appear anywhere
     #: in the bracket (present at both ends, or at neither); the value is NaN.
     NO_BOUNDARY = 7
+    #: Non-ideal gas: the equation of state has no vapour-like root at the
+    #: case's composition, temperature and pressure (it would be a liquid).
+    NO_VAPOUR_ROOT = 8
 
     @property
     def description(self) -> str:

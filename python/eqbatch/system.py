@@ -34,6 +34,7 @@ from eqbatch.inputs import (
     why_invalid,
 )
 from eqbatch.prepared import PreparedSolve
+from eqbatch.realgas import solve_real, warn_if_not_ideal
 from eqbatch.result import EquilibriumResult, Status
 from eqbatch.spec import PHASES, ArrayLike, KData, SystemSpec, bad_temperatures
 from eqbatch.system_file import read_spec
@@ -96,6 +97,20 @@ class ReactionSystem(SystemSpec):
         with data, such as ``C4H10``, is refused with the candidates
         listed). Each species' ``source`` records the compound's name and
         registry number and where its values came from.
+    gas_model : {"ideal", "peng-robinson", "srk"}, default "ideal"
+        The gas's equation of state: fugacity coefficients from the
+        Peng-Robinson (1976) or Soave-Redlich-Kwong (1972) cubic with the van
+        der Waals one-fluid mixing rules, per case at its composition,
+        temperature and pressure (:mod:`eqbatch.realgas`). A non-ideal case
+        needs ``T`` even when ``lnK`` is given.
+    critical : mapping species -> {"Tc": K, "Pc": bar, "omega": -}, or "chemicals"
+        Critical constants of every gas species (needed by a non-ideal
+        ``gas_model``); ``"chemicals"`` takes them from the ``chemicals``
+        package (``system.gas.sources`` says from where). Given with an
+        ideal gas, they serve a warning (:class:`NonIdealGasWarning`) where
+        the equilibrium gas's compressibility factor is more than 5 % from 1.
+    kij : mapping (species, species) -> float, optional
+        Binary interaction parameters of the mixing rule (default 0).
 
     Raises
     ------
@@ -128,6 +143,9 @@ class ReactionSystem(SystemSpec):
         lnK: Mapping[str, Any] | Sequence[Any] | None = None,
         species_data: Mapping[str, Any] | None = None,
         thermo: str | None = None,
+        gas_model: str | None = None,
+        critical: Mapping[str, Mapping[str, float]] | str | None = None,
+        kij: Mapping[tuple[str, str], float] | None = None,
     ) -> None:
         spec = define(
             species,
@@ -139,6 +157,9 @@ class ReactionSystem(SystemSpec):
             lnK=lnK,
             species_data=species_data,
             thermo=thermo,
+            gas_model=gas_model,
+            critical=critical,
+            kij=kij,
         )
         super().__init__(**spec._values())
 
@@ -342,6 +363,24 @@ class ReactionSystem(SystemSpec):
         """
         if duty is not None and adiabatic:
             raise CaseInputError("give adiabatic=True (no heat exchanged) or duty= (heat added), not both")
+        if self.real_gas is not None:
+            unsupported = [
+                name
+                for name, given in (
+                    ("adiabatic=True", adiabatic),
+                    ("duty=", duty is not None),
+                    ("approach=", bool(approach)),
+                    ("sensitivities=True", sensitivities),
+                    ("chain=True", chain),
+                    ("out=", out is not None),
+                )
+                if given
+            ]
+            if unsupported:
+                raise CaseInputError(
+                    f"{', '.join(unsupported)} not yet available with gas_model={self.real_gas.kind!r} "
+                    "(the ideal-gas solve has them)"
+                )
         if H_in is not None and not (adiabatic or duty is not None):
             raise CaseInputError("H_in= is the inlet of an energy balance: give adiabatic=True or duty=")
         if adiabatic or duty is not None:
@@ -407,7 +446,7 @@ class ReactionSystem(SystemSpec):
         start = None if x0 is None else reaction_rows(self, x0, "x0")
         if start is not None and start.shape[0] not in (1, n):
             raise CaseInputError(f"x0 has {start.shape[0]} cases but other inputs have {n}; give 1 or {n}")
-        held = T_eff = None
+        held = T_eff = ln_phi = None
         if approach:
             assert T_arr is not None  # checked above
             solved = approach_module.solve(
@@ -430,6 +469,11 @@ class ReactionSystem(SystemSpec):
                 solved.absent,
             )
             lnk_arr, T_eff, held = solved.lnK, solved.T_eff, solved.held
+        elif self.real_gas is not None:
+            solved_real, ln_phi = solve_real(
+                self, feed_arr, lnk_arr, p_arr, T_arr, n, tol, max_iter, threads, start
+            )
+            amounts, extents, status, iterations, absent = solved_real
         else:
             amounts, extents, status, iterations, absent = self._engine.solve(
                 feed_arr, lnk_arr, p_arr, n, tol, max_iter, threads, start, chain, self._outputs(out, n)
@@ -441,6 +485,10 @@ class ReactionSystem(SystemSpec):
         result._T_eff = T_eff
         result.held = held
         result.absent = absent
+        if self.real_gas is not None:
+            result._ln_phi = ln_phi
+        elif self.gas is not None:
+            warn_if_not_ideal(self, result.mole_fractions, T_arr, p_arr, result.converged)
         if invalid == "raise" and (status == Status.INVALID_INPUT).any():
             k = int(np.flatnonzero(status == Status.INVALID_INPUT)[0])
             T_k = None if T_arr is None else float(T_arr[k if T_arr.shape[0] > 1 else 0])
@@ -493,6 +541,10 @@ class ReactionSystem(SystemSpec):
         >>> res.amounts.tolist(), res.sensitivity("lnK")[0, :, 0].round(6).tolist()
         ([[0.5, 0.5]], [-0.25, 0.25])
         """
+        if self.real_gas is not None:
+            raise CaseInputError(
+                f"prepare() is not yet available with gas_model={self.real_gas.kind!r}; call solve()"
+            )
         return PreparedSolve(
             self, cases, tol=tol, max_iter=max_iter, threads=threads, sensitivities=sensitivities
         )

@@ -14,6 +14,7 @@
 //! * [`solver`]: the damped Newton solve of one case;
 //! * [`lanes`]: the batch path for all-gas systems, eight cases per vector group;
 //! * [`batch`]: the parallel batch driver;
+//! * [`eos`], [`realgas`]: fugacity coefficients of a cubic equation of state, and batches with them;
 //! * [`sensitivity`]: exact derivatives of converged cases;
 //! * [`lp`], [`linalg`]: the small numerical kernels they share.
 
@@ -24,6 +25,7 @@
 pub mod basis;
 pub mod batch;
 pub mod condensed;
+pub mod eos;
 pub mod error;
 pub mod face;
 pub mod lanes;
@@ -33,6 +35,7 @@ pub mod lp;
 pub mod newton;
 pub mod num;
 pub mod presence;
+pub mod realgas;
 pub mod sensitivity;
 pub mod solver;
 pub mod status;

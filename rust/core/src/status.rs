@@ -34,12 +34,17 @@ pub enum Status {
     /// bracket (present at both ends, or absent at both); set by the Python
     /// layer, which runs the search. Outputs are NaN.
     NoBoundary = 7,
+    /// Non-ideal gas: the equation of state has no vapour-like root at the
+    /// case's composition, temperature and pressure (the mixture there
+    /// would be a liquid); no gas answer is given. Outputs are the last
+    /// pass's (see [`crate::realgas`]).
+    NoVapourRoot = 8,
 }
 
 impl Status {
     /// Every status, in code order: the table the Python package, the
     /// command line and result files read.
-    pub const ALL: [Status; 8] = [
+    pub const ALL: [Status; 9] = [
         Status::Converged,
         Status::IterationLimit,
         Status::InvalidInput,
@@ -48,6 +53,7 @@ impl Status {
         Status::OutOfRange,
         Status::Underflow,
         Status::NoBoundary,
+        Status::NoVapourRoot,
     ];
 
     /// The status of code `code`, if there is one.
@@ -71,6 +77,7 @@ impl Status {
             Status::OutOfRange => "OUT_OF_RANGE",
             Status::Underflow => "UNDERFLOW",
             Status::NoBoundary => "NO_BOUNDARY",
+            Status::NoVapourRoot => "NO_VAPOUR_ROOT",
         }
     }
 
@@ -92,6 +99,9 @@ impl Status {
             }
             Status::NoBoundary => {
                 "no phase boundary in the bracket: the phase is present at both ends or at neither"
+            }
+            Status::NoVapourRoot => {
+                "the equation of state has no vapour-like root here: the mixture would be a liquid"
             }
         }
     }

@@ -1,5 +1,7 @@
 //! `eqbatch._core.System`: a validated reaction system and its batch solve.
 
+use eqbatch_core::eos::{Cubic, CubicKind};
+use eqbatch_core::realgas::solve_batch_real;
 use eqbatch_core::{
     mole_fractions, sensitivities_batch, solve_batch, BatchInputs, BatchOutputs, Phase,
     SensitivityOutputs, SolveOptions, System,
@@ -224,6 +226,111 @@ impl PySystem {
             .map_err(to_py)?;
         }
         Ok((amounts, extents, status, iterations, absent))
+    }
+
+    /// Solve with a gas from a cubic equation of state (`kind` 0: Peng-Robinson,
+    /// 1: Soave-Redlich-Kwong; critical constants per species, K and bar;
+    /// `kij` S x S): the outputs of `solve` and `ln phi` (N, S).
+    #[allow(clippy::too_many_arguments)]
+    #[pyo3(signature = (feed, ln_k, pressure, temperature, n_cases, tol, max_iter, threads, start, kind, tc, pc, omega, kij))]
+    fn solve_real<'py>(
+        &self,
+        py: Python<'py>,
+        feed: PyReadonlyArrayDyn<'py, f64>,
+        ln_k: PyReadonlyArrayDyn<'py, f64>,
+        pressure: PyReadonlyArray1<'py, f64>,
+        temperature: PyReadonlyArray1<'py, f64>,
+        n_cases: usize,
+        tol: f64,
+        max_iter: u32,
+        threads: Option<usize>,
+        start: Option<PyReadonlyArray2<'py, f64>>,
+        kind: u8,
+        tc: Vec<f64>,
+        pc: Vec<f64>,
+        omega: Vec<f64>,
+        kij: Vec<f64>,
+    ) -> PyResult<(Solved<'py>, Bound<'py, PyArray2<f64>>)> {
+        let s = self.inner.n_species();
+        let r = self.inner.n_reactions();
+        let kind = match kind {
+            0 => CubicKind::PengRobinson,
+            1 => CubicKind::Soave,
+            _ => {
+                return Err(PyValueError::new_err(
+                    "kind is 0 (Peng-Robinson) or 1 (Soave)",
+                ))
+            }
+        };
+        let eos = Cubic {
+            kind,
+            tc,
+            pc,
+            omega,
+            kij,
+        };
+        let amounts = PyArray2::zeros(py, [n_cases, s], false);
+        let extents = PyArray2::zeros(py, [n_cases, r], false);
+        let status = PyArray1::zeros(py, n_cases, false);
+        let iterations = PyArray1::zeros(py, n_cases, false);
+        let absent = PyArray1::zeros(py, n_cases, false);
+        let ln_phi = PyArray2::zeros(py, [n_cases, s], false);
+        {
+            let feed = rows_of(&feed, s, "feed")?;
+            let ln_k = rows_of(&ln_k, r, "ln_k")?;
+            let pressure = pressure.as_slice()?;
+            let temperature = temperature.as_slice()?;
+            let start = match &start {
+                Some(x0) => Some(x0.as_slice()?),
+                None => None,
+            };
+            let (mut a, mut e) = (writable(&amounts)?, writable(&extents)?);
+            let (mut st, mut it, mut ab) = (
+                writable(&status)?,
+                writable(&iterations)?,
+                writable(&absent)?,
+            );
+            let mut phi = writable(&ln_phi)?;
+            let (a, e) = (a.as_slice_mut()?, e.as_slice_mut()?);
+            let (st, it, ab) = (st.as_slice_mut()?, it.as_slice_mut()?, ab.as_slice_mut()?);
+            let phi = phi.as_slice_mut()?;
+            let inputs = BatchInputs {
+                n_cases,
+                feed,
+                ln_k,
+                pressure,
+                start,
+            };
+            let options = SolveOptions {
+                tol,
+                max_iter,
+                chain: false,
+                drop_vanishing: false,
+            };
+            let system = &self.inner;
+            py.detach(move || {
+                let mut outputs = BatchOutputs {
+                    amounts: a,
+                    extents: e,
+                    mole_fractions: None,
+                    status: st,
+                    iterations: it,
+                    absent: Some(ab),
+                };
+                solve_batch_real(
+                    system,
+                    &eos,
+                    &inputs,
+                    temperature,
+                    &mut outputs,
+                    phi,
+                    &options,
+                    threads,
+                )
+            })
+            .map_err(to_py)?;
+        }
+        Ok(((amounts, extents, status, iterations, absent), ln_phi))
     }
 
     /// Mole fractions of `amounts` (N, S) within each species' phase (0 in

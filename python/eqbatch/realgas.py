@@ -1,0 +1,295 @@
+"""Real gases: fugacity coefficients from a cubic equation of state.
+
+``ReactionSystem(..., gas_model="peng-robinson" | "srk", critical=...,
+kij=...)`` makes the gas of a system non-ideal: the equilibrium conditions
+become ``sum_i nu_ji (ln y_i + ln phi_i + ln P/P0) = ln K_j`` with ``phi``
+from the Peng-Robinson (1976) or Soave-Redlich-Kwong (1972) equation and the
+van der Waals one-fluid mixing rules, per case at its composition,
+temperature and pressure; the core solves them by successive substitution on
+``phi`` (see ``rust/core/src/realgas.rs``). Critical constants come per
+species as ``{"Tc": K, "Pc": bar, "omega": -}`` or from the ``chemicals``
+package (``critical="chemicals"``, each value's source recorded).
+
+Hydrogen and helium take their ordinary critical constants: the ``chemicals``
+package carries no effective (quantum-corrected) constants, and none are
+invented here; give your own in ``critical=`` to use them.
+"""
+
+from __future__ import annotations
+
+import math
+import warnings
+from collections.abc import Mapping, Sequence
+from dataclasses import dataclass
+from typing import Any
+
+import numpy as np
+
+from eqbatch.compounds import identify
+from eqbatch.errors import CaseInputError, NonIdealGasWarning, SystemDefinitionError
+
+#: Gas constant in bar cm^3 / (mol K) (CODATA 2018).
+R_BAR_CM3 = 83.14462618
+
+#: The gas models a system takes, and the core's code of each cubic.
+GAS_MODELS = ("ideal", "peng-robinson", "srk")
+_KIND = {"peng-robinson": 0, "srk": 1}
+_ALIASES = {
+    "pr": "peng-robinson",
+    "peng_robinson": "peng-robinson",
+    "soave": "srk",
+    "soave-redlich-kwong": "srk",
+}
+
+
+@dataclass(frozen=True)
+class GasModel:
+    """A checked non-ideal gas model of a system.
+
+    Attributes
+    ----------
+    kind : str
+        ``"peng-robinson"`` or ``"srk"``; ``"ideal"`` for an ideal gas given
+        critical constants (used only to warn where it is not ideal, see
+        :func:`warn_if_not_ideal`).
+    critical : dict
+        Per gas species, ``{"Tc": K, "Pc": bar, "omega": -}``.
+    kij : dict
+        Binary parameters by species pair (both orders hold the same value).
+    sources : dict
+        Where each species' constants came from.
+    """
+
+    kind: str
+    critical: dict[str, dict[str, float]]
+    kij: dict[tuple[str, str], float]
+    sources: dict[str, str]
+
+    def arrays(self, species: Sequence[str]) -> tuple[list[float], list[float], list[float], list[float]]:
+        """``Tc``, ``Pc``, ``omega`` per species (NaN outside the gas) and
+        ``kij`` as ``S x S`` values, in the order of ``species``."""
+        nan = float("nan")
+        tc = [self.critical.get(s, {}).get("Tc", nan) for s in species]
+        pc = [self.critical.get(s, {}).get("Pc", nan) for s in species]
+        omega = [self.critical.get(s, {}).get("omega", nan) for s in species]
+        kij = [self.kij.get((a, b), 0.0) if a != b else 0.0 for a in species for b in species]
+        return tc, pc, omega, kij
+
+    def arguments(self) -> dict[str, Any]:
+        """``gas_model``, ``critical`` and ``kij`` as :class:`~eqbatch.ReactionSystem` takes them."""
+        pairs = {tuple(sorted(pair)): value for pair, value in self.kij.items()}
+        return {
+            "gas_model": self.kind,
+            "critical": {s: dict(v) for s, v in self.critical.items()},
+            "kij": {pair: value for pair, value in sorted(pairs.items()) if value != 0.0},
+        }
+
+
+def read_gas_model(
+    species: Sequence[str],
+    phases: Sequence[str],
+    gas_model: str | None,
+    critical: Mapping[str, Mapping[str, float]] | str | None,
+    kij: Mapping[tuple[str, str], float] | None,
+    formulas: Mapping[str, Any] | None,
+) -> GasModel | None:
+    """The checked gas model (None for an ideal gas).
+
+    Raises
+    ------
+    SystemDefinitionError
+        An unknown model, a gas species without critical constants, a value
+        that is not a positive finite number (an acentric factor may be
+        negative), ``critical``/``kij`` without a non-ideal model, or a
+        ``kij`` pair that names no gas species.
+    """
+    model = "ideal" if gas_model is None else str(gas_model).strip().lower()
+    model = _ALIASES.get(model, model)
+    if model not in GAS_MODELS:
+        raise SystemDefinitionError(f"gas_model must be one of {', '.join(GAS_MODELS)}; got {gas_model!r}")
+    if model == "ideal":
+        if kij:
+            raise SystemDefinitionError(
+                "kij= belongs to a non-ideal gas: give gas_model='peng-robinson' or 'srk'"
+            )
+        if critical is None:
+            return None
+        # (an ideal gas with critical constants: they only tell when it is not)
+    gas = [s for s, p in zip(species, phases) if p == "gas"]
+    if not gas:
+        raise SystemDefinitionError(f"gas_model={model!r}, critical=: the system has no gas species")
+    table: dict[str, dict[str, float]] = {}
+    sources: dict[str, str] = {}
+    if isinstance(critical, str):
+        if critical.strip().lower() != "chemicals":
+            raise SystemDefinitionError(f"critical must be a mapping or 'chemicals'; got {critical!r}")
+        for name in gas:
+            text = (formulas or {}).get(name)
+            table[name], sources[name] = critical_from_chemicals(
+                name, text if isinstance(text, str) else None
+            )
+    else:
+        given = dict(critical or {})
+        unknown = sorted(set(given) - set(species))
+        if unknown:
+            raise SystemDefinitionError(f"critical= names no species of the system: {', '.join(unknown)}")
+        missing = [name for name in gas if name not in given]
+        if missing:
+            raise SystemDefinitionError(
+                f"gas_model={model!r} needs critical constants of every gas species; missing: "
+                f"{', '.join(missing)} (give critical={{species: {{'Tc': K, 'Pc': bar, 'omega': ...}}}} "
+                "or critical='chemicals')"
+            )
+        for name in gas:
+            values = given[name]
+            if not isinstance(values, Mapping) or set(values) != {"Tc", "Pc", "omega"}:
+                raise SystemDefinitionError(
+                    f"critical[{name!r}] must have exactly Tc (K), Pc (bar) and omega; got {values!r}"
+                )
+            table[name] = {k: float(values[k]) for k in ("Tc", "Pc", "omega")}
+            sources[name] = "given"
+    for name, values in table.items():
+        tc, pc, omega = values["Tc"], values["Pc"], values["omega"]
+        if not (math.isfinite(tc) and tc > 0 and math.isfinite(pc) and pc > 0 and math.isfinite(omega)):
+            raise SystemDefinitionError(
+                f"critical constants of {name!r}: Tc {tc!r} K and Pc {pc!r} bar must be positive, "
+                f"omega {omega!r} finite"
+            )
+        if pc > 5000:
+            raise SystemDefinitionError(f"critical pressure of {name!r} is {pc!r}: in bar, not Pa or kPa")
+    pairs: dict[tuple[str, str], float] = {}
+    for pair, value in (kij or {}).items():
+        if not (
+            isinstance(pair, tuple) and len(pair) == 2 and all(p in gas for p in pair) and pair[0] != pair[1]
+        ):
+            raise SystemDefinitionError(f"kij key {pair!r} must be a pair of two different gas species")
+        v = float(value)
+        if not math.isfinite(v) or abs(v) >= 1.0:
+            raise SystemDefinitionError(f"kij[{pair!r}] = {value!r} must be a finite number between -1 and 1")
+        pairs[pair] = pairs[pair[::-1]] = v
+    return GasModel(model, table, pairs, sources)
+
+
+def critical_from_chemicals(name: str, formula: str | None) -> tuple[dict[str, float], str]:
+    """``Tc`` (K), ``Pc`` (bar) and ``omega`` of one species from the
+    ``chemicals`` package (its first ranked source for each), and their
+    provenance.
+
+    Examples
+    --------
+    >>> values, source = critical_from_chemicals("NH3", None)
+    >>> round(values["Tc"], 1), round(values["Pc"], 2)
+    (405.6, 113.33)
+    """
+    try:
+        from chemicals.acentric import omega, omega_methods
+        from chemicals.critical import Pc, Pc_methods, Tc, Tc_methods
+    except ImportError:
+        raise SystemDefinitionError(
+            "critical='chemicals' needs the chemicals package: pip install chemicals"
+        ) from None
+    def has_data(cas: str) -> bool:
+        return bool(Tc_methods(cas)) and bool(Pc_methods(cas)) and bool(omega_methods(cas))
+
+    compound = identify(name, formula, has_data, "critical temperature, pressure and acentric factor")
+    cas = compound.cas
+    tc_m, pc_m, om_m = Tc_methods(cas)[0], Pc_methods(cas)[0], omega_methods(cas)[0]
+    values = {
+        "Tc": float(Tc(cas, method=tc_m)),
+        "Pc": float(Pc(cas, method=pc_m)) / 1e5,
+        "omega": float(omega(cas, method=om_m)),
+    }
+    source = (
+        f"chemicals: {compound.name}, CAS {cas} ({compound.how}); Tc {values['Tc']:g} K ({tc_m}), "
+        f"Pc {values['Pc']:g} bar ({pc_m}), omega {values['omega']:g} ({om_m})"
+    )
+    return values, source
+
+
+def solve_real(
+    system: Any,
+    feed: np.ndarray,
+    lnk: np.ndarray,
+    P: np.ndarray,
+    T: np.ndarray | None,
+    n: int,
+    tol: float,
+    max_iter: int,
+    threads: int | None,
+    start: np.ndarray | None,
+) -> tuple[tuple[np.ndarray, ...], np.ndarray]:
+    """The core's solve with the system's cubic: ``(amounts, extents,
+    status, iterations, absent)`` and ``ln phi`` (N, S)."""
+    model: GasModel = system.gas
+    if T is None:
+        raise CaseInputError(
+            f"gas_model={model.kind!r}: the fugacity coefficients depend on temperature; give T= "
+            "(also when the equilibrium constants are given)"
+        )
+    tc, pc, omega, kij = model.arrays(system.species)
+    temperature = np.ascontiguousarray(T, dtype=np.float64)
+    return system._engine.solve_real(
+        feed, lnk, P, temperature, n, tol, max_iter, threads, start, _KIND[model.kind], tc, pc, omega, kij
+    )
+
+
+#: How far the compressibility factor may be from 1 before an ideal-gas solve warns.
+Z_TOLERANCE = 0.05
+
+
+def compressibility(
+    model: GasModel, species: Sequence[str], y: np.ndarray, T: np.ndarray, P: np.ndarray
+) -> np.ndarray:
+    """(N,) Peng-Robinson compressibility factor of gas mixtures ``y`` (N, S;
+    rows of species not in ``model`` are ignored) at ``T`` (K) and ``P``
+    (bar), the largest real root (NaN where a case has no gas)."""
+    gas = np.array([s in model.critical for s in species])
+    tc, pc, omega, _ = (np.asarray(v, dtype=float) for v in model.arrays(species))
+    y = np.where(gas, np.nan_to_num(y), 0.0)
+    total = y.sum(axis=1)
+    y = y / np.where(total > 0, total, 1.0)[:, None]
+    tc, pc, omega = (np.where(gas, v, 1.0) for v in (tc, pc, omega))
+    m = 0.37464 + 1.54226 * omega - 0.26992 * omega**2
+    T = np.asarray(T, dtype=float)[:, None]
+    sqrt_a = np.sqrt(0.45723552892138203 * (R_BAR_CM3 * tc) ** 2 / pc) * (1 + m * (1 - np.sqrt(T / tc)))
+    a = (y * sqrt_a).sum(axis=1) ** 2
+    b = y @ (0.07779607390388842 * R_BAR_CM3 * tc / pc)
+    rt = R_BAR_CM3 * T[:, 0]
+    A, B = a * P / rt**2, b * P / rt
+    z = np.ones_like(A)
+    for _ in range(100):  # Newton from Z = 1 reaches the largest root (the cubic is convex above it)
+        f = ((z + (B - 1)) * z + (A - 3 * B * B - 2 * B)) * z - (A * B - B * B - B**3)
+        df = (3 * z + 2 * (B - 1)) * z + (A - 3 * B * B - 2 * B)
+        step = f / np.where(df > 0, df, np.inf)
+        z = z - step
+        if np.all(np.abs(step) < 1e-12):
+            break
+    return np.where(total > 0, z, np.nan)
+
+
+def warn_if_not_ideal(
+    system: Any, mole_fractions: np.ndarray, T: np.ndarray | None, P: np.ndarray, ok: np.ndarray
+) -> None:
+    """Warn once (:class:`~eqbatch.NonIdealGasWarning`) when the equilibrium
+    gas of some converged cases (``ok``) of an ideal-gas solve has a
+    compressibility factor more than :data:`Z_TOLERANCE` from 1, by the
+    critical constants the system was given (none given, or no ``T``: no
+    test)."""
+    model: GasModel | None = system.gas
+    if model is None or T is None or not ok.any():
+        return
+    n = len(ok)
+    T_all, P_all = np.broadcast_to(T, (n,)), np.broadcast_to(P, (n,))
+    z = compressibility(model, system.species, mole_fractions[ok], T_all[ok], P_all[ok])
+    off = np.abs(z - 1.0) > Z_TOLERANCE
+    if off.any():
+        worst = float(np.nanmax(np.abs(z - 1.0)))
+        warnings.warn(
+            NonIdealGasWarning(
+                f"ideal gas: in {int(off.sum()):,} of {n:,} cases the equilibrium gas's compressibility "
+                f"factor (Peng-Robinson, from the critical constants given) is more than "
+                f"{Z_TOLERANCE:.0%} from 1 (up to {worst:.1%}); give gas_model='peng-robinson' "
+                "for fugacity coefficients"
+            ),
+            stacklevel=3,
+        )

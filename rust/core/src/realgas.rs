@@ -1,0 +1,343 @@
+//! Batches with a non-ideal gas: the equilibrium conditions
+//! `sum_i nu_ji (ln y_i + ln phi_i + ln P/P0) = ln K_j`, with `phi` from a
+//! cubic equation of state ([`crate::eos`]) at each case's composition,
+//! temperature and pressure.
+//!
+//! Successive substitution on `phi`: with `phi` fixed the conditions are
+//! those of an ideal gas with `ln K_j - sum_i nu_ji ln phi_i`, which the
+//! batch solver answers exactly (convex, with its honest status); `phi` is
+//! then evaluated at that answer and the case solved again from its
+//! previous extents, until the shift of every reaction's `ln K` changes by
+//! at most `tol`. The first pass is the ideal solution. Only the cases not
+//! settled take part in the next pass. A case whose status is not
+//! converged after a pass keeps that status; one where the equation has no
+//! vapour-like root at its composition gets [`Status::NoVapourRoot`]; one
+//! not settled after [`MAX_PASSES`] passes gets
+//! [`Status::IterationLimit`].
+//!
+//! Why successive substitution rather than a Newton iteration on the full
+//! Jacobian: at the pressures of ammonia and methanol converters `phi`
+//! depends weakly on composition (each pass shrinks the error by a factor
+//! of ten to a hundred), every pass is a convex problem the batch path
+//! solves on the vector lanes, and a pass can never leave the feasible
+//! region; a full Newton iteration would need the derivatives of `ln phi`
+//! in every step and loses the convexity its safeguards rely on.
+
+use rayon::prelude::*;
+
+use crate::batch::{on_threads, solve_batch, BatchInputs, BatchOutputs};
+use crate::eos::{Cubic, LnPhiError};
+use crate::error::CoreError;
+use crate::solver::SolveOptions;
+use crate::status::Status;
+use crate::system::System;
+
+/// Most passes of successive substitution.
+pub const MAX_PASSES: u32 = 100;
+
+/// Most reactions of a system with a non-ideal gas (the per-case work
+/// arrays live on the stack).
+const MAX_R: usize = 64;
+
+/// Largest multiple of the step the extrapolation adds (`rho / (1 - rho)`
+/// at `rho = 0.9`).
+const MAX_EXTRAPOLATION: f64 = 9.0;
+
+/// `ln phi` of the gas species of amounts `a` at `t`, `p` into `phi` (its
+/// entries of other species untouched; all zero where the gas is empty).
+/// `scratch` holds `4 x gas.len()` values.
+fn gas_ln_phi(
+    eos: &Cubic,
+    gas: &[usize],
+    a: &[f64],
+    t: f64,
+    p: f64,
+    scratch: &mut [f64],
+    phi: &mut [f64],
+) -> Result<(), LnPhiError> {
+    let g = gas.len();
+    let total: f64 = gas.iter().map(|&i| a[i]).sum();
+    if g == 0 || !(total > 0.0) {
+        for &i in gas {
+            phi[i] = 0.0;
+        }
+        return Ok(());
+    }
+    let (y, rest) = scratch.split_at_mut(g);
+    let (out, work) = rest.split_at_mut(g);
+    for (yk, &i) in y.iter_mut().zip(gas) {
+        *yk = a[i] / total;
+    }
+    eos.ln_phi(gas, y, t, p, out, work)?;
+    for (&v, &i) in out.iter().zip(gas) {
+        phi[i] = v;
+    }
+    Ok(())
+}
+
+/// Move `shift` (`s`) to the next pass's: `F(s)` (`mapped`), plus, where the
+/// ratio of this step to the last (`last`, updated here) along it, `rho`,
+/// is below 0.9 in size, `rho / (1 - rho)` times this step (the limit of a
+/// linear convergence at that rate, monotone or alternating: Aitken's
+/// extrapolation along the steps). Only the stopping test, `|F(s) - s| <= tol`, decides
+/// convergence; the extrapolation only saves passes.
+fn next_shift(shift: &mut [f64], last: &mut [f64], mapped: &[f64], has_last: bool) {
+    let r = shift.len();
+    let (mut dot, mut norm) = (0.0, 0.0);
+    for j in 0..r {
+        let step = mapped[j] - shift[j];
+        dot += step * last[j];
+        norm += last[j] * last[j];
+    }
+    let rho = if has_last && norm > 0.0 {
+        dot / norm
+    } else {
+        0.0
+    };
+    let factor = if rho.abs() < 0.9 {
+        (rho / (1.0 - rho)).min(MAX_EXTRAPOLATION)
+    } else {
+        0.0
+    };
+    for j in 0..r {
+        let step = mapped[j] - shift[j];
+        last[j] = step;
+        shift[j] = mapped[j] + factor * step;
+    }
+}
+
+/// Solve every case with the gas of `eos`. `temperature` (K) has one value
+/// or one per case. `ln_phi` (`n_cases x S`) receives each gas species'
+/// `ln phi` at the answer (0 for species not in the gas, NaN where the
+/// case has no answer). `outputs.iterations` counts the Newton iterations
+/// of every pass.
+#[allow(clippy::too_many_arguments)]
+pub fn solve_batch_real(
+    system: &System,
+    eos: &Cubic,
+    inputs: &BatchInputs,
+    temperature: &[f64],
+    outputs: &mut BatchOutputs,
+    ln_phi: &mut [f64],
+    options: &SolveOptions,
+    threads: Option<usize>,
+) -> Result<(), CoreError> {
+    let (n, s, r) = (inputs.n_cases, system.n_species(), system.n_reactions());
+    for (name, len) in [("temperature", temperature.len())] {
+        if len != 1 && len != n {
+            return Err(CoreError::Shape(format!(
+                "{name} has {len} values; expected 1 or {n}"
+            )));
+        }
+    }
+    for (name, values) in [("tc", &eos.tc), ("pc", &eos.pc), ("omega", &eos.omega)] {
+        if values.len() != s {
+            return Err(CoreError::Shape(format!(
+                "{name} needs one value per species"
+            )));
+        }
+    }
+    if eos.kij.len() != s * s || ln_phi.len() != n * s {
+        return Err(CoreError::Shape(
+            "kij needs S x S values, ln_phi N x S".into(),
+        ));
+    }
+    let row = |data: &[f64], width: usize, case: usize| -> std::ops::Range<usize> {
+        if data.len() == width {
+            0..width
+        } else {
+            case * width..(case + 1) * width
+        }
+    };
+    let gas: Vec<usize> = (0..s)
+        .filter(|&i| !system.is_pure(i) && system.phase_index(i) == 0)
+        .collect();
+    let nu = system.stoich();
+    ln_phi.fill(0.0);
+    outputs.iterations.fill(0);
+    // The cases still iterating, and each one's ln K shift.
+    let mut active: Vec<usize> = (0..n).collect();
+    let mut shift = vec![0.0; n * r];
+    // Each case's last step F(s) - s, for the extrapolation.
+    let mut last_step = vec![0.0; n * r];
+    if r > MAX_R {
+        return Err(CoreError::Shape(format!(
+            "a non-ideal gas takes at most {MAX_R} reactions"
+        )));
+    }
+    // The first pass takes phi at the feed's gas composition (nearer the
+    // answer's than the ideal gas's phi = 1; none where the feed's gas has
+    // no vapour-like root).
+    let g = gas.len();
+    let first = || {
+        shift.par_chunks_mut(r).enumerate().for_each_init(
+            || (vec![0.0; 4 * g], vec![0.0; s]),
+            |(scratch, phi), (case, shift_k)| {
+                let feed = &inputs.feed[row(inputs.feed, s, case)];
+                let t = temperature[row(temperature, 1, case)][0];
+                let p = inputs.pressure[row(inputs.pressure, 1, case)][0];
+                let usable = t > 0.0
+                    && t.is_finite()
+                    && p > 0.0
+                    && p.is_finite()
+                    && gas.iter().all(|&i| feed[i] >= 0.0 && feed[i].is_finite());
+                if usable && gas_ln_phi(eos, &gas, feed, t, p, scratch, phi).is_ok() {
+                    for j in 0..r {
+                        shift_k[j] = gas.iter().map(|&i| nu[j * s + i] * phi[i]).sum();
+                    }
+                }
+            },
+        );
+    };
+    on_threads(threads, first)?;
+    let (mut feed_buf, mut ln_k_buf, mut start_buf) =
+        (vec![0.0; n * s], vec![0.0; n * r], vec![0.0; n * r]);
+    let mut pressure_buf = vec![0.0; n];
+    let (mut amounts_buf, mut extents_buf) = (vec![0.0; n * s], vec![0.0; n * r]);
+    let (mut status_buf, mut iterations_buf, mut absent_buf) =
+        (vec![0u8; n], vec![0u32; n], vec![0u64; n]);
+    let (mut fresh_buf, mut moved_buf) = (vec![0.0; n * s], vec![0.0; n]);
+    for pass in 0..MAX_PASSES {
+        let m = active.len();
+        if m == 0 {
+            break;
+        }
+        // (the pass's arrays: the first m rows of buffers made once)
+        let feed = &mut feed_buf[..m * s];
+        let ln_k = &mut ln_k_buf[..m * r];
+        let pressure = &mut pressure_buf[..m];
+        let start = &mut start_buf[..m * r];
+        for (k, &case) in active.iter().enumerate() {
+            feed[k * s..(k + 1) * s].copy_from_slice(&inputs.feed[row(inputs.feed, s, case)]);
+            let given = &inputs.ln_k[row(inputs.ln_k, r, case)];
+            for j in 0..r {
+                ln_k[k * r + j] = given[j] - shift[case * r + j];
+            }
+            pressure[k] = inputs.pressure[row(inputs.pressure, 1, case)][0];
+            let from: &[f64] = if pass == 0 {
+                match inputs.start {
+                    Some(x0) => &x0[row(x0, r, case)],
+                    None => &[],
+                }
+            } else {
+                &outputs.extents[case * r..(case + 1) * r]
+            };
+            if from.len() == r {
+                start[k * r..(k + 1) * r].copy_from_slice(from);
+            } else {
+                start[k * r..(k + 1) * r].fill(f64::NAN); // no start: the default one
+            }
+        }
+        let (amounts, extents) = (&mut amounts_buf[..m * s], &mut extents_buf[..m * r]);
+        let (status, iterations, absent) = (
+            &mut status_buf[..m],
+            &mut iterations_buf[..m],
+            &mut absent_buf[..m],
+        );
+        let sub = BatchInputs {
+            n_cases: m,
+            feed,
+            ln_k,
+            pressure,
+            start: Some(start),
+        };
+        let mut out = BatchOutputs {
+            amounts,
+            extents,
+            mole_fractions: None,
+            status,
+            iterations,
+            absent: Some(absent),
+        };
+        solve_batch(system, &sub, &mut out, options, threads)?;
+        let (amounts, extents, status, iterations) =
+            (&*out.amounts, &*out.extents, &*out.status, &*out.iterations);
+        let absent = out.absent.as_deref().unwrap_or(&[]);
+        let pressure = &*pressure;
+        // ln phi at each answer, and how far each reaction's shift moves.
+        let fresh = &mut fresh_buf[..m * s];
+        let moved = &mut moved_buf[..m];
+        let evaluate = || {
+            fresh
+                .par_chunks_mut(s)
+                .zip(moved.par_iter_mut())
+                .enumerate()
+                .for_each_init(
+                    || vec![0.0; 4 * g],
+                    |scratch, (k, (phi_k, moved_k))| {
+                        let case = active[k];
+                        let converged =
+                            Status::from_code(status[k]).is_some_and(|st| st.is_converged());
+                        if !converged {
+                            *moved_k = f64::NAN;
+                            return;
+                        }
+                        let a = &amounts[k * s..(k + 1) * s];
+                        let t = temperature[row(temperature, 1, case)][0];
+                        if gas_ln_phi(eos, &gas, a, t, pressure[k], scratch, phi_k).is_err() {
+                            *moved_k = f64::INFINITY;
+                            return;
+                        }
+                        let mut worst = 0.0_f64;
+                        for j in 0..r {
+                            let new: f64 = gas.iter().map(|&i| nu[j * s + i] * phi_k[i]).sum();
+                            worst = worst.max((new - shift[case * r + j]).abs());
+                        }
+                        *moved_k = worst;
+                    },
+                );
+        };
+        on_threads(threads, evaluate)?;
+        let mut still = Vec::with_capacity(m);
+        for (k, &case) in active.iter().enumerate() {
+            outputs.amounts[case * s..(case + 1) * s].copy_from_slice(&amounts[k * s..(k + 1) * s]);
+            outputs.extents[case * r..(case + 1) * r].copy_from_slice(&extents[k * r..(k + 1) * r]);
+            outputs.status[case] = status[k];
+            outputs.iterations[case] += iterations[k];
+            if let Some(mask) = outputs.absent.as_deref_mut() {
+                mask[case] = absent[k];
+            }
+            let phi_k = &fresh[k * s..(k + 1) * s];
+            if moved[k].is_nan() {
+                ln_phi[case * s..(case + 1) * s].fill(f64::NAN);
+                continue;
+            }
+            if moved[k] == f64::INFINITY {
+                outputs.status[case] = Status::NoVapourRoot as u8;
+                ln_phi[case * s..(case + 1) * s].fill(f64::NAN);
+                continue;
+            }
+            ln_phi[case * s..(case + 1) * s].copy_from_slice(phi_k);
+            if moved[k] <= options.tol {
+                continue;
+            }
+            // The next shift: F(s) = the shift phi gives at this answer,
+            // extrapolated along the last two passes' differences where they
+            // shrink at a steady rate (see [`next_shift`]).
+            let mut mapped = [0.0; MAX_R];
+            for j in 0..r {
+                mapped[j] = gas.iter().map(|&i| nu[j * s + i] * phi_k[i]).sum();
+            }
+            let (current, previous) = (
+                &mut shift[case * r..(case + 1) * r],
+                &mut last_step[case * r..(case + 1) * r],
+            );
+            next_shift(current, previous, &mapped[..r], pass > 0);
+            still.push(case);
+        }
+        active = still;
+    }
+    for &case in &active {
+        outputs.status[case] = Status::IterationLimit as u8;
+    }
+    if let Some(fractions) = outputs.mole_fractions.as_deref_mut() {
+        for case in 0..n {
+            crate::batch::mole_fractions(
+                system,
+                &outputs.amounts[case * s..(case + 1) * s],
+                &mut fractions[case * s..(case + 1) * s],
+            );
+        }
+    }
+    Ok(())
+}
