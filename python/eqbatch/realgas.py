@@ -188,6 +188,7 @@ def critical_from_chemicals(name: str, formula: str | None) -> tuple[dict[str, f
         raise SystemDefinitionError(
             "critical='chemicals' needs the chemicals package: pip install chemicals"
         ) from None
+
     def has_data(cas: str) -> bool:
         return bool(Tc_methods(cas)) and bool(Pc_methods(cas)) and bool(omega_methods(cas))
 

@@ -57,7 +57,7 @@ fn gas_ln_phi(
 ) -> Result<(), LnPhiError> {
     let g = gas.len();
     let total: f64 = gas.iter().map(|&i| a[i]).sum();
-    if g == 0 || !(total > 0.0) {
+    if g == 0 || total.is_nan() || total <= 0.0 {
         for &i in gas {
             phi[i] = 0.0;
         }
