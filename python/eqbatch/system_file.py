@@ -35,6 +35,19 @@ be generated (``reactions = "auto"``)::
     # or maier_kelley = { a = 104.5, b = 21.9e-3, d = -25.9e5, dHf = -1207.6, S298 = 91.7 }
     # or tabulated = { T = [...], Cp = [...], H_rel = [...], S = [...], dHf = -241.8 }
     # P_ref = 1.0           # bar, standard pressure of these data (default 1)
+
+A real gas (:mod:`eqbatch.realgas`) takes its model, its critical constants
+(per species, or ``critical = "chemicals"`` in ``[gas]``) and optional
+binary parameters (``"A-B"`` names a pair)::
+
+    [gas]
+    model = "peng-robinson"     # or "srk", "ideal"
+    kij = { "H2-N2" = 0.0 }
+
+    [critical.NH3]
+    Tc = 405.4                  # K
+    Pc = 113.53                 # bar
+    omega = 0.256
 """
 
 from __future__ import annotations
@@ -50,7 +63,18 @@ from eqbatch.errors import SystemDefinitionError, SystemFileError
 from eqbatch.kdata import as_lnk_data
 from eqbatch.spec import SystemSpec
 
-_TOP_KEYS = {"species", "phases", "formulas", "reactions", "P0", "check_balance", "species_data", "thermo"}
+_TOP_KEYS = {
+    "species",
+    "phases",
+    "formulas",
+    "reactions",
+    "P0",
+    "check_balance",
+    "species_data",
+    "thermo",
+    "gas",
+    "critical",
+}
 _REACTION_KEYS = {"label", "equation", "lnK", "K", "log10K"}
 
 
@@ -64,6 +88,32 @@ def _toml() -> ModuleType:
     import tomli  # pragma: no cover
 
     return tomli  # pragma: no cover
+
+
+def _gas_tables(doc: dict[str, Any], fail: Callable[[str], SystemFileError]) -> dict[str, Any]:
+    """``gas_model``, ``critical`` and ``kij`` from ``[gas]`` and ``[critical.<species>]``."""
+    gas = doc.get("gas", {})
+    if not isinstance(gas, dict) or set(gas) - {"model", "critical", "kij"}:
+        raise fail('[gas] takes model = "peng-robinson" | "srk" | "ideal", critical = "chemicals" and kij')
+    critical: Any = doc.get("critical")
+    if "critical" in gas:
+        if critical is not None or gas["critical"] != "chemicals":
+            raise fail('[gas] critical = "chemicals" replaces the [critical.<species>] tables (give one)')
+        critical = "chemicals"
+    elif critical is not None and not (
+        isinstance(critical, dict) and all(isinstance(v, dict) for v in critical.values())
+    ):
+        raise fail("[critical.<species>] tables hold Tc (K), Pc (bar) and omega")
+    kij: dict[tuple[str, str], float] = {}
+    table = gas.get("kij", {})
+    if not isinstance(table, dict):
+        raise fail('[gas] kij is a table of "A-B" = value')
+    for key, value in table.items():
+        pair = tuple(str(key).split("-"))
+        if len(pair) != 2 or not isinstance(value, (int, float)):
+            raise fail(f'[gas] kij: {key!r} must name two species as "A-B" with a number')
+        kij[(pair[0], pair[1])] = float(value)
+    return {"gas_model": gas.get("model"), "critical": critical, "kij": kij or None}
 
 
 def _thermo_source(doc: dict[str, Any], fail: Callable[[str], SystemFileError]) -> str | None:
@@ -181,6 +231,7 @@ def read_spec(path: str | os.PathLike[str]) -> SystemSpec:
             lnK=lnk or None,
             species_data=species_data,
             thermo=_thermo_source(doc, fail),
+            **_gas_tables(doc, fail),
         )
     except SystemDefinitionError as err:
         raise type(err)(f"{name}: {err}") from None
