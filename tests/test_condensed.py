@@ -290,6 +290,16 @@ def lowest_gibbs(system, feed: np.ndarray, lnK: np.ndarray, P: float, starts) ->
     return best
 
 
+def trace_network() -> eqbatch.ReactionSystem:
+    """A network of the benchmark's random condensed systems with a pure liquid, X2."""
+    return eqbatch.ReactionSystem(
+        [f"X{k}" for k in range(7)],
+        ["X0 + 3 X1 + X3 = X4", "2 X0 + 4 X1 + 3 X2 + 2 X3 = 2 X5", "2 X0 + 6 X1 + 3 X2 = 2 X6"],
+        phases={"X2": "pure_liquid"},
+        check_balance=False,
+    )
+
+
 def test_a_trace_that_rounds_to_zero_does_not_spoil_the_introduction_of_a_phase() -> None:
     # A random network of the benchmark where reaction r1 (ln K -50) leaves X4
     # at 1e-24 mol of a feed of 0.9: in extents, the equilibrium without the
@@ -297,12 +307,7 @@ def test_a_trace_that_rounds_to_zero_does_not_spoil_the_introduction_of_a_phase(
     # back was refused (the search then stalled with X2 absent at an activity
     # of 20). The answer: X2 present, with a Gibbs energy no higher than an
     # independent SLSQP minimisation finds (scipy; lowest_gibbs).
-    system = eqbatch.ReactionSystem(
-        [f"X{k}" for k in range(7)],
-        ["X0 + 3 X1 + X3 = X4", "2 X0 + 4 X1 + 3 X2 + 2 X3 = 2 X5", "2 X0 + 6 X1 + 3 X2 = 2 X6"],
-        phases={"X2": "pure_liquid"},
-        check_balance=False,
-    )
+    system = trace_network()
     feed = np.array([0.0802767787, 0.4563998643, 0.4925174232, 0.5788582598, 0.9075237867, 0.4156935983, 0.0])
     lnk = np.array([-50.3025158517, -3.4429419633, -10.0554739567])
     P = 1.0352721344
@@ -317,12 +322,7 @@ def test_a_trace_that_rounds_to_zero_does_not_spoil_the_introduction_of_a_phase(
 def test_an_unsettled_case_does_not_call_a_forming_phase_stable() -> None:
     # Stopped after one iteration, the X2 liquid of the case above is absent
     # with an activity above one: the message must not say it would not form.
-    system = eqbatch.ReactionSystem(
-        [f"X{k}" for k in range(7)],
-        ["X0 + 3 X1 + X3 = X4", "2 X0 + 4 X1 + 3 X2 + 2 X3 = 2 X5", "2 X0 + 6 X1 + 3 X2 = 2 X6"],
-        phases={"X2": "pure_liquid"},
-        check_balance=False,
-    )
+    system = trace_network()
     feed = np.array([0.08, 0.46, 0.0, 0.58, 0.91, 0.42, 0.0])
     res = system.solve(feed, lnK=[-50.3, -3.44, -10.06], P=1.0, max_iter=1)
     assert not res.converged[0]

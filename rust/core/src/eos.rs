@@ -141,18 +141,22 @@ impl Cubic {
     }
 }
 
-/// The largest real root of the cubic in `Z` and how many real roots it
-/// has (1 or 3), by the trigonometric or Cardano form, polished by Newton.
-fn largest_root(kind: CubicKind, a: f64, b: f64) -> (f64, usize) {
-    // Z^3 + c2 Z^2 + c1 Z + c0 = 0
-    let (c2, c1, c0) = match kind {
+/// `(c2, c1, c0)` of the cubic `Z^3 + c2 Z^2 + c1 Z + c0 = 0` in `A`, `B`.
+fn coefficients(kind: CubicKind, a: f64, b: f64) -> (f64, f64, f64) {
+    match kind {
         CubicKind::PengRobinson => (
             b - 1.0,
             a - 3.0 * b * b - 2.0 * b,
             -(a * b - b * b - b * b * b),
         ),
         CubicKind::Soave => (-1.0, a - b - b * b, -a * b),
-    };
+    }
+}
+
+/// The largest real root of the cubic in `Z` and how many real roots it
+/// has (1 or 3), by the trigonometric or Cardano form, polished by Newton.
+fn largest_root(kind: CubicKind, a: f64, b: f64) -> (f64, usize) {
+    let (c2, c1, c0) = coefficients(kind, a, b);
     let q = (3.0 * c1 - c2 * c2) / 9.0;
     let r = (9.0 * c2 * c1 - 27.0 * c0 - 2.0 * c2 * c2 * c2) / 54.0;
     let disc = q * q * q + r * r;
@@ -198,14 +202,7 @@ mod tests {
         for kind in [CubicKind::PengRobinson, CubicKind::Soave] {
             for (a, b) in [(0.05, 0.01), (0.9, 0.08), (2.0, 0.2), (0.3, 0.05)] {
                 let (z, _) = largest_root(kind, a, b);
-                let (c2, c1, c0) = match kind {
-                    CubicKind::PengRobinson => (
-                        b - 1.0,
-                        a - 3.0 * b * b - 2.0 * b,
-                        -(a * b - b * b - b * b * b),
-                    ),
-                    CubicKind::Soave => (-1.0, a - b - b * b, -a * b),
-                };
+                let (c2, c1, c0) = coefficients(kind, a, b);
                 let f: f64 = ((z + c2) * z + c1) * z + c0;
                 assert!(f.abs() < 1e-13, "{kind:?} {a} {b}: {f}");
             }
