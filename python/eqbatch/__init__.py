@@ -19,6 +19,7 @@ import importlib
 from typing import TYPE_CHECKING, Any
 
 from eqbatch._core import __version__ as _core_version
+from eqbatch.activity import NRTL, Wilson
 from eqbatch.equations import parse_equation, parse_formula
 from eqbatch.errors import (
     AtomBalanceError,
@@ -91,6 +92,7 @@ __all__ = [
     "InvalidCaseError",
     "LnKFunction",
     "MonteCarloResult",
+    "NRTL",
     "NonIdealGasWarning",
     "PhaseBoundary",
     "PreparedSolve",
@@ -102,6 +104,7 @@ __all__ = [
     "SystemFileError",
     "UnboundedReactionsError",
     "UnknownSpeciesError",
+    "Wilson",
     "lnK_covariance",
     "monte_carlo",
     "monte_carlo_table",

@@ -19,6 +19,7 @@ from typing import Any
 import numpy as np
 
 from eqbatch import _core
+from eqbatch.activity import read_liquid_models
 from eqbatch.compounds import chemicals_data
 from eqbatch.equations import check_atom_balance, independent_reactions, parse_equation, parse_formula
 from eqbatch.errors import (
@@ -62,6 +63,7 @@ def define(
     gas_model: str | None = None,
     critical: Mapping[str, Mapping[str, float]] | str | None = None,
     kij: Mapping[tuple[str, str], float] | None = None,
+    liquid_model: Mapping[str, Any] | None = None,
 ) -> SystemSpec:
     """The checked description of a system from the arguments of
     :class:`~eqbatch.ReactionSystem` (see there for each).
@@ -70,7 +72,7 @@ def define(
     ----------
     species, reactions, phases, P0, formulas, check_balance, lnK, species_data, thermo
         As for :class:`~eqbatch.ReactionSystem`.
-    gas_model, critical, kij
+    gas_model, critical, kij, liquid_model
         As for :class:`~eqbatch.ReactionSystem`.
 
     Returns
@@ -151,6 +153,7 @@ def define(
         check_balance=check_balance,
         given_lnK=given_lnk,
         gas=read_gas_model(names, phase_of, gas_model, critical, kij, formulas),
+        liquid_models=read_liquid_models(names, phase_of, liquid_model) or None,
     )
 
 

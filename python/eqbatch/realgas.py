@@ -25,6 +25,7 @@ from typing import Any
 
 import numpy as np
 
+from eqbatch.activity import core_arguments
 from eqbatch.compounds import identify
 from eqbatch.errors import CaseInputError, NonIdealGasWarning, SystemDefinitionError
 
@@ -219,18 +220,25 @@ def solve_real(
     threads: int | None,
     start: np.ndarray | None,
 ) -> tuple[tuple[np.ndarray, ...], np.ndarray]:
-    """The core's solve with the system's cubic: ``(amounts, extents,
-    status, iterations, absent)`` and ``ln phi`` (N, S)."""
-    model: GasModel = system.gas
+    """The core's solve with the system's non-ideal phases (the gas's cubic,
+    the solutions' activity models): ``(amounts, extents, status,
+    iterations, absent)`` and ``ln phi`` / ``ln gamma`` (N, S)."""
     if T is None:
         raise CaseInputError(
-            f"gas_model={model.kind!r}: the fugacity coefficients depend on temperature; give T= "
+            f"{system.nonideal}: the fugacity and activity coefficients depend on temperature; give T= "
             "(also when the equilibrium constants are given)"
         )
-    tc, pc, omega, kij = model.arrays(system.species)
+    model: GasModel | None = system.real_gas
+    if model is not None:
+        tc, pc, omega, kij = model.arrays(system.species)
+        kind: int | None = _KIND[model.kind]
+    else:
+        tc = pc = omega = kij = []
+        kind = None
+    solutions = core_arguments(system.species, system.phases, system.liquid_models or {})
     temperature = np.ascontiguousarray(T, dtype=np.float64)
     return system._engine.solve_real(
-        feed, lnk, P, temperature, n, tol, max_iter, threads, start, _KIND[model.kind], tc, pc, omega, kij
+        feed, lnk, P, temperature, n, tol, max_iter, threads, start, kind, tc, pc, omega, kij, solutions
     )
 
 

@@ -495,14 +495,33 @@ class EquilibriumResult:
         >>> s.solve([1.0, 0.0], lnK=0.0).fugacity_coefficients.tolist()
         [[1.0, 1.0]]
         """
-        gas = np.array([p == "gas" for p in self.system.phases])
+        return self._coefficients(np.array([p == "gas" for p in self.system.phases]))
+
+    @property
+    def activity_coefficients(self) -> np.ndarray:
+        """(N, S) activity coefficient ``gamma`` of each species of a solution
+        phase at equilibrium (1 for an ideal solution; from the system's
+        ``liquid_model`` otherwise); NaN for gas and pure species and for
+        cases without an answer.
+
+        Examples
+        --------
+        >>> from eqbatch import ReactionSystem
+        >>> s = ReactionSystem(["Xa", "Xb"], ["Xa = Xb"], phases={"Xa": "liquid", "Xb": "liquid"})
+        >>> s.solve([1.0, 0.0], lnK=0.0).activity_coefficients.tolist()
+        [[1.0, 1.0]]
+        """
+        solution = np.array([p.startswith("liquid") for p in self.system.phases])
+        return self._coefficients(solution)
+
+    def _coefficients(self, members: np.ndarray) -> np.ndarray:
+        """exp of the non-ideality coefficients of ``members`` (1 where ideal), NaN elsewhere."""
         if self._ln_phi is not None:
             out = np.exp(self._ln_phi)
         else:
-            out = np.where(np.isfinite(self.amounts).all(axis=1, keepdims=True), 1.0, np.nan) * np.ones(
-                (1, self.system.n_species)
-            )
-        out[:, ~gas] = np.nan
+            answered = np.isfinite(self.amounts).all(axis=1, keepdims=True)
+            out = np.where(answered, 1.0, np.nan) * np.ones((1, self.system.n_species))
+        out[:, ~members] = np.nan
         return out
 
     @property
@@ -534,7 +553,7 @@ class EquilibriumResult:
         """:attr:`activities` of the cases ``rows`` (a slice or index array)."""
         amounts = self.amounts[rows]
         ln_a = self.system.ln_activities(amounts, self.P[rows])
-        if self._ln_phi is not None:  # a real gas: a = y phi P / P0
+        if self._ln_phi is not None:  # non-ideal phases: a = y phi P / P0, x gamma
             ln_a = ln_a + self._ln_phi[rows]
         lnK = self.lnK[rows]
         nu = self.system.stoich

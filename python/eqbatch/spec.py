@@ -142,6 +142,9 @@ class SystemSpec:
     gas : GasModel or None
         The gas's equation of state (:mod:`eqbatch.realgas`); None for an
         ideal gas.
+    liquid_models : dict or None
+        Activity models of solution phases by phase name
+        (:mod:`eqbatch.activity`); None where every solution is ideal.
 
     Examples
     --------
@@ -166,6 +169,7 @@ class SystemSpec:
     check_balance: bool
     given_lnK: dict[str, KData]
     gas: Any = None  # an eqbatch.realgas.GasModel (the description sits below that module)
+    liquid_models: Any = None  # phase name -> eqbatch.activity.NRTL or Wilson
 
     def __post_init__(self) -> None:
         self.stoich.setflags(write=False)
@@ -188,6 +192,13 @@ class SystemSpec:
     def real_gas(self) -> Any:
         """The gas's equation of state when it is not ideal (else None)."""
         return self.gas if self.gas is not None and self.gas.kind != "ideal" else None
+
+    @property
+    def nonideal(self) -> str | None:
+        """What makes the system non-ideal, in words (None for ideal phases)."""
+        parts = [f"gas_model={self.real_gas.kind!r}"] if self.real_gas is not None else []
+        parts += [f"liquid_model[{phase!r}]" for phase in (self.liquid_models or {})]
+        return ", ".join(parts) or None
 
     @cached_property
     def _engine(self) -> _core.System:
@@ -470,16 +481,20 @@ class SystemSpec:
         >>> ReactionSystem(**s.arguments()).equations
         ('CO + H2O = CO2 + H2',)
         """
-        return {
-            "species": list(self.species),
-            "reactions": list(zip(self.labels, self.equations)),
-            "phases": dict(zip(self.species, self.phases)),
-            "P0": self.P0,
-            "formulas": dict(self.given_formulas),
-            "check_balance": self.check_balance,
-            "species_data": dict(self.species_data),
-            "lnK": dict(self.given_lnK),
-        } | (self.gas.arguments() if self.gas is not None else {})
+        return (
+            {
+                "species": list(self.species),
+                "reactions": list(zip(self.labels, self.equations)),
+                "phases": dict(zip(self.species, self.phases)),
+                "P0": self.P0,
+                "formulas": dict(self.given_formulas),
+                "check_balance": self.check_balance,
+                "species_data": dict(self.species_data),
+                "lnK": dict(self.given_lnK),
+            }
+            | (self.gas.arguments() if self.gas is not None else {})
+            | ({"liquid_model": dict(self.liquid_models)} if self.liquid_models else {})
+        )
 
     @property
     def _spec(self) -> dict[str, Any]:

@@ -111,6 +111,11 @@ class ReactionSystem(SystemSpec):
         the equilibrium gas's compressibility factor is more than 5 % from 1.
     kij : mapping (species, species) -> float, optional
         Binary interaction parameters of the mixing rule (default 0).
+    liquid_model : mapping phase -> NRTL or Wilson, optional
+        Activity-coefficient models of solution phases (``"liquid"``,
+        ``"liquid:<name>"``; :mod:`eqbatch.activity`): activities ``x gamma``
+        per case at the phase's composition and ``T`` (needed even when
+        ``lnK`` is given).
 
     Raises
     ------
@@ -146,6 +151,7 @@ class ReactionSystem(SystemSpec):
         gas_model: str | None = None,
         critical: Mapping[str, Mapping[str, float]] | str | None = None,
         kij: Mapping[tuple[str, str], float] | None = None,
+        liquid_model: Mapping[str, Any] | None = None,
     ) -> None:
         spec = define(
             species,
@@ -160,6 +166,7 @@ class ReactionSystem(SystemSpec):
             gas_model=gas_model,
             critical=critical,
             kij=kij,
+            liquid_model=liquid_model,
         )
         super().__init__(**spec._values())
 
@@ -363,7 +370,7 @@ class ReactionSystem(SystemSpec):
         """
         if duty is not None and adiabatic:
             raise CaseInputError("give adiabatic=True (no heat exchanged) or duty= (heat added), not both")
-        if self.real_gas is not None:
+        if self.nonideal is not None:
             unsupported = [
                 name
                 for name, given in (
@@ -378,8 +385,8 @@ class ReactionSystem(SystemSpec):
             ]
             if unsupported:
                 raise CaseInputError(
-                    f"{', '.join(unsupported)} not yet available with gas_model={self.real_gas.kind!r} "
-                    "(the ideal-gas solve has them)"
+                    f"{', '.join(unsupported)} not yet available with {self.nonideal} "
+                    "(the ideal solve has them)"
                 )
         if H_in is not None and not (adiabatic or duty is not None):
             raise CaseInputError("H_in= is the inlet of an energy balance: give adiabatic=True or duty=")
@@ -469,7 +476,7 @@ class ReactionSystem(SystemSpec):
                 solved.absent,
             )
             lnk_arr, T_eff, held = solved.lnK, solved.T_eff, solved.held
-        elif self.real_gas is not None:
+        elif self.nonideal is not None:
             solved_real, ln_phi = solve_real(
                 self, feed_arr, lnk_arr, p_arr, T_arr, n, tol, max_iter, threads, start
             )
@@ -485,7 +492,7 @@ class ReactionSystem(SystemSpec):
         result._T_eff = T_eff
         result.held = held
         result.absent = absent
-        if self.real_gas is not None:
+        if self.nonideal is not None:
             result._ln_phi = ln_phi
         elif self.gas is not None:
             warn_if_not_ideal(self, result.mole_fractions, T_arr, p_arr, result.converged)
@@ -541,10 +548,8 @@ class ReactionSystem(SystemSpec):
         >>> res.amounts.tolist(), res.sensitivity("lnK")[0, :, 0].round(6).tolist()
         ([[0.5, 0.5]], [-0.25, 0.25])
         """
-        if self.real_gas is not None:
-            raise CaseInputError(
-                f"prepare() is not yet available with gas_model={self.real_gas.kind!r}; call solve()"
-            )
+        if self.nonideal is not None:
+            raise CaseInputError(f"prepare() is not yet available with {self.nonideal}; call solve()")
         return PreparedSolve(
             self, cases, tol=tol, max_iter=max_iter, threads=threads, sensitivities=sensitivities
         )

@@ -14,7 +14,8 @@
 //! * [`solver`]: the damped Newton solve of one case;
 //! * [`lanes`]: the batch path for all-gas systems, eight cases per vector group;
 //! * [`batch`]: the parallel batch driver;
-//! * [`eos`], [`realgas`]: fugacity coefficients of a cubic equation of state, and batches with them;
+//! * [`eos`], [`activity`], [`realgas`]: fugacity coefficients of a cubic equation of state, activity
+//!   coefficients of solutions, and batches with them;
 //! * [`sensitivity`]: exact derivatives of converged cases;
 //! * [`lp`], [`linalg`]: the small numerical kernels they share.
 
@@ -22,6 +23,7 @@
 // reaction number; iterator chains would hide that correspondence.
 #![allow(clippy::needless_range_loop)]
 
+pub mod activity;
 pub mod basis;
 pub mod batch;
 pub mod condensed;

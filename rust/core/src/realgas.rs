@@ -1,7 +1,9 @@
-//! Batches with a non-ideal gas: the equilibrium conditions
-//! `sum_i nu_ji (ln y_i + ln phi_i + ln P/P0) = ln K_j`, with `phi` from a
-//! cubic equation of state ([`crate::eos`]) at each case's composition,
-//! temperature and pressure.
+//! Batches with a non-ideal gas or liquid: the equilibrium conditions
+//! `sum_i nu_ji (ln y_i + ln phi_i + ln P/P0) = ln K_j` (gas; `ln x_i +
+//! ln gamma_i` in a solution), with `phi` from a cubic equation of state
+//! ([`crate::eos`]) and `gamma` from an activity model ([`crate::activity`])
+//! at each case's composition, temperature and pressure. Below, `phi`
+//! stands for both.
 //!
 //! Successive substitution on `phi`: with `phi` fixed the conditions are
 //! those of an ideal gas with `ln K_j - sum_i nu_ji ln phi_i`, which the
@@ -25,6 +27,7 @@
 
 use rayon::prelude::*;
 
+use crate::activity::Solution;
 use crate::batch::{on_threads, solve_batch, BatchInputs, BatchOutputs};
 use crate::eos::{Cubic, LnPhiError};
 use crate::error::CoreError;
@@ -35,7 +38,7 @@ use crate::system::System;
 /// Most passes of successive substitution.
 pub const MAX_PASSES: u32 = 100;
 
-/// Most reactions of a system with a non-ideal gas (the per-case work
+/// Most reactions of a system with a non-ideal phase (the per-case work
 /// arrays live on the stack).
 const MAX_R: usize = 64;
 
@@ -43,34 +46,69 @@ const MAX_R: usize = 64;
 /// at `rho = 0.9`).
 const MAX_EXTRAPOLATION: f64 = 9.0;
 
-/// `ln phi` of the gas species of amounts `a` at `t`, `p` into `phi` (its
-/// entries of other species untouched; all zero where the gas is empty).
-/// `scratch` holds `4 x gas.len()` values.
-fn gas_ln_phi(
-    eos: &Cubic,
-    gas: &[usize],
+/// What makes a system's phases non-ideal: the gas's equation of state
+/// and the solutions' activity models (either may be absent).
+#[derive(Clone, Copy)]
+pub struct NonIdeal<'a> {
+    pub eos: Option<&'a Cubic>,
+    pub solutions: &'a [Solution],
+}
+
+impl NonIdeal<'_> {
+    /// `ln phi` (gas) and `ln gamma` (modelled solutions) of amounts `a`
+    /// at `t`, `p` into `coef` (entries of other species untouched; zero
+    /// for the species of an empty phase). `gas` lists the gas species;
+    /// `scratch` holds `4 S` values.
+    fn evaluate(
+        &self,
+        gas: &[usize],
+        a: &[f64],
+        t: f64,
+        p: f64,
+        scratch: &mut [f64],
+        coef: &mut [f64],
+    ) -> Result<(), LnPhiError> {
+        if let Some(eos) = self.eos {
+            phase_values(gas, a, scratch, coef, |x, out, work| {
+                eos.ln_phi(gas, x, t, p, out, work)
+            })?;
+        }
+        for solution in self.solutions {
+            phase_values(&solution.species, a, scratch, coef, |x, out, work| {
+                solution.ln_gamma(x, t, out, work);
+                Ok(())
+            })?;
+        }
+        Ok(())
+    }
+}
+
+/// `model`'s values for the `members` of one phase at amounts `a` (mole
+/// fractions in, one value per member out) into `coef`; zeros for an empty
+/// phase.
+fn phase_values(
+    members: &[usize],
     a: &[f64],
-    t: f64,
-    p: f64,
     scratch: &mut [f64],
-    phi: &mut [f64],
+    coef: &mut [f64],
+    model: impl FnOnce(&[f64], &mut [f64], &mut [f64]) -> Result<(), LnPhiError>,
 ) -> Result<(), LnPhiError> {
-    let g = gas.len();
-    let total: f64 = gas.iter().map(|&i| a[i]).sum();
+    let g = members.len();
+    let total: f64 = members.iter().map(|&i| a[i]).sum();
     if g == 0 || total.is_nan() || total <= 0.0 {
-        for &i in gas {
-            phi[i] = 0.0;
+        for &i in members {
+            coef[i] = 0.0;
         }
         return Ok(());
     }
-    let (y, rest) = scratch.split_at_mut(g);
+    let (x, rest) = scratch.split_at_mut(g);
     let (out, work) = rest.split_at_mut(g);
-    for (yk, &i) in y.iter_mut().zip(gas) {
-        *yk = a[i] / total;
+    for (xk, &i) in x.iter_mut().zip(members) {
+        *xk = a[i] / total;
     }
-    eos.ln_phi(gas, y, t, p, out, work)?;
-    for (&v, &i) in out.iter().zip(gas) {
-        phi[i] = v;
+    model(x, out, work)?;
+    for (&v, &i) in out.iter().zip(members) {
+        coef[i] = v;
     }
     Ok(())
 }
@@ -106,15 +144,15 @@ fn next_shift(shift: &mut [f64], last: &mut [f64], mapped: &[f64], has_last: boo
     }
 }
 
-/// Solve every case with the gas of `eos`. `temperature` (K) has one value
-/// or one per case. `ln_phi` (`n_cases x S`) receives each gas species'
-/// `ln phi` at the answer (0 for species not in the gas, NaN where the
-/// case has no answer). `outputs.iterations` counts the Newton iterations
-/// of every pass.
+/// Solve every case with the non-ideal phases of `model`. `temperature`
+/// (K) has one value or one per case. `ln_phi` (`n_cases x S`) receives
+/// each species' `ln phi` or `ln gamma` at the answer (0 for species of
+/// ideal phases, NaN where the case has no answer). `outputs.iterations`
+/// counts the Newton iterations of every pass.
 #[allow(clippy::too_many_arguments)]
 pub fn solve_batch_real(
     system: &System,
-    eos: &Cubic,
+    model: NonIdeal,
     inputs: &BatchInputs,
     temperature: &[f64],
     outputs: &mut BatchOutputs,
@@ -130,17 +168,35 @@ pub fn solve_batch_real(
             )));
         }
     }
-    for (name, values) in [("tc", &eos.tc), ("pc", &eos.pc), ("omega", &eos.omega)] {
-        if values.len() != s {
-            return Err(CoreError::Shape(format!(
-                "{name} needs one value per species"
-            )));
+    if let Some(eos) = model.eos {
+        for (name, values) in [("tc", &eos.tc), ("pc", &eos.pc), ("omega", &eos.omega)] {
+            if values.len() != s {
+                return Err(CoreError::Shape(format!(
+                    "{name} needs one value per species"
+                )));
+            }
+        }
+        if eos.kij.len() != s * s {
+            return Err(CoreError::Shape("kij needs S x S values".into()));
         }
     }
-    if eos.kij.len() != s * s || ln_phi.len() != n * s {
-        return Err(CoreError::Shape(
-            "kij needs S x S values, ln_phi N x S".into(),
-        ));
+    for solution in model.solutions {
+        let k = solution.species.len();
+        let fits = solution
+            .species
+            .iter()
+            .all(|&i| i < s && !system.is_pure(i))
+            && [&solution.a, &solution.b, &solution.alpha]
+                .iter()
+                .all(|m| m.len() == k * k);
+        if !fits {
+            return Err(CoreError::Shape(
+                "a solution model needs its species and k x k a, b and alpha".into(),
+            ));
+        }
+    }
+    if ln_phi.len() != n * s {
+        return Err(CoreError::Shape("ln_phi needs N x S values".into()));
     }
     let row = |data: &[f64], width: usize, case: usize| -> std::ops::Range<usize> {
         if data.len() == width {
@@ -162,16 +218,15 @@ pub fn solve_batch_real(
     let mut last_step = vec![0.0; n * r];
     if r > MAX_R {
         return Err(CoreError::Shape(format!(
-            "a non-ideal gas takes at most {MAX_R} reactions"
+            "a non-ideal system takes at most {MAX_R} reactions"
         )));
     }
-    // The first pass takes phi at the feed's gas composition (nearer the
-    // answer's than the ideal gas's phi = 1; none where the feed's gas has
-    // no vapour-like root).
-    let g = gas.len();
+    // The first pass takes phi at the feed's composition (nearer the
+    // answer's than the ideal phi = 1; none where the feed's gas has no
+    // vapour-like root).
     let first = || {
         shift.par_chunks_mut(r).enumerate().for_each_init(
-            || (vec![0.0; 4 * g], vec![0.0; s]),
+            || (vec![0.0; 4 * s], vec![0.0; s]),
             |(scratch, phi), (case, shift_k)| {
                 let feed = &inputs.feed[row(inputs.feed, s, case)];
                 let t = temperature[row(temperature, 1, case)][0];
@@ -180,10 +235,10 @@ pub fn solve_batch_real(
                     && t.is_finite()
                     && p > 0.0
                     && p.is_finite()
-                    && gas.iter().all(|&i| feed[i] >= 0.0 && feed[i].is_finite());
-                if usable && gas_ln_phi(eos, &gas, feed, t, p, scratch, phi).is_ok() {
+                    && feed.iter().all(|&v| v >= 0.0 && v.is_finite());
+                if usable && model.evaluate(&gas, feed, t, p, scratch, phi).is_ok() {
                     for j in 0..r {
-                        shift_k[j] = gas.iter().map(|&i| nu[j * s + i] * phi[i]).sum();
+                        shift_k[j] = (0..s).map(|i| nu[j * s + i] * phi[i]).sum();
                     }
                 }
             },
@@ -263,7 +318,7 @@ pub fn solve_batch_real(
                 .zip(moved.par_iter_mut())
                 .enumerate()
                 .for_each_init(
-                    || vec![0.0; 4 * g],
+                    || vec![0.0; 4 * s],
                     |scratch, (k, (phi_k, moved_k))| {
                         let case = active[k];
                         let converged =
@@ -274,13 +329,16 @@ pub fn solve_batch_real(
                         }
                         let a = &amounts[k * s..(k + 1) * s];
                         let t = temperature[row(temperature, 1, case)][0];
-                        if gas_ln_phi(eos, &gas, a, t, pressure[k], scratch, phi_k).is_err() {
+                        if model
+                            .evaluate(&gas, a, t, pressure[k], scratch, phi_k)
+                            .is_err()
+                        {
                             *moved_k = f64::INFINITY;
                             return;
                         }
                         let mut worst = 0.0_f64;
                         for j in 0..r {
-                            let new: f64 = gas.iter().map(|&i| nu[j * s + i] * phi_k[i]).sum();
+                            let new: f64 = (0..s).map(|i| nu[j * s + i] * phi_k[i]).sum();
                             worst = worst.max((new - shift[case * r + j]).abs());
                         }
                         *moved_k = worst;
@@ -316,7 +374,7 @@ pub fn solve_batch_real(
             // shrink at a steady rate (see [`next_shift`]).
             let mut mapped = [0.0; MAX_R];
             for j in 0..r {
-                mapped[j] = gas.iter().map(|&i| nu[j * s + i] * phi_k[i]).sum();
+                mapped[j] = (0..s).map(|i| nu[j * s + i] * phi_k[i]).sum();
             }
             let (current, previous) = (
                 &mut shift[case * r..(case + 1) * r],

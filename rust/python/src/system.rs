@@ -1,7 +1,8 @@
 //! `eqbatch._core.System`: a validated reaction system and its batch solve.
 
+use eqbatch_core::activity::{ActivityKind, Solution};
 use eqbatch_core::eos::{Cubic, CubicKind};
-use eqbatch_core::realgas::solve_batch_real;
+use eqbatch_core::realgas::{solve_batch_real, NonIdeal};
 use eqbatch_core::{
     mole_fractions, sensitivities_batch, solve_batch, BatchInputs, BatchOutputs, Phase,
     SensitivityOutputs, SolveOptions, System,
@@ -22,6 +23,10 @@ type Solved<'py> = (
     Bound<'py, PyArray1<u32>>,
     Bound<'py, PyArray1<u64>>,
 );
+
+/// One solution phase's activity model as the binding takes it: (model,
+/// species, a, b, alpha).
+type SolutionArgs = (u8, Vec<usize>, Vec<f64>, Vec<f64>, Vec<f64>);
 
 type Sensitivities<'py> = (
     Bound<'py, PyArray3<f64>>,
@@ -228,11 +233,14 @@ impl PySystem {
         Ok((amounts, extents, status, iterations, absent))
     }
 
-    /// Solve with a gas from a cubic equation of state (`kind` 0: Peng-Robinson,
-    /// 1: Soave-Redlich-Kwong; critical constants per species, K and bar;
-    /// `kij` S x S): the outputs of `solve` and `ln phi` (N, S).
+    /// Solve with non-ideal phases: a gas from a cubic equation of state
+    /// (`kind` 0: Peng-Robinson, 1: Soave-Redlich-Kwong, None: ideal;
+    /// critical constants per species, K and bar; `kij` S x S) and
+    /// solutions with activity models (`solutions`: (model 0 NRTL / 1
+    /// Wilson, species, a, b, alpha), each k x k): the outputs of `solve`
+    /// and `ln phi` / `ln gamma` (N, S).
     #[allow(clippy::too_many_arguments)]
-    #[pyo3(signature = (feed, ln_k, pressure, temperature, n_cases, tol, max_iter, threads, start, kind, tc, pc, omega, kij))]
+    #[pyo3(signature = (feed, ln_k, pressure, temperature, n_cases, tol, max_iter, threads, start, kind, tc, pc, omega, kij, solutions))]
     fn solve_real<'py>(
         &self,
         py: Python<'py>,
@@ -245,30 +253,52 @@ impl PySystem {
         max_iter: u32,
         threads: Option<usize>,
         start: Option<PyReadonlyArray2<'py, f64>>,
-        kind: u8,
+        kind: Option<u8>,
         tc: Vec<f64>,
         pc: Vec<f64>,
         omega: Vec<f64>,
         kij: Vec<f64>,
+        solutions: Vec<SolutionArgs>,
     ) -> PyResult<(Solved<'py>, Bound<'py, PyArray2<f64>>)> {
         let s = self.inner.n_species();
         let r = self.inner.n_reactions();
-        let kind = match kind {
-            0 => CubicKind::PengRobinson,
-            1 => CubicKind::Soave,
-            _ => {
-                return Err(PyValueError::new_err(
-                    "kind is 0 (Peng-Robinson) or 1 (Soave)",
-                ))
-            }
+        let eos = match kind {
+            None => None,
+            Some(code) => Some(Cubic {
+                kind: match code {
+                    0 => CubicKind::PengRobinson,
+                    1 => CubicKind::Soave,
+                    _ => {
+                        return Err(PyValueError::new_err(
+                            "kind is 0 (Peng-Robinson) or 1 (Soave)",
+                        ))
+                    }
+                },
+                tc,
+                pc,
+                omega,
+                kij,
+            }),
         };
-        let eos = Cubic {
-            kind,
-            tc,
-            pc,
-            omega,
-            kij,
-        };
+        let mut models = Vec::with_capacity(solutions.len());
+        for (code, species, a, b, alpha) in solutions {
+            let kind = match code {
+                0 => ActivityKind::Nrtl,
+                1 => ActivityKind::Wilson,
+                _ => {
+                    return Err(PyValueError::new_err(
+                        "a solution model is 0 (NRTL) or 1 (Wilson)",
+                    ))
+                }
+            };
+            models.push(Solution {
+                kind,
+                species,
+                a,
+                b,
+                alpha,
+            });
+        }
         let amounts = PyArray2::zeros(py, [n_cases, s], false);
         let extents = PyArray2::zeros(py, [n_cases, r], false);
         let status = PyArray1::zeros(py, n_cases, false);
@@ -317,9 +347,13 @@ impl PySystem {
                     iterations: it,
                     absent: Some(ab),
                 };
+                let model = NonIdeal {
+                    eos: eos.as_ref(),
+                    solutions: &models,
+                };
                 solve_batch_real(
                     system,
-                    &eos,
+                    model,
                     &inputs,
                     temperature,
                     &mut outputs,
