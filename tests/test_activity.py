@@ -175,3 +175,34 @@ def test_clear_errors() -> None:
     a = again.solve([1.0, 1.0, 0.0, 0.0], lnK=1.0, T=330.0)
     b = esterification("wilson").solve([1.0, 1.0, 0.0, 0.0], lnK=1.0, T=330.0)
     np.testing.assert_array_equal(a.amounts, b.amounts)
+
+
+def test_liquid_sensitivities_match_finite_differences() -> None:
+    # NRTL esterification with K = 4 as K(T) data (constant): d n / d(ln K, T,
+    # feed) against central differences of the solve (gamma depends on T
+    # through b / T, so dn/dT is the activity model's alone)
+    system = eqbatch.ReactionSystem(
+        NAMES,
+        {"ester": "AcOH + EtOH = EtOAc + H2O"},
+        phases={n: "liquid" for n in NAMES},
+        check_balance=False,
+        lnK={"ester": {"a": math.log(4.0)}},
+        liquid_model={"liquid": model("nrtl")},
+    )
+    feed, T = np.array([1.0, 1.2, 0.1, 0.3]), 340.0
+    res = system.solve(feed, T=T, sensitivities=True)
+    assert res.converged.all()
+    h = 1e-5
+    lnk = system.lnK(T)[0]
+    fd = (system.solve(feed, lnK=lnk + h, T=T).amounts - system.solve(feed, lnK=lnk - h, T=T).amounts)[0] / (
+        2 * h
+    )
+    np.testing.assert_allclose(res.sensitivity("lnK")[0, :, 0], fd, rtol=1e-5, atol=1e-10)
+    fd_t = (system.solve(feed, T=T + 0.01).amounts - system.solve(feed, T=T - 0.01).amounts)[0] / 0.02
+    assert np.abs(fd_t).max() > 1e-6  # the model's temperature dependence shows
+    np.testing.assert_allclose(res.sensitivity("T")[0], fd_t, rtol=1e-5, atol=1e-10)
+    for k in range(4):
+        step = np.zeros(4)
+        step[k] = h
+        fd_f = (system.solve(feed + step, T=T).amounts - system.solve(feed - step, T=T).amounts)[0] / (2 * h)
+        np.testing.assert_allclose(res.sensitivity("feed")[0, :, k], fd_f, rtol=1e-5, atol=1e-9)

@@ -228,17 +228,9 @@ def solve_real(
             f"{system.nonideal}: the fugacity and activity coefficients depend on temperature; give T= "
             "(also when the equilibrium constants are given)"
         )
-    model: GasModel | None = system.real_gas
-    if model is not None:
-        tc, pc, omega, kij = model.arrays(system.species)
-        kind: int | None = _KIND[model.kind]
-    else:
-        tc = pc = omega = kij = []
-        kind = None
-    solutions = core_arguments(system.species, system.phases, system.liquid_models or {})
     temperature = np.ascontiguousarray(T, dtype=np.float64)
     return system._engine.solve_real(
-        feed, lnk, P, temperature, n, tol, max_iter, threads, start, kind, tc, pc, omega, kij, solutions
+        feed, lnk, P, temperature, n, tol, max_iter, threads, start, *_core_model(system)
     )
 
 
@@ -302,3 +294,87 @@ def warn_if_not_ideal(
             ),
             stacklevel=3,
         )
+
+
+def _core_model(system: Any) -> tuple:
+    """The core's description of the system's non-ideal phases: cubic kind
+    (None: ideal gas), Tc, Pc, omega, kij and the solutions' models."""
+    model: GasModel | None = system.real_gas
+    solutions = core_arguments(system.species, system.phases, system.liquid_models or {})
+    if model is None:
+        return None, [], [], [], [], solutions
+    return (_KIND[model.kind], *model.arrays(system.species), solutions)
+
+
+def ln_coefficients(
+    system: Any, amounts: np.ndarray, T: np.ndarray, P: np.ndarray, threads: int | None
+) -> np.ndarray:
+    """(N, S) ``ln phi`` / ``ln gamma`` of ``amounts`` at ``T`` and ``P``
+    (one value or one per row) for the system's non-ideal phases."""
+    return system._engine.ln_coefficients(
+        np.ascontiguousarray(amounts, dtype=np.float64),
+        np.ascontiguousarray(np.atleast_1d(T), dtype=np.float64),
+        np.ascontiguousarray(np.atleast_1d(P), dtype=np.float64),
+        threads,
+        *_core_model(system),
+    )
+
+
+#: Relative step of the central differences of ln phi / ln gamma.
+_STEP = 1e-6
+
+
+def nonideal_sensitivities(
+    system: Any, result: Any, T: np.ndarray, threads: int | None
+) -> tuple[tuple[np.ndarray, np.ndarray, np.ndarray], np.ndarray]:
+    """Derivatives of a non-ideal solve from the core's ideal ones at the
+    same answer.
+
+    With ``L = ln phi`` (or ``ln gamma``) the answer is the ideal equilibrium
+    at ``ln K' = ln K - nu L(n, T, P)``; the core gives its derivatives
+    ``S_K``, ``S_P``, ``S_F`` at fixed ``ln K'``. Then
+    ``(I + S_K nu J) dn = S_K d ln K + (S_P - S_K nu L_lnP) d ln P + S_F dn0
+    - S_K nu L_T dT`` with ``J = dL/dn``, ``L_lnP`` and ``L_T`` by central
+    differences of the core's ``L`` (steps of 1e-6 of the amounts' total,
+    of ``P`` and of ``T``; one-sided three-point differences for amounts
+    within a step of zero). Returns ``(d_lnK, d_lnP, d_feed)`` in the core's
+    layout and ``dn/dT``'s extra term (N, S)."""
+    d_lnk, d_lnp, d_feed = result._sens
+    n, S = result.amounts.shape
+    nu = system.stoich  # (R, S)
+    amounts = result.amounts
+    P = np.broadcast_to(result.P, (n,)).astype(float)
+    Tn = np.broadcast_to(np.asarray(T, dtype=float), (n,))
+    base = ln_coefficients(system, amounts, Tn, P, threads)
+    h = _STEP * np.nansum(amounts, axis=1)
+    J = np.zeros((n, S, S))  # J[c, i, k] = d L_i / d n_k
+    for k in range(S):
+        up, down, up2 = amounts.copy(), amounts.copy(), amounts.copy()
+        up[:, k] += h
+        down[:, k] -= h
+        up2[:, k] += 2 * h
+        central = amounts[:, k] >= h
+        f_up = ln_coefficients(system, up, Tn, P, threads)
+        f_down = ln_coefficients(system, np.where(central[:, None], down, amounts), Tn, P, threads)
+        f_up2 = ln_coefficients(system, up2, Tn, P, threads)
+        one_sided = (-3.0 * base + 4.0 * f_up - f_up2) / (2.0 * h[:, None])
+        J[:, :, k] = np.where(central[:, None], (f_up - f_down) / (2.0 * h[:, None]), one_sided)
+    L_lnp = (
+        ln_coefficients(system, amounts, Tn, P * (1 + _STEP), threads)
+        - ln_coefficients(system, amounts, Tn, P * (1 - _STEP), threads)
+    ) / (2.0 * _STEP)
+    dT = _STEP * Tn
+    hot, cold = (ln_coefficients(system, amounts, Tn + sign * dT, P, threads) for sign in (1, -1))
+    L_T = (hot - cold) / (2.0 * dT[:, None])
+    SKnu = np.einsum("csr,rk->csk", d_lnk, nu)  # S_K nu, (N, S, S)
+    M = np.eye(S)[None] + SKnu @ J
+    ok = np.isfinite(M).all(axis=(1, 2))
+    M[~ok] = np.eye(S)
+    solve = np.linalg.solve
+    new_lnk = solve(M, d_lnk)
+    new_lnp = solve(M, (d_lnp - np.einsum("csk,ck->cs", SKnu, L_lnp))[:, :, None])[:, :, 0]
+    new_feed = solve(M, d_feed)
+    extra_T = solve(M, -np.einsum("csk,ck->cs", SKnu, L_T)[:, :, None])[:, :, 0]
+    for arr in (new_lnk, new_lnp, new_feed, extra_T):
+        arr[~ok] = np.nan
+    return (new_lnk, new_lnp, new_feed), extra_T

@@ -95,6 +95,7 @@ class EquilibriumResult:
         "absent",
         "held",
         "_ln_phi",
+        "_dn_dT",
     )
 
     def __init__(
@@ -139,6 +140,8 @@ class EquilibriumResult:
         self.held: np.ndarray | None = None
         #: (N, S) ln phi of a non-ideal gas's species at the answer (None: ideal).
         self._ln_phi: np.ndarray | None = None
+        #: (N, S) the part of dn/dT through ln phi / ln gamma (non-ideal phases).
+        self._dn_dT: np.ndarray | None = None
 
     def invalidate(self) -> None:
         """Forget what was computed from the arrays (mole fractions, derivatives).
@@ -159,6 +162,7 @@ class EquilibriumResult:
         """
         self._mole_fractions = None
         self._sens = None
+        self._dn_dT = None
         self._energy = None
 
     def __del__(self) -> None:
@@ -682,6 +686,8 @@ class EquilibriumResult:
                 raise CaseInputError("no temperature was given to the solve: d/dT is undefined")
             if energy is None:
                 dn, dT = np.einsum("nsr,nr->ns", d_lnk, self._lnk_slope()), np.ones(n)
+                if self._dn_dT is not None:
+                    dn = dn + self._dn_dT
             elif energy.by_enthalpy:
                 raise CaseInputError(
                     "the inlet was given as an enthalpy (H_in=), not a temperature: d/dT is not an input's"

@@ -34,7 +34,7 @@ from eqbatch.inputs import (
     why_invalid,
 )
 from eqbatch.prepared import PreparedSolve
-from eqbatch.realgas import solve_real, warn_if_not_ideal
+from eqbatch.realgas import nonideal_sensitivities, solve_real, warn_if_not_ideal
 from eqbatch.result import EquilibriumResult, Status
 from eqbatch.spec import PHASES, ArrayLike, KData, SystemSpec, bad_temperatures
 from eqbatch.system_file import read_spec
@@ -377,7 +377,6 @@ class ReactionSystem(SystemSpec):
                     ("adiabatic=True", adiabatic),
                     ("duty=", duty is not None),
                     ("approach=", bool(approach)),
-                    ("sensitivities=True", sensitivities),
                     ("chain=True", chain),
                     ("out=", out is not None),
                 )
@@ -503,6 +502,9 @@ class ReactionSystem(SystemSpec):
             raise InvalidCaseError(f"case {k}: {why}")
         if sensitivities:
             result._sens = self._engine.sensitivities(feed_arr, p_arr, amounts, status, absent, threads)
+            if self.nonideal is not None:
+                assert T_arr is not None  # solve_real needs it
+                result._sens, result._dn_dT = nonideal_sensitivities(self, result, T_arr, threads)
             if held is not None and held.any():
                 approach_module.held_sensitivities(self, result, held, threads)
         return result

@@ -575,7 +575,10 @@ class MonteCarloResult:
             shifted = np.tile(base, (2, 1))
             shifted[0, r] -= sigma[r]
             shifted[1, r] += sigma[r]
-            res = self.system.solve(self.feed, lnK=shifted, P=self.nominal.P[0])
+            # (a non-ideal phase's coefficients need the temperature)
+            T_nominal = self.nominal.T
+            T = None if self.system.nonideal is None or T_nominal is None else T_nominal[0]
+            res = self.system.solve(self.feed, lnK=shifted, P=self.nominal.P[0], T=T)
             out, _ = self._values(of, res.amounts, res.mole_fractions, res.extents)
             rows.append((label, float(out[0, k]), float(out[1, k])))
         return sorted(rows, key=lambda row: -abs(row[2] - row[1]))
@@ -692,7 +695,8 @@ def monte_carlo(
         T_out = res.T
     else:
         lnk = (system.lnK(T_samples) if sigma_T else nominal.lnK[0]) + shift
-        res = system.solve(nominal.feed[0], lnK=lnk, P=nominal.P[0], threads=threads)
+        T_phases = None if system.nonideal is None else T_samples  # non-ideal coefficients need T
+        res = system.solve(nominal.feed[0], lnK=lnk, P=nominal.P[0], T=T_phases, threads=threads)
         T_out = T_samples
     return MonteCarloResult(
         system,

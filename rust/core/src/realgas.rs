@@ -399,3 +399,61 @@ pub fn solve_batch_real(
     }
     Ok(())
 }
+
+/// `ln phi` / `ln gamma` of every species of `amounts` (`N x S`) at each
+/// row's temperature and pressure (one value or one per row), into `out`
+/// (`N x S`; zero for species of ideal phases, NaN for a row whose gas has
+/// no vapour-like root or whose amounts are not finite).
+pub fn ln_coefficients(
+    system: &System,
+    model: NonIdeal,
+    amounts: &[f64],
+    temperature: &[f64],
+    pressure: &[f64],
+    out: &mut [f64],
+    threads: Option<usize>,
+) -> Result<(), CoreError> {
+    let s = system.n_species();
+    let n = amounts.len() / s.max(1);
+    if amounts.len() != n * s || out.len() != n * s {
+        return Err(CoreError::Shape("amounts and out need N x S values".into()));
+    }
+    for (name, len) in [
+        ("temperature", temperature.len()),
+        ("pressure", pressure.len()),
+    ] {
+        if len != 1 && len != n {
+            return Err(CoreError::Shape(format!(
+                "{name} has {len} values; expected 1 or {n}"
+            )));
+        }
+    }
+    let gas: Vec<usize> = (0..s)
+        .filter(|&i| !system.is_pure(i) && system.phase_index(i) == 0)
+        .collect();
+    let pick = |v: &[f64], k: usize| if v.len() == 1 { v[0] } else { v[k] };
+    let work = || {
+        out.par_chunks_mut(s).enumerate().for_each_init(
+            || vec![0.0; 4 * s],
+            |scratch, (k, row)| {
+                row.fill(0.0);
+                let a = &amounts[k * s..(k + 1) * s];
+                let ok = a.iter().all(|v| v.is_finite())
+                    && model
+                        .evaluate(
+                            &gas,
+                            a,
+                            pick(temperature, k),
+                            pick(pressure, k),
+                            scratch,
+                            row,
+                        )
+                        .is_ok();
+                if !ok {
+                    row.fill(f64::NAN);
+                }
+            },
+        );
+    };
+    on_threads(threads, work)
+}

@@ -2,7 +2,7 @@
 
 use eqbatch_core::activity::{ActivityKind, Solution};
 use eqbatch_core::eos::{Cubic, CubicKind};
-use eqbatch_core::realgas::{solve_batch_real, NonIdeal};
+use eqbatch_core::realgas::{ln_coefficients, solve_batch_real, NonIdeal};
 use eqbatch_core::{
     mole_fractions, sensitivities_batch, solve_batch, BatchInputs, BatchOutputs, Phase,
     SensitivityOutputs, SolveOptions, System,
@@ -33,6 +33,56 @@ type Sensitivities<'py> = (
     Bound<'py, PyArray2<f64>>,
     Bound<'py, PyArray3<f64>>,
 );
+
+/// The binding's arguments of non-ideal phases as the core's: the cubic
+/// (`kind` 0 Peng-Robinson, 1 Soave, None ideal) and the solutions' models.
+fn non_ideal_parts(
+    kind: Option<u8>,
+    tc: Vec<f64>,
+    pc: Vec<f64>,
+    omega: Vec<f64>,
+    kij: Vec<f64>,
+    solutions: Vec<SolutionArgs>,
+) -> PyResult<(Option<Cubic>, Vec<Solution>)> {
+    let eos = match kind {
+        None => None,
+        Some(code) => Some(Cubic {
+            kind: match code {
+                0 => CubicKind::PengRobinson,
+                1 => CubicKind::Soave,
+                _ => {
+                    return Err(PyValueError::new_err(
+                        "kind is 0 (Peng-Robinson) or 1 (Soave)",
+                    ))
+                }
+            },
+            tc,
+            pc,
+            omega,
+            kij,
+        }),
+    };
+    let mut models = Vec::with_capacity(solutions.len());
+    for (code, species, a, b, alpha) in solutions {
+        let kind = match code {
+            0 => ActivityKind::Nrtl,
+            1 => ActivityKind::Wilson,
+            _ => {
+                return Err(PyValueError::new_err(
+                    "a solution model is 0 (NRTL) or 1 (Wilson)",
+                ))
+            }
+        };
+        models.push(Solution {
+            kind,
+            species,
+            a,
+            b,
+            alpha,
+        });
+    }
+    Ok((eos, models))
+}
 
 /// A caller-given output array must have the batch's shape, be C-contiguous
 /// and writeable (its dtype is checked by the conversion).
@@ -262,43 +312,7 @@ impl PySystem {
     ) -> PyResult<(Solved<'py>, Bound<'py, PyArray2<f64>>)> {
         let s = self.inner.n_species();
         let r = self.inner.n_reactions();
-        let eos = match kind {
-            None => None,
-            Some(code) => Some(Cubic {
-                kind: match code {
-                    0 => CubicKind::PengRobinson,
-                    1 => CubicKind::Soave,
-                    _ => {
-                        return Err(PyValueError::new_err(
-                            "kind is 0 (Peng-Robinson) or 1 (Soave)",
-                        ))
-                    }
-                },
-                tc,
-                pc,
-                omega,
-                kij,
-            }),
-        };
-        let mut models = Vec::with_capacity(solutions.len());
-        for (code, species, a, b, alpha) in solutions {
-            let kind = match code {
-                0 => ActivityKind::Nrtl,
-                1 => ActivityKind::Wilson,
-                _ => {
-                    return Err(PyValueError::new_err(
-                        "a solution model is 0 (NRTL) or 1 (Wilson)",
-                    ))
-                }
-            };
-            models.push(Solution {
-                kind,
-                species,
-                a,
-                b,
-                alpha,
-            });
-        }
+        let (eos, models) = non_ideal_parts(kind, tc, pc, omega, kij, solutions)?;
         let amounts = PyArray2::zeros(py, [n_cases, s], false);
         let extents = PyArray2::zeros(py, [n_cases, r], false);
         let status = PyArray1::zeros(py, n_cases, false);
@@ -365,6 +379,46 @@ impl PySystem {
             .map_err(to_py)?;
         }
         Ok(((amounts, extents, status, iterations, absent), ln_phi))
+    }
+
+    /// `ln phi` / `ln gamma` (N, S) of `amounts` (N, S) at `temperature`
+    /// and `pressure` (1 or N each), for the non-ideal phases given as to
+    /// `solve_real`; NaN rows where the gas has no vapour-like root.
+    #[allow(clippy::too_many_arguments)]
+    #[pyo3(signature = (amounts, temperature, pressure, threads, kind, tc, pc, omega, kij, solutions))]
+    fn ln_coefficients<'py>(
+        &self,
+        py: Python<'py>,
+        amounts: PyReadonlyArray2<'py, f64>,
+        temperature: PyReadonlyArray1<'py, f64>,
+        pressure: PyReadonlyArray1<'py, f64>,
+        threads: Option<usize>,
+        kind: Option<u8>,
+        tc: Vec<f64>,
+        pc: Vec<f64>,
+        omega: Vec<f64>,
+        kij: Vec<f64>,
+        solutions: Vec<SolutionArgs>,
+    ) -> PyResult<Bound<'py, PyArray2<f64>>> {
+        let (eos, models) = non_ideal_parts(kind, tc, pc, omega, kij, solutions)?;
+        let shape = amounts.shape();
+        let out = PyArray2::zeros(py, [shape[0], shape[1]], false);
+        {
+            let amounts = amounts.as_slice()?;
+            let (temperature, pressure) = (temperature.as_slice()?, pressure.as_slice()?);
+            let mut o = writable(&out)?;
+            let o = o.as_slice_mut()?;
+            let system = &self.inner;
+            py.detach(move || {
+                let model = NonIdeal {
+                    eos: eos.as_ref(),
+                    solutions: &models,
+                };
+                ln_coefficients(system, model, amounts, temperature, pressure, o, threads)
+            })
+            .map_err(to_py)?;
+        }
+        Ok(out)
     }
 
     /// Mole fractions of `amounts` (N, S) within each species' phase (0 in
