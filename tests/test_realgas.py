@@ -380,3 +380,28 @@ def test_monte_carlo_with_a_real_gas() -> None:
     k = summary.names.index("NH3")
     assert summary.std[k] == pytest.approx(summary.linear_std[k], rel=0.1)
     assert 0.3 < summary.mean[k] < 0.4
+
+
+def test_a_real_gas_with_a_solid() -> None:
+    # CH4 = C(s) + 2 H2 with Peng-Robinson at 50-200 bar: where graphite is
+    # present its reaction holds with fugacities (2 ln f_H2 - ln f_CH4 = ln K,
+    # f = y phi P, P0 = 1 bar); where it is absent its activity, the same
+    # expression recomputed here, is below one
+    crit = {"CH4": CRITICAL["CH4"], "H2": CRITICAL["H2"]}
+    system = eqbatch.ReactionSystem(
+        ["CH4", "H2", "C"],
+        ["CH4 = C + 2 H2"],
+        phases={"C": "solid"},
+        gas_model="peng-robinson",
+        critical=crit,
+    )
+    P = np.array([50.0, 50.0, 200.0])
+    res = system.solve([[1, 0, 0], [1, 5, 0], [1, 0, 2]], lnK=[0.5], T=900.0, P=P)
+    assert res.converged.all()
+    f = res.mole_fractions * res.fugacity_coefficients * P[:, None]
+    ln_q = 2 * np.log(f[:, 1]) - np.log(f[:, 0])
+    present = res.present[:, system.phase_index[2]]
+    assert present.tolist() == [True, False, True]
+    np.testing.assert_allclose(ln_q[present], 0.5, atol=1e-9)
+    np.testing.assert_allclose(res.activities[~present, 2], np.exp(0.5 - ln_q[~present]), rtol=1e-9)
+    assert np.all(res.activities[~present, 2] < 1.0)
