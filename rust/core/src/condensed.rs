@@ -13,6 +13,8 @@
 //! species only, at most one) is done. Every other case takes the full
 //! phase-set search ([`crate::presence::decide_phases`]).
 
+use rayon::prelude::*;
+
 use crate::batch::{solve_batch, BatchInputs, BatchOutputs};
 use crate::error::CoreError;
 use crate::face::analyse_with;
@@ -67,6 +69,30 @@ pub fn reduce(system: &System) -> Option<Reduced> {
     })
 }
 
+/// `fill(row_index, row)` over the rows of `out` (`width` values each), in
+/// parallel blocks when `parallel` (each row written by its own call, so
+/// the result does not depend on it).
+fn fill_rows(
+    out: &mut [f64],
+    width: usize,
+    parallel: bool,
+    fill: impl Fn(usize, &mut [f64]) + Sync,
+) {
+    if width == 0 {
+        return;
+    }
+    if parallel {
+        out.par_chunks_mut(width)
+            .enumerate()
+            .with_min_len(4096)
+            .for_each(|(c, row)| fill(c, row));
+    } else {
+        out.chunks_mut(width)
+            .enumerate()
+            .for_each(|(c, row)| fill(c, row));
+    }
+}
+
 /// Every case of a batch solved on the reduced system.
 pub(crate) struct ReducedRun<'a> {
     reduced: &'a Reduced,
@@ -90,22 +116,22 @@ impl<'a> ReducedRun<'a> {
     ) -> Result<Self, CoreError> {
         let (s, r, n) = (system.n_species(), system.n_reactions(), inputs.n_cases);
         let (k, d) = (reduced.kept.len(), reduced.dim);
-        let feed_n = inputs.feed.len() / s;
-        let mut feed = vec![0.0; feed_n * k];
-        for c in 0..feed_n {
+        // (in parallel on the batch's pool, except for a one-thread batch)
+        let parallel = threads != Some(1);
+        let mut feed = vec![0.0; (inputs.feed.len() / s) * k];
+        fill_rows(&mut feed, k, parallel, |c, row| {
             for (col, &i) in reduced.kept.iter().enumerate() {
-                feed[c * k + col] = inputs.feed[c * s + i];
+                row[col] = inputs.feed[c * s + i];
             }
-        }
-        let ln_k_n = inputs.ln_k.len() / r;
-        let mut ln_k = vec![0.0; ln_k_n * d];
-        for c in 0..ln_k_n {
-            for f in 0..d {
-                ln_k[c * d + f] = (0..r)
+        });
+        let mut ln_k = vec![0.0; (inputs.ln_k.len() / r) * d];
+        fill_rows(&mut ln_k, d, parallel, |c, row| {
+            for (f, v) in row.iter_mut().enumerate() {
+                *v = (0..r)
                     .map(|j| reduced.w[j * d + f] * inputs.ln_k[c * r + j])
                     .sum();
             }
-        }
+        });
         let mut run = ReducedRun {
             reduced,
             amounts: vec![0.0; n * k],
