@@ -19,6 +19,11 @@ NRTL_B = {("EtOH", "H2O"): 150.0, ("H2O", "EtOH"): 300.0, ("EtOH", "EtOAc"): -80
 NRTL_ALPHA = {("EtOAc", "H2O"): 0.2}
 WILSON_A = {("AcOH", "H2O"): -0.3, ("H2O", "AcOH"): 0.2, ("EtOAc", "H2O"): -1.5, ("H2O", "EtOAc"): -0.6}
 WILSON_B = {("EtOH", "H2O"): -90.0, ("H2O", "EtOH"): -40.0, ("EtOAc", "EtOH"): 60.0}
+# UNIQUAC r and q of the four species (Poling, Prausnitz and O'Connell, 5th ed.,
+# Table 8-20 style values; from memory, used here only as inputs)
+UNIQUAC_R = {"AcOH": 2.2024, "EtOH": 2.1055, "EtOAc": 3.4786, "H2O": 0.92}
+UNIQUAC_Q = {"AcOH": 2.072, "EtOH": 1.972, "EtOAc": 3.116, "H2O": 1.40}
+UNIQUAC_B = {("EtOH", "H2O"): -60.0, ("H2O", "EtOH"): 40.0, ("EtOAc", "H2O"): -150.0, ("H2O", "EtOAc"): -30.0}
 
 
 def matrix(table: dict, default: float, symmetric: bool = False) -> np.ndarray:
@@ -34,12 +39,21 @@ def matrix(table: dict, default: float, symmetric: bool = False) -> np.ndarray:
 def excess_gibbs(kind: str, n: np.ndarray, T: float):
     """n g^E / (R T) for amounts n (complex allowed): NRTL
     sum_i n_i (sum_j x_j tau_ji G_ji) / (sum_k x_k G_ki); Wilson
-    -sum_i n_i ln(sum_j x_j Lambda_ij) (Renon and Prausnitz 1968; Wilson 1964)."""
+    -sum_i n_i ln(sum_j x_j Lambda_ij); UNIQUAC sum n_i ln(Phi_i / x_i) +
+    z/2 sum q_i n_i ln(theta_i / Phi_i) - sum q_i n_i ln(sum_j theta_j tau_ji)
+    (Renon and Prausnitz 1968; Wilson 1964; Abrams and Prausnitz 1975)."""
     x = n / n.sum()
     if kind == "nrtl":
         tau = matrix(NRTL_A, 0.0) + matrix(NRTL_B, 0.0) / T
         G = np.exp(-matrix(NRTL_ALPHA, 0.3, symmetric=True) * tau)
         return np.sum(n * ((x @ (tau * G)) / (x @ G)))
+    if kind == "uniquac":
+        r = np.array([UNIQUAC_R[k] for k in NAMES])
+        q = np.array([UNIQUAC_Q[k] for k in NAMES])
+        tau = np.exp(matrix(UNIQUAC_B, 0.0) / T)
+        phi, theta = r * x / (r @ x), q * x / (q @ x)
+        comb = np.sum(n * np.log(phi / x)) + 5.0 * np.sum(q * n * np.log(theta / phi))
+        return comb - np.sum(q * n * np.log(theta @ tau))
     lam = np.exp(matrix(WILSON_A, 0.0) + matrix(WILSON_B, 0.0) / T)
     return -np.sum(n * np.log(lam @ x))
 
@@ -63,6 +77,9 @@ def model(kind: str, among: tuple[str, ...] = tuple(NAMES)):
 
     if kind == "nrtl":
         return eqbatch.NRTL(a=keep(NRTL_A), b=keep(NRTL_B), alpha=keep(NRTL_ALPHA))
+    if kind == "uniquac":
+        per = {n: UNIQUAC_R[n] for n in among}, {n: UNIQUAC_Q[n] for n in among}
+        return eqbatch.UNIQUAC(r=per[0], q=per[1], b=keep(UNIQUAC_B))
     return eqbatch.Wilson(a=keep(WILSON_A), b=keep(WILSON_B))
 
 
@@ -76,7 +93,7 @@ def esterification(kind: str | None) -> eqbatch.ReactionSystem:
     )
 
 
-@pytest.mark.parametrize("kind", ["nrtl", "wilson"])
+@pytest.mark.parametrize("kind", ["nrtl", "wilson", "uniquac"])
 def test_activity_coefficients_against_the_excess_gibbs_energy(kind: str) -> None:
     # ln gamma at each equilibrium equals d(n g^E / RT)/dn_i of an independent
     # numpy g^E (complex step), and sum x_i ln gamma_i = g^E / RT (the
@@ -117,11 +134,12 @@ def test_esterification_against_an_independent_scipy_solution() -> None:
     assert abs(ideal.extents[0, 0] - xi) > 1e-3  # the model matters here
 
 
-@pytest.mark.parametrize("kind", ["nrtl", "wilson"])
+@pytest.mark.parametrize("kind", ["nrtl", "wilson", "uniquac"])
 def test_infinite_dilution_limits(kind: str) -> None:
     # A trace of ethyl acetate (x about 1e-13) in water: gamma at infinite
-    # dilution, NRTL ln g1_inf = tau_21 + tau_12 G_12 and Wilson
-    # ln g1_inf = 1 - ln Lambda_12 - Lambda_21 (textbook limits of the models)
+    # dilution, NRTL ln g1_inf = tau_21 + tau_12 G_12, Wilson
+    # ln g1_inf = 1 - ln Lambda_12 - Lambda_21 and UNIQUAC's limit below
+    # (textbook limits of the models)
     system = eqbatch.ReactionSystem(
         ["EtOAc", "H2O"],
         ["H2O = EtOAc"],
@@ -137,6 +155,19 @@ def test_infinite_dilution_limits(kind: str) -> None:
         tau = matrix(NRTL_A, 0.0) + matrix(NRTL_B, 0.0) / T
         alpha = matrix(NRTL_ALPHA, 0.3, symmetric=True)
         expected = tau[j, i] + tau[i, j] * math.exp(-alpha[i, j] * tau[i, j])
+    elif kind == "uniquac":
+        # ln(r1/r2) + z/2 q1 ln(q1 r2 / (q2 r1)) + l1 - (r1/r2) l2 + q1 (1 - ln tau_21 - tau_12)
+        r1, r2 = UNIQUAC_R["EtOAc"], UNIQUAC_R["H2O"]
+        q1, q2 = UNIQUAC_Q["EtOAc"], UNIQUAC_Q["H2O"]
+        l1, l2 = (5.0 * (r - q) - (r - 1.0) for r, q in ((r1, q1), (r2, q2)))
+        tau = np.exp(matrix(UNIQUAC_B, 0.0) / T)
+        expected = (
+            math.log(r1 / r2)
+            + 5.0 * q1 * math.log(q1 * r2 / (q2 * r1))
+            + l1
+            - r1 / r2 * l2
+            + q1 * (1.0 - math.log(tau[j, i]) - tau[i, j])
+        )
     else:
         lam = np.exp(matrix(WILSON_A, 0.0) + matrix(WILSON_B, 0.0) / T)
         expected = 1.0 - math.log(lam[i, j]) - lam[j, i]

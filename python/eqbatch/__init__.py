@@ -19,7 +19,7 @@ import importlib
 from typing import TYPE_CHECKING, Any
 
 from eqbatch._core import __version__ as _core_version
-from eqbatch.activity import NRTL, Wilson
+from eqbatch.activity import NRTL, UNIQUAC, Wilson
 from eqbatch.equations import parse_equation, parse_formula
 from eqbatch.errors import (
     AtomBalanceError,
@@ -102,6 +102,7 @@ __all__ = [
     "SweepSummary",
     "SystemDefinitionError",
     "SystemFileError",
+    "UNIQUAC",
     "UnboundedReactionsError",
     "UnknownSpeciesError",
     "Wilson",

@@ -10,7 +10,11 @@ temperature. The core solves the conditions by successive substitution on
   ``tau_ij = a_ij + b_ij / T``, ``G_ij = exp(-alpha_ij tau_ij)``;
 * :class:`Wilson` (J. Am. Chem. Soc. 86, 1964): ``Lambda_ij = exp(a_ij + b_ij / T)``
   (for the common form ``Lambda_ij = V_j / V_i exp(-lambda_ij / (R T))``,
-  ``a_ij = ln(V_j / V_i)`` and ``b_ij = -lambda_ij / R``).
+  ``a_ij = ln(V_j / V_i)`` and ``b_ij = -lambda_ij / R``);
+* :class:`UNIQUAC` (Abrams and Prausnitz, AIChE J. 21, 1975): volume and
+  area parameters ``r``, ``q`` per species, ``z = 10``,
+  ``tau_ij = exp(a_ij + b_ij / T)`` (for ``tau_ij = exp(-du_ij / (R T))``,
+  ``b_ij = -du_ij / R``).
 
 Parameters are given per ordered pair of species (``("EtOH", "H2O")`` is
 ``tau`` of ethanol in water's row, i.e. ``tau_12`` for ethanol 1, water 2);
@@ -54,7 +58,20 @@ class Wilson:
     code = 1
 
 
-LiquidModel = NRTL | Wilson
+@dataclass(frozen=True)
+class UNIQUAC:
+    """The UNIQUAC model of one solution phase: ``r`` and ``q`` of every
+    species of the phase, ``ln tau_ij = a_ij + b_ij / T`` (``b`` in K)."""
+
+    r: Mapping[str, float] = field(default_factory=dict)
+    q: Mapping[str, float] = field(default_factory=dict)
+    a: Pairs = field(default_factory=dict)
+    b: Pairs = field(default_factory=dict)
+
+    code = 2
+
+
+LiquidModel = NRTL | Wilson | UNIQUAC
 
 
 def read_liquid_models(
@@ -77,10 +94,21 @@ def read_liquid_models(
                 f"liquid_model: {phase!r} is no solution phase of the system (its species' phases: "
                 f"{', '.join(sorted(set(phases)))})"
             )
-        if not isinstance(model, (NRTL, Wilson)):
+        if not isinstance(model, (NRTL, Wilson, UNIQUAC)):
             raise SystemDefinitionError(
-                f"liquid_model[{phase!r}] must be NRTL(...) or Wilson(...), got {model!r}"
+                f"liquid_model[{phase!r}] must be NRTL(...), Wilson(...) or UNIQUAC(...), got {model!r}"
             )
+        if isinstance(model, UNIQUAC):
+            for name in ("r", "q"):
+                table = getattr(model, name)
+                missing = [m for m in members if m not in table]
+                if missing or set(table) - set(members):
+                    raise SystemDefinitionError(
+                        f"liquid_model[{phase!r}].{name} needs one value per species of the phase "
+                        f"({', '.join(members)})"
+                    )
+                if not all(math.isfinite(float(v)) and float(v) > 0 for v in table.values()):
+                    raise SystemDefinitionError(f"liquid_model[{phase!r}].{name}: values must be positive")
         tables = {"a": model.a, "b": model.b} | ({"alpha": model.alpha} if isinstance(model, NRTL) else {})
         for name, table in tables.items():
             for pair, value in table.items():
@@ -125,5 +153,7 @@ def core_arguments(
             return values
 
         alpha = matrix(model.alpha, 0.3, symmetric=True) if isinstance(model, NRTL) else [0.0] * (k * k)
-        out.append((model.code, members, matrix(model.a, 0.0), matrix(model.b, 0.0), alpha))
+        r = [float(model.r[n]) for n in names] if isinstance(model, UNIQUAC) else []
+        q = [float(model.q[n]) for n in names] if isinstance(model, UNIQUAC) else []
+        out.append((model.code, members, matrix(model.a, 0.0), matrix(model.b, 0.0), alpha, r, q))
     return out

@@ -27,7 +27,7 @@
 
 use rayon::prelude::*;
 
-use crate::activity::Solution;
+use crate::activity::{ActivityKind, Solution};
 use crate::batch::{on_threads, solve_batch, BatchInputs, BatchOutputs};
 use crate::eos::{Cubic, LnPhiError};
 use crate::error::CoreError;
@@ -188,10 +188,14 @@ pub fn solve_batch_real(
             .all(|&i| i < s && !system.is_pure(i))
             && [&solution.a, &solution.b, &solution.alpha]
                 .iter()
-                .all(|m| m.len() == k * k);
+                .all(|m| m.len() == k * k)
+            && (solution.kind != ActivityKind::Uniquac
+                || (solution.r.len() == k
+                    && solution.q.len() == k
+                    && solution.r.iter().chain(&solution.q).all(|v| *v > 0.0)));
         if !fits {
             return Err(CoreError::Shape(
-                "a solution model needs its species and k x k a, b and alpha".into(),
+                "a solution model needs its species, k x k a, b and alpha, and (UNIQUAC) positive r and q".into(),
             ));
         }
     }

@@ -24,9 +24,17 @@ type Solved<'py> = (
     Bound<'py, PyArray1<u64>>,
 );
 
-/// One solution phase's activity model as the binding takes it: (model,
-/// species, a, b, alpha).
-type SolutionArgs = (u8, Vec<usize>, Vec<f64>, Vec<f64>, Vec<f64>);
+/// One solution phase's activity model as the binding takes it: (model 0
+/// NRTL, 1 Wilson, 2 UNIQUAC; species, a, b, alpha, r, q).
+type SolutionArgs = (
+    u8,
+    Vec<usize>,
+    Vec<f64>,
+    Vec<f64>,
+    Vec<f64>,
+    Vec<f64>,
+    Vec<f64>,
+);
 
 type Sensitivities<'py> = (
     Bound<'py, PyArray3<f64>>,
@@ -63,13 +71,14 @@ fn non_ideal_parts(
         }),
     };
     let mut models = Vec::with_capacity(solutions.len());
-    for (code, species, a, b, alpha) in solutions {
+    for (code, species, a, b, alpha, r, q) in solutions {
         let kind = match code {
             0 => ActivityKind::Nrtl,
             1 => ActivityKind::Wilson,
+            2 => ActivityKind::Uniquac,
             _ => {
                 return Err(PyValueError::new_err(
-                    "a solution model is 0 (NRTL) or 1 (Wilson)",
+                    "a solution model is 0 (NRTL), 1 (Wilson) or 2 (UNIQUAC)",
                 ))
             }
         };
@@ -79,6 +88,8 @@ fn non_ideal_parts(
             a,
             b,
             alpha,
+            r,
+            q,
         });
     }
     Ok((eos, models))
