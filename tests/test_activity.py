@@ -237,3 +237,37 @@ def test_liquid_sensitivities_match_finite_differences() -> None:
         step[k] = h
         fd_f = (system.solve(feed + step, T=T).amounts - system.solve(feed - step, T=T).amounts)[0] / (2 * h)
         np.testing.assert_allclose(res.sensitivity("feed")[0, :, k], fd_f, rtol=1e-5, atol=1e-9)
+
+
+def test_a_system_file_describes_the_same_liquid_model(tmp_path) -> None:
+    def pairs(table: dict) -> str:
+        return "{ " + ", ".join(f'"{i}-{j}" = {v}' for (i, j), v in table.items()) + " }"
+
+    def per_species(table: dict) -> str:
+        return "{ " + ", ".join(f"{k} = {v}" for k, v in table.items()) + " }"
+
+    for kind, body in (
+        ("nrtl", [f"a = {pairs(NRTL_A)}", f"b = {pairs(NRTL_B)}", f"alpha = {pairs(NRTL_ALPHA)}"]),
+        (
+            "uniquac",
+            [f"r = {per_species(UNIQUAC_R)}", f"q = {per_species(UNIQUAC_Q)}", f"b = {pairs(UNIQUAC_B)}"],
+        ),
+    ):
+        path = tmp_path / f"{kind}.toml"
+        lines = [
+            f"species = {NAMES!r}".replace("'", '"'),
+            "check_balance = false",
+            "[[reactions]]",
+            'equation = "AcOH + EtOH = EtOAc + H2O"',
+            "[phases]",
+            *[f'{n} = "liquid"' for n in NAMES],
+            "[liquid_model.liquid]",
+            f'model = "{kind}"',
+            *body,
+        ]
+        path.write_text("\n".join(lines) + "\n")
+        from_file = eqbatch.ReactionSystem.from_toml(path)
+        a = from_file.solve([1.0, 1.2, 0.0, 0.3], lnK=math.log(4.0), T=340.0)
+        b = esterification(kind).solve([1.0, 1.2, 0.0, 0.3], lnK=math.log(4.0), T=340.0)
+        assert a.converged.all()
+        np.testing.assert_array_equal(a.amounts, b.amounts)

@@ -48,6 +48,16 @@ binary parameters (``"A-B"`` names a pair)::
     Tc = 405.4                  # K
     Pc = 113.53                 # bar
     omega = 0.256
+
+A solution phase takes an activity model (:mod:`eqbatch.activity`), pairs
+again as ``"A-B"``::
+
+    [liquid_model.liquid]       # the phase: "liquid" or "liquid:<name>"
+    model = "nrtl"              # or "wilson", "uniquac"
+    a = { "EtOH-H2O" = 0.4, "H2O-EtOH" = 0.9 }
+    b = { "EtOH-H2O" = 150.0 }  # K
+    alpha = { "EtOH-H2O" = 0.3 }
+    # uniquac: r = { EtOH = 2.1055, H2O = 0.92 }, q = { EtOH = 1.972, H2O = 1.40 }
 """
 
 from __future__ import annotations
@@ -58,6 +68,7 @@ from collections.abc import Callable
 from types import ModuleType
 from typing import Any
 
+from eqbatch.activity import NRTL, UNIQUAC, Wilson
 from eqbatch.definition import define
 from eqbatch.errors import SystemDefinitionError, SystemFileError
 from eqbatch.kdata import as_lnk_data
@@ -74,6 +85,7 @@ _TOP_KEYS = {
     "thermo",
     "gas",
     "critical",
+    "liquid_model",
 }
 _REACTION_KEYS = {"label", "equation", "lnK", "K", "log10K"}
 
@@ -114,6 +126,49 @@ def _gas_tables(doc: dict[str, Any], fail: Callable[[str], SystemFileError]) -> 
             raise fail(f'[gas] kij: {key!r} must name two species as "A-B" with a number')
         kij[(pair[0], pair[1])] = float(value)
     return {"gas_model": gas.get("model"), "critical": critical, "kij": kij or None}
+
+
+def _liquid_models(doc: dict[str, Any], fail: Callable[[str], SystemFileError]) -> dict[str, Any] | None:
+    """``liquid_model`` from ``[liquid_model.<phase>]`` tables."""
+    tables = doc.get("liquid_model")
+    if tables is None:
+        return None
+    if not isinstance(tables, dict) or not all(isinstance(t, dict) for t in tables.values()):
+        raise fail("[liquid_model.<phase>] tables hold model and its parameters")
+    kinds = {
+        "nrtl": (NRTL, {"a", "b", "alpha"}),
+        "wilson": (Wilson, {"a", "b"}),
+        "uniquac": (UNIQUAC, {"a", "b", "r", "q"}),
+    }
+    out: dict[str, Any] = {}
+    for phase, table in tables.items():
+        kind = str(table.get("model", "")).lower()
+        if kind not in kinds:
+            raise fail(
+                f'[liquid_model.{phase}] model must be "nrtl", "wilson" or "uniquac"; '
+                f"got {table.get('model')!r}"
+            )
+        cls, keys = kinds[kind]
+        bad = set(table) - keys - {"model"}
+        if bad:
+            raise fail(f"[liquid_model.{phase}]: unknown key(s) {sorted(bad)}; valid are {sorted(keys)}")
+        args: dict[str, Any] = {}
+        for key in keys & set(table):
+            values = table[key]
+            if not isinstance(values, dict) or not all(isinstance(v, (int, float)) for v in values.values()):
+                raise fail(f"[liquid_model.{phase}] {key} is a table of numbers")
+            if key in ("r", "q"):
+                args[key] = {str(k): float(v) for k, v in values.items()}
+                continue
+            pairs = {}
+            for name, value in values.items():
+                pair = tuple(str(name).split("-"))
+                if len(pair) != 2:
+                    raise fail(f'[liquid_model.{phase}] {key}: {name!r} must name two species as "A-B"')
+                pairs[pair] = float(value)
+            args[key] = pairs
+        out[phase] = cls(**args)
+    return out
 
 
 def _thermo_source(doc: dict[str, Any], fail: Callable[[str], SystemFileError]) -> str | None:
@@ -232,6 +287,7 @@ def read_spec(path: str | os.PathLike[str]) -> SystemSpec:
             species_data=species_data,
             thermo=_thermo_source(doc, fail),
             **_gas_tables(doc, fail),
+            liquid_model=_liquid_models(doc, fail),
         )
     except SystemDefinitionError as err:
         raise type(err)(f"{name}: {err}") from None
