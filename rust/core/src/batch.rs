@@ -953,6 +953,14 @@ impl ChunkState {
                 absent &= !mask;
                 extents.to_vec()
             });
+            // (every phase present once the forming ones are: one solve first)
+            if let (Some(x0), 0) = (start.as_deref(), absent) {
+                if let Some((status, iterations)) = presence::solve_all_present(
+                    system, &case, options, workspace, amounts, extents, x0,
+                ) {
+                    return (status, iterations, 0);
+                }
+            }
             let from = (absent, start.as_deref());
             let found =
                 presence::decide_phases(system, &case, options, workspace, amounts, extents, from);

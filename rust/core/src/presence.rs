@@ -97,6 +97,41 @@ pub fn initially_absent(system: &System, feed: &[f64]) -> u64 {
     mask
 }
 
+/// A case whose reduced answer (`start`, extents) showed its pure phases
+/// forming, solved at once with every phase present: the start blended
+/// with a little of the face's interior point, one solve on the case's own
+/// face. `Some` when that converges with every phase holding material (a
+/// stable point where no phase is absent is the equilibrium: the Gibbs
+/// function is convex); `None` sends the case to [`decide_phases`] (the
+/// outputs are then overwritten there).
+pub(crate) fn solve_all_present(
+    system: &System,
+    case: &Case,
+    options: &SolveOptions,
+    ws: &mut Workspace,
+    amounts: &mut [f64],
+    extents: &mut [f64],
+    start: &[f64],
+) -> Option<(Status, u32)> {
+    let mut x = start.to_vec();
+    blended(system, case.face, case.feed, &mut x, &[]);
+    let again = Case {
+        start: Some(&x),
+        ..*case
+    };
+    let (status, iterations) = ws.solve(system, &again, options, amounts, extents);
+    if !status.is_converged() {
+        return None;
+    }
+    let mut totals = [0.0; crate::system::MAX_PHASES];
+    for i in 0..system.n_species() {
+        totals[system.phase_index(i)] += amounts[i];
+    }
+    (0..system.n_phases())
+        .all(|phase| totals[phase] > 0.0)
+        .then_some((status, iterations))
+}
+
 /// For a case that stalled with every phase present: try each phase absent
 /// first (solutions, then the gas: a condensate that should not form is the
 /// common case) and search from there ([`decide_phases`]). `None` when no
