@@ -422,3 +422,24 @@ def test_a_large_condensed_batch_equals_its_pieces_and_the_closed_form() -> None
         part = system.solve(feed[lo:hi], K=K[lo:hi, None], P=2.0, threads=1)
         np.testing.assert_array_equal(part.amounts, whole.amounts[lo:hi])
         np.testing.assert_array_equal(part.absent, whole.absent[lo:hi])
+
+
+def test_an_empty_sweep_has_the_schema_of_a_full_one(tmp_path) -> None:
+    # the output of an input without rows types every column as a run with
+    # rows does (present_C bool, status_name dictionary-encoded), so that the
+    # files of a dataset concatenate
+    import pyarrow as pa
+    import pyarrow.parquet as pq
+    from eqbatch.sweeps import sweep
+
+    system = eqbatch.ReactionSystem(BOUDOUARD, ["C + CO2 = 2 CO"], phases={"C": "solid"})
+    full = pa.table({"feed_C": [0.5], "feed_CO2": [1.0], "lnK_r1": [0.0], "P_bar": [1.0]})
+    pq.write_table(full, tmp_path / "full.parquet")
+    pq.write_table(full.slice(0, 0), tmp_path / "empty.parquet")
+    for name in ("full", "empty"):
+        sweep(system, tmp_path / f"{name}.parquet", tmp_path / f"{name}_out.parquet", quiet=True)
+    full_schema = pq.read_schema(tmp_path / "full_out.parquet")
+    empty_schema = pq.read_schema(tmp_path / "empty_out.parquet")
+    assert full_schema.field("present_C").type == pa.bool_()
+    assert pa.types.is_dictionary(full_schema.field("status_name").type)
+    assert empty_schema.remove_metadata().equals(full_schema.remove_metadata())

@@ -4,16 +4,18 @@ A result table (``result.to_pandas()``, ``result.to_arrow()``, a Parquet
 sweep's output) has the inputs ``feed_<species>``, ``P_bar``, ``T_K`` and
 ``lnK_<label>``, then the outputs ``n_<species>``, ``y_<species>``,
 ``extent_<label>``, ``conversion_<species>`` (sweeps: the fed species that
-react), ``status`` and ``iterations``; systems with pure condensed species
+react), ``status``, ``status_name`` and ``iterations``; systems with pure condensed species
 add ``present_<species>`` and ``activity_<species>`` for each of them.
 """
 
 from __future__ import annotations
 
 from collections.abc import Iterable, Mapping
+from typing import Any
 
 import numpy as np
 
+from eqbatch import _core
 from eqbatch.errors import CaseInputError
 from eqbatch.spec import PURE_KINDS, SystemSpec
 
@@ -22,6 +24,9 @@ LNK = "lnK_"
 PRESSURE = "P_bar"
 TEMPERATURE = "T_K"
 STATUS = "status"
+#: The status's name beside its code (dictionary-encoded in Parquet, a
+#: categorical in pandas).
+STATUS_NAME = "status_name"
 ITERATIONS = "iterations"
 #: Optional sweep inputs: an energy-balance row (adiabatic, or a heat duty in kJ
 #: per case), the feed's temperature, and a per-reaction approach (K).
@@ -73,20 +78,21 @@ def input_names(spec: SystemSpec, *, temperature: bool) -> list[str]:
 
 def output_names(spec: SystemSpec, converted: Iterable[str] = ()) -> list[str]:
     """``n_<species>``, ``y_<species>``, ``extent_<label>``, ``conversion_<c>``
-    for each species ``c`` in ``converted``, ``status``, ``iterations``.
+    for each species ``c`` in ``converted``, ``status``, ``status_name``,
+    ``iterations``.
 
     Examples
     --------
     >>> from eqbatch import ReactionSystem
     >>> output_names(ReactionSystem(["Xa", "Xb"], {"iso": "Xa = Xb"}), ["Xa"])
-    ['n_Xa', 'n_Xb', 'y_Xa', 'y_Xb', 'extent_iso', 'conversion_Xa', 'status', 'iterations']
+    ['n_Xa', 'n_Xb', 'y_Xa', 'y_Xb', 'extent_iso', 'conversion_Xa', 'status', 'status_name', 'iterations']
     """
     return (
         [AMOUNT + name for name in spec.species]
         + [FRACTION + name for name in spec.species]
         + [EXTENT + label for label in spec.labels]
         + [CONVERSION + name for name in converted]
-        + [STATUS, ITERATIONS]
+        + [STATUS, STATUS_NAME, ITERATIONS]
     )
 
 
@@ -107,10 +113,38 @@ def output_columns(
     iterations: np.ndarray,
     conversions: Mapping[str, np.ndarray] | None = None,
 ) -> dict[str, np.ndarray]:
-    """The output columns (:func:`output_names`) of ``N`` cases, as views of the arrays."""
+    """The output columns (:func:`output_names`) of ``N`` cases, as views of
+    the arrays (``status_name`` holds the codes: :func:`status_names` makes
+    the names)."""
     conversions = conversions or {}
-    values = [*amounts.T, *mole_fractions.T, *extents.T, *conversions.values(), status, iterations]
+    values = [*amounts.T, *mole_fractions.T, *extents.T, *conversions.values(), status, status, iterations]
     return dict(zip(output_names(spec, conversions), values))
+
+
+#: Every status's name, by code (the core's table).
+STATUS_NAMES = tuple(name for _, name, _ in _core.STATUS_TABLE)
+
+
+def status_names(codes: np.ndarray, kind: str) -> Any:
+    """The ``status_name`` column of ``codes``: ``kind`` ``"arrow"`` a
+    dictionary-encoded pyarrow array, ``"pandas"`` a categorical, ``"numpy"``
+    an array of strings.
+
+    Examples
+    --------
+    >>> status_names(np.array([0, 4], dtype=np.uint8), "numpy").tolist()
+    ['CONVERGED', 'STALLED']
+    """
+    codes = np.asarray(codes, dtype=np.uint8)
+    if kind == "arrow":
+        import pyarrow as pa
+
+        return pa.DictionaryArray.from_arrays(pa.array(codes, pa.uint8()), pa.array(STATUS_NAMES))
+    if kind == "pandas":
+        import pandas as pd
+
+        return pd.Categorical.from_codes(codes, categories=pd.Index(list(STATUS_NAMES)))
+    return np.array(STATUS_NAMES)[codes]
 
 
 def pure_species(spec: SystemSpec) -> list[str]:

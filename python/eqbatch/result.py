@@ -9,7 +9,15 @@ from typing import Any
 import numpy as np
 
 from eqbatch import _core, outputs
-from eqbatch.columns import T_OUT, input_columns, output_columns, phase_columns, phase_names
+from eqbatch.columns import (
+    STATUS_NAME,
+    T_OUT,
+    input_columns,
+    output_columns,
+    phase_columns,
+    phase_names,
+    status_names,
+)
 from eqbatch.errors import CaseInputError
 from eqbatch.spec import SystemSpec
 from eqbatch.status import CONVERGED_CODES, Status, status_words
@@ -760,7 +768,7 @@ class EquilibriumResult:
         >>> res = ReactionSystem(["Xa", "Xb"], {"iso": "Xa = Xb"}).solve([1.0, 0.0], lnK=0.0)
         >>> list(res.columns())  # doctest: +NORMALIZE_WHITESPACE
         ['feed_Xa', 'feed_Xb', 'P_bar', 'lnK_iso', 'n_Xa', 'n_Xb', 'y_Xa', 'y_Xb', 'extent_iso',
-         'status', 'iterations']
+         'status', 'status_name', 'iterations']
         """
         spec = self.system
         balance = self.T_in is not None  # an energy balance: T_K is the inlet, T_out_K the outlet
@@ -796,7 +804,12 @@ class EquilibriumResult:
         """
         import pandas as pd
 
-        return pd.DataFrame({k: np.ascontiguousarray(v) for k, v in self.columns(inputs).items()})
+        return pd.DataFrame(
+            {
+                k: status_names(v, "pandas") if k == STATUS_NAME else np.ascontiguousarray(v)
+                for k, v in self.columns(inputs).items()
+            }
+        )
 
     def to_arrow(self, inputs: bool = True) -> Any:
         """A :class:`pyarrow.Table` with one row per case.
@@ -820,7 +833,12 @@ class EquilibriumResult:
         import pyarrow as pa
 
         cols = self.columns(inputs)
-        return pa.table({k: pa.array(np.ascontiguousarray(v)) for k, v in cols.items()})
+        return pa.table(
+            {
+                k: status_names(v, "arrow") if k == STATUS_NAME else pa.array(np.ascontiguousarray(v))
+                for k, v in cols.items()
+            }
+        )
 
 
 class EnergyBalance:

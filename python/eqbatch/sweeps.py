@@ -89,6 +89,7 @@ from eqbatch.columns import (
     PRESENT,
     PRESSURE,
     STATUS,
+    STATUS_NAME,
     T_IN,
     T_OUT,
     TEMPERATURE,
@@ -96,6 +97,7 @@ from eqbatch.columns import (
     output_names,
     phase_columns,
     phase_names,
+    status_names,
 )
 from eqbatch.errors import CaseInputError, EqbatchError
 from eqbatch.status import CONVERGED_CODES, Status, status_words
@@ -448,7 +450,9 @@ class _Plan:
             outs = self._outputs([(np.arange(n), res, T)], n)
         else:
             outs = self._outputs(self._solve_rows(column, feed, P, n, options), n)
-        arrays = list(batch.columns) + [pa.array(v) for v in outs.values()]
+        arrays = list(batch.columns) + [
+            status_names(v, "arrow") if k == STATUS_NAME else pa.array(v) for k, v in outs.items()
+        ]
         table = pa.Table.from_arrays(arrays, names=self.names + list(outs))
         return table, outs[STATUS]
 
@@ -1052,7 +1056,17 @@ def _empty_output(plan: _Plan, schema: Any) -> Any:
     pa, _ = _pa()
     fields = list(schema)
     for name in plan.output_names():
-        kind = pa.uint8() if name == STATUS else pa.uint32() if name == ITERATIONS else pa.float64()
+        kind = (
+            pa.uint8()
+            if name == STATUS
+            else pa.dictionary(pa.uint8(), pa.string())
+            if name == STATUS_NAME
+            else pa.uint32()
+            if name == ITERATIONS
+            else pa.bool_()
+            if name.startswith(PRESENT)
+            else pa.float64()
+        )
         fields.append(pa.field(name, kind))
     return pa.schema(fields).empty_table()
 
@@ -1148,8 +1162,10 @@ def sweep(
     ...     columns = pq.read_table(f"{folder}/out.parquet").column_names
     >>> summary.rows, summary.converged
     (2, 2)
-    >>> columns[:3], columns[-4:]
-    (['feed_CH4', 'feed_H2O', 'T_K'], ['conversion_CH4', 'conversion_H2O', 'status', 'iterations'])
+    >>> columns[:3]
+    ['feed_CH4', 'feed_H2O', 'T_K']
+    >>> columns[-5:]
+    ['conversion_CH4', 'conversion_H2O', 'status', 'status_name', 'iterations']
     """
     src, dst = Path(input), Path(output)
     options = {"tol": tol, "max_iter": max_iter, "threads": threads}
