@@ -323,3 +323,33 @@ def test_quiet_sweep_and_plot_errors(tmp_path, capsys) -> None:
     )
     err = capsys.readouterr().err
     assert code == 2 and "no column 'y_H3'" in err and err.count("\n") == 1
+
+
+def test_pressure_and_temperature_columns_in_plant_units(tmp_path) -> None:
+    # the same cases given as T_C / P_psig, T_K / P_kPa and T_K / P_bar give
+    # the same equilibrium; conversions checked by hand: 0 C = 273.15 K,
+    # 1 psi = 0.0689475729 bar (exact from the pound-force and inch
+    # definitions), gauge against 1.01325 bar (the standard atmosphere)
+    n = 50
+    rng = np.random.default_rng(4)
+    T_K, P_bar = rng.uniform(800.0, 1100.0, n), rng.uniform(2.0, 30.0, n)
+    feed = {"feed_CH4": np.ones(n), "feed_H2O": np.full(n, 3.0)}
+    forms = {
+        "si": {"T_K": T_K, "P_bar": P_bar},
+        "plant": {"T_C": T_K - 273.15, "P_psig": (P_bar - 1.01325) / 0.0689475729},
+        "kpa": {"T_K": T_K, "P_kPa": P_bar * 100.0},
+    }
+    system = reformer_system()
+    out = {}
+    for name, cols in forms.items():
+        pq.write_table(pa.table(feed | cols), tmp_path / f"{name}.parquet")
+        sweep(system, tmp_path / f"{name}.parquet", tmp_path / f"{name}_out.parquet", quiet=True)
+        out[name] = pq.read_table(tmp_path / f"{name}_out.parquet")
+    for name in ("plant", "kpa"):
+        np.testing.assert_allclose(
+            out[name].column("y_H2").to_numpy(), out["si"].column("y_H2").to_numpy(), rtol=1e-9
+        )
+        assert out[name].column_names[:4] == list(feed | forms[name])  # the input columns as given
+    pq.write_table(pa.table(feed | {"T_K": T_K, "T_C": T_K - 273.15}), tmp_path / "both.parquet")
+    with pytest.raises(SweepError, match="more than one temperature column"):
+        sweep(system, tmp_path / "both.parquet", tmp_path / "both_out.parquet", quiet=True)

@@ -102,6 +102,7 @@ from eqbatch.columns import (
 from eqbatch.errors import CaseInputError, EqbatchError
 from eqbatch.status import CONVERGED_CODES, Status, status_words
 from eqbatch.system import ReactionSystem
+from eqbatch.units import PRESSURE_COLUMNS, TEMPERATURE_COLUMNS, pressure_to_bar, temperature_to_kelvin
 
 #: Rows per record batch by default.
 DEFAULT_BATCH_SIZE = 65_536
@@ -335,14 +336,23 @@ class _Plan:
             )
         if missing:
             say(f"{path}: no column for {', '.join(FEED + m for m in missing)}: taken as zero feed")
-        self.p_col = PRESSURE if PRESSURE in names else None
+        # (one pressure and one temperature column at most, in any unit of
+        # eqbatch.units; read as bar absolute and kelvin)
+        given_p = [c for c in PRESSURE_COLUMNS if c in names]
+        given_t = [c for c in TEMPERATURE_COLUMNS if c in names]
+        for kind, given in (("pressure", given_p), ("temperature", given_t)):
+            if len(given) > 1:
+                raise SweepError(f"{path}: more than one {kind} column ({', '.join(given)}); give one")
+        self.p_col = given_p[0] if given_p else None
+        self.p_si = pressure_to_bar(self.p_col) if self.p_col else (1.0, 0.0)
         if self.p_col:
-            need_numeric(PRESSURE)
+            need_numeric(self.p_col)
         else:
             say(f"{path}: no {PRESSURE} column: every case at P0 = {system.P0:g} bar")
-        self.t_col = TEMPERATURE if TEMPERATURE in names else None
+        self.t_col = given_t[0] if given_t else None
+        self.t_si = temperature_to_kelvin(self.t_col) if self.t_col else (1.0, 0.0)
         if self.t_col:
-            need_numeric(TEMPERATURE)
+            need_numeric(self.t_col)
         lnk = [LNK + label for label in system.labels]
         present = [c for c in lnk if c in names]
         if present and len(present) != len(lnk):
@@ -412,6 +422,14 @@ class _Plan:
         if clash:
             raise SweepError(f"{path}: input already has output column(s) {', '.join(clash)}")
 
+    @staticmethod
+    def _si(column: Any, name: str, scale: tuple[float, float]) -> np.ndarray:
+        """Column ``name`` in the engine's units (``value * factor + offset``;
+        the column itself when it is in them already)."""
+        values = column(name)
+        factor, offset = scale
+        return values if (factor, offset) == (1.0, 0.0) else values * factor + offset
+
     def output_names(self) -> list[str]:
         """The columns a batch's solve adds to its input columns."""
         return output_names(self.system, self.conversion) + phase_names(self.system) + self.energy_names()
@@ -438,14 +456,18 @@ class _Plan:
         for k, col in enumerate(self.feed_cols):
             if col is not None:
                 feed[:, k] = column(col)
-        P = np.ascontiguousarray(column(self.p_col)) if self.p_col else np.full(n, self.system.P0)
+        P = (
+            np.ascontiguousarray(self._si(column, self.p_col, self.p_si))
+            if self.p_col
+            else np.full(n, self.system.P0)
+        )
         if self.lnk_cols:
-            T_given = column(self.t_col) if self.t_col else None  # kept for the energy outputs
+            T_given = self._si(column, self.t_col, self.t_si) if self.t_col else None  # for energy outputs
             lnk = np.column_stack([column(c) for c in self.lnk_cols])
             res = self.system.solve(feed, lnK=lnk, T=T_given, P=P, **options)
             outs = self._outputs([(np.arange(n), res, T_given)], n)
         elif not (self.balance or self.approach_cols or self.t_in_col):
-            T = column(self.t_col) if self.t_col else None
+            T = self._si(column, self.t_col, self.t_si) if self.t_col else None
             res = self.system.solve(feed, P=P, T=T, **options)
             outs = self._outputs([(np.arange(n), res, T)], n)
         else:
@@ -464,7 +486,7 @@ class _Plan:
         whose approach is not a finite, non-negative number, or an
         energy-balance row with an approach, gets a NaN temperature (invalid
         input)."""
-        T = column(self.t_col) if self.t_col else np.full(n, np.nan)
+        T = self._si(column, self.t_col, self.t_si) if self.t_col else np.full(n, np.nan)
         T_feed = T  # the feed's temperature: T_in_K where given, else T_K
         if self.t_in_col:
             T_in = column(self.t_in_col)
