@@ -135,3 +135,25 @@ def test_bad_pressure_on_the_command_line_is_one_line(system_file, capsys) -> No
     assert main(["solve", str(system_file), "--feed", "CH4=1,H2O=3", "--T", "1000", "--P", "-5"]) == 2
     err = capsys.readouterr().err
     assert err.startswith("eqbatch: error: case 0: the pressure -5.0 bar") and err.count("\n") == 1
+
+
+def test_solve_takes_temperature_and_pressure_with_their_units() -> None:
+    # --T 870C --P 29barg is T = 1143.15 K and P = 30.01325 bar absolute
+    # (0 C = 273.15 K; gauge against the standard atmosphere, 1.01325 bar):
+    # the same printout as the SI arguments
+    import eqbatch
+    from eqbatch.units import parse_pressure, parse_temperature
+
+    assert parse_temperature("870C") == pytest.approx(1143.15, abs=1e-9)
+    assert parse_pressure("29barg") == pytest.approx(30.01325, abs=1e-12)
+    assert parse_pressure("435psig") == pytest.approx(435 * 0.0689475729317 + 1.01325, rel=1e-10)
+    system = str(Path(eqbatch.__file__).parent / "data" / "reformer.toml")
+
+    def run(*extra: str) -> subprocess.CompletedProcess:
+        cmd = [sys.executable, "-m", "eqbatch", "solve", system, "--feed", "CH4=1,H2O=3", *extra]
+        return subprocess.run(cmd, capture_output=True, text=True)
+
+    plant, si = run("--T", "870C", "--P", "29barg"), run("--T", "1143.15", "--P", "30.01325")
+    assert plant.returncode == 0 and plant.stdout == si.stdout
+    bad = run("--T", "870F")
+    assert bad.returncode != 0 and "unknown temperature unit" in bad.stderr

@@ -38,6 +38,7 @@ from eqbatch.status import Status
 from eqbatch.sweeps import sweep
 from eqbatch.system import ReactionSystem
 from eqbatch.uncertainty import monte_carlo
+from eqbatch.units import parse_pressure, parse_temperature
 
 
 class _UsageError(EqbatchError):
@@ -394,6 +395,22 @@ def _species_data_lines(system: SystemSpec, *, short: bool = False) -> list[str]
     return lines
 
 
+def _temperature(text: str) -> float:
+    """``--T`` in kelvin (a bare number) or with its unit (``870C``)."""
+    try:
+        return parse_temperature(text)
+    except ValueError as err:
+        raise argparse.ArgumentTypeError(str(err)) from None
+
+
+def _pressure(text: str) -> float:
+    """``--P`` in bar absolute (a bare number) or with its unit (``29barg``)."""
+    try:
+        return parse_pressure(text)
+    except ValueError as err:
+        raise argparse.ArgumentTypeError(str(err)) from None
+
+
 def _cmd_thermo(args: argparse.Namespace) -> int:
     lo, hi, count = _temperature_range(args.T)
     system = ReactionSystem.from_toml(args.system)
@@ -460,8 +477,15 @@ def _parser() -> argparse.ArgumentParser:
         metavar="SPECIES=MOL[,...]",
         help="feed amounts, mol (repeatable; missing species are zero)",
     )
-    solve.add_argument("--T", type=float, metavar="KELVIN", help="temperature, for K(T) data")
-    solve.add_argument("--P", type=float, metavar="BAR", help="pressure, bar (default: the system's P0)")
+    solve.add_argument(
+        "--T", type=_temperature, metavar="T", help="temperature, for K(T) data: 1143 or 1143K, 870C"
+    )
+    solve.add_argument(
+        "--P",
+        type=_pressure,
+        metavar="P",
+        help="pressure (default: the system's P0): 30 or 30bar, 29barg, 3MPa, 435psig (gauge: 1.01325 bar)",
+    )
     solve.add_argument("--lnK", action="append", metavar="LABEL=VALUE[,...]", help="ln K per reaction")
     solve.add_argument("--K", action="append", metavar="LABEL=VALUE[,...]", help="K per reaction")
     solve.add_argument("--log10K", action="append", metavar="LABEL=VALUE[,...]", help="log10 K per reaction")
@@ -490,8 +514,10 @@ def _parser() -> argparse.ArgumentParser:
     unc = sub.add_parser("uncertainty", help="Monte Carlo on uncertain equilibrium constants for one case")
     unc.add_argument("system", help="system file (TOML)")
     unc.add_argument("--feed", action="append", metavar="SPECIES=MOL[,...]", help="feed amounts, mol")
-    unc.add_argument("--T", type=float, metavar="KELVIN", help="temperature, for K(T) data and dG sigmas")
-    unc.add_argument("--P", type=float, metavar="BAR", help="pressure, bar (default: P0)")
+    unc.add_argument(
+        "--T", type=_temperature, metavar="T", help="temperature, for K(T) data and dG sigmas: 1143, 870C"
+    )
+    unc.add_argument("--P", type=_pressure, metavar="P", help="pressure (default: P0): 30, 29barg, 3MPa")
     unc.add_argument("--lnK", action="append", metavar="LABEL=VALUE[,...]", help="nominal ln K")
     unc.add_argument("--lnK-sigma", action="append", metavar="LABEL=SIGMA[,...]", help="std. dev. of ln K")
     unc.add_argument(

@@ -11,6 +11,7 @@ matters.
 from __future__ import annotations
 
 import functools
+import re
 from typing import Any
 
 #: A standard atmosphere in bar: the reference of gauge pressures.
@@ -66,3 +67,64 @@ def temperature_to_kelvin(column: str) -> tuple[float, float]:
     offset = float(q(0.0, unit).to("kelvin").magnitude)
     factor = float(q(1.0, unit).to("kelvin").magnitude) - offset
     return factor, offset
+
+
+#: Units a command-line pressure may carry, and whether gauge.
+_PRESSURE_UNITS = {
+    "bar": ("bar", False),
+    "bara": ("bar", False),
+    "barg": ("bar", True),
+    "kpa": ("kPa", False),
+    "mpa": ("MPa", False),
+    "atm": ("atm", False),
+    "psi": ("psi", False),
+    "psia": ("psi", False),
+    "psig": ("psi", True),
+}
+#: Units a command-line temperature may carry.
+_TEMPERATURE_UNITS = {"k": "kelvin", "c": "degC", "degc": "degC"}
+
+
+def _split(text: str) -> tuple[float, str]:
+    match = re.fullmatch(r"\s*([-+]?[0-9.]+(?:[eE][-+]?[0-9]+)?)\s*([A-Za-z]*)\s*", text)
+    if not match:
+        raise ValueError(f"{text!r} is not a number with an optional unit")
+    return float(match.group(1)), match.group(2).lower()
+
+
+def parse_pressure(text: str) -> float:
+    """A pressure as typed (``30``, ``30bar``, ``29barg``, ``3MPa``,
+    ``435psig``) in bar absolute; a bare number is bar.
+
+    Examples
+    --------
+    >>> parse_pressure("29barg"), parse_pressure("3 MPa"), parse_pressure("12")
+    (30.01325, 30.0, 12.0)
+    """
+    value, unit = _split(text)
+    if not unit:
+        return value
+    if unit not in _PRESSURE_UNITS:
+        raise ValueError(
+            f"unknown pressure unit {unit!r} in {text!r}; use one of {', '.join(_PRESSURE_UNITS)}"
+        )
+    name, gauge = _PRESSURE_UNITS[unit]
+    bar = float(_registry().Quantity(value, name).to("bar").magnitude)
+    return bar + (ATMOSPHERE_BAR if gauge else 0.0)
+
+
+def parse_temperature(text: str) -> float:
+    """A temperature as typed (``1143``, ``1143K``, ``870C``) in kelvin; a
+    bare number is kelvin.
+
+    Examples
+    --------
+    >>> parse_temperature("870C"), parse_temperature("900")
+    (1143.15, 900.0)
+    """
+    value, unit = _split(text)
+    if not unit:
+        return value
+    if unit not in _TEMPERATURE_UNITS:
+        raise ValueError(f"unknown temperature unit {unit!r} in {text!r}; use K or C")
+    return float(_registry().Quantity(value, _TEMPERATURE_UNITS[unit]).to("kelvin").magnitude)
