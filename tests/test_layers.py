@@ -131,7 +131,11 @@ def test_a_description_is_immutable_and_survives_pickling() -> None:
 def test_result_tables_and_sweeps_name_their_columns_alike(tmp_path: Path) -> None:
     system = reformer_system()
     res = system.solve([0.98, 2.94, 0.0, 0.0, 0.0, 0.02], T=[900.0, 1000.0], P=5.0)
-    expected = columns.input_names(system, temperature=True) + columns.output_names(system)
+    expected = (
+        columns.input_names(system, temperature=True)
+        + columns.output_names(system)
+        + columns.dry_names(system)
+    )
     assert list(res.columns()) == expected
     assert list(res.to_pandas().columns) == expected
     cases = {name: res.columns()[name] for name in columns.input_names(system, temperature=True)}
@@ -139,8 +143,10 @@ def test_result_tables_and_sweeps_name_their_columns_alike(tmp_path: Path) -> No
     eqbatch.sweep(system, tmp_path / "cases.parquet", tmp_path / "out.parquet", quiet=True)
     table = pq.read_table(tmp_path / "out.parquet")
     # every species has a feed column, so every reacting one gets a conversion column
-    assert table.column_names == list(cases) + columns.output_names(system, system.reacting_species())
-    for name in columns.output_names(system):
+    assert table.column_names == (
+        list(cases) + columns.output_names(system, system.reacting_species()) + columns.dry_names(system)
+    )
+    for name in columns.output_names(system) + columns.dry_names(system):
         if name == columns.STATUS_NAME:  # dictionary-encoded names of the codes
             names = [eqbatch.Status(code).name for code in res.status]
             assert table.column(name).to_pylist() == names

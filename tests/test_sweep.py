@@ -353,3 +353,34 @@ def test_pressure_and_temperature_columns_in_plant_units(tmp_path) -> None:
     pq.write_table(pa.table(feed | {"T_K": T_K, "T_C": T_K - 273.15}), tmp_path / "both.parquet")
     with pytest.raises(SweepError, match="more than one temperature column"):
         sweep(system, tmp_path / "both.parquet", tmp_path / "both_out.parquet", quiet=True)
+
+
+def test_dry_basis_columns(tmp_path) -> None:
+    # ydry_<species> = n_i / (gas total - water), as an analyser after a
+    # condenser reads it (common practice); none for water itself; a system
+    # that says condensable=[] has no dry columns, and one naming CO2 too
+    # leaves both out
+    n = 40
+    rng = np.random.default_rng(8)
+    table = pa.table(
+        {"feed_CH4": np.ones(n), "feed_H2O": rng.uniform(1.0, 4.0, n), "T_K": rng.uniform(800.0, 1100.0, n)}
+    )
+    pq.write_table(table, tmp_path / "in.parquet")
+    system = reformer_system()
+    sweep(system, tmp_path / "in.parquet", tmp_path / "out.parquet", quiet=True)
+    out = pq.read_table(tmp_path / "out.parquet")
+    amounts = np.column_stack([out.column(f"n_{s}").to_numpy() for s in system.species])
+    dry = [s for s in system.species if s != "H2O"]
+    total = sum(out.column(f"n_{s}").to_numpy() for s in dry)
+    for s in dry:
+        np.testing.assert_allclose(
+            out.column(f"ydry_{s}").to_numpy(), out.column(f"n_{s}").to_numpy() / total, rtol=1e-14
+        )
+    assert "ydry_H2O" not in out.column_names
+    res = system.solve(amounts[:1] * 0 + [1.0, 2.0, 0, 0, 0, 0.02], T=950.0)
+    np.testing.assert_allclose(np.nansum(res.dry_mole_fractions, axis=1), 1.0, rtol=1e-14)
+    none = eqbatch.ReactionSystem(**(system.arguments() | {"condensable": []}))
+    assert not [c for c in none.solve([1.0, 2.0, 0, 0, 0, 0.02], T=950.0).columns() if c.startswith("ydry_")]
+    two = eqbatch.ReactionSystem(**(system.arguments() | {"condensable": ["H2O", "CO2"]}))
+    cols = [c for c in two.solve([1.0, 2.0, 0, 0, 0, 0.02], T=950.0).columns() if c.startswith("ydry_")]
+    assert cols == ["ydry_CH4", "ydry_CO", "ydry_H2", "ydry_N2"]

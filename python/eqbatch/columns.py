@@ -5,7 +5,9 @@ sweep's output) has the inputs ``feed_<species>``, ``P_bar``, ``T_K`` and
 ``lnK_<label>``, then the outputs ``n_<species>``, ``y_<species>``,
 ``extent_<label>``, ``conversion_<species>`` (sweeps: the fed species that
 react), ``status``, ``status_name`` and ``iterations``; systems with pure condensed species
-add ``present_<species>`` and ``activity_<species>`` for each of them.
+add ``present_<species>`` and ``activity_<species>`` for each of them;
+systems whose gas holds a condensable species (water by default) add the
+dry-basis ``ydry_<species>``.
 """
 
 from __future__ import annotations
@@ -51,6 +53,10 @@ FRACTION = "y_"
 #: practice, NaN where the reactions do not fix it).
 PRESENT = "present_"
 ACTIVITY = "activity_"
+#: Dry-basis mole fraction of each gas species that is not condensable
+#: (systems with a condensable gas species, water by default): its share
+#: of the gas without the condensable species.
+DRY = "ydry_"
 EXTENT = "extent_"
 CONVERSION = "conversion_"
 
@@ -173,6 +179,50 @@ def phase_columns(spec: SystemSpec, present: np.ndarray, activities: np.ndarray)
         out[PRESENT + name] = present[:, spec.phase_index[i]]
         out[ACTIVITY + name] = activities[:, i]
     return out
+
+
+def dry_species(spec: SystemSpec) -> list[str]:
+    """The gas species of a dry basis: none unless the gas holds a
+    condensable species (``spec.condensable``), else every gas species but
+    those."""
+    gas = [name for name, phase in zip(spec.species, spec.phases) if phase == "gas"]
+    wet = [name for name in spec.condensable if name in gas]
+    return [name for name in gas if name not in wet] if wet else []
+
+
+def dry_names(spec: SystemSpec) -> list[str]:
+    """``ydry_<s>`` for each species of the dry basis (:func:`dry_species`).
+
+    Examples
+    --------
+    >>> from eqbatch import ReactionSystem
+    >>> dry_names(ReactionSystem(["CO", "H2O", "CO2", "H2"], ["CO + H2O = CO2 + H2"]))
+    ['ydry_CO', 'ydry_CO2', 'ydry_H2']
+    """
+    return [DRY + name for name in dry_species(spec)]
+
+
+def dry_fractions(spec: SystemSpec, amounts: np.ndarray) -> np.ndarray:
+    """(N, S) dry-basis mole fractions: each species of the dry basis over
+    their sum (0 where the dry gas is empty), NaN for the other species."""
+    keep = np.array([name in dry_species(spec) for name in spec.species])
+    out = np.full(amounts.shape, np.nan)
+    if keep.any():
+        dry = amounts[:, keep]
+        total = dry.sum(axis=1, keepdims=True)
+        with np.errstate(invalid="ignore", divide="ignore"):
+            out[:, keep] = np.where(total > 0, dry / np.where(total > 0, total, 1.0), 0.0)
+        out[~np.isfinite(amounts).all(axis=1)] = np.nan
+    return out
+
+
+def dry_columns(spec: SystemSpec, amounts: np.ndarray) -> dict[str, np.ndarray]:
+    """The columns :func:`dry_names` of ``N`` cases."""
+    names = dry_species(spec)
+    if not names:
+        return {}
+    fractions = dry_fractions(spec, amounts)
+    return {DRY + name: fractions[:, spec.species.index(name)] for name in names}
 
 
 def parse_output(name: str) -> tuple[str, str]:

@@ -64,6 +64,7 @@ def define(
     critical: Mapping[str, Mapping[str, float]] | str | None = None,
     kij: Mapping[tuple[str, str], float] | None = None,
     liquid_model: Mapping[str, Any] | None = None,
+    condensable: Sequence[str] | None = None,
 ) -> SystemSpec:
     """The checked description of a system from the arguments of
     :class:`~eqbatch.ReactionSystem` (see there for each).
@@ -72,7 +73,7 @@ def define(
     ----------
     species, reactions, phases, P0, formulas, check_balance, lnK, species_data, thermo
         As for :class:`~eqbatch.ReactionSystem`.
-    gas_model, critical, kij, liquid_model
+    gas_model, critical, kij, liquid_model, condensable
         As for :class:`~eqbatch.ReactionSystem`.
 
     Returns
@@ -154,7 +155,23 @@ def define(
         given_lnK=given_lnk,
         gas=read_gas_model(names, phase_of, gas_model, critical, kij, formulas),
         liquid_models=read_liquid_models(names, phase_of, liquid_model) or None,
+        given_condensable=_read_condensable(names, condensable),
     )
+
+
+def _read_condensable(names: tuple[str, ...], condensable: Any) -> tuple[str, ...] | None:
+    """``condensable=``: species of the system (none: no dry basis)."""
+    if condensable is None:
+        return None
+    if isinstance(condensable, str) or not isinstance(condensable, Iterable):
+        raise SystemDefinitionError(
+            f"condensable must be a list of species, e.g. ['H2O']; got {condensable!r}"
+        )
+    given = tuple(str(c) for c in condensable)
+    unknown = [c for c in given if c not in names]
+    if unknown:
+        raise UnknownSpeciesError(f"condensable names no species of the system: {', '.join(unknown)}")
+    return given
 
 
 def _read_species(species: Any) -> tuple[str, ...]:

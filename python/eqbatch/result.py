@@ -12,6 +12,8 @@ from eqbatch import _core, outputs
 from eqbatch.columns import (
     STATUS_NAME,
     T_OUT,
+    dry_columns,
+    dry_fractions,
     input_columns,
     output_columns,
     phase_columns,
@@ -494,6 +496,23 @@ class EquilibriumResult:
         return self.phase_amounts > 0
 
     @property
+    def dry_mole_fractions(self) -> np.ndarray:
+        """(N, S) dry-basis mole fraction of each gas species that is not
+        condensable (``system.condensable``, water by default): its share of
+        the gas without them, as a gas analyser after a condenser reads it;
+        NaN for the condensable species, species outside the gas, and all
+        species where the gas holds no condensable species.
+
+        Examples
+        --------
+        >>> from eqbatch import ReactionSystem
+        >>> s = ReactionSystem(["CO", "H2O", "CO2", "H2"], ["CO + H2O = CO2 + H2"])
+        >>> s.solve([1.0, 1.0, 0.0, 0.0], lnK=0.0).dry_mole_fractions.round(4).tolist()
+        [[0.3333, nan, 0.3333, 0.3333]]
+        """
+        return dry_fractions(self.system, self.amounts)
+
+    @property
     def fugacity_coefficients(self) -> np.ndarray:
         """(N, S) fugacity coefficient ``phi`` of each gas species at
         equilibrium (1 for an ideal gas; from the system's ``gas_model``
@@ -778,6 +797,7 @@ class EquilibriumResult:
         out.update(output_columns(spec, self.amounts, fractions, self.extents, self.status, self.iterations))
         if phase_names(spec):
             out.update(phase_columns(spec, self.present, self.activities))
+        out.update(dry_columns(spec, self.amounts))
         if balance and self.T is not None:
             out[T_OUT] = self.T
         return out

@@ -145,6 +145,9 @@ class SystemSpec:
     liquid_models : dict or None
         Activity models of solution phases by phase name
         (:mod:`eqbatch.activity`); None where every solution is ideal.
+    given_condensable : tuple of str or None
+        The species a dry basis leaves out, as given (None: water, where the
+        system has it; see :attr:`condensable`).
 
     Examples
     --------
@@ -170,6 +173,7 @@ class SystemSpec:
     given_lnK: dict[str, KData]
     gas: Any = None  # an eqbatch.realgas.GasModel (the description sits below that module)
     liquid_models: Any = None  # phase name -> eqbatch.activity.NRTL or Wilson
+    given_condensable: tuple[str, ...] | None = None
 
     def __post_init__(self) -> None:
         self.stoich.setflags(write=False)
@@ -187,6 +191,11 @@ class SystemSpec:
         return f"<{type(self).__name__} {self.n_species} species, {self.n_reactions} reactions: {eqs}>"
 
     # ------------------------------------------------------ derived, cached
+
+    @property
+    def condensable(self) -> tuple[str, ...]:
+        """The species a dry basis leaves out: as given, else ``("H2O",)``."""
+        return self.given_condensable if self.given_condensable is not None else ("H2O",)
 
     @property
     def real_gas(self) -> Any:

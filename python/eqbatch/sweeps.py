@@ -93,6 +93,8 @@ from eqbatch.columns import (
     T_IN,
     T_OUT,
     TEMPERATURE,
+    dry_columns,
+    dry_names,
     output_columns,
     output_names,
     phase_columns,
@@ -432,7 +434,12 @@ class _Plan:
 
     def output_names(self) -> list[str]:
         """The columns a batch's solve adds to its input columns."""
-        return output_names(self.system, self.conversion) + phase_names(self.system) + self.energy_names()
+        return (
+            output_names(self.system, self.conversion)
+            + phase_names(self.system)
+            + dry_names(self.system)
+            + self.energy_names()
+        )
 
     def energy_names(self) -> list[str]:
         """``T_out_K`` (with energy-balance inputs), ``H_out_kJ``, ``heat_kJ``
@@ -536,7 +543,8 @@ class _Plan:
             outs = output_columns(
                 self.system, res.amounts, res.mole_fractions, res.extents, res.status, res.iterations, conv
             )
-            return outs | (phase_columns(self.system, res.present, res.activities) if pure else {})
+            outs |= phase_columns(self.system, res.present, res.activities) if pure else {}
+            return outs | dry_columns(self.system, res.amounts)
         amounts, fractions, extents = np.empty((n, s)), np.empty((n, s)), np.empty((n, r))
         status, iterations = np.empty(n, dtype=np.uint8), np.empty(n, dtype=np.uint32)
         conversions = {sp: np.empty(n) for sp in self.conversion}
@@ -562,7 +570,7 @@ class _Plan:
                     for j, label in enumerate(self.system.labels):
                         energy[DH + label][rows] = dH[:, j]
         outs = output_columns(self.system, amounts, fractions, extents, status, iterations, conversions)
-        return outs | phases | energy
+        return outs | phases | dry_columns(self.system, amounts) | energy
 
 
 def _refuse_unknown_columns(system: ReactionSystem, path: Path, names: list[str]) -> None:
@@ -1186,8 +1194,10 @@ def sweep(
     (2, 2)
     >>> columns[:3]
     ['feed_CH4', 'feed_H2O', 'T_K']
-    >>> columns[-5:]
+    >>> [c for c in columns if c.startswith(("conversion", "status", "iter"))]
     ['conversion_CH4', 'conversion_H2O', 'status', 'status_name', 'iterations']
+    >>> [c for c in columns if c.startswith("ydry_")]  # water removed (the system's condensable)
+    ['ydry_CH4', 'ydry_CO', 'ydry_H2', 'ydry_CO2', 'ydry_N2']
     """
     src, dst = Path(input), Path(output)
     options = {"tol": tol, "max_iter": max_iter, "threads": threads}

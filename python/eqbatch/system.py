@@ -111,6 +111,10 @@ class ReactionSystem(SystemSpec):
         the equilibrium gas's compressibility factor is more than 5 % from 1.
     kij : mapping (species, species) -> float, optional
         Binary interaction parameters of the mixing rule (default 0).
+    condensable : sequence of str, optional
+        The gas species a dry basis leaves out (``result.dry_mole_fractions``,
+        the ``ydry_<species>`` columns of tables and sweeps). Default: water
+        (``H2O``) where the system has it; ``[]`` for no dry basis.
     liquid_model : mapping phase -> NRTL or Wilson, optional
         Activity-coefficient models of solution phases (``"liquid"``,
         ``"liquid:<name>"``; :mod:`eqbatch.activity`): activities ``x gamma``
@@ -152,6 +156,7 @@ class ReactionSystem(SystemSpec):
         critical: Mapping[str, Mapping[str, float]] | str | None = None,
         kij: Mapping[tuple[str, str], float] | None = None,
         liquid_model: Mapping[str, Any] | None = None,
+        condensable: Sequence[str] | None = None,
     ) -> None:
         spec = define(
             species,
@@ -167,6 +172,7 @@ class ReactionSystem(SystemSpec):
             critical=critical,
             kij=kij,
             liquid_model=liquid_model,
+            condensable=condensable,
         )
         super().__init__(**spec._values())
 

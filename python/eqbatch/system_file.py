@@ -5,6 +5,7 @@
     species = ["CH4", "H2O", "CO", "H2", "CO2", "N2"]
     P0 = 1.01325            # bar, standard pressure of the K data (default 1)
     check_balance = true    # optional
+    condensable = ["H2O"]   # optional: what a dry basis leaves out (default: water)
 
     [phases]                # optional; unlisted species are gas
     # EtOH = "liquid"       # the liquid solution; "liquid:<name>" for another one
@@ -86,6 +87,7 @@ _TOP_KEYS = {
     "gas",
     "critical",
     "liquid_model",
+    "condensable",
 }
 _REACTION_KEYS = {"label", "equation", "lnK", "K", "log10K"}
 
@@ -288,6 +290,7 @@ def read_spec(path: str | os.PathLike[str]) -> SystemSpec:
             thermo=_thermo_source(doc, fail),
             **_gas_tables(doc, fail),
             liquid_model=_liquid_models(doc, fail),
+            condensable=doc.get("condensable"),
         )
     except SystemDefinitionError as err:
         raise type(err)(f"{name}: {err}") from None
