@@ -384,3 +384,24 @@ def test_dry_basis_columns(tmp_path) -> None:
     two = eqbatch.ReactionSystem(**(system.arguments() | {"condensable": ["H2O", "CO2"]}))
     cols = [c for c in two.solve([1.0, 2.0, 0, 0, 0, 0.02], T=950.0).columns() if c.startswith("ydry_")]
     assert cols == ["ydry_CH4", "ydry_CO", "ydry_H2", "ydry_N2"]
+
+
+def test_steam_to_carbon_column(tmp_path) -> None:
+    # S_C = 3 with 1 CH4 and 0.1 C2H6 fed: water = 3 x (1 + 2 x 0.1) = 3.6 mol
+    # (carbon atoms from the formulas); the same answers as feed_H2O = 3.6
+    system = eqbatch.ReactionSystem(
+        ["CH4", "C2H6", "H2O", "CO", "H2", "CO2"],
+        ["CH4 + H2O = CO + 3 H2", "CO + H2O = CO2 + H2", "C2H6 + 2 H2O = 2 CO + 5 H2"],
+        lnK=[3.0, 0.5, 12.0],
+    )
+    base = {"feed_CH4": [1.0, 1.0], "feed_C2H6": [0.1, 0.1], "P_bar": [20.0, 20.0]}
+    pq.write_table(pa.table(base | {"S_C": [3.0, 2.5]}), tmp_path / "sc.parquet")
+    pq.write_table(pa.table(base | {"feed_H2O": [3.6, 3.0]}), tmp_path / "water.parquet")
+    for name in ("sc", "water"):
+        sweep(system, tmp_path / f"{name}.parquet", tmp_path / f"{name}_out.parquet", quiet=True)
+    a, b = (pq.read_table(tmp_path / f"{name}_out.parquet") for name in ("sc", "water"))
+    for s in system.species:
+        np.testing.assert_allclose(a.column(f"n_{s}").to_numpy(), b.column(f"n_{s}").to_numpy(), rtol=1e-12)
+    pq.write_table(pa.table(base | {"S_C": [3.0, 2.5], "feed_H2O": [1.0, 1.0]}), tmp_path / "both.parquet")
+    with pytest.raises(SweepError, match="S_C sets the water feed"):
+        sweep(system, tmp_path / "both.parquet", tmp_path / "both_out.parquet", quiet=True)

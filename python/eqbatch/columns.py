@@ -22,6 +22,9 @@ from eqbatch.errors import CaseInputError
 from eqbatch.spec import PURE_KINDS, SystemSpec
 
 FEED = "feed_"
+#: A sweep input: moles of water fed per mole of carbon in the other fed
+#: species (the steam-to-carbon ratio), instead of a feed_H2O column.
+STEAM_TO_CARBON = "S_C"
 LNK = "lnK_"
 PRESSURE = "P_bar"
 TEMPERATURE = "T_K"

@@ -90,6 +90,7 @@ from eqbatch.columns import (
     PRESSURE,
     STATUS,
     STATUS_NAME,
+    STEAM_TO_CARBON,
     T_IN,
     T_OUT,
     TEMPERATURE,
@@ -332,6 +333,21 @@ class _Plan:
             else:
                 self.feed_cols.append(None)
                 missing.append(sp)
+        # S_C: the steam-to-carbon ratio, moles of water per mole of carbon
+        # in the other fed species (from their formulas), instead of feed_H2O
+        self.s_c = STEAM_TO_CARBON in names
+        if self.s_c:
+            need_numeric(STEAM_TO_CARBON)
+            if "H2O" not in system.species or FEED + "H2O" in names:
+                raise SweepError(
+                    f"{path}: {STEAM_TO_CARBON} sets the water feed: the system needs H2O and the file "
+                    f"no {FEED}H2O column"
+                )
+            carbon = [(system.formulas.get(sp) or {}).get("C", 0) for sp in system.species]
+            if not any(c and col for c, col in zip(carbon, self.feed_cols)):
+                raise SweepError(f"{path}: {STEAM_TO_CARBON} needs a fed species with carbon in its formula")
+            self.carbon = np.array(carbon, dtype=float)
+            missing.remove("H2O")
         if len(missing) == len(system.species):
             raise SweepError(
                 f"{path}: no feed column; expected feed_<species> for {', '.join(system.species)}"
@@ -463,6 +479,8 @@ class _Plan:
         for k, col in enumerate(self.feed_cols):
             if col is not None:
                 feed[:, k] = column(col)
+        if self.s_c:
+            feed[:, self.system.index("H2O")] = column(STEAM_TO_CARBON) * (feed @ self.carbon)
         P = (
             np.ascontiguousarray(self._si(column, self.p_col, self.p_si))
             if self.p_col
