@@ -135,6 +135,7 @@ def test_result_tables_and_sweeps_name_their_columns_alike(tmp_path: Path) -> No
         columns.input_names(system, temperature=True)
         + columns.output_names(system)
         + columns.dry_names(system)
+        + columns.syngas_names(system)
     )
     assert list(res.columns()) == expected
     assert list(res.to_pandas().columns) == expected
@@ -144,9 +145,12 @@ def test_result_tables_and_sweeps_name_their_columns_alike(tmp_path: Path) -> No
     table = pq.read_table(tmp_path / "out.parquet")
     # every species has a feed column, so every reacting one gets a conversion column
     assert table.column_names == (
-        list(cases) + columns.output_names(system, system.reacting_species()) + columns.dry_names(system)
+        list(cases)
+        + columns.output_names(system, system.reacting_species())
+        + columns.dry_names(system)
+        + columns.syngas_names(system)
     )
-    for name in columns.output_names(system) + columns.dry_names(system):
+    for name in columns.output_names(system) + columns.dry_names(system) + columns.syngas_names(system):
         if name == columns.STATUS_NAME:  # dictionary-encoded names of the codes
             names = [eqbatch.Status(code).name for code in res.status]
             assert table.column(name).to_pylist() == names

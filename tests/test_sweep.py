@@ -405,3 +405,15 @@ def test_steam_to_carbon_column(tmp_path) -> None:
     pq.write_table(pa.table(base | {"S_C": [3.0, 2.5], "feed_H2O": [1.0, 1.0]}), tmp_path / "both.parquet")
     with pytest.raises(SweepError, match="S_C sets the water feed"):
         sweep(system, tmp_path / "both.parquet", tmp_path / "both_out.parquet", quiet=True)
+
+
+def test_syngas_ratio_columns() -> None:
+    # H2/CO and the stoichiometric number (H2 - CO2) / (CO + CO2) (methanol
+    # practice, common practice) recomputed from the amounts
+    system = reformer_system()
+    res = system.solve([1.0, 3.0, 0.0, 0.0, 0.0, 0.02], T=[900.0, 1100.0], P=20.0)
+    cols = res.columns()
+    n = {s: res.amounts[:, system.species.index(s)] for s in ("H2", "CO", "CO2")}
+    np.testing.assert_allclose(cols["ratio_H2_CO"], n["H2"] / n["CO"], rtol=1e-15)
+    np.testing.assert_allclose(cols["SN"], (n["H2"] - n["CO2"]) / (n["CO"] + n["CO2"]), rtol=1e-15)
+    assert (cols["ratio_H2_CO"] > 3.0).all()  # steam reforming gives more than 3 H2 per CO with the shift

@@ -60,6 +60,11 @@ ACTIVITY = "activity_"
 #: (systems with a condensable gas species, water by default): its share
 #: of the gas without the condensable species.
 DRY = "ydry_"
+#: Syngas figures, where the gas holds H2 and CO: the H2/CO mole ratio, and
+#: with CO2 the stoichiometric number (H2 - CO2) / (CO + CO2) of methanol
+#: practice (2 for a balanced methanol synthesis gas).
+H2_CO = "ratio_H2_CO"
+SN = "SN"
 EXTENT = "extent_"
 CONVERSION = "conversion_"
 
@@ -226,6 +231,36 @@ def dry_columns(spec: SystemSpec, amounts: np.ndarray) -> dict[str, np.ndarray]:
         return {}
     fractions = dry_fractions(spec, amounts)
     return {DRY + name: fractions[:, spec.species.index(name)] for name in names}
+
+
+def syngas_names(spec: SystemSpec) -> list[str]:
+    """``ratio_H2_CO`` where the gas holds H2 and CO, and ``SN`` where it
+    also holds CO2.
+
+    Examples
+    --------
+    >>> from eqbatch import ReactionSystem
+    >>> syngas_names(ReactionSystem(["CO", "H2O", "CO2", "H2"], ["CO + H2O = CO2 + H2"]))
+    ['ratio_H2_CO', 'SN']
+    """
+    gas = {name for name, phase in zip(spec.species, spec.phases) if phase == "gas"}
+    if not {"H2", "CO"} <= gas:
+        return []
+    return [H2_CO] + ([SN] if "CO2" in gas else [])
+
+
+def syngas_columns(spec: SystemSpec, amounts: np.ndarray) -> dict[str, np.ndarray]:
+    """The columns :func:`syngas_names` of ``N`` cases (``inf`` where the
+    denominator is zero and the numerator is not, NaN where both are)."""
+    names = syngas_names(spec)
+    if not names:
+        return {}
+    n = {sp: amounts[:, spec.species.index(sp)] for sp in ("H2", "CO", "CO2") if sp in spec.species}
+    with np.errstate(invalid="ignore", divide="ignore"):
+        out = {H2_CO: n["H2"] / n["CO"]}
+        if SN in names:
+            out[SN] = (n["H2"] - n["CO2"]) / (n["CO"] + n["CO2"])
+    return out
 
 
 def parse_output(name: str) -> tuple[str, str]:

@@ -19,6 +19,7 @@ from eqbatch.columns import (
     phase_columns,
     phase_names,
     status_names,
+    syngas_columns,
 )
 from eqbatch.errors import CaseInputError
 from eqbatch.spec import SystemSpec
@@ -798,6 +799,7 @@ class EquilibriumResult:
         if phase_names(spec):
             out.update(phase_columns(spec, self.present, self.activities))
         out.update(dry_columns(spec, self.amounts))
+        out.update(syngas_columns(spec, self.amounts))
         if balance and self.T is not None:
             out[T_OUT] = self.T
         return out

@@ -101,6 +101,8 @@ from eqbatch.columns import (
     phase_columns,
     phase_names,
     status_names,
+    syngas_columns,
+    syngas_names,
 )
 from eqbatch.errors import CaseInputError, EqbatchError
 from eqbatch.status import CONVERGED_CODES, Status, status_words
@@ -454,6 +456,7 @@ class _Plan:
             output_names(self.system, self.conversion)
             + phase_names(self.system)
             + dry_names(self.system)
+            + syngas_names(self.system)
             + self.energy_names()
         )
 
@@ -562,7 +565,7 @@ class _Plan:
                 self.system, res.amounts, res.mole_fractions, res.extents, res.status, res.iterations, conv
             )
             outs |= phase_columns(self.system, res.present, res.activities) if pure else {}
-            return outs | dry_columns(self.system, res.amounts)
+            return outs | dry_columns(self.system, res.amounts) | syngas_columns(self.system, res.amounts)
         amounts, fractions, extents = np.empty((n, s)), np.empty((n, s)), np.empty((n, r))
         status, iterations = np.empty(n, dtype=np.uint8), np.empty(n, dtype=np.uint32)
         conversions = {sp: np.empty(n) for sp in self.conversion}
@@ -588,7 +591,8 @@ class _Plan:
                     for j, label in enumerate(self.system.labels):
                         energy[DH + label][rows] = dH[:, j]
         outs = output_columns(self.system, amounts, fractions, extents, status, iterations, conversions)
-        return outs | phases | dry_columns(self.system, amounts) | energy
+        derived = dry_columns(self.system, amounts) | syngas_columns(self.system, amounts)
+        return outs | phases | derived | energy
 
 
 def _refuse_unknown_columns(system: ReactionSystem, path: Path, names: list[str]) -> None:
