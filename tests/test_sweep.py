@@ -417,3 +417,18 @@ def test_syngas_ratio_columns() -> None:
     np.testing.assert_allclose(cols["ratio_H2_CO"], n["H2"] / n["CO"], rtol=1e-15)
     np.testing.assert_allclose(cols["SN"], (n["H2"] - n["CO2"]) / (n["CO"] + n["CO2"]), rtol=1e-15)
     assert (cols["ratio_H2_CO"] > 3.0).all()  # steam reforming gives more than 3 H2 per CO with the shift
+
+
+def test_si_columns_do_not_load_the_units_library() -> None:
+    # a sweep in bar and kelvin pays nothing for the units library: pint (about
+    # a second to build its registry) is not loaded for P_bar / T_K
+    import subprocess
+    import sys
+
+    code = (
+        "import sys; from eqbatch.units import pressure_to_bar, temperature_to_kelvin; "
+        "assert pressure_to_bar('P_bar') == (1.0, 0.0) and temperature_to_kelvin('T_K') == (1.0, 0.0); "
+        "print('pint' in sys.modules)"
+    )
+    out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True)
+    assert out.stdout.strip() == "False"

@@ -2,7 +2,9 @@
 sweeps, converted to the engine's bar (absolute) and kelvin.
 
 The conversion factors come from pint (the ecosystem's units library), one
-factor and offset per column, computed once: a sweep pays nothing per row.
+factor and offset per column, computed once: a sweep pays nothing per row,
+and a file in bar and kelvin does not load pint at all (its registry takes
+about a second to build).
 Gauge pressures are against a standard atmosphere, 1.01325 bar (exactly, by
 definition), not the local barometer: give absolute pressures where that
 matters.
@@ -49,6 +51,8 @@ def pressure_to_bar(column: str) -> tuple[float, float]:
     (0.06894757293168..., 1.01325)
     """
     unit, gauge = PRESSURE_COLUMNS[column]
+    if column == "P_bar":
+        return 1.0, 0.0  # the engine's own unit: no units library to load
     factor = float(_registry().Quantity(1.0, unit).to("bar").magnitude)
     return factor, ATMOSPHERE_BAR if gauge else 0.0
 
@@ -62,6 +66,8 @@ def temperature_to_kelvin(column: str) -> tuple[float, float]:
     >>> temperature_to_kelvin("T_C")
     (1.0, 273.15)
     """
+    if column == "T_K":
+        return 1.0, 0.0  # the engine's own unit: no units library to load
     q = _registry().Quantity
     unit = TEMPERATURE_COLUMNS[column]
     offset = float(q(0.0, unit).to("kelvin").magnitude)
