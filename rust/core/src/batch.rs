@@ -120,6 +120,15 @@ impl Rows {
         let start = if self.broadcast { 0 } else { case * self.width };
         &data[start..start + self.width]
     }
+
+    /// The rows of cases `lo..hi` (the one row, when it is broadcast).
+    pub(crate) fn rows<'a>(&self, data: &'a [f64], lo: usize, hi: usize) -> &'a [f64] {
+        if self.broadcast {
+            data
+        } else {
+            &data[lo * self.width..hi * self.width]
+        }
+    }
 }
 
 fn pattern_words(n_species: usize) -> usize {
@@ -395,22 +404,15 @@ fn solve_in_blocks(
     threads: Option<usize>,
 ) -> Result<(), CoreError> {
     let (n, s, r) = (inputs.n_cases, system.n_species(), system.n_reactions());
-    let part = |data: &'_ [f64], layout: Rows, lo: usize, hi: usize| -> std::ops::Range<usize> {
-        if layout.broadcast {
-            0..data.len()
-        } else {
-            lo * layout.width..hi * layout.width
-        }
-    };
     for lo in (0..n).step_by(PURE_BLOCK) {
         let hi = (lo + PURE_BLOCK).min(n);
         let block = BatchInputs {
             n_cases: hi - lo,
-            feed: &inputs.feed[part(inputs.feed, rows.feed, lo, hi)],
-            ln_k: &inputs.ln_k[part(inputs.ln_k, rows.ln_k, lo, hi)],
-            pressure: &inputs.pressure[part(inputs.pressure, rows.pressure, lo, hi)],
+            feed: rows.feed.rows(inputs.feed, lo, hi),
+            ln_k: rows.ln_k.rows(inputs.ln_k, lo, hi),
+            pressure: rows.pressure.rows(inputs.pressure, lo, hi),
             start: match (inputs.start, rows.start) {
-                (Some(x0), Some(layout)) => Some(&x0[part(x0, layout, lo, hi)]),
+                (Some(x0), Some(layout)) => Some(layout.rows(x0, lo, hi)),
                 _ => None,
             },
         };

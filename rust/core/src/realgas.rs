@@ -28,7 +28,7 @@
 use rayon::prelude::*;
 
 use crate::activity::{ActivityKind, Solution};
-use crate::batch::{on_threads, solve_batch, BatchInputs, BatchOutputs};
+use crate::batch::{on_threads, solve_batch, BatchInputs, BatchOutputs, Rows};
 use crate::eos::{Cubic, LnPhiError};
 use crate::error::CoreError;
 use crate::solver::SolveOptions;
@@ -81,6 +81,18 @@ impl NonIdeal<'_> {
         }
         Ok(())
     }
+}
+
+/// The species of the gas (phase 0), in order.
+fn gas_species(system: &System) -> Vec<usize> {
+    (0..system.n_species())
+        .filter(|&i| !system.is_pure(i) && system.phase_index(i) == 0)
+        .collect()
+}
+
+/// Whether `t` is a temperature (K) the models can take.
+fn usable_temperature(t: f64) -> bool {
+    t > 0.0 && t.is_finite()
 }
 
 /// `model`'s values for the `members` of one phase at amounts `a` (mole
@@ -161,13 +173,22 @@ pub fn solve_batch_real(
     threads: Option<usize>,
 ) -> Result<(), CoreError> {
     let (n, s, r) = (inputs.n_cases, system.n_species(), system.n_reactions());
-    for (name, len) in [("temperature", temperature.len())] {
-        if len != 1 && len != n {
-            return Err(CoreError::Shape(format!(
-                "{name} has {len} values; expected 1 or {n}"
-            )));
-        }
-    }
+    let layout = (
+        Rows::check("feed", inputs.feed.len(), s, n)?,
+        Rows::check("ln_k", inputs.ln_k.len(), r, n)?,
+        Rows::check("pressure", inputs.pressure.len(), 1, n)?,
+        Rows::check("temperature", temperature.len(), 1, n)?,
+    );
+    let (feed_of, ln_k_of) = (
+        |c| layout.0.row(inputs.feed, c),
+        |c| layout.1.row(inputs.ln_k, c),
+    );
+    let pressure_of = |c| layout.2.row(inputs.pressure, c)[0];
+    let temperature_of = |c| layout.3.row(temperature, c)[0];
+    let start_of = match inputs.start {
+        Some(x0) => Some((Rows::check("start", x0.len(), r, n)?, x0)),
+        None => None,
+    };
     if let Some(eos) = model.eos {
         for (name, values) in [("tc", &eos.tc), ("pc", &eos.pc), ("omega", &eos.omega)] {
             if values.len() != s {
@@ -202,16 +223,7 @@ pub fn solve_batch_real(
     if ln_phi.len() != n * s {
         return Err(CoreError::Shape("ln_phi needs N x S values".into()));
     }
-    let row = |data: &[f64], width: usize, case: usize| -> std::ops::Range<usize> {
-        if data.len() == width {
-            0..width
-        } else {
-            case * width..(case + 1) * width
-        }
-    };
-    let gas: Vec<usize> = (0..s)
-        .filter(|&i| !system.is_pure(i) && system.phase_index(i) == 0)
-        .collect();
+    let gas = gas_species(system);
     let nu = system.stoich();
     ln_phi.fill(0.0);
     outputs.iterations.fill(0);
@@ -232,11 +244,8 @@ pub fn solve_batch_real(
         shift.par_chunks_mut(r).enumerate().for_each_init(
             || (vec![0.0; 4 * s], vec![0.0; s]),
             |(scratch, phi), (case, shift_k)| {
-                let feed = &inputs.feed[row(inputs.feed, s, case)];
-                let t = temperature[row(temperature, 1, case)][0];
-                let p = inputs.pressure[row(inputs.pressure, 1, case)][0];
-                let usable = t > 0.0
-                    && t.is_finite()
+                let (feed, t, p) = (feed_of(case), temperature_of(case), pressure_of(case));
+                let usable = usable_temperature(t)
                     && p > 0.0
                     && p.is_finite()
                     && feed.iter().all(|&v| v >= 0.0 && v.is_finite());
@@ -267,15 +276,21 @@ pub fn solve_batch_real(
         let pressure = &mut pressure_buf[..m];
         let start = &mut start_buf[..m * r];
         for (k, &case) in active.iter().enumerate() {
-            feed[k * s..(k + 1) * s].copy_from_slice(&inputs.feed[row(inputs.feed, s, case)]);
-            let given = &inputs.ln_k[row(inputs.ln_k, r, case)];
-            for j in 0..r {
-                ln_k[k * r + j] = given[j] - shift[case * r + j];
+            feed[k * s..(k + 1) * s].copy_from_slice(feed_of(case));
+            // (a temperature that is no temperature makes the case invalid
+            // input, as a bad ln K does)
+            let valid = usable_temperature(temperature_of(case));
+            for (j, &given) in ln_k_of(case).iter().enumerate() {
+                ln_k[k * r + j] = if valid {
+                    given - shift[case * r + j]
+                } else {
+                    f64::NAN
+                };
             }
-            pressure[k] = inputs.pressure[row(inputs.pressure, 1, case)][0];
+            pressure[k] = pressure_of(case);
             let from: &[f64] = if pass == 0 {
-                match inputs.start {
-                    Some(x0) => &x0[row(x0, r, case)],
+                match start_of {
+                    Some((rows, x0)) => rows.row(x0, case),
                     None => &[],
                 }
             } else {
@@ -332,9 +347,8 @@ pub fn solve_batch_real(
                             return;
                         }
                         let a = &amounts[k * s..(k + 1) * s];
-                        let t = temperature[row(temperature, 1, case)][0];
                         if model
-                            .evaluate(&gas, a, t, pressure[k], scratch, phi_k)
+                            .evaluate(&gas, a, temperature_of(case), pressure[k], scratch, phi_k)
                             .is_err()
                         {
                             *moved_k = f64::INFINITY;
@@ -422,20 +436,9 @@ pub fn ln_coefficients(
     if amounts.len() != n * s || out.len() != n * s {
         return Err(CoreError::Shape("amounts and out need N x S values".into()));
     }
-    for (name, len) in [
-        ("temperature", temperature.len()),
-        ("pressure", pressure.len()),
-    ] {
-        if len != 1 && len != n {
-            return Err(CoreError::Shape(format!(
-                "{name} has {len} values; expected 1 or {n}"
-            )));
-        }
-    }
-    let gas: Vec<usize> = (0..s)
-        .filter(|&i| !system.is_pure(i) && system.phase_index(i) == 0)
-        .collect();
-    let pick = |v: &[f64], k: usize| if v.len() == 1 { v[0] } else { v[k] };
+    let t_rows = Rows::check("temperature", temperature.len(), 1, n)?;
+    let p_rows = Rows::check("pressure", pressure.len(), 1, n)?;
+    let gas = gas_species(system);
     let work = || {
         out.par_chunks_mut(s).enumerate().for_each_init(
             || vec![0.0; 4 * s],
@@ -447,8 +450,8 @@ pub fn ln_coefficients(
                         .evaluate(
                             &gas,
                             a,
-                            pick(temperature, k),
-                            pick(pressure, k),
+                            t_rows.row(temperature, k)[0],
+                            p_rows.row(pressure, k)[0],
                             scratch,
                             row,
                         )
@@ -460,4 +463,63 @@ pub fn ln_coefficients(
         );
     };
     on_threads(threads, work)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::eos::CubicKind;
+    use crate::system::Phase;
+
+    #[test]
+    fn a_case_without_a_temperature_is_invalid_input_not_converged() {
+        // N2 + 3 H2 = 2 NH3 with Peng-Robinson; the second case's T is NaN
+        let sys = System::new(vec![-1.0, -3.0, 2.0], 1, 3, vec![Phase::Gas; 3], 1.0).unwrap();
+        let eos = Cubic {
+            kind: CubicKind::PengRobinson,
+            tc: vec![126.2, 33.19, 405.4],
+            pc: vec![33.98, 13.13, 113.53],
+            omega: vec![0.0372, -0.216, 0.256],
+            kij: vec![0.0; 9],
+        };
+        let model = NonIdeal {
+            eos: Some(&eos),
+            solutions: &[],
+        };
+        let inputs = BatchInputs {
+            n_cases: 2,
+            feed: &[1.0, 3.0, 0.0],
+            ln_k: &[-10.0],
+            pressure: &[200.0],
+            start: None,
+        };
+        let (mut amounts, mut extents) = (vec![0.0; 6], vec![0.0; 2]);
+        let (mut status, mut iterations, mut ln_phi) = (vec![0u8; 2], vec![0u32; 2], vec![0.0; 6]);
+        let mut outputs = BatchOutputs {
+            amounts: &mut amounts,
+            extents: &mut extents,
+            mole_fractions: None,
+            status: &mut status,
+            iterations: &mut iterations,
+            absent: None,
+        };
+        let options = SolveOptions::default();
+        solve_batch_real(
+            &sys,
+            model,
+            &inputs,
+            &[700.0, f64::NAN],
+            &mut outputs,
+            &mut ln_phi,
+            &options,
+            Some(1),
+        )
+        .unwrap();
+        assert_eq!(
+            status,
+            vec![Status::Converged as u8, Status::InvalidInput as u8]
+        );
+        assert!(ln_phi[3..].iter().all(|v| v.is_nan()));
+        assert!(ln_phi[..3].iter().all(|v| v.is_finite() && *v != 0.0));
+    }
 }
