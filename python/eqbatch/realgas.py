@@ -29,9 +29,6 @@ from eqbatch.activity import core_arguments
 from eqbatch.compounds import identify
 from eqbatch.errors import CaseInputError, NonIdealGasWarning, SystemDefinitionError
 
-#: Gas constant in bar cm^3 / (mol K) (CODATA 2018).
-R_BAR_CM3 = 83.14462618
-
 #: The gas models a system takes, and the core's code of each cubic.
 GAS_MODELS = ("ideal", "peng-robinson", "srk")
 _KIND = {"peng-robinson": 0, "srk": 1}
@@ -238,38 +235,22 @@ def solve_real(
 Z_TOLERANCE = 0.05
 
 
-def compressibility(
-    model: GasModel, species: Sequence[str], y: np.ndarray, T: np.ndarray, P: np.ndarray
-) -> np.ndarray:
-    """(N,) Peng-Robinson compressibility factor of gas mixtures ``y`` (N, S;
-    rows of species not in ``model`` are ignored) at ``T`` (K) and ``P``
-    (bar), the largest real root (NaN where a case has no gas)."""
-    gas = np.array([s in model.critical for s in species])
-    tc, pc, omega, _ = (np.asarray(v, dtype=float) for v in model.arrays(species))
-    y = np.where(gas, np.nan_to_num(y), 0.0)
-    total = y.sum(axis=1)
-    y = y / np.where(total > 0, total, 1.0)[:, None]
-    tc, pc, omega = (np.where(gas, v, 1.0) for v in (tc, pc, omega))
-    m = 0.37464 + 1.54226 * omega - 0.26992 * omega**2
-    T = np.asarray(T, dtype=float)[:, None]
-    sqrt_a = np.sqrt(0.45723552892138203 * (R_BAR_CM3 * tc) ** 2 / pc) * (1 + m * (1 - np.sqrt(T / tc)))
-    a = (y * sqrt_a).sum(axis=1) ** 2
-    b = y @ (0.07779607390388842 * R_BAR_CM3 * tc / pc)
-    rt = R_BAR_CM3 * T[:, 0]
-    A, B = a * P / rt**2, b * P / rt
-    z = np.ones_like(A)
-    for _ in range(100):  # Newton from Z = 1 reaches the largest root (the cubic is convex above it)
-        f = ((z + (B - 1)) * z + (A - 3 * B * B - 2 * B)) * z - (A * B - B * B - B**3)
-        df = (3 * z + 2 * (B - 1)) * z + (A - 3 * B * B - 2 * B)
-        step = f / np.where(df > 0, df, np.inf)
-        z = z - step
-        if np.all(np.abs(step) < 1e-12):
-            break
-    return np.where(total > 0, z, np.nan)
+def compressibility(system: Any, amounts: np.ndarray, T: np.ndarray, P: np.ndarray) -> np.ndarray:
+    """(N,) Peng-Robinson compressibility factor of the gas of ``amounts``
+    (N, S) at ``T`` (K) and ``P`` (bar), by the core's cubic with the
+    critical constants ``system.gas`` holds (NaN where a case has no gas)."""
+    model: GasModel = system.gas
+    return system._engine.compressibility(
+        np.ascontiguousarray(amounts, dtype=np.float64),
+        np.ascontiguousarray(np.atleast_1d(T), dtype=np.float64),
+        np.ascontiguousarray(np.atleast_1d(P), dtype=np.float64),
+        None,
+        *model.arrays(system.species),
+    )
 
 
 def warn_if_not_ideal(
-    system: Any, mole_fractions: np.ndarray, T: np.ndarray | None, P: np.ndarray, ok: np.ndarray
+    system: Any, amounts: np.ndarray, T: np.ndarray | None, P: np.ndarray, ok: np.ndarray
 ) -> None:
     """Warn once (:class:`~eqbatch.NonIdealGasWarning`) when the equilibrium
     gas of some converged cases (``ok``) of an ideal-gas solve has a
@@ -281,7 +262,7 @@ def warn_if_not_ideal(
         return
     n = len(ok)
     T_all, P_all = np.broadcast_to(T, (n,)), np.broadcast_to(P, (n,))
-    z = compressibility(model, system.species, mole_fractions[ok], T_all[ok], P_all[ok])
+    z = compressibility(system, amounts[ok], T_all[ok], P_all[ok])
     off = np.abs(z - 1.0) > Z_TOLERANCE
     if off.any():
         worst = float(np.nanmax(np.abs(z - 1.0)))

@@ -500,7 +500,7 @@ class ReactionSystem(SystemSpec):
         if self.nonideal is not None:
             result._ln_phi = ln_phi
         elif self.gas is not None:
-            warn_if_not_ideal(self, result.mole_fractions, T_arr, p_arr, result.converged)
+            warn_if_not_ideal(self, amounts, T_arr, p_arr, result.converged)
         if invalid == "raise" and (status == Status.INVALID_INPUT).any():
             k = int(np.flatnonzero(status == Status.INVALID_INPUT)[0])
             T_k = None if T_arr is None else float(T_arr[k if T_arr.shape[0] > 1 else 0])

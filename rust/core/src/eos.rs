@@ -95,8 +95,47 @@ impl Cubic {
         out: &mut [f64],
         work: &mut [f64],
     ) -> Result<(), LnPhiError> {
+        let (_, omega_b, u1, u2, _) = self.kind.constants();
+        let mix = self.mixture(gas, y, t, p, work)?;
+        let sum_a = &work[gas.len()..2 * gas.len()];
+        let (big_a, big_b, z) = (mix.big_a, mix.big_b, mix.z);
+        let log_term = ((z + u2 * big_b) / (z + u1 * big_b)).ln();
+        let lead = big_a / ((u2 - u1) * big_b);
+        for (k, &i) in gas.iter().enumerate() {
+            let b_ratio = omega_b * R_BAR_CM3 * self.tc[i] / self.pc[i] / mix.b;
+            out[k] = b_ratio * (z - 1.0)
+                - (z - big_b).ln()
+                - lead * (2.0 * sum_a[k] / mix.a - b_ratio) * log_term;
+        }
+        Ok(())
+    }
+
+    /// The compressibility factor `Z` of the gas at mole fractions `y` (one
+    /// per entry of `gas`), `t` (K) and `p` (bar); `work` needs `2 *
+    /// gas.len()` values.
+    pub fn compressibility(
+        &self,
+        gas: &[usize],
+        y: &[f64],
+        t: f64,
+        p: f64,
+        work: &mut [f64],
+    ) -> Result<f64, LnPhiError> {
+        Ok(self.mixture(gas, y, t, p, work)?.z)
+    }
+
+    /// The mixture's `a`, `b`, `A`, `B` and vapour-like `Z`; `work` receives
+    /// `sqrt a_i` and then `sum_j y_j a_ij` (one per entry of `gas` each).
+    fn mixture(
+        &self,
+        gas: &[usize],
+        y: &[f64],
+        t: f64,
+        p: f64,
+        work: &mut [f64],
+    ) -> Result<Mixture, LnPhiError> {
         let g = gas.len();
-        let (omega_a, omega_b, u1, u2, z_c) = self.kind.constants();
+        let (omega_a, omega_b, _, _, z_c) = self.kind.constants();
         let s = self.tc.len();
         let rt = R_BAR_CM3 * t;
         let (sqrt_a, sum_a) = work.split_at_mut(g);
@@ -129,16 +168,23 @@ impl Cubic {
         if roots == 1 && t < t_pc && z * rt / p < z_c * R_BAR_CM3 * t_pc / p_pc {
             return Err(LnPhiError);
         }
-        let log_term = ((z + u2 * big_b) / (z + u1 * big_b)).ln();
-        let lead = big_a / ((u2 - u1) * big_b);
-        for (k, &i) in gas.iter().enumerate() {
-            let b_ratio = omega_b * R_BAR_CM3 * self.tc[i] / self.pc[i] / b;
-            out[k] = b_ratio * (z - 1.0)
-                - (z - big_b).ln()
-                - lead * (2.0 * sum_a[k] / a - b_ratio) * log_term;
-        }
-        Ok(())
+        Ok(Mixture {
+            a,
+            b,
+            big_a,
+            big_b,
+            z,
+        })
     }
+}
+
+/// A mixture's parameters at one state ([`Cubic::mixture`]).
+struct Mixture {
+    a: f64,
+    b: f64,
+    big_a: f64,
+    big_b: f64,
+    z: f64,
 }
 
 /// `(c2, c1, c0)` of the cubic `Z^3 + c2 Z^2 + c1 Z + c0 = 0` in `A`, `B`.

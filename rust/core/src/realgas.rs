@@ -465,6 +465,50 @@ pub fn ln_coefficients(
     on_threads(threads, work)
 }
 
+/// The compressibility factor of the gas of each row of `amounts` (`N x
+/// S`) at its temperature and pressure (one value or one per row), into
+/// `out` (`N`; NaN where the gas is empty or has no vapour-like root).
+pub fn compressibility(
+    system: &System,
+    eos: &Cubic,
+    amounts: &[f64],
+    temperature: &[f64],
+    pressure: &[f64],
+    out: &mut [f64],
+    threads: Option<usize>,
+) -> Result<(), CoreError> {
+    let s = system.n_species();
+    let n = out.len();
+    if amounts.len() != n * s {
+        return Err(CoreError::Shape("amounts need N x S values".into()));
+    }
+    let t_rows = Rows::check("temperature", temperature.len(), 1, n)?;
+    let p_rows = Rows::check("pressure", pressure.len(), 1, n)?;
+    let gas = gas_species(system);
+    let work = || {
+        out.par_iter_mut().enumerate().for_each_init(
+            || vec![0.0; 3 * s],
+            |scratch, (k, z)| {
+                let a = &amounts[k * s..(k + 1) * s];
+                let total: f64 = gas.iter().map(|&i| a[i]).sum();
+                *z = f64::NAN;
+                if !(total > 0.0 && total.is_finite()) {
+                    return;
+                }
+                let (y, work) = scratch.split_at_mut(gas.len());
+                for (yk, &i) in y.iter_mut().zip(&gas) {
+                    *yk = a[i] / total;
+                }
+                let (t, p) = (t_rows.row(temperature, k)[0], p_rows.row(pressure, k)[0]);
+                if let Ok(value) = eos.compressibility(&gas, y, t, p, work) {
+                    *z = value;
+                }
+            },
+        );
+    };
+    on_threads(threads, work)
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;

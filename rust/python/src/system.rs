@@ -2,7 +2,7 @@
 
 use eqbatch_core::activity::{ActivityKind, Solution};
 use eqbatch_core::eos::{Cubic, CubicKind};
-use eqbatch_core::realgas::{ln_coefficients, solve_batch_real, NonIdeal};
+use eqbatch_core::realgas::{compressibility, ln_coefficients, solve_batch_real, NonIdeal};
 use eqbatch_core::{
     mole_fractions, sensitivities_batch, solve_batch, BatchInputs, BatchOutputs, Phase,
     SensitivityOutputs, SolveOptions, System,
@@ -426,6 +426,43 @@ impl PySystem {
                     solutions: &models,
                 };
                 ln_coefficients(system, model, amounts, temperature, pressure, o, threads)
+            })
+            .map_err(to_py)?;
+        }
+        Ok(out)
+    }
+
+    /// Peng-Robinson compressibility factor (N,) of the gas of `amounts`
+    /// (N, S) at `temperature` and `pressure` (1 or N each), from critical
+    /// constants per species (K, bar) and `kij` (S x S); NaN where the gas
+    /// is empty or has no vapour-like root.
+    #[allow(clippy::too_many_arguments)]
+    #[pyo3(signature = (amounts, temperature, pressure, threads, tc, pc, omega, kij))]
+    fn compressibility<'py>(
+        &self,
+        py: Python<'py>,
+        amounts: PyReadonlyArray2<'py, f64>,
+        temperature: PyReadonlyArray1<'py, f64>,
+        pressure: PyReadonlyArray1<'py, f64>,
+        threads: Option<usize>,
+        tc: Vec<f64>,
+        pc: Vec<f64>,
+        omega: Vec<f64>,
+        kij: Vec<f64>,
+    ) -> PyResult<Bound<'py, PyArray1<f64>>> {
+        let (eos, _) = non_ideal_parts(Some(0), tc, pc, omega, kij, Vec::new())?;
+        let Some(eos) = eos else {
+            unreachable!("kind 0 is Peng-Robinson")
+        };
+        let out = PyArray1::zeros(py, amounts.shape()[0], false);
+        {
+            let amounts = amounts.as_slice()?;
+            let (temperature, pressure) = (temperature.as_slice()?, pressure.as_slice()?);
+            let mut o = writable(&out)?;
+            let o = o.as_slice_mut()?;
+            let system = &self.inner;
+            py.detach(move || {
+                compressibility(system, &eos, amounts, temperature, pressure, o, threads)
             })
             .map_err(to_py)?;
         }
