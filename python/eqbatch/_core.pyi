@@ -53,6 +53,27 @@ class System:
         npt.NDArray[np.uint64],
     ]: ...
     def mole_fractions(self, amounts: npt.NDArray[np.float64]) -> npt.NDArray[np.float64]: ...
+    def adiabatic(
+        self,
+        table: ThermoTable,
+        lo: float,
+        hi: float,
+        feed: npt.NDArray[np.float64],
+        enthalpy: npt.NDArray[np.float64],
+        t_start: npt.NDArray[np.float64],
+        pressure: npt.NDArray[np.float64],
+        shift: npt.NDArray[np.float64] | None,
+        start: npt.NDArray[np.float64] | None,
+        tol: float,
+        max_iter: int,
+        threads: int | None,
+    ) -> tuple[
+        npt.NDArray[np.float64],
+        npt.NDArray[np.float64],
+        npt.NDArray[np.float64],
+        npt.NDArray[np.uint8],
+        npt.NDArray[np.uint32],
+    ]: ...
     def sensitivities(
         self,
         feed: npt.NDArray[np.float64],

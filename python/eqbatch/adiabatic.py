@@ -79,7 +79,169 @@ def adiabatic_solve(
     enthalpy. ``lnk_shift`` ((R,) or (N, R)) is added to every ln K the
     species data give (a Monte Carlo sample of uncertain Gibbs energies;
     constant in T, so d ln K / dT is unchanged).
+
+    All-gas ideal systems whose every ln K comes from the species' data go
+    first to the core's one Newton iteration on extents and temperature
+    together (``eqbatch_core::adiabatic``: the mixture's entropy at the
+    given enthalpy is its merit function); the cases it does not settle (a
+    trace species, an outlet outside the data's range, bad input) and every
+    other system take the nested solve: Newton on the outlet temperature
+    around the isothermal solve.
     """
+    args: dict[str, Any] = {
+        "tol": tol,
+        "max_iter": max_iter,
+        "threads": threads,
+        "max_T_iter": max_T_iter,
+        "energy_tol": energy_tol,
+    }
+    out = None
+    if invalid != "raise" and system._energy_table is not None:
+        out = _in_core(system, solve, feed, T, P, x0=x0, duty=duty, H_in=H_in, lnk_shift=lnk_shift, **args)
+    if out is None:
+        given = {"x0": x0, "duty": duty, "H_in": H_in, "lnk_shift": lnk_shift}
+        out = _nested(system, solve, feed, T, P, invalid=invalid, **given, **args)
+    if sensitivities:
+        _attach_sensitivities(system, out, by_enthalpy=H_in is not None, threads=threads)
+    return out
+
+
+def _in_core(
+    system: SystemSpec,
+    solve: IsothermalSolve,
+    feed: Any,
+    T: Any,
+    P: Any,
+    *,
+    tol: float,
+    max_iter: int,
+    threads: int | None,
+    max_T_iter: int,
+    energy_tol: float,
+    x0: Any,
+    duty: Any,
+    H_in: Any,
+    lnk_shift: np.ndarray | None,
+) -> EquilibriumResult | None:
+    """The core's one Newton iteration on every case, the nested solve on
+    those it leaves; None where the inputs do not broadcast (the nested
+    solve then reports them as it always has)."""
+    energy = system._energy_table
+    assert energy is not None
+    table, lo, hi = energy
+    try:
+        feed_rows = feed_array(system, feed)
+        P_rows = system._p0_row if P is None else case_column(P, "P")
+        T_rows = case_column(T, "T") if H_in is None else np.full(1, np.nan)
+        heat = np.zeros(1) if duty is None else 1000.0 * case_column(duty, "duty")
+        H_rows = None if H_in is None else 1000.0 * case_column(H_in, "H_in")
+        shift = None if lnk_shift is None else np.atleast_2d(np.asarray(lnk_shift, dtype=float))
+        start = None if x0 is None else np.atleast_2d(np.asarray(x0, dtype=float))
+        sizes = [feed_rows.shape[0], P_rows.shape[0], T_rows.shape[0], heat.shape[0]]
+        sizes += [] if start is None else [start.shape[0]]
+        sizes += [] if H_rows is None else [H_rows.shape[0]]
+        sizes += [] if shift is None else [shift.shape[0]]
+        n = max(sizes)
+        if any(k not in (1, n) for k in sizes) or any(
+            a is not None and (a.ndim != 2 or a.shape[1] != system.n_reactions) for a in (shift, start)
+        ):
+            return None
+    except CaseInputError:
+        return None
+
+    def rows(a: np.ndarray, shape: tuple[int, ...]) -> np.ndarray:
+        return np.array(np.broadcast_to(a, shape), dtype=float, order="C")  # (a writable copy)
+
+    feed_rows, P_rows, heat = rows(feed_rows, (n, system.n_species)), rows(P_rows, (n,)), rows(heat, (n,))
+    if H_rows is None:
+        T_in = rows(T_rows, (n,))
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore")  # the kernel keeps the outlet inside the range
+            h_in = system._species_h_cp(np.where(np.isfinite(T_in) & (T_in > 0), T_in, lo))[0]
+        H_feed = np.sum(feed_rows * h_in, axis=1)
+    else:
+        H_feed = rows(H_rows, (n,))
+        T_in = _feed_temperature(system._species_h_cp, feed_rows, H_feed, lo, hi)
+    shift_rows = None if shift is None else rows(shift, (n, system.n_reactions))
+    start_rows = None if start is None else rows(start, (n, system.n_reactions))
+    amounts, extents, T_out, status, iterations = system._engine.adiabatic(
+        table,
+        lo,
+        hi,
+        feed_rows,
+        np.ascontiguousarray(H_feed + heat),
+        np.ascontiguousarray(T_in),
+        P_rows,
+        shift_rows,
+        start_rows,
+        tol,
+        max_iter,
+        threads,
+    )
+    # the balance as the nested solve checks it (the kernel closes it to rounding)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        settled = status == Status.CONVERGED
+        h_out = system._species_h_cp(np.where(settled, T_out, lo))[0]
+        scale = np.sum(np.abs(feed_rows * h_out), axis=1) + np.abs(heat) + 1.0
+        closed = np.abs(np.sum(amounts * h_out, axis=1) - H_feed - heat) <= energy_tol * scale
+        settled &= closed
+        lnK = system.lnK(np.where(settled, T_out, lo))
+    if shift_rows is not None:
+        lnK = lnK + shift_rows
+    T_steps = iterations.astype(np.int64)  # every Newton step also moves the temperature
+    absent = np.zeros(n, dtype=np.uint64)
+    left = np.flatnonzero(~settled)
+    if left.size:
+        rest = _nested(
+            system,
+            solve,
+            feed_rows[left],
+            T_in[left] if H_rows is None else None,
+            P_rows[left],
+            tol=tol,
+            max_iter=max_iter,
+            threads=threads,
+            invalid="mark",
+            x0=None if start_rows is None else start_rows[left],
+            max_T_iter=max_T_iter,
+            energy_tol=energy_tol,
+            duty=None if duty is None else heat[left] / 1000.0,
+            H_in=None if H_rows is None else H_feed[left] / 1000.0,
+            lnk_shift=None if shift_rows is None else shift_rows[left],
+        )
+        assert rest.T is not None and rest.T_in is not None and rest.T_iterations is not None
+        amounts[left], extents[left], status[left] = rest.amounts, rest.extents, rest.status
+        T_out[left], lnK[left], T_in[left] = rest.T, rest.lnK, rest.T_in
+        absent[left] = rest.absent
+        iterations[left] += rest.iterations
+        T_steps[left] = rest.T_iterations
+    out = EquilibriumResult(system, amounts, extents, None, status, iterations, feed_rows, P_rows, T_out, lnK)
+    out.T_iterations = T_steps
+    out.T_in = T_in
+    out.absent = absent
+    return out
+
+
+def _nested(
+    system: SystemSpec,
+    solve: IsothermalSolve,
+    feed: Any,
+    T: Any,
+    P: Any,
+    *,
+    tol: float,
+    max_iter: int,
+    threads: int | None,
+    invalid: str,
+    x0: Any,
+    max_T_iter: int,
+    energy_tol: float,
+    duty: Any,
+    H_in: Any,
+    lnk_shift: np.ndarray | None,
+) -> EquilibriumResult:
+    """The nested solve (see the module docs) of every case."""
     _, lo, hi = system._enthalpy_data()
     species = system._species_h_cp
     options: dict[str, Any] = {"threads": threads, "tol": tol, "max_iter": max_iter}
@@ -234,30 +396,43 @@ def adiabatic_solve(
     out.T_iterations = T_steps
     out.T_in = T_in
     out.absent = absent
-    if sensitivities:
-        solved = np.where(at_equilibrium, Status.CONVERGED, Status.ITERATION_LIMIT).astype(np.uint8)
-        solved[bad] = Status.INVALID_INPUT
-        out._sens = system._engine.sensitivities(
-            feed_rows, P_rows, np.where(bad[:, None], 0.0, amounts), solved, absent, threads
-        )
-        with warnings.catch_warnings():
-            warnings.simplefilter("ignore")
-            T_safe = np.where(np.isfinite(Tc), Tc, lo)
-            h_out, cp_out = species(T_safe)
-            out._energy = EnergyBalance(
-                h_out=h_out,
-                h_in=h_in
-                if H_given is None
-                else np.zeros_like(h_in),  # H_in fixed: the feed adds no enthalpy
-                cp_feed=np.sum(feed_rows * cp_in, axis=1),
-                cp_out=cp_out,
-                slope_out=system.dlnK_dT(T_safe),
-                T_in=T_in,
-                by_enthalpy=H_given is not None,
-            )
-        for array in out._sens:
-            array[~out.converged] = np.nan
     return out
+
+
+def _attach_sensitivities(
+    system: SystemSpec, out: EquilibriumResult, *, by_enthalpy: bool, threads: int | None
+) -> None:
+    """The exact derivatives of every settled case, holding the enthalpy
+    balance (the core's isothermal ones and the energy terms
+    :class:`EnergyBalance` combines them with); NaN elsewhere."""
+    _, lo, _ = system._enthalpy_data()
+    bad = out.status == Status.INVALID_INPUT
+    solved = np.where(out.converged, Status.CONVERGED, Status.ITERATION_LIMIT).astype(np.uint8)
+    solved[bad] = Status.INVALID_INPUT
+    amounts = np.where(np.isfinite(out.amounts), out.amounts, 0.0)
+    absent = out.absent if out.absent is not None else np.zeros(len(out), dtype=np.uint64)
+    feed_rows = np.ascontiguousarray(out.feed, dtype=float)
+    P_rows = np.ascontiguousarray(out.P, dtype=float)
+    out._sens = system._engine.sensitivities(
+        feed_rows, P_rows, amounts, solved, np.ascontiguousarray(absent), threads
+    )
+    assert out.T_in is not None and out.T is not None
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        T_safe = np.where(np.isfinite(out.T), out.T, lo)
+        h_out, cp_out = system._species_h_cp(T_safe)
+        h_in, cp_in = system._species_h_cp(np.where(np.isfinite(out.T_in), out.T_in, lo))
+        out._energy = EnergyBalance(
+            h_out=h_out,
+            h_in=np.zeros_like(h_in) if by_enthalpy else h_in,  # H_in fixed: the feed adds no enthalpy
+            cp_feed=np.sum(feed_rows * cp_in, axis=1),
+            cp_out=cp_out,
+            slope_out=system.dlnK_dT(T_safe),
+            T_in=out.T_in,
+            by_enthalpy=by_enthalpy,
+        )
+    for array in out._sens:
+        array[~out.converged] = np.nan
 
 
 def _residual_at(

@@ -74,7 +74,9 @@ class EquilibriumResult:
         With ``approach=``: reactions held at zero extent because the feed
         is already within their approach of equilibrium.
     T_iterations : ndarray, shape (N,), or None
-        Temperature iterations of an adiabatic solve.
+        Temperature iterations of an adiabatic solve (equal to
+        ``iterations`` for a case the core solved in one Newton iteration
+        on extents and temperature: every step moves the temperature).
 
     Examples
     --------

@@ -298,6 +298,40 @@ class SystemSpec:
         data = [self.species_data[name] for name in self.species]
         return _core.ThermoTable([d._segments() for d in data], np.zeros((0, len(data))), np.zeros(0))
 
+    @cached_property
+    def _energy_table(self) -> tuple[_core.ThermoTable, float, float] | None:
+        """The core's table for adiabatic solves in one Newton iteration
+        (every species' data, the reactions as rows, each reaction's
+        constant ln K shift) and the data's temperature range, K; None
+        unless the system is all gas and ideal and every reaction's ln K
+        comes from the species' own data (only then is the iteration's
+        merit function the mixture's entropy)."""
+        if any(p != "gas" for p in self.phases) or self.nonideal is not None:
+            return None
+        if any(sp not in self.species_data for sp in self.species):
+            return None
+        where = {id(self.species_data[sp]): i for i, sp in enumerate(self.species)}
+        if len(where) != self.n_species:
+            return None
+        shift = np.zeros(self.n_reactions)
+        for j, label in enumerate(self.labels):
+            data = self.lnK_data.get(label)
+            if not isinstance(data, ThermoLnK):
+                return None
+            row = np.zeros(self.n_species)
+            for c, d in data.terms:
+                if id(d) not in where:
+                    return None
+                row[where[id(d)]] += c
+            if not np.array_equal(row, self.stoich[j]):
+                return None
+            shift[j] = data.ln_k_shift
+        every = [self.species_data[sp] for sp in self.species]
+        table = _core.ThermoTable(
+            [d._segments() for d in every], np.ascontiguousarray(self.stoich, dtype=float), shift
+        )
+        return table, max(d.range[0] for d in every), min(d.range[1] for d in every)
+
     def _enthalpy_data(self, what: str = "adiabatic=True") -> tuple[list[SpeciesData], float, float]:
         """Every species' data and the temperature range all of them cover, K.
 

@@ -342,7 +342,12 @@ class ReactionSystem(SystemSpec):
             temperature, ``sensitivity(wrt, of="T")`` gives the outlet
             temperature's); ``result.T_iterations`` counts the temperature
             iterations and ``result.iterations`` the Newton iterations of all
-            of them; ``result.T_in`` is the inlet temperature.
+            of them; ``result.T_in`` is the inlet temperature. All-gas ideal
+            systems whose every ln K comes from species data are solved in
+            the core by one Newton iteration on extents and temperature
+            together; the cases it leaves (traces below 1e-9 of the gas,
+            outlets outside the data's range), and other systems, by Newton
+            on the temperature around isothermal solves.
         duty : float or array_like, shape (N,), optional
             Heat added to the reactor, kJ per case (negative: removed): the
             outlet's enthalpy is the feed's plus ``duty``, solved as for

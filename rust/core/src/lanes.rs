@@ -267,7 +267,7 @@ const REACHABLE: f64 = 1e-13;
 /// bases), the lanes stop at `tol` on the reactions as given and hand the
 /// point to the general solve, which accepts it after checking its own basis
 /// (or takes the one more Newton step it needs).
-fn lane_tolerance(system: &System, tol: f64) -> (f64, bool) {
+pub(crate) fn lane_tolerance(system: &System, tol: f64) -> (f64, bool) {
     match system.basis_gain() {
         Some(gain) if tol / gain.max(1.0) >= REACHABLE => (tol / gain.max(1.0), false),
         _ => (tol, true),

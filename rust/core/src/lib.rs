@@ -24,6 +24,7 @@
 #![allow(clippy::needless_range_loop)]
 
 pub mod activity;
+pub mod adiabatic;
 pub mod basis;
 pub mod batch;
 pub mod condensed;

@@ -95,6 +95,13 @@ impl Range {
         (h, s)
     }
 
+    /// `H/R` at `t` (K), given `1 / t`: [`Range::h_s`]'s without the entropy.
+    #[inline]
+    fn h(&self, t: f64, inv_t: f64) -> f64 {
+        let c = &self.hc;
+        t * (c[0] + t * (c[1] + t * (c[2] + t * (c[3] + t * c[4])))) - self.e * inv_t + self.h
+    }
+
     /// `Cp/R` at `t` (K).
     #[inline]
     fn cp(&self, t: f64) -> f64 {
@@ -202,6 +209,25 @@ impl ThermoTable {
 
     pub fn n_data(&self) -> usize {
         self.data.len()
+    }
+
+    /// The coefficients of the reactions in the data sets (`R x n_data`,
+    /// row-major) and each reaction's constant `ln K` shift.
+    pub(crate) fn coefficients(&self) -> (&[f64], &[f64]) {
+        (&self.coef, &self.shift)
+    }
+
+    /// Data set `k`'s `(H/R, Cp/R)` at `t` (K), given `1 / t` (no logarithm).
+    #[inline(always)]
+    pub(crate) fn h_cp(&self, k: usize, t: f64, inv_t: f64) -> (f64, f64) {
+        let range = self.data[k].range(t);
+        (range.h(t, inv_t), range.cp(t))
+    }
+
+    /// Data set `k`'s `S/R` at `t` (K), given `ln t` and `1 / t`.
+    #[inline(always)]
+    pub(crate) fn s(&self, k: usize, t: f64, ln_t: f64, inv_t: f64) -> f64 {
+        self.data[k].range(t).h_s(t, ln_t, inv_t).1
     }
 
     /// Every data set's molar enthalpy (J/mol, formation scale) and heat

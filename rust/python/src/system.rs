@@ -1,6 +1,7 @@
 //! `eqbatch._core.System`: a validated reaction system and its batch solve.
 
 use eqbatch_core::activity::{ActivityKind, Solution};
+use eqbatch_core::adiabatic::{adiabatic_batch, AdiabaticInputs, AdiabaticOutputs};
 use eqbatch_core::eos::{Cubic, CubicKind};
 use eqbatch_core::realgas::{compressibility, ln_coefficients, solve_batch_real, NonIdeal};
 use eqbatch_core::{
@@ -34,6 +35,14 @@ type SolutionArgs = (
     Vec<f64>,
     Vec<f64>,
     Vec<f64>,
+);
+
+type Adiabatic<'py> = (
+    Bound<'py, PyArray2<f64>>,
+    Bound<'py, PyArray2<f64>>,
+    Bound<'py, PyArray1<f64>>,
+    Bound<'py, PyArray1<u8>>,
+    Bound<'py, PyArray1<u32>>,
 );
 
 type Sensitivities<'py> = (
@@ -390,6 +399,85 @@ impl PySystem {
             .map_err(to_py)?;
         }
         Ok(((amounts, extents, status, iterations, absent), ln_phi))
+    }
+
+    /// Adiabatic (or given-duty) outlets of all-gas cases by the core's
+    /// one Newton iteration (`eqbatch_core::adiabatic`): `table` holds
+    /// every species' data with the reactions as rows, `lo`, `hi` (K) the
+    /// data's range; per case (no broadcasting) the feed (N, S), the
+    /// outlet's enthalpy `enthalpy` (J), the first temperature `t_start`
+    /// (K), the pressure, an optional ln K shift (N, R) and optional
+    /// starting extents (N, R). Returns
+    /// amounts, extents, temperature, status and iterations; a case not
+    /// settled there is `Stalled`, for the caller's nested solve.
+    #[allow(clippy::too_many_arguments)]
+    #[pyo3(signature = (table, lo, hi, feed, enthalpy, t_start, pressure, shift, start, tol, max_iter, threads))]
+    fn adiabatic<'py>(
+        &self,
+        py: Python<'py>,
+        table: &crate::thermo::PyThermoTable,
+        lo: f64,
+        hi: f64,
+        feed: PyReadonlyArray2<'py, f64>,
+        enthalpy: PyReadonlyArray1<'py, f64>,
+        t_start: PyReadonlyArray1<'py, f64>,
+        pressure: PyReadonlyArray1<'py, f64>,
+        shift: Option<PyReadonlyArray2<'py, f64>>,
+        start: Option<PyReadonlyArray2<'py, f64>>,
+        tol: f64,
+        max_iter: u32,
+        threads: Option<usize>,
+    ) -> PyResult<Adiabatic<'py>> {
+        let (s, r) = (self.inner.n_species(), self.inner.n_reactions());
+        let n = t_start.len();
+        let amounts = PyArray2::zeros(py, [n, s], false);
+        let extents = PyArray2::zeros(py, [n, r], false);
+        let temperature = PyArray1::zeros(py, n, false);
+        let status = PyArray1::zeros(py, n, false);
+        let iterations = PyArray1::zeros(py, n, false);
+        {
+            let shift = match &shift {
+                Some(v) => Some(v.as_slice()?),
+                None => None,
+            };
+            let start = match &start {
+                Some(v) => Some(v.as_slice()?),
+                None => None,
+            };
+            let inputs = AdiabaticInputs {
+                feed: feed.as_slice()?,
+                enthalpy: enthalpy.as_slice()?,
+                t_start: t_start.as_slice()?,
+                pressure: pressure.as_slice()?,
+                ln_k_shift: shift,
+                start,
+            };
+            let (mut a, mut e, mut t) = (
+                writable(&amounts)?,
+                writable(&extents)?,
+                writable(&temperature)?,
+            );
+            let (mut st, mut it) = (writable(&status)?, writable(&iterations)?);
+            let outputs = AdiabaticOutputs {
+                amounts: a.as_slice_mut()?,
+                extents: e.as_slice_mut()?,
+                temperature: t.as_slice_mut()?,
+                status: st.as_slice_mut()?,
+                iterations: it.as_slice_mut()?,
+            };
+            let options = SolveOptions {
+                tol,
+                max_iter,
+                chain: false,
+                drop_vanishing: false,
+            };
+            let (system, table) = (&self.inner, &table.inner);
+            py.detach(move || {
+                adiabatic_batch(system, table, (lo, hi), &inputs, &options, threads, outputs)
+            })
+            .map_err(to_py)?;
+        }
+        Ok((amounts, extents, temperature, status, iterations))
     }
 
     /// `ln phi` / `ln gamma` (N, S) of `amounts` (N, S) at `temperature`

@@ -13,7 +13,7 @@ type SegmentTuple = (f64, bool, f64, f64, f64, f64, f64, f64, f64, f64, f64);
 
 #[pyclass(name = "ThermoTable", module = "eqbatch._core", frozen)]
 pub struct PyThermoTable {
-    inner: ThermoTable,
+    pub(crate) inner: ThermoTable,
 }
 
 #[pymethods]
