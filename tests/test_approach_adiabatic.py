@@ -10,6 +10,7 @@ from __future__ import annotations
 import numpy as np
 import pytest
 from eqbatch import InvalidCaseError, ReactionSystem, Status
+from eqbatch.approach import feed_directions
 from eqbatch.cli import main
 from eqbatch.demo import reformer_feed, reformer_system
 from eqbatch.thermo import CpPolynomial, equilibrium_temperature
@@ -252,3 +253,45 @@ def test_adiabatic_outlets_in_one_batch_match_the_closed_form_or_say_out_of_rang
         outlet = _isomer_outlet(beyond, 1000.0 * dH)
         assert not (300.0 <= outlet <= 1500.0)  # the hand calculation leaves the range
         assert res.status[-1] == Status.OUT_OF_RANGE, res.message(T.size - 1)
+
+
+def test_directions_fixed_by_the_feed_are_those_equilibrium_takes(reformer) -> None:
+    # Where the species a feed lacks fix the sign of a reaction's extent (an approach
+    # solve then needs no solve at T to find it), the sign is the one an equilibrium
+    # solve finds, whatever the constants: checked against the solve on random ln K.
+    sp = reformer.species
+    rng = np.random.default_rng(11)
+    expected = {
+        ("CH4", "H2O"): [1.0, 1.0],  # reforming and shift run forward
+        ("CO", "H2"): [-1.0, 1.0],  # methanation: reforming backward; CO2 only from the shift
+        ("CO", "H2O"): [-1.0, 1.0],  # CH4 only from reforming run backward
+    }
+    both = np.array([True, True])
+    for fed, want in expected.items():
+        feed = np.zeros((200, len(sp)))
+        for name in fed:
+            feed[:, sp.index(name)] = rng.uniform(0.1, 5.0, 200)
+        found = feed_directions(reformer, feed, both)
+        assert np.array_equal(found, np.tile(want, (200, 1))), fed
+        res = reformer.solve(feed, lnK=rng.uniform(-15.0, 15.0, (200, 2)), P=rng.uniform(0.5, 50.0, 200))
+        assert res.converged.all()
+        assert np.array_equal(np.sign(res.extents), found), fed
+    # every species fed: nothing is fixed, and the approach solve finds the direction by a solve
+    full = np.ones((1, len(sp)))
+    assert np.isnan(feed_directions(reformer, full, both)).all()
+
+
+def test_an_approach_batch_mixing_fixed_and_solved_directions_solves_each_case_alone(reformer) -> None:
+    # Rows whose direction the feed fixes skip the solve at T; the others take it. A
+    # case's answer must not depend on which other cases share its batch.
+    sp = reformer.species
+    feed = np.zeros((6, len(sp)))
+    feed[:, sp.index("CH4")], feed[:, sp.index("H2O")] = 1.0, 3.0
+    feed[1::2, sp.index("CO2")] = 0.2  # with CO2 fed the shift's direction is left to a solve
+    feed[1::2, sp.index("CO")] = 0.1
+    T, P = np.linspace(800.0, 1100.0, 6), np.linspace(5.0, 30.0, 6)
+    batch = reformer.solve(feed, T=T, P=P, approach={"reforming": 15.0, "shift": 10.0})
+    for k in range(6):
+        alone = reformer.solve(feed[k], T=T[k], P=P[k], approach={"reforming": 15.0, "shift": 10.0})
+        assert np.array_equal(batch.amounts[k], alone.amounts[0]), k
+        assert np.array_equal(batch.lnK[k], alone.lnK[0]), k

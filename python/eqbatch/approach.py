@@ -159,6 +159,75 @@ def approach_temperatures(
     return T_eff
 
 
+def feed_directions(system: SystemSpec, feed: np.ndarray, which: np.ndarray) -> np.ndarray:
+    """The direction (+1 forward, -1 backward) each reaction ``which`` ((R,)
+    bool) runs at equilibrium from each feed (rows of ``feed``), where the
+    stoichiometry and the feed's zeros alone fix it; NaN elsewhere.
+
+    In an all-gas ideal system every species a feed can make is present at
+    equilibrium, so the extents lie in the open cone where every species
+    not fed has ``(nu^T xi)_i > 0``. Where that cone lies on one side of
+    ``xi_j = 0`` (a linear programme: the smallest ``xi_j`` with ``(nu^T
+    xi)_i >= 1`` on those species is positive, or the largest negative),
+    reaction ``j`` runs that way whatever its K: steam reforming from a feed
+    of methane and steam runs forward. Systems with other phases (which may
+    be absent) get NaN throughout.
+
+    Examples
+    --------
+    >>> from eqbatch.demo import reformer_system
+    >>> s = reformer_system()
+    >>> feed = np.zeros((1, len(s.species))); feed[0, :2] = (1.0, 3.0)  # CH4 and H2O
+    >>> feed_directions(s, feed, np.array([True, True])).tolist()
+    [[1.0, 1.0]]
+    """
+    from scipy.optimize import linprog
+
+    feed = np.atleast_2d(feed)
+    out = np.full((feed.shape[0], system.n_reactions), np.nan)
+    reactive = np.any(system.stoich != 0, axis=0)
+    if any(p != "gas" for p in system.phases) or not np.any(which):
+        return out
+    zero = (feed <= 0.0) & reactive
+    patterns, inverse = _patterns(zero)
+    known = np.full((patterns.shape[0], system.n_reactions), np.nan)
+    for k, pattern in enumerate(patterns):
+        if not pattern.any():
+            continue
+        # (nu^T xi)_i >= 1 on the species not fed, as A_ub xi <= b_ub
+        a_ub = -system.stoich[:, pattern].T
+        b_ub = -np.ones(int(pattern.sum()))
+        bounds = [(None, None)] * system.n_reactions
+        for j in np.flatnonzero(which):
+            c = np.zeros(system.n_reactions)
+            for sign in (1.0, -1.0):
+                c[j] = sign
+                lp = linprog(c, A_ub=a_ub, b_ub=b_ub, bounds=bounds, method="highs")
+                # (min xi_j > 0: forward; max xi_j < 0, i.e. min -xi_j > 0: backward)
+                if lp.status == 0 and lp.fun > 1e-9:
+                    known[k, j] = sign
+                    break
+    out = known[inverse]
+    return out
+
+
+def _patterns(rows: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """The distinct rows of a bool matrix and each row's index among them
+    (``np.unique(rows, axis=0, return_inverse=True)``, in linear time for
+    up to 16 columns: a million feeds' zero patterns in milliseconds)."""
+    if rows.shape[1] > 16:
+        patterns, inverse = np.unique(rows, axis=0, return_inverse=True)
+        return patterns, inverse.reshape(-1)
+    codes = (
+        rows @ (1 << np.arange(rows.shape[1], dtype=np.int32)) if rows.shape[1] else np.zeros(len(rows), int)
+    )
+    seen = np.flatnonzero(np.bincount(codes, minlength=1))
+    index = np.zeros(max(int(seen[-1]) + 1 if seen.size else 1, 1), dtype=np.intp)
+    index[seen] = np.arange(seen.size)
+    patterns = ((seen[:, None] >> np.arange(rows.shape[1])) & 1).astype(bool)
+    return patterns, index[codes]
+
+
 def solve(
     system: SystemSpec,
     approach: Mapping[str, float],
@@ -176,18 +245,44 @@ def solve(
     the core; ``out`` output arrays for the final solve."""
     tol, max_iter, threads, start, chain = options
     core = system._engine
-    eq_extents = core.solve(feed, lnK_eq, P, n, tol, max_iter, threads, start, chain)[1]
-    direction = np.sign(np.nan_to_num(eq_extents))
-    T_eff = approach_temperatures(system, T, approach, direction)
-    lnK = system.lnK_at(T_eff)
-    if bad_T is not None:
-        lnK[np.broadcast_to(bad_T, (lnK.shape[0],))] = np.nan
-    warm = np.where(np.isfinite(eq_extents), eq_extents, 0.0)
-    solved = core.solve(feed, lnK, P, n, tol, max_iter, threads, warm, chain, out)
-    held = np.zeros((n, system.n_reactions), dtype=bool)
     approached = np.zeros(system.n_reactions, dtype=bool)
     for label in approach:
         approached[system.labels.index(label)] = True
+    # Each approached reaction's direction: from the feed where the stoichiometry
+    # fixes it, else from an equilibrium solve at T (whose extents then start the
+    # final solve).
+    direction = np.broadcast_to(feed_directions(system, feed, approached), (n, system.n_reactions))
+    unknown = np.flatnonzero(np.isnan(direction[:, approached]).any(axis=1))
+    direction = np.nan_to_num(direction)
+    warm = start
+    if unknown.size:
+        subset = unknown.size < n
+        args = [
+            _rows(np.asarray(a), unknown) if subset and np.ndim(a) and len(a) > 1 else a
+            for a in (feed, lnK_eq, P)
+        ]
+        x0 = None if start is None else (_rows(start, unknown) if subset else start)
+        m = unknown.size if subset else n
+        eq_extents = core.solve(
+            *[np.ascontiguousarray(a) for a in args], m, tol, max_iter, threads, x0, chain
+        )[1]
+        eq_direction = np.sign(np.nan_to_num(eq_extents))
+        if subset:
+            direction = np.array(direction)
+            direction[unknown] = eq_direction
+            warm = np.full((n, system.n_reactions), np.nan) if start is None else np.array(start)
+            warm[unknown] = np.where(np.isfinite(eq_extents), eq_extents, 0.0)
+        else:
+            direction = eq_direction
+            warm = np.where(np.isfinite(eq_extents), eq_extents, 0.0)
+    T_eff = approach_temperatures(system, T, approach, direction)
+    # (the reactions without an approach keep their constants at T)
+    lnK = np.array(np.broadcast_to(lnK_eq, (n, system.n_reactions)))
+    lnK[:, approached] = system.lnK_at(T_eff, columns=approached)[:, approached]
+    if bad_T is not None:
+        lnK[np.broadcast_to(bad_T, (lnK.shape[0],))] = np.nan
+    solved = core.solve(feed, lnK, P, n, tol, max_iter, threads, warm, chain, out)
+    held = np.zeros((n, system.n_reactions), dtype=bool)
     for _ in range(system.n_reactions):
         extents = solved[1]
         against = approached & (direction != 0) & (np.sign(extents) != direction) & ~held

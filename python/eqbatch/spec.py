@@ -609,7 +609,7 @@ class SystemSpec:
             out[bad] = np.nan
         return out
 
-    def lnK_at(self, T: ArrayLike) -> np.ndarray:
+    def lnK_at(self, T: ArrayLike, columns: np.ndarray | None = None) -> np.ndarray:
         """ln K of each reaction at its own temperature.
 
         Parameters
@@ -617,6 +617,8 @@ class SystemSpec:
         T : array_like, shape (N, R)
             Column ``j`` is the temperature of reaction ``j`` (an approach
             temperature, say), K.
+        columns : ndarray of bool, shape (R,), optional
+            Only these reactions (the other columns are NaN).
 
         Returns
         -------
@@ -631,16 +633,17 @@ class SystemSpec:
         [[2.0, -0.5]]
         """
         T = np.asarray(T, dtype=np.float64)
-        out = np.empty(T.shape)
+        out = np.full(T.shape, np.nan)
         with np.errstate(invalid="ignore"):
             good = np.where((T > 0.0) & (T < math.inf), T, np.nan)
         fast = self._thermo_table if T.ndim == 2 and T.shape[0] else None
-        done = np.zeros(self.n_reactions, dtype=bool)
+        done = np.zeros(self.n_reactions, dtype=bool) if columns is None else ~np.asarray(columns, dtype=bool)
         if fast is not None:  # species data: in the core, one column at a time
             rows, table = fast
             for k, j in enumerate(rows):
-                out[:, j] = table.evaluate(np.ascontiguousarray(good[:, j]))[0][:, k]
-                done[j] = True
+                if not done[j]:
+                    out[:, j] = table.evaluate(np.ascontiguousarray(good[:, j]))[0][:, k]
+                    done[j] = True
         with quiet_ranges(), np.errstate(invalid="ignore"):
             for j in np.flatnonzero(~done):
                 out[:, j] = self._lnk_column(int(j), good[:, j])
