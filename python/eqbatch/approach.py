@@ -257,15 +257,13 @@ def solve(
     warm = start
     if unknown.size:
         subset = unknown.size < n
-        args = [
-            _rows(np.asarray(a), unknown) if subset and np.ndim(a) and len(a) > 1 else a
-            for a in (feed, lnK_eq, P)
-        ]
-        x0 = None if start is None else (_rows(start, unknown) if subset else start)
+        # (the cases' rows of each input; a broadcast row stays one row)
+        f_, k_, p_ = (
+            np.ascontiguousarray(_rows(a, unknown) if subset and len(a) > 1 else a) for a in (feed, lnK_eq, P)
+        )
+        x0 = None if start is None else (_rows(start, unknown) if subset and len(start) > 1 else start)
         m = unknown.size if subset else n
-        eq_extents = core.solve(
-            *[np.ascontiguousarray(a) for a in args], m, tol, max_iter, threads, x0, chain
-        )[1]
+        eq_extents = core.solve(f_, k_, p_, m, tol, max_iter, threads, x0, chain)[1]
         eq_direction = np.sign(np.nan_to_num(eq_extents))
         if subset:
             direction = np.array(direction)
