@@ -295,3 +295,7 @@ def test_an_approach_batch_mixing_fixed_and_solved_directions_solves_each_case_a
         alone = reformer.solve(feed[k], T=T[k], P=P[k], approach={"reforming": 15.0, "shift": 10.0})
         assert np.array_equal(batch.amounts[k], alone.amounts[0]), k
         assert np.array_equal(batch.lnK[k], alone.lnK[0]), k
+    # one starting row for every case, in the same mixed batch
+    started = reformer.solve(feed, T=T, P=P, approach={"reforming": 15.0, "shift": 10.0}, x0=[0.3, 0.1])
+    assert started.converged.all()
+    assert np.allclose(started.amounts, batch.amounts, rtol=1e-8)

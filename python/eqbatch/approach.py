@@ -268,7 +268,8 @@ def solve(
         if subset:
             direction = np.array(direction)
             direction[unknown] = eq_direction
-            warm = np.full((n, system.n_reactions), np.nan) if start is None else np.array(start)
+            shape = (n, system.n_reactions)
+            warm = np.full(shape, np.nan) if start is None else np.array(np.broadcast_to(start, shape))
             warm[unknown] = np.where(np.isfinite(eq_extents), eq_extents, 0.0)
         else:
             direction = eq_direction
