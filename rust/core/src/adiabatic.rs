@@ -45,6 +45,7 @@ use rayon::prelude::*;
 use crate::batch::{on_threads, TINY_FEED};
 use crate::error::CoreError;
 use crate::face::{analyse, SharedFace};
+use crate::ln::ln_normal;
 use crate::newton::{ldl_solve, ARMIJO, MAX_BACKTRACKS, TO_BOUNDARY};
 use crate::solver::{for_small_systems, interior_start, warm_start, SolveOptions};
 use crate::status::Status;
@@ -759,8 +760,15 @@ fn point<const R: usize, const S: usize>(
             for (i, &n) in amounts.iter().enumerate() {
                 total += n;
                 // (each reactive species' `ln n - S/R`, for the residuals)
+                // (amounts on this path are normal numbers: at least `SHARE` of
+                // the gas, or the start's, which the first share test checks)
                 if c.reactive[i] {
-                    species.mu[i] = n.ln() - c.table.s(i, t, ln_t, inv_t);
+                    let ln_n = if n >= f64::MIN_POSITIVE {
+                        ln_normal(n)
+                    } else {
+                        n.ln()
+                    };
+                    species.mu[i] = ln_n - c.table.s(i, t, ln_t, inv_t);
                 }
             }
             return Some(Point {
