@@ -64,14 +64,15 @@ def test_solve_screen_shows_conversion_of_every_fed_reacting_species(auto_file, 
 def test_uncertainty_ranks_a_species_that_a_generated_reaction_makes(auto_file, tmp_path, capsys) -> None:
     system = eqbatch.ReactionSystem.from_toml(auto_file)
     mc = monte_carlo(
-        system, feed={"CH4": 1.0, "H2O": 3.0}, T=1000.0, P=20.0, dG_sigma={"r1": 3.0}, samples=400, seed=2
+        system, feed={"CH4": 1.0, "H2O": 3.0}, T=1000.0, P=20.0, dG_sigma={"CO_H2": 3.0}, samples=400, seed=2
     )
     np.testing.assert_array_equal(mc.values("conversion", "CH4"), 1.0 - mc.amounts[:, 0] / 1.0)
     rows = {label: (first, sampled) for label, first, sampled in mc.ranking("conversion", "CH4")}
-    # only r1 is uncertain, so it carries all of the variance to first order
-    assert rows["r1"][0] == pytest.approx(1.0, abs=1e-12) and rows["r2"][0] == 0.0
-    assert rows["r2"][1] == pytest.approx(0.0, abs=1e-12)
-    assert rows["r1"][1] > 0.9
+    # only the methanation reaction CO_H2 (generated: CO + 3 H2 = CH4 + H2O) is uncertain,
+    # so it carries all of the variance to first order
+    assert rows["CO_H2"][0] == pytest.approx(1.0, abs=1e-12) and rows["CO_H2O"][0] == 0.0
+    assert rows["CO_H2O"][1] == pytest.approx(0.0, abs=1e-12)
+    assert rows["CO_H2"][1] > 0.9
     with pytest.raises(eqbatch.CaseInputError, match="'N2' is not among the conversion outputs"):
         mc.ranking("conversion", "N2")
     code = main(
@@ -85,7 +86,7 @@ def test_uncertainty_ranks_a_species_that_a_generated_reaction_makes(auto_file, 
             "--P",
             "20",
             "--dG-sigma",
-            "r1=3",
+            "CO_H2=3",
             "--samples",
             "400",
             "--output",

@@ -32,6 +32,9 @@ MODULES = [
     "eqbatch.boundary",
     "eqbatch.sweeps",
     "eqbatch.hazards",
+    "eqbatch.realgas",
+    "eqbatch.units",
+    "eqbatch.grid",
 ]
 
 

@@ -25,6 +25,7 @@ from typing import Any, NamedTuple
 import numpy as np
 
 from eqbatch import _core
+from eqbatch.equations import cone_directions
 from eqbatch.errors import CaseInputError
 from eqbatch.kdata import quiet_ranges
 from eqbatch.outputs import Outputs
@@ -166,12 +167,11 @@ def feed_directions(system: SystemSpec, feed: np.ndarray, which: np.ndarray) -> 
 
     In an all-gas ideal system every species a feed can make is present at
     equilibrium, so the extents lie in the open cone where every species
-    not fed has ``(nu^T xi)_i > 0``. Where that cone lies on one side of
-    ``xi_j = 0`` (a linear programme: the smallest ``xi_j`` with ``(nu^T
-    xi)_i >= 1`` on those species is positive, or the largest negative),
-    reaction ``j`` runs that way whatever its K: steam reforming from a feed
-    of methane and steam runs forward. Systems with other phases (which may
-    be absent) get NaN throughout.
+    not fed is positive; where that cone fixes a reaction's sign
+    (:func:`eqbatch.equations.cone_directions`, one linear programme per
+    zero pattern), the reaction runs that way whatever its K: steam
+    reforming from a feed of methane and steam runs forward. Systems with
+    other phases (which may be absent) get NaN throughout.
 
     Examples
     --------
@@ -181,8 +181,6 @@ def feed_directions(system: SystemSpec, feed: np.ndarray, which: np.ndarray) -> 
     >>> feed_directions(s, feed, np.array([True, True])).tolist()
     [[1.0, 1.0]]
     """
-    from scipy.optimize import linprog
-
     feed = np.atleast_2d(feed)
     out = np.full((feed.shape[0], system.n_reactions), np.nan)
     reactive = np.any(system.stoich != 0, axis=0)
@@ -190,23 +188,7 @@ def feed_directions(system: SystemSpec, feed: np.ndarray, which: np.ndarray) -> 
         return out
     zero = (feed <= 0.0) & reactive
     patterns, inverse = _patterns(zero)
-    known = np.full((patterns.shape[0], system.n_reactions), np.nan)
-    for k, pattern in enumerate(patterns):
-        if not pattern.any():
-            continue
-        # (nu^T xi)_i >= 1 on the species not fed, as A_ub xi <= b_ub
-        a_ub = -system.stoich[:, pattern].T
-        b_ub = -np.ones(int(pattern.sum()))
-        bounds = [(None, None)] * system.n_reactions
-        for j in np.flatnonzero(which):
-            c = np.zeros(system.n_reactions)
-            for sign in (1.0, -1.0):
-                c[j] = sign
-                lp = linprog(c, A_ub=a_ub, b_ub=b_ub, bounds=bounds, method="highs")
-                # (min xi_j > 0: forward; max xi_j < 0, i.e. min -xi_j > 0: backward)
-                if lp.status == 0 and lp.fun > 1e-9:
-                    known[k, j] = sign
-                    break
+    known = np.array([cone_directions(system.stoich, pattern, which) for pattern in patterns])
     out = known[inverse]
     return out
 

@@ -21,7 +21,14 @@ import numpy as np
 from eqbatch import _core
 from eqbatch.activity import read_liquid_models
 from eqbatch.compounds import chemicals_data
-from eqbatch.equations import check_atom_balance, independent_reactions, parse_equation, parse_formula
+from eqbatch.equations import (
+    check_atom_balance,
+    generated_labels,
+    independent_reactions,
+    oriented_reactions,
+    parse_equation,
+    parse_formula,
+)
 from eqbatch.errors import (
     DependentReactionsError,
     SystemDefinitionError,
@@ -65,6 +72,7 @@ def define(
     kij: Mapping[tuple[str, str], float] | None = None,
     liquid_model: Mapping[str, Any] | None = None,
     condensable: Sequence[str] | None = None,
+    feed_species: Sequence[str] | None = None,
 ) -> SystemSpec:
     """The checked description of a system from the arguments of
     :class:`~eqbatch.ReactionSystem` (see there for each).
@@ -73,7 +81,7 @@ def define(
     ----------
     species, reactions, phases, P0, formulas, check_balance, lnK, species_data, thermo
         As for :class:`~eqbatch.ReactionSystem`.
-    gas_model, critical, kij, liquid_model, condensable
+    gas_model, critical, kij, liquid_model, condensable, feed_species
         As for :class:`~eqbatch.ReactionSystem`.
 
     Returns
@@ -101,11 +109,19 @@ def define(
     index = {name: k for k, name in enumerate(names)}
     parsed_formulas = _read_formulas(names, index, formulas)
     if isinstance(reactions, str) and reactions.strip().lower() == "auto":
-        reactions = independent_reactions(names, parsed_formulas)
-        if not reactions:
+        generated = independent_reactions(names, parsed_formulas)
+        if not generated:
             raise SystemDefinitionError(
                 "reactions='auto': the species admit no reaction (S = rank of elements)"
             )
+        if feed_species is not None:
+            generated = oriented_reactions(generated, names, [str(s) for s in feed_species])
+        reactions = list(zip(generated_labels(generated), generated))
+    elif feed_species is not None:
+        raise SystemDefinitionError(
+            "feed_species orients generated reactions: it applies to reactions='auto' only "
+            "(write given equations in the direction you want them)"
+        )
     labels, equations = _read_reactions(reactions)
     phase_of = _read_phases(names, index, phases)
     if not isinstance(check_balance, (bool, np.bool_)):

@@ -378,6 +378,100 @@ def independent_reactions(species: Sequence[str], formulas: Mapping[str, dict[st
     return equations
 
 
+def cone_directions(stoich: np.ndarray, not_fed: np.ndarray, which: np.ndarray | None = None) -> np.ndarray:
+    """The sign of each reaction's extent at equilibrium (+1 forward, -1
+    backward) from any feed that lacks the species ``not_fed`` ((S,) bool)
+    and holds the rest, where the stoichiometry alone fixes it; NaN where
+    it does not. ``which`` ((R,) bool) limits the reactions examined.
+
+    Every species such a feed can make is present at an ideal-gas
+    equilibrium, so the extents lie in the open cone where each species not
+    fed has ``(nu^T xi)_i > 0``. Where that cone lies on one side of ``xi_j
+    = 0`` (a linear programme: the smallest ``xi_j`` with ``(nu^T xi)_i >=
+    1`` on those species is positive, or the largest negative), reaction
+    ``j`` runs that way whatever its K.
+
+    Examples
+    --------
+    >>> nu = np.array([[-1.0, -1.0, 1.0, 3.0, 0.0], [0.0, -1.0, -1.0, 1.0, 1.0]])  # CH4 H2O CO H2 CO2
+    >>> cone_directions(nu, np.array([False, False, True, True, True])).tolist()  # methane and steam fed
+    [1.0, 1.0]
+    """
+    from scipy.optimize import linprog
+
+    n_reactions = stoich.shape[0]
+    out = np.full(n_reactions, np.nan)
+    if not np.any(not_fed):
+        return out
+    a_ub = -stoich[:, not_fed].T  # (nu^T xi)_i >= 1 as A_ub xi <= b_ub
+    b_ub = -np.ones(int(np.sum(not_fed)))
+    bounds = [(None, None)] * n_reactions
+    for j in range(n_reactions) if which is None else np.flatnonzero(which):
+        c = np.zeros(n_reactions)
+        for sign in (1.0, -1.0):
+            c[j] = sign
+            lp = linprog(c, A_ub=a_ub, b_ub=b_ub, bounds=bounds, method="highs")
+            # (min xi_j > 0: forward; max xi_j < 0, i.e. min -xi_j > 0: backward)
+            if lp.status == 0 and lp.fun > 1e-9:
+                out[j] = sign
+                break
+    return out
+
+
+def oriented_reactions(
+    equations: Sequence[str], species: Sequence[str], feed_species: Sequence[str]
+) -> list[str]:
+    """``equations`` each written in the direction it runs from a feed of
+    ``feed_species`` (see :func:`cone_directions`); one whose direction the
+    feed does not fix stays as it is.
+
+    Examples
+    --------
+    >>> sp = ["CH4", "H2O", "CO", "H2", "CO2"]
+    >>> oriented_reactions(["CO + 3 H2 = CH4 + H2O", "CO + H2O = CO2 + H2"], sp, ["CH4", "H2O"])
+    ['CH4 + H2O = CO + 3 H2', 'CO + H2O = CO2 + H2']
+    """
+    unknown = [s for s in feed_species if s not in species]
+    if unknown:
+        raise UnknownSpeciesError(f"feed_species names no species of the system: {', '.join(unknown)}")
+    stoich = np.zeros((len(equations), len(species)))
+    for j, equation in enumerate(equations):
+        for name, c in parse_equation(equation, species, f"r{j + 1}").items():
+            stoich[j, list(species).index(name)] = c
+    reactive = np.any(stoich != 0, axis=0)
+    not_fed = reactive & ~np.isin(np.array(species), list(feed_species))
+    directions = cone_directions(stoich, not_fed)
+    out = []
+    for equation, direction in zip(equations, directions):
+        left, right = (side.strip() for side in equation.split("="))
+        out.append(f"{right} = {left}" if direction == -1.0 else equation)
+    return out
+
+
+def generated_labels(equations: Sequence[str]) -> list[str]:
+    """Labels for generated equations from their species: the reactants
+    joined by ``_`` (``CH4_H2O``: labels name columns such as
+    ``lnK_CH4_H2O``, so they keep to letters, digits and ``_``), with
+    ``_to_`` and the products where two reactions share reactants.
+
+    Examples
+    --------
+    >>> generated_labels(["CH4 + H2O = CO + 3 H2", "CO + H2O = CO2 + H2"])
+    ['CH4_H2O', 'CO_H2O']
+    >>> generated_labels(["CH4 + H2O = CO + 3 H2", "CH4 + 2 H2O = CO2 + 4 H2"])
+    ['CH4_H2O_to_CO_H2', 'CH4_H2O_to_CO2_H2']
+    """
+
+    def names(side: str) -> str:
+        return "_".join(re.sub(r"[^A-Za-z0-9_]", "_", term.split()[-1]) for term in side.split(" + "))
+
+    sides = [[names(side.strip()) for side in equation.split("=")] for equation in equations]
+    short = [left for left, _ in sides]
+    labels = [left if short.count(left) == 1 else f"{left}_to_{right}" for left, right in sides]
+    labels = [label if label[:1].isalpha() or label[:1] == "_" else f"r_{label}" for label in labels]
+    return [label if labels.count(label) == 1 else f"{label}_{k + 1}" for k, label in enumerate(labels)]
+
+
 def _side(terms: Mapping[str, Fraction]) -> str:
     """One side of a generated equation: ``CO + 3 H2``."""
     return " + ".join(f"{'' if c == 1 else str(c) + ' '}{s}" for s, c in terms.items() if c != 0)

@@ -177,7 +177,7 @@ def critical_from_chemicals(name: str, formula: str | None) -> tuple[dict[str, f
     --------
     >>> values, source = critical_from_chemicals("NH3", None)
     >>> round(values["Tc"], 1), round(values["Pc"], 2)
-    (405.6, 113.33)
+    (405.6, 113.63)
     """
     try:
         from chemicals.acentric import omega, omega_methods

@@ -115,6 +115,13 @@ class ReactionSystem(SystemSpec):
         The gas species a dry basis leaves out (``result.dry_mole_fractions``,
         the ``ydry_<species>`` columns of tables and sweeps). Default: water
         (``H2O``) where the system has it; ``[]`` for no dry basis.
+    feed_species : sequence of str, optional
+        With ``reactions="auto"``: the species the process feeds. Each
+        generated reaction is written in the direction it runs from such a
+        feed (steam reforming, not methanation, for ``["CH4", "H2O"]``)
+        where the feed fixes it (:func:`eqbatch.equations.cone_directions`).
+        Generated reactions are labelled from their reactants
+        (``CH4+H2O``).
     liquid_model : mapping phase -> NRTL or Wilson, optional
         Activity-coefficient models of solution phases (``"liquid"``,
         ``"liquid:<name>"``; :mod:`eqbatch.activity`): activities ``x gamma``
@@ -157,6 +164,7 @@ class ReactionSystem(SystemSpec):
         kij: Mapping[tuple[str, str], float] | None = None,
         liquid_model: Mapping[str, Any] | None = None,
         condensable: Sequence[str] | None = None,
+        feed_species: Sequence[str] | None = None,
     ) -> None:
         spec = define(
             species,
@@ -173,6 +181,7 @@ class ReactionSystem(SystemSpec):
             kij=kij,
             liquid_model=liquid_model,
             condensable=condensable,
+            feed_species=feed_species,
         )
         super().__init__(**spec._values())
 

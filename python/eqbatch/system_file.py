@@ -25,7 +25,8 @@
     K = 1.44                              # or lnK = ..., log10K = ...
 
 Instead of K data, species may carry thermochemistry, and the reactions may
-be generated (``reactions = "auto"``)::
+be generated (``reactions = "auto"``, with ``feed_species = ["CH4", "H2O"]``
+to write each one in the direction it runs from that feed)::
 
     [species_data.H2O]
     source = "NIST Chemistry WebBook, Shomate"
@@ -88,6 +89,7 @@ _TOP_KEYS = {
     "critical",
     "liquid_model",
     "condensable",
+    "feed_species",
 }
 _REACTION_KEYS = {"label", "equation", "lnK", "K", "log10K"}
 
@@ -291,6 +293,7 @@ def read_spec(path: str | os.PathLike[str]) -> SystemSpec:
             **_gas_tables(doc, fail),
             liquid_model=_liquid_models(doc, fail),
             condensable=doc.get("condensable"),
+            feed_species=doc.get("feed_species"),
         )
     except SystemDefinitionError as err:
         raise type(err)(f"{name}: {err}") from None
