@@ -35,6 +35,7 @@ MODULES = [
     "eqbatch.realgas",
     "eqbatch.units",
     "eqbatch.grid",
+    "eqbatch.where",
 ]
 
 

@@ -432,3 +432,33 @@ def test_si_columns_do_not_load_the_units_library() -> None:
     )
     out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True)
     assert out.stdout.strip() == "False"
+
+
+def test_plot_filters_rows_names_what_it_averages_and_samples_large_files(tmp_path, capsys) -> None:
+    from eqbatch import plots
+    from eqbatch.cli import main
+
+    table = make_grid(
+        {"T_K": (800, 1100, 7), "P_bar": (1, 30, 3), "feed_H2O": (2.0, 4.0, 15)},
+        constants={"feed_CH4": 1.0},
+    )
+    write_grid(tmp_path / "g.parquet", table)
+    sweep(reformer_system(), tmp_path / "g.parquet", tmp_path / "r.parquet", quiet=True)
+    result = str(tmp_path / "r.parquet")
+    args = ["plot", result, "--x", "T_K", "--y", "y_H2", "--out", str(tmp_path / "p.png")]
+    # y against T only: each point averages over the pressures and steam feeds, and says so
+    assert main(args) == 0
+    assert "each point: mean over P_bar, feed_H2O" in capsys.readouterr().out
+    # filtered to one pressure and one steam feed: nothing is averaged
+    assert main([*args, "--where", "P_bar=1", "--where", "feed_H2O<=2"]) == 0
+    out = capsys.readouterr().out
+    assert "P_bar=1 and feed_H2O<=2" in out and "mean over" not in out
+    # fifteen --by values: a colour scale, not a legend
+    assert main([*args, "--by", "feed_H2O", "--where", "P_bar=1"]) == 0
+    assert png_size(tmp_path / "p.png") == (640, 440)
+    # a file larger than the plot reads is drawn from a sample, and the count is said
+    notes: list[str] = []
+    plots.result_plot(result, tmp_path / "s.png", x="T_K", y="y_H2", max_rows=100, notes=notes)
+    assert f"a random sample of 100 of {7 * 3 * 15:,} rows" in notes
+    with pytest.raises(eqbatch.CaseInputError, match="no row has P_bar>100"):
+        plots.result_plot(result, tmp_path / "s.png", x="T_K", y="y_H2", where=["P_bar>100"])

@@ -366,7 +366,12 @@ def _cmd_grid(args: argparse.Namespace) -> int:
 
 
 def _cmd_plot(args: argparse.Namespace) -> int:
-    out = plots.result_plot(args.result, args.out, x=args.x, y=args.y, by=args.by, z=args.z)
+    notes: list[str] = []
+    out = plots.result_plot(
+        args.result, args.out, x=args.x, y=args.y, by=args.by, z=args.z, where=args.where, notes=notes
+    )
+    for note in notes:
+        print(note)
     print(f"wrote {out}")
     return 0
 
@@ -613,6 +618,12 @@ def _parser() -> argparse.ArgumentParser:
     pl.add_argument("--y", required=True, help="result column (or, with --z, a second swept column)")
     pl.add_argument("--by", help="one line per value of this column")
     pl.add_argument("--z", help="heat map of this column over --x and --y")
+    pl.add_argument(
+        "--where",
+        action="append",
+        metavar="COLUMN=VALUE",
+        help="draw only the rows where this holds (also !=, <, <=, >, >=; repeat to combine)",
+    )
     pl.add_argument("--out", default="plot.png", help="PNG to write")
     pl.set_defaults(run=_cmd_plot)
 

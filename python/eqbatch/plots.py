@@ -11,6 +11,7 @@ import numpy as np
 from eqbatch.columns import parse_output
 from eqbatch.errors import CaseInputError
 from eqbatch.uncertainty import MonteCarloResult
+from eqbatch.where import columns_of, parse_where, where_mask
 
 __all__ = ["histogram", "parse_output", "result_plot", "tornado"]
 
@@ -66,6 +67,18 @@ def tornado(mc: MonteCarloResult, output: str, path: str | Path) -> Path:
     return _save(plt, fig, path)
 
 
+#: Most rows a plot reads; a larger file is drawn from a random sample of
+#: this many (said on the plot).
+MAX_PLOT_ROWS = 200_000
+#: Above this many distinct ``by`` values the lines take a colour scale, not
+#: a legend.
+MAX_LEGEND = 10
+#: Input columns a sweep may vary: a plot that does not show them and sees
+#: them vary averages over them, and says which.
+_SWEPT_PREFIXES = ("feed_", "lnK_", "approach_", "T_", "P_")
+_SWEPT = {"S_C", "adiabatic", "duty_kJ", "H_in_kJ"}
+
+
 def result_plot(
     path: str | Path,
     out: str | Path,
@@ -74,40 +87,70 @@ def result_plot(
     y: str,
     by: str | None = None,
     z: str | None = None,
+    where: Sequence[str] | None = None,
     size: tuple[float, float] = (6.4, 4.4),
     dpi: int = 100,
+    max_rows: int = MAX_PLOT_ROWS,
+    notes: list[str] | None = None,
 ) -> Path:
     """Plot a sweep's output: ``y`` against ``x`` with one line per value of
-    ``by``, or, with ``z``, a heat map of ``z`` over the swept ``x`` and ``y``.
-    Where other columns vary too, the plotted value is their mean (said in
-    the title). Writes a PNG of ``size`` inches at ``dpi``."""
+    ``by`` (a colour scale beyond :data:`MAX_LEGEND` values), or, with ``z``,
+    a heat map of ``z`` over the swept ``x`` and ``y``. ``where`` filters
+    the rows first (``["P_bar=20", "status_name=converged"]``, see
+    :mod:`eqbatch.where`). Where input columns not shown still vary, the
+    plotted value is their mean, and the title names them; a file of more
+    than ``max_rows`` rows is drawn from a random sample of that many, and
+    the title says so (and ``notes``, a list, receives those lines). Writes
+    a PNG of ``size`` inches at ``dpi``."""
     import pyarrow.parquet as pq
 
+    conditions = parse_where(where)
     cols = [c for c in (x, y, by, z) if c]
     try:
         names = pq.read_schema(path).names
     except Exception as err:  # pyarrow raises several types for missing and bad files
         raise CaseInputError(f"{path}: not a readable Parquet file ({type(err).__name__})") from None
-    missing = [c for c in cols if c not in names]
+    missing = [c for c in cols + columns_of(conditions) if c not in names]
     if missing:
         shown = ", ".join(n for n in names if not n.startswith("__"))
         raise CaseInputError(f"{path}: no column {', '.join(map(repr, missing))} (columns are {shown})")
-    table = pq.read_table(path, columns=cols, page_checksum_verification=True)
-    data = {c: table.column(c).to_numpy(zero_copy_only=False).astype(float) for c in cols}
+    swept = [n for n in names if (n.startswith(_SWEPT_PREFIXES) or n in _SWEPT) and n not in cols]
+    read = list(dict.fromkeys(cols + columns_of(conditions) + swept))
+    table = pq.read_table(path, columns=read, page_checksum_verification=True)
+    total = table.num_rows
+    keep = where_mask(conditions, lambda c: table.column(c).to_numpy(zero_copy_only=False), total)
+    rows = np.flatnonzero(keep)
+    if rows.size == 0:
+        raise CaseInputError(f"{path}: no row has {' and '.join(map(str, conditions))}")
+    notes = [] if notes is None else notes
+    notes += [" and ".join(map(str, conditions))] if conditions else []
+    if rows.size > max_rows:
+        rows = np.sort(np.random.default_rng(0).choice(rows, size=max_rows, replace=False))
+        notes.append(f"a random sample of {max_rows:,} of {int(keep.sum()):,} rows")
+    data = {c: table.column(c).to_numpy(zero_copy_only=False)[rows].astype(float) for c in cols}
+    varying = [c for c in swept if np.unique(table.column(c).to_numpy(zero_copy_only=False)[rows]).size > 1]
     plt = _pyplot()
     fig, ax = plt.subplots(figsize=size)
     if z is None:
         groups: list[Any] = [None] if by is None else list(np.unique(data[by]))
-        points = 0
+        scale = by is not None and len(groups) > MAX_LEGEND
+        colours = plt.get_cmap("viridis")
+        span = (min(groups), max(groups)) if scale else (0.0, 1.0)
         for g in groups:
-            mask = np.ones(table.num_rows, bool) if by is None else data[by] == g
+            mask = np.ones(rows.size, bool) if by is None else data[by] == g
             xs = np.unique(data[x][mask])
-            points += xs.size
             ys = [np.nanmean(data[y][mask & (data[x] == v)]) for v in xs]
-            ax.plot(xs, ys, "o-", ms=3, label=None if g is None else f"{by} = {g:g}")
+            if scale:
+                share = (g - span[0]) / (span[1] - span[0]) if span[1] > span[0] else 0.5
+                ax.plot(xs, ys, "-", lw=1, color=colours(share))
+            else:
+                ax.plot(xs, ys, "o-", ms=3, label=None if g is None else f"{by} = {g:g}")
         ax.set_xlabel(x)
         ax.set_ylabel(y)
-        if by is not None:
+        if scale:
+            mappable = plt.cm.ScalarMappable(cmap=colours, norm=plt.Normalize(*span))
+            fig.colorbar(mappable, ax=ax, label=by)
+        elif by is not None:
             ax.legend(fontsize=8)
     else:
         x_values, y_values = np.unique(data[x]), np.unique(data[y])
@@ -124,10 +167,9 @@ def result_plot(
         fig.colorbar(mesh, ax=ax, label=z)
         ax.set_xlabel(x)
         ax.set_ylabel(y)
-        points = int(np.isfinite(grid).sum())
-    averaged = table.num_rows > points
-    ax.set_title(
-        Path(path).name + (" (each point: mean over the other swept columns)" if averaged else ""), fontsize=9
-    )
+    if varying:
+        notes.append("each point: mean over " + ", ".join(varying))
+    title = Path(path).name + "".join(f"\n{note}" for note in notes)
+    ax.set_title(title, fontsize=8)
     ax.grid(True, alpha=0.3)
     return _save(plt, fig, out, dpi)
