@@ -14,10 +14,11 @@ from pathlib import Path
 import eqbatch
 import numpy as np
 import pyarrow as pa
+import pyarrow.csv
 import pyarrow.parquet as pq
 import pytest
 from conftest import png_size
-from eqbatch.demo import reformer_system
+from eqbatch.demo import reformer_system, system_file_text
 from eqbatch.grid import make_grid, write_grid
 from eqbatch.sweeps import SweepError, sweep
 
@@ -462,3 +463,54 @@ def test_plot_filters_rows_names_what_it_averages_and_samples_large_files(tmp_pa
     assert f"a random sample of 100 of {7 * 3 * 15:,} rows" in notes
     with pytest.raises(eqbatch.CaseInputError, match="no row has P_bar>100"):
         plots.result_plot(result, tmp_path / "s.png", x="T_K", y="y_H2", where=["P_bar>100"])
+
+
+def test_csv_input_where_filters_and_column_subsets(tmp_path, capsys) -> None:
+    from eqbatch.cli import main
+
+    # the same cases as Parquet and as CSV (whole numbers in the CSV read as numbers)
+    table = make_grid({"T_K": (800, 1100, 4), "P_bar": (1, 31, 4)}, constants={"feed_CH4": 1, "feed_H2O": 3})
+    write_grid(tmp_path / "g.parquet", table)
+    pa.csv.write_csv(pq.read_table(tmp_path / "g.parquet"), tmp_path / "g.csv")
+    system = reformer_system()
+    sweep(system, tmp_path / "g.parquet", tmp_path / "p.parquet", quiet=True)
+    sweep(system, tmp_path / "g.csv", tmp_path / "c.parquet", quiet=True)
+    by_parquet, by_csv = pq.read_table(tmp_path / "p.parquet"), pq.read_table(tmp_path / "c.parquet")
+    assert by_csv.num_rows == 16
+    np.testing.assert_array_equal(by_csv.column("y_H2").to_numpy(), by_parquet.column("y_H2").to_numpy())
+    # --where picks rows before solving; --columns keeps a subset, in the order given
+    (tmp_path / "reformer.toml").write_text(system_file_text())
+    code = main(
+        [
+            "sweep",
+            "--quiet",
+            str(tmp_path / "reformer.toml"),
+            str(tmp_path / "g.csv"),
+            str(tmp_path / "w.parquet"),
+            "--where",
+            "T_K>=1000",
+            "--where",
+            "P_bar<30",
+            "--columns",
+            "T_K,P_bar,y_H2,status_name",
+        ]
+    )
+    assert code == 0, capsys.readouterr().err
+    picked = pq.read_table(tmp_path / "w.parquet")
+    assert picked.column_names == ["T_K", "P_bar", "y_H2", "status_name"]
+    full = by_parquet.to_pandas()
+    want = full[(full.T_K >= 1000) & (full.P_bar < 30)]
+    assert picked.num_rows == len(want) == 6
+    np.testing.assert_array_equal(picked.column("y_H2").to_numpy(), want.y_H2.to_numpy())
+    assert not list(tmp_path.glob(".*staged"))  # the staging folder is gone
+    # a finished output: kept by a resume, refused without one
+    again = {"where": ["T_K>=1000"], "quiet": True}
+    kept = sweep(system, tmp_path / "g.csv", tmp_path / "w.parquet", resume=True, **again)
+    assert kept.kept == 6 and pq.read_table(tmp_path / "w.parquet").equals(picked)
+    with pytest.raises(SweepError, match="exists"):
+        sweep(system, tmp_path / "g.csv", tmp_path / "w.parquet", **again)
+    # bad filters and columns are named
+    with pytest.raises(SweepError, match="names no column 'T'"):
+        sweep(system, tmp_path / "g.csv", tmp_path / "x.parquet", where=["T>5"], quiet=True)
+    with pytest.raises(SweepError, match="names no output column 'y_H3'"):
+        sweep(system, tmp_path / "g.csv", tmp_path / "y.parquet", columns=["y_H3"], quiet=True)

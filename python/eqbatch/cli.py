@@ -300,6 +300,8 @@ def _cmd_sweep(args: argparse.Namespace) -> int:
         threads=args.threads,
         allow_extra_columns=args.allow_extra_columns,
         energy=True if args.energy else None,
+        where=args.where,
+        columns=None if args.columns is None else [c.strip() for c in args.columns.split(",") if c.strip()],
     )
     print(f"{args.output}: {summary.line()}")
     if not args.quiet:
@@ -554,9 +556,9 @@ def _parser() -> argparse.ArgumentParser:
     unc.add_argument("--plots", default=".", metavar="DIR", help="folder for histogram.png and tornado.png")
     unc.set_defaults(run=_cmd_uncertainty)
 
-    sw = sub.add_parser("sweep", help="solve every row of a Parquet case table (file or folder)")
+    sw = sub.add_parser("sweep", help="solve every row of a Parquet or CSV case table (file or folder)")
     sw.add_argument("system", help="system file (TOML)")
-    sw.add_argument("input", help="Parquet file, or folder of Parquet files")
+    sw.add_argument("input", help="Parquet or CSV file, or folder of Parquet files")
     sw.add_argument("output", help="output Parquet file (folder for a folder input)")
     sw.add_argument("--batch-size", type=int, default=65_536, help="rows per batch (bounds memory)")
     sw.add_argument(
@@ -580,6 +582,13 @@ def _parser() -> argparse.ArgumentParser:
         action="store_true",
         help="add H_out_kJ, heat_kJ and dH_<label> (on by default with adiabatic, duty_kJ or T_in_K columns)",
     )
+    sw.add_argument(
+        "--where",
+        action="append",
+        metavar="COLUMN=VALUE",
+        help="solve only the rows where this holds (also !=, <, <=, >, >=; repeat to combine)",
+    )
+    sw.add_argument("--columns", metavar="NAME,...", help="write only these output columns, in this order")
     sw.set_defaults(run=_cmd_sweep)
 
     bd = sub.add_parser(

@@ -67,7 +67,7 @@ import sys
 import threading
 import time
 import zlib
-from collections.abc import Iterator
+from collections.abc import Iterator, Sequence
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
@@ -108,6 +108,7 @@ from eqbatch.errors import CaseInputError, EqbatchError
 from eqbatch.status import CONVERGED_CODES, Status, status_words
 from eqbatch.system import ReactionSystem
 from eqbatch.units import PRESSURE_COLUMNS, TEMPERATURE_COLUMNS, pressure_to_bar, temperature_to_kelvin
+from eqbatch.where import Condition, columns_of, parse_where, where_mask
 
 #: Rows per record batch by default.
 DEFAULT_BATCH_SIZE = 65_536
@@ -946,8 +947,12 @@ def _kept_output(dst: Path) -> SweepSummary:
     """The summary of a finished output kept as it is (its statuses counted
     batch by batch: memory does not grow with the file)."""
     summary = SweepSummary(files=[str(dst)], finished_files=[str(dst)])
-    for batch in _input_batches(_open(dst), dst, 0, DEFAULT_BATCH_SIZE, columns=[STATUS]):
-        _count(summary, batch.column(0).to_numpy())
+    pf = _open(dst)
+    if STATUS not in pf.schema_arrow.names:  # (a subset of the columns, without the status)
+        summary.rows = pf.metadata.num_rows
+    else:
+        for batch in _input_batches(pf, dst, 0, DEFAULT_BATCH_SIZE, columns=[STATUS]):
+            _count(summary, batch.column(0).to_numpy())
     summary.kept = summary.rows
     return summary
 
@@ -1131,6 +1136,102 @@ def _count(summary: SweepSummary, status: np.ndarray) -> None:
         summary.by_status[name] = summary.by_status.get(name, 0) + int(count)
 
 
+def _staged_sweep(
+    system: ReactionSystem,
+    src: Path,
+    dst: Path,
+    where: Sequence[str] | None,
+    columns: Sequence[str] | None,
+    quiet: bool | None,
+    kwargs: dict[str, Any],
+) -> SweepSummary:
+    """:func:`sweep` of a CSV file, of a file's rows that pass ``where``, or
+    into a subset of the output's ``columns``: see there."""
+    pa, pq = _pa()
+    stage = dst.parent / f".{dst.name}.staged"
+    if dst.exists() and not kwargs["overwrite"]:
+        if not kwargs["resume"]:
+            raise SweepError(_exists_message(dst))
+        if not stage.exists():  # finished before: nothing was interrupted
+            return _kept_output(dst)
+    conditions = parse_where(where)
+    stage.mkdir(parents=True, exist_ok=True)
+    staged = src
+    if conditions or src.suffix.lower() == ".csv":
+        staged = stage / "input.parquet"
+        _stage_rows(src, conditions, staged)
+    full = stage / "output.parquet" if columns else dst
+    inner = dict(kwargs)
+    if full != dst:  # (the staged output: kept by a resume, else made afresh)
+        inner["overwrite"] = kwargs["overwrite"] or not kwargs["resume"]
+    summary = sweep_file(system, staged, full, quiet=quiet, **inner)
+    if columns:
+        _project(full, dst, list(columns))
+    shutil.rmtree(stage, ignore_errors=True)
+    summary.files = [str(dst)]
+    return summary
+
+
+def _stage_rows(src: Path, conditions: Sequence[Condition], out: Path) -> None:
+    """Write the rows of ``src`` (Parquet, or CSV with a header row) that
+    pass ``conditions`` to the Parquet file ``out``, batch by batch."""
+    pa, pq = _pa()
+    if src.suffix.lower() == ".csv":
+        from pyarrow import csv
+
+        try:
+            # whole numbers in a column of numbers are read as float64, as a
+            # later row with a fraction would need (CSV types are guessed per block)
+            probe = csv.open_csv(src)
+            types = {
+                f.name: pa.float64() for f in probe.schema if pa.types.is_integer(f.type) and f.name != STATUS
+            }
+            probe.close()
+            reader: Any = csv.open_csv(src, convert_options=csv.ConvertOptions(column_types=types))
+            schema = reader.schema
+        except (pa.ArrowInvalid, OSError) as err:
+            raise SweepError(f"{src}: not a readable CSV file with a header row ({err})") from None
+    else:
+        pf = _open(src)
+        schema = pf.schema_arrow
+        reader = pf.iter_batches(batch_size=DEFAULT_BATCH_SIZE)
+    missing = [c for c in columns_of(conditions) if c not in schema.names]
+    if missing:
+        raise SweepError(f"{src}: where= names no column {', '.join(map(repr, missing))}")
+    with pq.ParquetWriter(out, schema, write_page_checksum=True) as writer:
+        try:
+            for batch in reader:
+                if conditions:
+                    batch = batch.filter(pa.array(_passing(conditions, batch)))
+                writer.write_batch(batch)
+        except pa.ArrowInvalid as err:
+            raise SweepError(f"{src}: {err}") from None
+
+
+def _passing(conditions: Sequence[Condition], batch: Any) -> np.ndarray:
+    """The rows of a record batch where every condition holds."""
+    return where_mask(conditions, lambda c: batch.column(c).to_numpy(zero_copy_only=False), batch.num_rows)
+
+
+def _project(full: Path, dst: Path, columns: list[str]) -> None:
+    """The output ``dst`` as the ``columns`` of the finished sweep ``full``
+    (its metadata kept), batch by batch."""
+    pa, pq = _pa()
+    pf = _open(full)
+    missing = [c for c in columns if c not in pf.schema_arrow.names]
+    if missing:
+        raise SweepError(
+            f"{dst}: columns= names no output column {', '.join(map(repr, missing))} "
+            f"(the output has {', '.join(pf.schema_arrow.names)})"
+        )
+    schema = pa.schema([pf.schema_arrow.field(c) for c in columns], metadata=pf.schema_arrow.metadata)
+    tmp = dst.parent / f".{dst.name}.writing"
+    with pq.ParquetWriter(tmp, schema, use_dictionary=False, write_page_checksum=True) as writer:
+        for batch in pf.iter_batches(batch_size=DEFAULT_BATCH_SIZE, columns=columns):
+            writer.write_batch(batch)
+    os.replace(tmp, dst)
+
+
 def _sweep_task(system: ReactionSystem, src: Path, dst: Path, kwargs: dict[str, Any]) -> SweepSummary:
     """One Dask task: a whole input file (runs on a worker)."""
     kwargs = dict(kwargs, quiet=True, say=lambda msg: None)
@@ -1153,15 +1254,31 @@ def sweep(
     max_iter: int = 200,
     allow_extra_columns: bool = False,
     energy: bool | None = None,
+    where: Sequence[str] | None = None,
+    columns: Sequence[str] | None = None,
 ) -> SweepSummary:
-    """Solve every row of a Parquet file, or of every file in a folder.
+    """Solve every row of a Parquet (or CSV) file, or of every Parquet file
+    in a folder.
 
     Parameters
     ----------
     system : ReactionSystem
     input : path
-        A Parquet file (then ``output`` is a file) or a folder of ``*.parquet``
-        files (then ``output`` is a folder with one output file per input).
+        A Parquet file (then ``output`` is a file), a CSV file (``*.csv``, with
+        a header row: read by pyarrow and checked as a Parquet file is) or a
+        folder of ``*.parquet`` files (then ``output`` is a folder with one
+        output file per input).
+    where : sequence of str, optional
+        Solve only the rows where these hold (``["T_K>=900", "P_bar=20"]``,
+        see :mod:`eqbatch.where`).
+    columns : sequence of str, optional
+        Write only these columns of the output (input or output names, in
+        this order).
+
+    CSV input, ``where`` and ``columns`` take one input file: its rows (as
+    filtered) are staged as Parquet in a hidden folder beside the output,
+    ``.<output>.staged``, swept from there (a resume resumes that), and the
+    folder is removed when the output is written.
     batch_size : int
         Rows per record batch (memory is bounded by it, not by the file); a
         resume may use another one.
@@ -1237,6 +1354,12 @@ def sweep(
     if not src.exists():
         raise SweepError(f"{src}: no such file or folder")
     _refuse_input_as_output(src, dst)
+    if where or columns or src.suffix.lower() == ".csv":
+        if src.is_dir() or client is not None or scheduler is not None:
+            raise SweepError(f"{src}: CSV input, where= and columns= take one input file, solved here")
+        out = _staged_sweep(system, src, dst, where, columns, quiet, kwargs)
+        out.seconds = time.perf_counter() - t0
+        return out
     if src.is_file():
         if client is not None or scheduler is not None:
             raise SweepError(f"{src}: a cluster run takes a folder of Parquet files (one task per file)")
