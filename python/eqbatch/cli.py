@@ -200,6 +200,17 @@ def _cmd_solve(args: argparse.Namespace) -> int:
         if any(c < 0 for _, c in conversions):
             print("(a negative conversion is net production: the equilibrium holds more than was fed)")
         print()
+        # yields: mol of each species made per mol of each fed species consumed
+        consumed = [name for name, c in conversions if c > 0]
+        made = [k for k in range(len(system.species)) if res.amounts[0, k] > feed_row[k]]
+        if consumed and made and converged:
+            per = {name: res.yields(name)[0] for name in consumed}
+            rows = [[system.species[k], *[_fmt(per[name][k]) for name in consumed]] for k in made]
+            print(_table(["made", *[f"mol per mol {name} fed" for name in consumed]], rows))
+            print()
+    if converged and "CH4" in system.species and np.isfinite(res.methane_slip[0]):
+        print(f"methane slip: {100 * float(res.methane_slip[0]):.4g} mol % CH4, dry basis")
+        print()
     if converged and res.T is not None and all(name in system.species_data for name in system.species):
         heat = float(res.duty()[0])
         fed_at = f"the feed at {float(res.T_in[0]):g} K" if res.T_in is not None else "the feed at T"

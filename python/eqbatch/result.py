@@ -649,6 +649,53 @@ class EquilibriumResult:
         with np.errstate(divide="ignore", invalid="ignore"):
             return np.where(feed > 0, (feed - self.amounts[:, k]) / feed, np.nan)
 
+    def yields(self, per: str) -> np.ndarray:
+        """The yield of every species per mole of ``per`` fed: ``(n_i - n0_i) /
+        n0_per`` (mol made per mol fed; negative for a species consumed).
+        The hydrogen yield of a reformer is ``yields("CH4")[:, H2]``.
+
+        Parameters
+        ----------
+        per : str
+            A fed species.
+
+        Returns
+        -------
+        ndarray, shape (N, S)
+            NaN rows where ``per`` is not fed.
+
+        Examples
+        --------
+        >>> from eqbatch import ReactionSystem
+        >>> s = ReactionSystem(["CO", "H2O", "CO2", "H2"], ["CO + H2O = CO2 + H2"])
+        >>> s.solve([1.0, 1.0, 0.0, 0.0], lnK=0.0).yields("CO").round(4).tolist()
+        [[-0.5, -0.5, 0.5, 0.5]]
+        """
+        k = self.system.index(per)
+        fed = self.feed[:, k]
+        with np.errstate(divide="ignore", invalid="ignore"):
+            return np.where(fed[:, None] > 0, (self.amounts - self.feed) / fed[:, None], np.nan)
+
+    @property
+    def methane_slip(self) -> np.ndarray:
+        """(N,) methane's dry-basis mole fraction at the outlet (what a
+        reformer's outlet analyser reads after the condenser; the sweeps'
+        ``ydry_CH4`` column): the dry mole fraction of ``CH4``.
+
+        Raises
+        ------
+        UnknownSpeciesError
+            The system has no ``CH4``.
+
+        Examples
+        --------
+        >>> from eqbatch.demo import reformer_feed, reformer_system
+        >>> res = reformer_system().solve(reformer_feed(3.0), T=1100.0, P=25.0)
+        >>> round(float(res.methane_slip[0]), 4)  # 6.9 % dry at 1100 K, 25 bar, steam to carbon 3
+        0.0695
+        """
+        return self.dry_mole_fractions[:, self.system.index("CH4")]
+
     def sensitivity(self, wrt: str, of: str = "amounts") -> np.ndarray:
         """Exact derivatives of the equilibrium (solve with ``sensitivities=True``).
 
