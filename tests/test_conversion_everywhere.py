@@ -67,7 +67,7 @@ def test_uncertainty_ranks_a_species_that_a_generated_reaction_makes(auto_file, 
         system, feed={"CH4": 1.0, "H2O": 3.0}, T=1000.0, P=20.0, dG_sigma={"CO_H2": 3.0}, samples=400, seed=2
     )
     np.testing.assert_array_equal(mc.values("conversion", "CH4"), 1.0 - mc.amounts[:, 0] / 1.0)
-    rows = {label: (first, sampled) for label, first, sampled in mc.ranking("conversion", "CH4")}
+    rows = {label: (first, sampled) for label, first, sampled in mc.ranking("conversion", "CH4").itertuples()}
     # only the methanation reaction CO_H2 (generated: CO + 3 H2 = CH4 + H2O) is uncertain,
     # so it carries all of the variance to first order
     assert rows["CO_H2"][0] == pytest.approx(1.0, abs=1e-12) and rows["CO_H2O"][0] == 0.0

@@ -91,14 +91,18 @@ def test_ranking_shares_and_tornado() -> None:
     mc = monte_carlo(
         system, feed=[1, 3, 0, 0, 0], lnK=[1.0, 0.5], P=5.0, lnK_sigma=[0.4, 0.1], samples=20_000, seed=2
     )
-    rows = mc.ranking("mole_fractions", "H2")
-    assert sum(r[1] for r in rows) == pytest.approx(1.0)
-    for _, first, sampled in rows:
-        assert abs(first - sampled) < 0.05
+    rows = mc.ranking("mole_fractions", "H2")  # a table labelled by reaction
+    assert list(rows.columns) == ["first_order_share", "sampled_share"] and rows.index.name == "reaction"
+    assert rows.first_order_share.sum() == pytest.approx(1.0)
+    assert np.all(np.abs(rows.first_order_share - rows.sampled_share) < 0.05)
     tornado = mc.tornado("mole_fractions", "H2")
-    assert tornado[0][0] == rows[0][0]  # the same reaction matters most
+    assert tornado.index[0] == rows.index[0]  # the same reaction matters most
     nominal = mc.nominal_value("mole_fractions", "H2")
-    assert all(min(lo, hi) < nominal < max(lo, hi) for _, lo, hi in tornado)
+    low, high = tornado.at_minus_sigma, tornado.at_plus_sigma
+    assert np.all((np.minimum(low, high) < nominal) & (nominal < np.maximum(low, high)))
+    summary = mc.summary("mole_fractions").to_pandas()
+    sampled_h2 = mc.values("mole_fractions", "H2")[mc.converged]
+    assert summary.loc["H2", "mean"] == pytest.approx(float(np.mean(sampled_h2)))
 
 
 def test_cli_prints_the_summary_and_writes_pngs(tmp_path, capsys) -> None:

@@ -280,9 +280,9 @@ def _cmd_uncertainty(args: argparse.Namespace) -> int:
             print(summ.table())
     for name in outputs:
         of, what = parse_output(name)
-        rows = mc.ranking(of, what)
+        ranked = mc.ranking(of, what)
         print(f"\nWhich reaction matters for {name} (share of variance: first order / sampled)")
-        for label, first, sampled in rows:
+        for label, first, sampled in ranked.itertuples():
             print(f"  {label:<16} {100 * first:6.1f} %  {100 * sampled:6.1f} %")
     for name, op, value in limits:
         of, what = parse_output(name)

@@ -55,7 +55,7 @@ def tornado(mc: MonteCarloResult, output: str, path: str | Path) -> Path:
     standard deviation, largest swing on top."""
     plt = _pyplot()
     of, what = parse_output(output)
-    rows = mc.tornado(of, what)
+    rows = list(mc.tornado(of, what).itertuples())
     base = mc.nominal_value(of, what)
     fig, ax = plt.subplots(figsize=(6.4, 0.6 * len(rows) + 1.4))
     for k, (_label, low, high) in enumerate(reversed(rows)):

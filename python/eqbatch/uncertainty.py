@@ -177,6 +177,28 @@ class Summary:
     percentile_se: dict[float, np.ndarray]
     linear_std: np.ndarray | None = None
 
+    def to_pandas(self) -> Any:
+        """The statistics as a :class:`pandas.DataFrame`, one row per output
+        (index ``output``): ``mean``, ``mean_se``, ``std``, ``std_se``, a
+        ``p<q>`` and ``p<q>_se`` per percentile, and ``linear_std`` where known.
+
+        Examples
+        --------
+        >>> summary = summarise(np.array([[1.0], [2.0], [3.0], [4.0]]), ["x"], [50.0])
+        >>> list(summary.to_pandas().columns)
+        ['mean', 'mean_se', 'std', 'std_se', 'p50', 'p50_se']
+        """
+        import pandas as pd
+
+        data: dict[str, Any] = {"mean": self.mean, "mean_se": self.mean_se}
+        data |= {"std": self.std, "std_se": self.std_se}
+        for q in sorted(self.percentiles):
+            data[f"p{q:g}"] = self.percentiles[q]
+            data[f"p{q:g}_se"] = self.percentile_se[q]
+        if self.linear_std is not None:
+            data["linear_std"] = self.linear_std
+        return pd.DataFrame(data, index=pd.Index(list(self.names), name="output"))
+
     def table(self) -> str:
         """The statistics as a text table, one row per output.
 
@@ -490,7 +512,7 @@ class MonteCarloResult:
         p = float(hits.mean())
         return p, math.sqrt(max(p * (1 - p), 0.0) / max(v.size, 1))
 
-    def ranking(self, of: str, name: str) -> list[tuple[str, float, float]]:
+    def ranking(self, of: str, name: str) -> Any:
         """Which reaction's uncertainty matters most for one output.
 
         The first-order share is ``J_r (C J^T)_r / (J C J^T)``; the sampled one
@@ -505,9 +527,10 @@ class MonteCarloResult:
 
         Returns
         -------
-        list of (str, float, float)
-            ``(label, first-order share of variance, sampled share)`` per
-            reaction, largest first-order share first.
+        pandas.DataFrame
+            One row per reaction (index ``reaction``, its label), largest
+            first-order share first; columns ``first_order_share`` (of the
+            variance) and ``sampled_share``.
 
         Raises
         ------
@@ -519,8 +542,9 @@ class MonteCarloResult:
         >>> from eqbatch.demo import reformer_feed, reformer_system
         >>> mc = monte_carlo(reformer_system(), feed=reformer_feed(3.0)[0], T=1050.0, P=20.0,
         ...                  dG_sigma={"reforming": 3.0, "shift": 0.3}, samples=2000, seed=1)
-        >>> [label for label, first, sampled in mc.ranking("conversion", "CH4")]
-        ['reforming', 'shift']
+        >>> table = mc.ranking("conversion", "CH4")
+        >>> list(table.index), list(table.columns)
+        (['reforming', 'shift'], ['first_order_share', 'sampled_share'])
         """
         k = self._position(of, name)
         values, _, jac = self._output(of)
@@ -535,10 +559,10 @@ class MonteCarloResult:
                 sampled.append(0.0)
             else:
                 sampled.append(float(np.corrcoef(x, v)[0, 1] ** 2))
-        rows = list(zip(self.system.labels, first.tolist(), sampled))
-        return sorted(rows, key=lambda row: -abs(row[1]))
+        rows = sorted(zip(self.system.labels, first.tolist(), sampled), key=lambda row: -abs(row[1]))
+        return _labelled(rows, ["first_order_share", "sampled_share"])
 
-    def tornado(self, of: str, name: str) -> list[tuple[str, float, float]]:
+    def tornado(self, of: str, name: str) -> Any:
         """An output with each reaction's ln K moved by one standard deviation.
 
         Full nonlinear solves at the nominal ln K shifted by -1 and +1
@@ -552,8 +576,10 @@ class MonteCarloResult:
 
         Returns
         -------
-        list of (str, float, float)
-            ``(label, output at -1 sigma, output at +1 sigma)``, widest swing first.
+        pandas.DataFrame
+            One row per reaction (index ``reaction``), widest swing first;
+            columns ``at_minus_sigma`` and ``at_plus_sigma`` (the output with
+            that reaction's ln K moved by -1 and +1 standard deviation).
 
         Raises
         ------
@@ -564,8 +590,8 @@ class MonteCarloResult:
         --------
         >>> s = ReactionSystem(["CO", "H2O", "CO2", "H2"], ["CO + H2O = CO2 + H2"])
         >>> mc = monte_carlo(s, feed=[1, 1, 0, 0], lnK=[0.0], lnK_sigma=[0.3], samples=100, seed=1)
-        >>> [(label, round(low, 4), round(high, 4)) for label, low, high in mc.tornado("conversion", "CO")]
-        [('r1', 0.4626, 0.5374)]
+        >>> mc.tornado("conversion", "CO").round(4).to_dict("index")
+        {'r1': {'at_minus_sigma': 0.4626, 'at_plus_sigma': 0.5374}}
         """
         k = self._position(of, name)
         sigma = np.sqrt(np.diag(self.covariance))
@@ -581,7 +607,16 @@ class MonteCarloResult:
             res = self.system.solve(self.feed, lnK=shifted, P=self.nominal.P[0], T=T)
             out, _ = self._values(of, res.amounts, res.mole_fractions, res.extents)
             rows.append((label, float(out[0, k]), float(out[1, k])))
-        return sorted(rows, key=lambda row: -abs(row[2] - row[1]))
+        rows.sort(key=lambda row: -abs(row[2] - row[1]))
+        return _labelled(rows, ["at_minus_sigma", "at_plus_sigma"])
+
+
+def _labelled(rows: list[tuple[str, float, float]], columns: list[str]) -> Any:
+    """Rows ``(reaction label, a, b)`` as a DataFrame indexed by ``reaction``."""
+    import pandas as pd
+
+    index = pd.Index([r[0] for r in rows], name="reaction")
+    return pd.DataFrame([r[1:] for r in rows], index=index, columns=columns, dtype=float)
 
 
 def monte_carlo(
