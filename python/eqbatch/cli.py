@@ -32,6 +32,7 @@ from eqbatch.grid import make_grid, write_grid
 from eqbatch.hazards import caution
 from eqbatch.inputs import MAX_ITER
 from eqbatch.kdata import collect_extrapolation
+from eqbatch.report import study_report
 from eqbatch.spec import SystemSpec
 from eqbatch.speciesdata import R, ThermoLnK
 from eqbatch.status import Status
@@ -378,6 +379,13 @@ def _cmd_grid(args: argparse.Namespace) -> int:
     return 0
 
 
+def _cmd_report(args: argparse.Namespace) -> int:
+    system = None if args.system is None else ReactionSystem.from_toml(args.system)
+    out = study_report(args.result, args.out, system=system, title=args.title)
+    print(f"wrote {out}")
+    return 0
+
+
 def _cmd_plot(args: argparse.Namespace) -> int:
     notes: list[str] = []
     out = plots.result_plot(
@@ -646,6 +654,13 @@ def _parser() -> argparse.ArgumentParser:
     )
     pl.add_argument("--out", default="plot.png", help="PNG to write")
     pl.set_defaults(run=_cmd_plot)
+
+    rp = sub.add_parser("report", help="a self-contained HTML study report of a sweep's results")
+    rp.add_argument("result", help="sweep output (Parquet)")
+    rp.add_argument("--system", help="the system file the sweep solved (its species, reactions and data)")
+    rp.add_argument("--out", default="report.html", help="HTML file to write")
+    rp.add_argument("--title", help="the report's title")
+    rp.set_defaults(run=_cmd_report)
 
     th = sub.add_parser("thermo", help="dH, dG and ln K of every reaction over a temperature range")
     th.add_argument("system", help="system file (TOML)")
