@@ -351,6 +351,16 @@ def test_pressure_and_temperature_columns_in_plant_units(tmp_path) -> None:
             out[name].column("y_H2").to_numpy(), out["si"].column("y_H2").to_numpy(), rtol=1e-9
         )
         assert out[name].column_names[:4] == list(feed | forms[name])  # the input columns as given
+    # each column says its unit in its Parquet field metadata: the plant-unit inputs
+    # keep theirs, the outputs are SI-based (mol, K, bar absolute), fractions are 1
+    schema = pq.read_schema(tmp_path / "plant_out.parquet")
+    units = {name: (schema.field(name).metadata or {}).get(b"unit") for name in schema.names}
+    assert units["T_C"] == b"Cel" and units["P_psig"] == b"psi (gauge)" and units["feed_CH4"] == b"mol"
+    assert units["n_H2"] == b"mol" and units["y_H2"] == b"1" and units["extent_reforming"] == b"mol"
+    assert units["status"] is None and units["iterations"] is None
+    in_memory = system.solve([1.0, 3.0, 0, 0, 0, 0], T=900.0, P=10.0).to_arrow().schema
+    assert in_memory.field("T_K").metadata == {b"unit": b"K"}
+    assert in_memory.field("P_bar").metadata == {b"unit": b"bar"}
     pq.write_table(pa.table(feed | {"T_K": T_K, "T_C": T_K - 273.15}), tmp_path / "both.parquet")
     with pytest.raises(SweepError, match="more than one temperature column"):
         sweep(system, tmp_path / "both.parquet", tmp_path / "both_out.parquet", quiet=True)

@@ -90,6 +90,73 @@ def input_names(spec: SystemSpec, *, temperature: bool) -> list[str]:
     )
 
 
+#: The unit of each column kind, by exact name and by prefix (UCUM-style
+#: strings; ``1`` for a dimensionless quantity). Outputs are SI-based
+#: (mol, K, bar absolute, kJ and J/mol); input columns in plant units keep
+#: theirs. Sweeps and ``result.to_arrow()`` write them as Parquet field
+#: metadata (``unit``).
+_UNITS_BY_NAME = {
+    "P_bar": "bar",
+    "P_barg": "bar (gauge)",
+    "P_kPa": "kPa",
+    "P_MPa": "MPa",
+    "P_atm": "atm",
+    "P_psia": "psi",
+    "P_psig": "psi (gauge)",
+    "T_K": "K",
+    "T_C": "Cel",
+    "T_in_K": "K",
+    "T_out_K": "K",
+    "H_in_kJ": "kJ",
+    "H_out_kJ": "kJ",
+    "heat_kJ": "kJ",
+    "duty_kJ": "kJ",
+    "S_C": "mol/mol",
+    "ratio_H2_CO": "mol/mol",
+    "SN": "1",
+}
+_UNITS_BY_PREFIX = (
+    ("feed_", "mol"),
+    ("n_", "mol"),
+    ("extent_", "mol"),
+    ("ydry_", "1"),
+    ("y_", "1"),
+    ("conversion_", "1"),
+    ("lnK_", "1"),
+    ("activity_", "1"),
+    ("approach_", "K"),
+    ("dH_", "J/mol"),
+    ("boundary_T", "K"),
+    ("boundary_P", "bar"),
+    ("boundary_", "mol"),
+)
+
+
+def unit_of(name: str) -> str | None:
+    """The unit of a result-table column (None: a count, a flag or a name).
+
+    Examples
+    --------
+    >>> unit_of("n_CH4"), unit_of("y_H2"), unit_of("P_psig"), unit_of("dH_shift"), unit_of("status")
+    ('mol', '1', 'psi (gauge)', 'J/mol', None)
+    """
+    if name in _UNITS_BY_NAME:
+        return _UNITS_BY_NAME[name]
+    return next((unit for prefix, unit in _UNITS_BY_PREFIX if name.startswith(prefix)), None)
+
+
+def with_units(schema: Any) -> Any:
+    """A :class:`pyarrow.Schema` whose fields carry their ``unit`` metadata
+    (:func:`unit_of`), the schema's own metadata kept."""
+    import pyarrow as pa
+
+    fields = []
+    for field in schema:
+        unit = unit_of(field.name)
+        fields.append(field if unit is None else field.with_metadata({"unit": unit}))
+    return pa.schema(fields, metadata=schema.metadata)
+
+
 def output_names(spec: SystemSpec, converted: Iterable[str] = ()) -> list[str]:
     """``n_<species>``, ``y_<species>``, ``extent_<label>``, ``conversion_<c>``
     for each species ``c`` in ``converted``, ``status``, ``status_name``,

@@ -20,6 +20,7 @@ from eqbatch.columns import (
     phase_names,
     status_names,
     syngas_columns,
+    with_units,
 )
 from eqbatch.errors import CaseInputError
 from eqbatch.spec import SystemSpec
@@ -904,12 +905,13 @@ class EquilibriumResult:
         import pyarrow as pa
 
         cols = self.columns(inputs)
-        return pa.table(
+        table = pa.table(
             {
                 k: status_names(v, "arrow") if k == STATUS_NAME else pa.array(np.ascontiguousarray(v))
                 for k, v in cols.items()
             }
         )
+        return table.cast(with_units(table.schema))  # (each field's unit in its metadata)
 
 
 class EnergyBalance:

@@ -103,6 +103,7 @@ from eqbatch.columns import (
     status_names,
     syngas_columns,
     syngas_names,
+    with_units,
 )
 from eqbatch.errors import CaseInputError, EqbatchError
 from eqbatch.status import CONVERGED_CODES, Status, status_words
@@ -1082,7 +1083,7 @@ class _BackgroundWriter:
                 if writer is None:
                     writer = pq.ParquetWriter(
                         self.path,
-                        table.schema.with_metadata(self.metadata),
+                        with_units(table.schema).with_metadata(self.metadata),  # (units per field)
                         use_dictionary=False,
                         write_page_checksum=True,
                     )
