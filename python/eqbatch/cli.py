@@ -88,8 +88,10 @@ def warnings_to_stderr(quiet: bool = False) -> Iterator[None]:
                         _show_warning(warning, type(warning), "", 0)
 
 
-def _pairs(values: Sequence[str] | None, what: str) -> dict[str, float]:
-    out: dict[str, float] = {}
+def _pairs(values: Sequence[str] | None, what: str, units: bool = False) -> dict[str, Any]:
+    """``NAME=VALUE,...`` entries; with ``units`` a value may carry a unit
+    (``CH4=100kmol/h``), kept as text for the solve to convert."""
+    out: dict[str, Any] = {}
     for chunk in values or []:
         for item in chunk.split(","):
             item = item.strip()
@@ -101,6 +103,9 @@ def _pairs(values: Sequence[str] | None, what: str) -> dict[str, float]:
             try:
                 out[name.strip()] = float(number)
             except ValueError:
+                if units and number.strip()[:1].isdigit():
+                    out[name.strip()] = number.strip()
+                    continue
                 raise _UsageError(f"{what} {name.strip()!r}: {number!r} is not a number") from None
     return out
 
@@ -123,10 +128,10 @@ def _table(headers: list[str], rows: list[list[str]]) -> str:
     return "\n".join(lines)
 
 
-def _system_and_feed(args: argparse.Namespace) -> tuple[ReactionSystem, dict[str, float]]:
+def _system_and_feed(args: argparse.Namespace) -> tuple[ReactionSystem, dict[str, Any]]:
     """The system file and the one case's ``--feed`` of a command."""
     system = ReactionSystem.from_toml(args.system)
-    feed = _pairs(args.feed, "--feed")
+    feed = _pairs(args.feed, "--feed", units=True)
     if not feed:
         raise _UsageError("give the feed, e.g. --feed CH4=1,H2O=3")
     return system, feed
@@ -182,13 +187,15 @@ def _cmd_solve(args: argparse.Namespace) -> int:
         [name, system.phases[k], _fmt(feed_row[k]), _fmt(res.amounts[0, k]), _fmt(res.mole_fractions[0, k])]
         for k, name in enumerate(system.species)
     ]
-    print(_table(["species", "phase", "feed/mol", "amount/mol", "mole fraction"], rows))
+    # (a feed given as flows, kmol/h or kg/h, is solved per hour: amounts in mol/h)
+    per = "mol/h" if any(isinstance(v, str) and "/" in v for v in feed.values()) else "mol"
+    print(_table(["species", "phase", f"feed/{per}", f"amount/{per}", "mole fraction"], rows))
     print()
     rows = [
         [label, eq, f"{res.lnK[0, j]:.6g}", _fmt(res.extents[0, j])]
         for j, (label, eq) in enumerate(zip(system.labels, system.equations))
     ]
-    print(_table(["reaction", "equation", "ln K", "extent/mol"], rows))
+    print(_table(["reaction", "equation", "ln K", f"extent/{per}"], rows))
     print()
     # every fed species that reacts, on whichever side its reactions write it
     conversions = [
@@ -205,8 +212,8 @@ def _cmd_solve(args: argparse.Namespace) -> int:
         consumed = [name for name, c in conversions if c > 0]
         made = [k for k in range(len(system.species)) if res.amounts[0, k] > feed_row[k]]
         if consumed and made and converged:
-            per = {name: res.yields(name)[0] for name in consumed}
-            rows = [[system.species[k], *[_fmt(per[name][k]) for name in consumed]] for k in made]
+            yields = {name: res.yields(name)[0] for name in consumed}
+            rows = [[system.species[k], *[_fmt(yields[name][k]) for name in consumed]] for k in made]
             print(_table(["made", *[f"mol per mol {name} fed" for name in consumed]], rows))
             print()
     if converged and "CH4" in system.species and np.isfinite(res.methane_slip[0]):

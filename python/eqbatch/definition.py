@@ -30,6 +30,7 @@ from eqbatch.equations import (
     parse_formula,
 )
 from eqbatch.errors import (
+    CaseInputError,
     DependentReactionsError,
     SystemDefinitionError,
     UnboundedReactionsError,
@@ -48,6 +49,7 @@ from eqbatch.speciesdata import (
     ThermoLnK,
     species_data_from_table,
 )
+from eqbatch.units import is_quantity, pressure_input
 
 _LABEL = re.compile(r"^[A-Za-z_][A-Za-z0-9_.\-]*$")
 
@@ -291,6 +293,13 @@ def _read_formulas(
 
 
 def _read_p0(P0: Any) -> float:
+    if isinstance(P0, str) or is_quantity(P0):  # with its unit: "1 atm", "101.325 kPa"
+        if isinstance(P0, str) and P0.strip().lower().endswith("g"):
+            raise SystemDefinitionError(f"P0 is an absolute pressure, not a gauge one: {P0!r}")
+        try:
+            P0 = pressure_input(P0)
+        except CaseInputError as err:
+            raise SystemDefinitionError(f"P0: {err}") from None
     try:
         if isinstance(P0, (bool, np.bool_)):
             raise TypeError  # True is not a pressure, though float(True) is 1.0

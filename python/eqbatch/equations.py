@@ -378,6 +378,34 @@ def independent_reactions(species: Sequence[str], formulas: Mapping[str, dict[st
     return equations
 
 
+#: Standard atomic weights, g/mol (IUPAC 2021 abridged values, conventional
+#: values where IUPAC gives an interval; from memory): the molar masses of
+#: species from their formulas, for feeds given as masses.
+ATOMIC_WEIGHTS = {
+    "H": 1.008, "He": 4.0026, "Li": 6.94, "Be": 9.0122, "B": 10.81, "C": 12.011, "N": 14.007,
+    "O": 15.999, "F": 18.998, "Ne": 20.180, "Na": 22.990, "Mg": 24.305, "Al": 26.982, "Si": 28.085,
+    "P": 30.974, "S": 32.06, "Cl": 35.45, "Ar": 39.95, "K": 39.098, "Ca": 40.078, "Ti": 47.867,
+    "V": 50.942, "Cr": 51.996, "Mn": 54.938, "Fe": 55.845, "Co": 58.933, "Ni": 58.693, "Cu": 63.546,
+    "Zn": 65.38, "Br": 79.904, "Kr": 83.798, "Mo": 95.95, "Ag": 107.87, "Sn": 118.71, "I": 126.90,
+    "Xe": 131.29, "Pt": 195.08, "Au": 196.97, "Hg": 200.59, "Pb": 207.2,
+}  # fmt: skip
+
+
+def molar_mass(counts: Mapping[str, float] | None) -> float | None:
+    """The molar mass (kg/mol) of a formula's element counts, from
+    :data:`ATOMIC_WEIGHTS`; None without a formula or for an element not
+    in the table.
+
+    Examples
+    --------
+    >>> round(molar_mass(parse_formula("CH4")) * 1000, 3)  # g/mol
+    16.043
+    """
+    if not counts or any(e not in ATOMIC_WEIGHTS for e in counts):
+        return None
+    return sum(ATOMIC_WEIGHTS[e] * n for e, n in counts.items()) / 1000.0
+
+
 def cone_directions(stoich: np.ndarray, not_fed: np.ndarray, which: np.ndarray | None = None) -> np.ndarray:
     """The sign of each reaction's extent at equilibrium (+1 forward, -1
     backward) from any feed that lacks the species ``not_fed`` ((S,) bool)

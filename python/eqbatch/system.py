@@ -22,6 +22,7 @@ from eqbatch import approach as approach_module
 from eqbatch import outputs
 from eqbatch.adiabatic import adiabatic_solve
 from eqbatch.definition import define
+from eqbatch.equations import molar_mass as formula_molar_mass
 from eqbatch.errors import CaseInputError, InvalidCaseError
 from eqbatch.inputs import (
     MAX_ITER,
@@ -38,6 +39,7 @@ from eqbatch.realgas import nonideal_sensitivities, solve_real, warn_if_not_idea
 from eqbatch.result import EquilibriumResult, Status
 from eqbatch.spec import PHASES, ArrayLike, KData, SystemSpec, bad_temperatures
 from eqbatch.system_file import read_spec
+from eqbatch.units import amounts_in_mol, is_quantity, pressure_input, temperature_input
 
 # MAX_ITER, PHASES, TOL_RANGE, ArrayLike and KData live in inputs and spec;
 # they are named here too for code that imported them from eqbatch.system.
@@ -189,22 +191,22 @@ class ReactionSystem(SystemSpec):
     def from_spec(cls, spec: SystemSpec) -> ReactionSystem:
         """The system a checked description describes.
 
-        Parameters
-        ----------
-        spec : SystemSpec
-            From :func:`eqbatch.definition.define` or
-            :func:`eqbatch.system_file.read_spec`.
+                Parameters
+                ----------
+                spec : SystemSpec
+                    From :func:`eqbatch.definition.define` or
+                    :func:`eqbatch.system_file.read_spec`.
 
-        Returns
-        -------
-        ReactionSystem
+                Returns
+                -------
+                ReactionSystem
 
-        Examples
-        --------
-        >>> from eqbatch.definition import define
-        >>> spec = define(["Xa", "Xb"], ["Xa = Xb"], lnK=[0.0])
-        >>> ReactionSystem.from_spec(spec).solve([1.0, 0.0]).amounts.tolist()
-        [[0.5, 0.5]]
+                Examples
+                --------
+                >>> from eqbatch.definition import define
+                >>> spec = define(["Xa", "Xb"], ["Xa = Xb"], lnK=[0.0])
+                >>> ReactionSystem.from_spec(spec).solve([1.0, 0.0]).amounts.tolist()
+                [[0.5, 0.5]]
         """
         system = cls.__new__(cls)
         SystemSpec.__init__(system, **spec._values())
@@ -245,6 +247,20 @@ class ReactionSystem(SystemSpec):
         return (_rebuild_system, (self.arguments(),))
 
     # ----------------------------------------------------------------- solve
+
+    def molar_mass(self, species: str) -> float | None:
+        """A species' molar mass, kg/mol, from its formula (IUPAC standard
+        atomic weights, :data:`eqbatch.equations.ATOMIC_WEIGHTS`); None
+        without one.
+
+        Examples
+        --------
+        >>> from eqbatch import ReactionSystem
+        >>> s = ReactionSystem(["CO", "H2O", "CO2", "H2"], ["CO + H2O = CO2 + H2"])
+        >>> round(s.molar_mass("H2O") * 1000, 3)  # g/mol
+        18.015
+        """
+        return formula_molar_mass(self.formulas.get(species))
 
     def solve(
         self,
@@ -390,6 +406,13 @@ class ReactionSystem(SystemSpec):
         """
         if duty is not None and adiabatic:
             raise CaseInputError("give adiabatic=True (no heat exchanged) or duty= (heat added), not both")
+        # plant units: "870C", "29 barg", pint quantities, a feed in kmol/h or kg/h
+        if type(T) is not float and T is not None and not isinstance(T, np.ndarray):
+            T = temperature_input(T)
+        if type(P) is not float and P is not None and not isinstance(P, np.ndarray):
+            P = pressure_input(P)
+        if isinstance(feed, Mapping) and any(isinstance(v, str) or is_quantity(v) for v in feed.values()):
+            feed = amounts_in_mol(dict(feed), self.molar_mass)
         if self.nonideal is not None:
             unsupported = [
                 name

@@ -16,6 +16,8 @@ import functools
 import re
 from typing import Any
 
+from eqbatch.errors import CaseInputError
+
 #: A standard atmosphere in bar: the reference of gauge pressures.
 ATMOSPHERE_BAR = 1.01325
 
@@ -134,3 +136,108 @@ def parse_temperature(text: str) -> float:
     if unit not in _TEMPERATURE_UNITS:
         raise ValueError(f"unknown temperature unit {unit!r} in {text!r}; use K or C")
     return float(_registry().Quantity(value, _TEMPERATURE_UNITS[unit]).to("kelvin").magnitude)
+
+
+def is_quantity(value: Any) -> bool:
+    """Whether ``value`` is a pint quantity (checked without importing pint)."""
+    return hasattr(value, "magnitude") and hasattr(value, "units") and hasattr(value, "to")
+
+
+def temperature_input(value: Any) -> Any:
+    """A temperature as the engine takes it, kelvin: a string as typed
+    (:func:`parse_temperature`: ``"870C"``, ``"1143 K"``) or a pint quantity
+    (``Q_(870, "degC")``, arrays too) converted; anything else as given.
+
+    Examples
+    --------
+    >>> temperature_input("870C"), temperature_input(900.0)
+    (1143.15, 900.0)
+    """
+    if isinstance(value, str):
+        try:
+            return parse_temperature(value)
+        except ValueError as err:
+            raise CaseInputError(f"T: {err}") from None
+    if is_quantity(value):
+        return _converted(value, "kelvin", "T")
+    return value
+
+
+def pressure_input(value: Any) -> Any:
+    """A pressure as the engine takes it, bar absolute: a string as typed
+    (:func:`parse_pressure`: ``"29 barg"``, ``"3 MPa"``, ``"435 psig"``) or a
+    pint quantity (absolute; pint has no gauge pressures) converted;
+    anything else as given.
+
+    Examples
+    --------
+    >>> pressure_input("29barg"), pressure_input(12.0)
+    (30.01325, 12.0)
+    """
+    if isinstance(value, str):
+        try:
+            return parse_pressure(value)
+        except ValueError as err:
+            raise CaseInputError(f"P: {err}") from None
+    if is_quantity(value):
+        return _converted(value, "bar", "P")
+    return value
+
+
+def _converted(value: Any, unit: str, name: str) -> Any:
+    import pint
+
+    try:
+        return value.to(unit).magnitude
+    except pint.errors.DimensionalityError:
+        raise CaseInputError(f"{name} = {value}: not convertible to {unit}") from None
+
+
+def amounts_in_mol(amounts: dict[str, Any], molar_mass: Any) -> dict[str, Any]:
+    """A feed given per species with units, in mol: amounts (``"2 kmol"``,
+    ``Q_(2, "kmol")``) to mol, molar flows (``"100 kmol/h"``) to mol/h, and
+    masses or mass flows (``"1.6 t/h"``, ``"16 kg"``) through the species'
+    molar mass (``molar_mass(species)``, kg/mol). A flow basis gives results
+    per hour (amounts in mol/h); amounts and flows cannot be mixed. Values
+    without a unit are mol (or mol/h beside flows).
+
+    Examples
+    --------
+    >>> mol = amounts_in_mol({"CH4": "100 kmol/h", "H2O": "5.4 t/h"}, {"CH4": 0.016043, "H2O": 0.018015}.get)
+    >>> {name: round(v, 1) for name, v in mol.items()}  # mol/h
+    {'CH4': 100000.0, 'H2O': 299750.2}
+    """
+    ureg = _registry()
+    out: dict[str, Any] = {}
+    kinds = set()
+    for name, value in amounts.items():
+        if not (isinstance(value, str) or is_quantity(value)):
+            out[name] = value
+            continue
+        try:
+            # (a caller's quantity may come from another registry: rebuilt in this one)
+            q = (
+                ureg.Quantity(value)
+                if isinstance(value, str)
+                else ureg.Quantity(value.magnitude, str(value.units))
+            )
+        except Exception:  # pint raises several types for text it cannot read
+            raise CaseInputError(f"feed[{name!r}] = {value!r}: not an amount with a unit") from None
+        flow = q.check("[substance]/[time]") or q.check("[mass]/[time]")
+        if q.check("[mass]") or q.check("[mass]/[time]"):
+            mass = molar_mass(name)
+            if mass is None:
+                raise CaseInputError(f"feed[{name!r}] = {value!r}: a mass needs a formula (molar mass)")
+            q = q / ureg.Quantity(mass, "kg/mol")
+        target = "mol/hour" if flow else "mol"
+        try:
+            out[name] = q.to(target).magnitude
+        except Exception:  # pint's DimensionalityError
+            raise CaseInputError(
+                f"feed[{name!r}] = {value!r}: an amount (mol, kmol), a flow (kmol/h), a mass (kg) "
+                "or a mass flow (kg/h) is needed"
+            ) from None
+        kinds.add(flow)
+    if len(kinds) > 1:
+        raise CaseInputError("feed: give every species as an amount or every one as a flow, not both")
+    return out
