@@ -10,12 +10,17 @@ weights (H 1.008, C 12.011, O 15.999; from memory)."""
 
 from __future__ import annotations
 
+from importlib import resources
+
 import numpy as np
 import pint
+import pyarrow as pa
+import pyarrow.parquet as pq
 import pytest
 from eqbatch import CaseInputError, ReactionSystem, SystemDefinitionError
 from eqbatch.cli import main
 from eqbatch.demo import reformer_system
+from eqbatch.sweeps import SweepError, sweep
 
 Q = pint.UnitRegistry().Quantity
 
@@ -74,9 +79,30 @@ def test_standard_pressure_with_a_unit() -> None:
 
 
 def test_the_command_line_takes_flows_and_says_per_hour(capsys) -> None:
-    from importlib import resources
-
     path = str(resources.files("eqbatch").joinpath("data/reformer.toml"))
     assert main(["solve", path, "--feed", "CH4=100kmol/h,H2O=5.4t/h", "--T", "870C", "--P", "29barg"]) == 0
     out = capsys.readouterr().out
     assert "feed/mol/h" in out and "amount/mol/h" in out and "T = 1143.15 K" in out
+
+
+def test_sweep_feed_columns_with_units(tmp_path, reformer) -> None:
+    m_h2o = (2 * 1.008 + 15.999) / 1000  # kg/mol, IUPAC atomic weights
+    T = np.linspace(900.0, 1100.0, 5)
+    plant = {"feed_CH4[kmol/h]": np.full(5, 100.0), "feed_H2O[t/h]": np.full(5, 5.4), "T_C": T - 273.15}
+    si = {"feed_CH4": np.full(5, 100_000.0), "feed_H2O": np.full(5, 5_400.0 / m_h2o), "T_K": T}
+    for name, cols in (("plant", plant), ("si", si)):
+        pq.write_table(pa.table(cols), tmp_path / f"{name}.parquet")
+        sweep(reformer, tmp_path / f"{name}.parquet", tmp_path / f"{name}_out.parquet", quiet=True)
+    a, b = (pq.read_table(tmp_path / f"{n}_out.parquet") for n in ("plant", "si"))
+    np.testing.assert_allclose(a.column("n_H2").to_numpy(), b.column("n_H2").to_numpy(), rtol=1e-12)
+    assert a.schema.field("feed_CH4[kmol/h]").metadata == {b"unit": b"kmol/h"}  # the input's own unit
+    pq.write_table(
+        pa.table({"feed_CH4[kmol]": [1.0], "feed_H2O[t/h]": [1.0], "T_K": [900.0]}), tmp_path / "x.parquet"
+    )
+    with pytest.raises(SweepError, match="all amounts or all flows"):
+        sweep(reformer, tmp_path / "x.parquet", tmp_path / "x_out.parquet", quiet=True)
+    pq.write_table(
+        pa.table({"feed_CH4[kmol]": [1.0], "feed_CH4": [1.0], "T_K": [900.0]}), tmp_path / "y.parquet"
+    )
+    with pytest.raises(SweepError, match="more than one feed column for CH4"):
+        sweep(reformer, tmp_path / "y.parquet", tmp_path / "y_out.parquet", quiet=True)

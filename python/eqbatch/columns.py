@@ -142,6 +142,8 @@ def unit_of(name: str) -> str | None:
     """
     if name in _UNITS_BY_NAME:
         return _UNITS_BY_NAME[name]
+    if name.endswith("]") and "[" in name:  # a column named with its unit: feed_CH4[kmol/h]
+        return name[name.rindex("[") + 1 : -1]
     return next((unit for prefix, unit in _UNITS_BY_PREFIX if name.startswith(prefix)), None)
 
 

@@ -108,7 +108,13 @@ from eqbatch.columns import (
 from eqbatch.errors import CaseInputError, EqbatchError
 from eqbatch.status import CONVERGED_CODES, Status, status_words
 from eqbatch.system import ReactionSystem
-from eqbatch.units import PRESSURE_COLUMNS, TEMPERATURE_COLUMNS, pressure_to_bar, temperature_to_kelvin
+from eqbatch.units import (
+    PRESSURE_COLUMNS,
+    TEMPERATURE_COLUMNS,
+    amounts_in_mol,
+    pressure_to_bar,
+    temperature_to_kelvin,
+)
 from eqbatch.where import Condition, columns_of, parse_where, where_mask
 
 #: Rows per record batch by default.
@@ -328,21 +334,30 @@ class _Plan:
                 raise SweepError(f"{path}: column {col!r} must be numeric, found {schema.field(col).type}")
 
         self.feed_cols: list[str | None] = []
+        # (a feed column may carry its unit: feed_CH4[kmol/h], feed_H2O[t/h]; the
+        # factor to mol, or mol/h for flows, per column)
+        self.feed_factor: list[float] = []
+        units = feed_column_units(system, path, names)
         missing = []
         for sp in system.species:
             col = FEED + sp
-            if col in names:
-                need_numeric(col)
-                self.feed_cols.append(col)
+            given = [c for c in (col, *units.get(sp, {})) if c in names]
+            if len(given) > 1:
+                raise SweepError(f"{path}: more than one feed column for {sp} ({', '.join(given)}); give one")
+            if given:
+                need_numeric(given[0])
+                self.feed_cols.append(given[0])
+                self.feed_factor.append(units.get(sp, {}).get(given[0], 1.0))
             else:
                 self.feed_cols.append(None)
+                self.feed_factor.append(1.0)
                 missing.append(sp)
         # S_C: the steam-to-carbon ratio, moles of water per mole of carbon
         # in the other fed species (from their formulas), instead of feed_H2O
         self.s_c = STEAM_TO_CARBON in names
         if self.s_c:
             need_numeric(STEAM_TO_CARBON)
-            if "H2O" not in system.species or FEED + "H2O" in names:
+            if "H2O" not in system.species or self.feed_cols[system.index("H2O")] is not None:
                 raise SweepError(
                     f"{path}: {STEAM_TO_CARBON} sets the water feed: the system needs H2O and the file "
                     f"no {FEED}H2O column"
@@ -483,7 +498,7 @@ class _Plan:
         feed = np.zeros((n, self.system.n_species))
         for k, col in enumerate(self.feed_cols):
             if col is not None:
-                feed[:, k] = column(col)
+                feed[:, k] = column(col) if self.feed_factor[k] == 1.0 else column(col) * self.feed_factor[k]
         if self.s_c:
             feed[:, self.system.index("H2O")] = column(STEAM_TO_CARBON) * (feed @ self.carbon)
         P = (
@@ -597,6 +612,31 @@ class _Plan:
         return outs | phases | derived | energy
 
 
+def feed_column_units(system: ReactionSystem, path: Path, names: list[str]) -> dict[str, dict[str, float]]:
+    """The feed columns that carry a unit (``feed_<species>[<unit>]``: ``kmol``,
+    ``kmol/h``, ``kg/h``, ``t/h``, ...), per species, with the factor to mol
+    (amounts, masses) or mol/h (flows, mass flows; through the molar mass of
+    the species' formula). All of a file's unit-bearing feed columns must be
+    amounts or all flows."""
+    out: dict[str, dict[str, float]] = {}
+    flows = set()
+    for name in names:
+        if not (name.startswith(FEED) and name.endswith("]") and "[" in name):
+            continue
+        species, _, unit = name[len(FEED) : -1].partition("[")
+        if species not in system.species:
+            raise SweepError(f"{path}: {name} names no species of the system")
+        try:
+            factor = amounts_in_mol({species: f"1 {unit}"}, system.molar_mass)[species]
+        except CaseInputError as err:
+            raise SweepError(f"{path}: column {name}: {err}") from None
+        flows.add("/" in unit)
+        out.setdefault(species, {})[name] = float(factor)
+    if len(flows) > 1:
+        raise SweepError(f"{path}: feed columns with units must be all amounts or all flows")
+    return out
+
+
 def _refuse_unknown_columns(system: ReactionSystem, path: Path, names: list[str]) -> None:
     """``feed_<x>`` and ``lnK_<x>`` columns must name a species and a reaction
     of the system: a misspelt feed column would otherwise be ignored, and its
@@ -606,6 +646,8 @@ def _refuse_unknown_columns(system: ReactionSystem, path: Path, names: list[str]
         wanted = [prefix + k for k in known]
         found = []
         for name in names:
+            if prefix == FEED and name.endswith("]") and "[" in name:
+                continue  # a feed with its unit (checked by feed_column_units)
             if name.startswith(prefix) and name[len(prefix) :] not in known:
                 near = difflib.get_close_matches(name, wanted, n=1)
                 found.append(name + (f" (did you mean {near[0]}?)" if near else ""))

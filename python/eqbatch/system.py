@@ -191,22 +191,22 @@ class ReactionSystem(SystemSpec):
     def from_spec(cls, spec: SystemSpec) -> ReactionSystem:
         """The system a checked description describes.
 
-                Parameters
-                ----------
-                spec : SystemSpec
-                    From :func:`eqbatch.definition.define` or
-                    :func:`eqbatch.system_file.read_spec`.
+        Parameters
+        ----------
+        spec : SystemSpec
+            From :func:`eqbatch.definition.define` or
+            :func:`eqbatch.system_file.read_spec`.
 
-                Returns
-                -------
-                ReactionSystem
+        Returns
+        -------
+        ReactionSystem
 
-                Examples
-                --------
-                >>> from eqbatch.definition import define
-                >>> spec = define(["Xa", "Xb"], ["Xa = Xb"], lnK=[0.0])
-                >>> ReactionSystem.from_spec(spec).solve([1.0, 0.0]).amounts.tolist()
-                [[0.5, 0.5]]
+        Examples
+        --------
+        >>> from eqbatch.definition import define
+        >>> spec = define(["Xa", "Xb"], ["Xa = Xb"], lnK=[0.0])
+        >>> ReactionSystem.from_spec(spec).solve([1.0, 0.0]).amounts.tolist()
+        [[0.5, 0.5]]
         """
         system = cls.__new__(cls)
         SystemSpec.__init__(system, **spec._values())
