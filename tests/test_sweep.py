@@ -488,6 +488,12 @@ def test_csv_input_where_filters_and_column_subsets(tmp_path, capsys) -> None:
     by_parquet, by_csv = pq.read_table(tmp_path / "p.parquet"), pq.read_table(tmp_path / "c.parquet")
     assert by_csv.num_rows == 16
     np.testing.assert_array_equal(by_csv.column("y_H2").to_numpy(), by_parquet.column("y_H2").to_numpy())
+    # a grid written as CSV by the grid command is the same table
+    assert main(["grid", str(tmp_path / "g2.csv"), "--range", "T_K=800:1100:4", "--range", "P_bar=1:31:4",
+                 "--set", "feed_CH4=1,feed_H2O=3"]) == 0  # fmt: skip
+    sweep(system, tmp_path / "g2.csv", tmp_path / "c2.parquet", quiet=True)
+    np.testing.assert_array_equal(pq.read_table(tmp_path / "c2.parquet").column("y_H2").to_numpy(),
+                                  by_parquet.column("y_H2").to_numpy())  # fmt: skip
     # --where picks rows before solving; --columns keeps a subset, in the order given
     (tmp_path / "reformer.toml").write_text(system_file_text())
     code = main(

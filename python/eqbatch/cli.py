@@ -638,7 +638,7 @@ def _parser() -> argparse.ArgumentParser:
     bd.set_defaults(run=_cmd_boundary)
 
     gr = sub.add_parser("grid", help="write a Parquet case table: factorial grid or space-filling sample")
-    gr.add_argument("output", help="Parquet file to write")
+    gr.add_argument("output", help="Parquet file to write (CSV where the name ends in .csv)")
     gr.add_argument("--range", action="append", metavar="NAME=LOW:HIGH[:COUNT]", help="a swept column")
     gr.add_argument("--set", action="append", metavar="NAME=VALUE[,...]", help="constant columns")
     gr.add_argument("--log", action="append", metavar="NAME", help="space this column evenly in log")

@@ -90,12 +90,17 @@ def make_grid(
 
 
 def write_grid(path: str | os.PathLike[str], table: Any) -> None:
-    """Write a case table to Parquet (atomically: a temporary name, then rename)."""
+    """Write a case table to Parquet, or to CSV with a header row where
+    ``path`` ends in ``.csv`` (atomically: a temporary name, then rename)."""
+    import pyarrow.csv
     import pyarrow.parquet as pq
 
     path = os.fspath(path)
     tmp = os.path.join(os.path.dirname(os.path.abspath(path)), f".{os.path.basename(path)}.tmp")
-    pq.write_table(table, tmp, write_page_checksum=True)
+    if path.lower().endswith(".csv"):
+        pyarrow.csv.write_csv(table, tmp)
+    else:
+        pq.write_table(table, tmp, write_page_checksum=True)
     with open(tmp, "rb") as written:
         os.fsync(written.fileno())
     os.replace(tmp, path)
