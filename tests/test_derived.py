@@ -7,9 +7,12 @@ from __future__ import annotations
 from importlib import resources
 
 import numpy as np
+import pyarrow as pa
+import pyarrow.parquet as pq
 import pytest
 from eqbatch.cli import main
 from eqbatch.demo import reformer_system
+from eqbatch.sweeps import sweep
 
 
 def test_yields_conserve_atoms_and_equal_the_hand_formula() -> None:
@@ -50,3 +53,21 @@ def test_methane_slip_is_the_dry_methane_fraction_by_hand(capsys) -> None:
 
 def _demo_file() -> str:
     return str(resources.files("eqbatch").joinpath("data/reformer.toml"))
+
+
+def test_sweep_yield_columns_conserve_carbon(tmp_path) -> None:
+    rng = np.random.default_rng(9)
+    n = 200
+    cases = {"feed_CH4": rng.uniform(0.5, 2.0, n), "feed_H2O": rng.uniform(1.0, 5.0, n)}
+    cases |= {"T_K": rng.uniform(800.0, 1200.0, n), "P_bar": rng.uniform(1.0, 30.0, n)}
+    pq.write_table(pa.table(cases), tmp_path / "in.parquet")
+    sweep(
+        reformer_system(), tmp_path / "in.parquet", tmp_path / "out.parquet", yields_per=["CH4"], quiet=True
+    )
+    out = pq.read_table(tmp_path / "out.parquet").to_pandas()
+    names = [c for c in out.columns if c.startswith("yield_")]
+    assert names == ["yield_H2O_per_CH4", "yield_CO_per_CH4", "yield_H2_per_CH4", "yield_CO2_per_CH4"]
+    # by hand from the same file's amounts
+    np.testing.assert_allclose(out.yield_H2_per_CH4, out.n_H2 / out.feed_CH4, rtol=1e-15)
+    # carbon: the methane converted reappears as CO and CO2
+    np.testing.assert_allclose(out.yield_CO_per_CH4 + out.yield_CO2_per_CH4, out.conversion_CH4, atol=1e-12)

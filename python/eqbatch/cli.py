@@ -320,12 +320,18 @@ def _cmd_sweep(args: argparse.Namespace) -> int:
         allow_extra_columns=args.allow_extra_columns,
         energy=True if args.energy else None,
         where=args.where,
-        columns=None if args.columns is None else [c.strip() for c in args.columns.split(",") if c.strip()],
+        columns=_names(args.columns),
+        yields_per=_names(args.yields_per),
     )
     print(f"{args.output}: {summary.line()}")
     if not args.quiet:
         print(caution(system))
     return 0
+
+
+def _names(text: str | None) -> list[str] | None:
+    """``A,B,C`` as a list of names (None where not given)."""
+    return None if text is None else [c.strip() for c in text.split(",") if c.strip()]
 
 
 def _cmd_boundary(args: argparse.Namespace) -> int:
@@ -615,6 +621,11 @@ def _parser() -> argparse.ArgumentParser:
         help="solve only the rows where this holds (also !=, <, <=, >, >=; repeat to combine)",
     )
     sw.add_argument("--columns", metavar="NAME,...", help="write only these output columns, in this order")
+    sw.add_argument(
+        "--yields-per",
+        metavar="SPECIES,...",
+        help="add yield_<species>_per_<fed>: mol of each species made per mol of these fed",
+    )
     sw.set_defaults(run=_cmd_sweep)
 
     bd = sub.add_parser(

@@ -67,6 +67,9 @@ H2_CO = "ratio_H2_CO"
 SN = "SN"
 EXTENT = "extent_"
 CONVERSION = "conversion_"
+#: Yields asked for in a sweep: ``yield_<species>_per_<fed>``, mol made per
+#: mol of ``fed`` fed.
+YIELD = "yield_"
 
 #: Prefix of each per-species or per-reaction output column, with the
 #: result attribute it holds (``conversion`` is ``result.conversion(species)``).
@@ -122,6 +125,7 @@ _UNITS_BY_PREFIX = (
     ("ydry_", "1"),
     ("y_", "1"),
     ("conversion_", "1"),
+    ("yield_", "mol/mol"),
     ("lnK_", "1"),
     ("activity_", "1"),
     ("approach_", "K"),

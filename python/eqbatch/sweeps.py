@@ -77,6 +77,7 @@ import numpy as np
 from eqbatch import _core
 from eqbatch.columns import (
     ADIABATIC,
+    AMOUNT,
     APPROACH,
     DH,
     DUTY,
@@ -94,6 +95,7 @@ from eqbatch.columns import (
     T_IN,
     T_OUT,
     TEMPERATURE,
+    YIELD,
     dry_columns,
     dry_names,
     output_columns,
@@ -311,9 +313,14 @@ class _Plan:
         say: Any,
         allow_extra_columns: bool = False,
         energy: bool | None = None,
+        yields_per: Sequence[str] | None = None,
     ) -> None:
         pa, _ = _pa()
         self.system = system
+        unknown = [sp for sp in yields_per or () if sp not in system.species]
+        if unknown:
+            raise SweepError(f"yields per {', '.join(unknown)}: no species of the system")
+        self.yields_per = list(yields_per or ())
         names = list(schema.names)
         self.names = names
         twice = sorted({n for n in names if names.count(n) > 1})
@@ -475,7 +482,14 @@ class _Plan:
             + dry_names(self.system)
             + syngas_names(self.system)
             + self.energy_names()
+            + self.yield_names()
         )
+
+    def yield_names(self) -> list[str]:
+        """``yield_<species>_per_<fed>``: mol of each other reacting species made
+        per mol of ``fed`` fed, for each species of ``yields_per``."""
+        reacting = self.system.reacting_species()
+        return [f"{YIELD}{sp}_per_{per}" for per in self.yields_per for sp in reacting if sp != per]
 
     def energy_names(self) -> list[str]:
         """``T_out_K`` (with energy-balance inputs), ``H_out_kJ``, ``heat_kJ``
@@ -517,6 +531,13 @@ class _Plan:
             outs = self._outputs([(np.arange(n), res, T)], n)
         else:
             outs = self._outputs(self._solve_rows(column, feed, P, n, options), n)
+        for per in self.yields_per:  # (n - n0) / n0_per, NaN where per is not fed
+            with np.errstate(divide="ignore", invalid="ignore"):
+                fed = np.where(feed[:, self.system.index(per)] > 0, feed[:, self.system.index(per)], np.nan)
+                for sp in self.system.reacting_species():
+                    if sp != per:
+                        k = self.system.index(sp)
+                        outs[f"{YIELD}{sp}_per_{per}"] = (outs[AMOUNT + sp] - feed[:, k]) / fed
         arrays = list(batch.columns) + [
             status_names(v, "arrow") if k == STATUS_NAME else pa.array(v) for k, v in outs.items()
         ]
@@ -828,6 +849,7 @@ def sweep_file(
     max_iter: int = 200,
     threads: int | None = None,
     energy: bool | None = None,
+    yields_per: Sequence[str] | None = None,
 ) -> SweepSummary:
     """Sweep one Parquet file into one output file (see the module docs)."""
     src, dst = Path(input), Path(output)
@@ -840,7 +862,7 @@ def sweep_file(
     if dst.exists() and not (overwrite or resume):
         raise SweepError(_exists_message(dst))
     pf = _open(src)
-    plan = _Plan(system, src, pf.schema_arrow, say, allow_extra_columns, energy)
+    plan = _Plan(system, src, pf.schema_arrow, say, allow_extra_columns, energy, yields_per)
     options = {"tol": tol, "max_iter": max_iter, "threads": threads}
     partial = dst.parent / f".{dst.name}.partial"
     lock = _Lock(partial, dst, say)
@@ -885,7 +907,8 @@ def _sweep_locked(
         raise SweepError(
             f"{dst}: an interrupted sweep left {partial}; resume it (--resume) or start over (--overwrite)"
         )
-    identity = json.loads(json.dumps(_identity(system, src, pf, options) | {"outputs": plan.energy_names()}))
+    outputs = plan.energy_names() + plan.yield_names()
+    identity = json.loads(json.dumps(_identity(system, src, pf, options) | {"outputs": outputs}))
     if dst.exists():
         if resume:
             problems = _finished_problems(dst, identity, src)
@@ -1299,6 +1322,7 @@ def sweep(
     energy: bool | None = None,
     where: Sequence[str] | None = None,
     columns: Sequence[str] | None = None,
+    yields_per: Sequence[str] | None = None,
 ) -> SweepSummary:
     """Solve every row of a Parquet (or CSV) file, or of every Parquet file
     in a folder.
@@ -1317,6 +1341,10 @@ def sweep(
     columns : sequence of str, optional
         Write only these columns of the output (input or output names, in
         this order).
+    yields_per : sequence of str, optional
+        Add ``yield_<species>_per_<fed>`` for each species ``fed`` of these:
+        ``(n - n0) / n0_fed`` of every other reacting species, mol made per
+        mol of ``fed`` fed (NaN where it is not fed).
 
     CSV input, ``where`` and ``columns`` take one input file: its rows (as
     filtered) are staged as Parquet in a hidden folder beside the output,
@@ -1389,6 +1417,7 @@ def sweep(
         "overwrite": overwrite,
         "allow_extra_columns": allow_extra_columns,
         "energy": energy,
+        "yields_per": yields_per,
         **options,
     }
     if quiet:
