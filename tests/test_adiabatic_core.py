@@ -9,9 +9,11 @@ algorithm) on the same cases."""
 
 from __future__ import annotations
 
+import warnings
+
 import numpy as np
 import pytest
-from eqbatch import ReactionSystem, Status
+from eqbatch import CaseInputError, ExtrapolationWarning, ReactionSystem, Status
 from eqbatch.adiabatic import _nested, adiabatic_solve
 from eqbatch.demo import reformer_system
 from eqbatch.thermo import CpPolynomial
@@ -141,3 +143,26 @@ def test_kernel_results_do_not_depend_on_the_thread_count(reformer) -> None:
     two = reformer.solve(feed, T=T, P=P, adiabatic=True, threads=2)
     assert np.array_equal(one.T, two.T) and np.array_equal(one.amounts, two.amounts)
     assert np.array_equal(one.iterations, two.iterations)
+
+
+def test_options_labelled_starts_and_inlet_ranges_as_an_isothermal_solve_takes_them(reformer) -> None:
+    feed = [1.0, 3.0, 0.0, 0.0, 0.0, 0.0]
+    # options are checked as for an isothermal solve (the kernel settling every case
+    # must not let a tol of 0.5 through)
+    with pytest.raises(CaseInputError, match="tol must be a number"):
+        reformer.solve(feed, T=900.0, P=10.0, adiabatic=True, tol=0.5)
+    with pytest.raises(CaseInputError):
+        reformer.solve(feed, T=900.0, P=10.0, adiabatic=True, max_iter=-1)
+    # a start labelled by reaction, at the answer: no Newton step needed (the kernel's
+    # convergence test is on the reactions as given, so at most one polishing step)
+    res = reformer.solve(feed, T=900.0, P=10.0, adiabatic=True)
+    start = dict(zip(reformer.labels, res.extents[0].tolist()))
+    again = reformer.solve(feed, T=900.0, P=10.0, adiabatic=True, x0=start)
+    assert again.converged[0] and again.iterations[0] <= 1
+    assert float(again.T[0]) == pytest.approx(float(res.T[0]), abs=1e-7)
+    # an inlet below the species data's range is said once, as a solve at that T says it
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always")
+        reformer.solve(feed, T=400.0, P=10.0, adiabatic=True)
+    ranges = [w for w in caught if issubclass(w.category, ExtrapolationWarning)]
+    assert ranges and len({str(w.message) for w in ranges}) == len(ranges)

@@ -276,6 +276,13 @@ def test_directions_fixed_by_the_feed_are_those_equilibrium_takes(reformer) -> N
         res = reformer.solve(feed, lnK=rng.uniform(-15.0, 15.0, (200, 2)), P=rng.uniform(0.5, 50.0, 200))
         assert res.converged.all()
         assert np.array_equal(np.sign(res.extents), found), fed
+    # a feed below 1e-300 is no feed to the core: the same directions as an exact zero
+    tiny = np.zeros((1, len(sp)))
+    tiny[0, sp.index("CO")], tiny[0, sp.index("H2")] = 1e-310, 1.0
+    exact = np.where(tiny < 1e-300, 0.0, tiny)
+    assert np.array_equal(
+        feed_directions(reformer, tiny, both), feed_directions(reformer, exact, both), equal_nan=True
+    )
     # every species fed: nothing is fixed, and the approach solve finds the direction by a solve
     full = np.ones((1, len(sp)))
     assert np.isnan(feed_directions(reformer, full, both)).all()

@@ -145,3 +145,14 @@ def test_the_report_draws_in_a_headless_browser(study, tmp_path, capsys) -> None
     drawn = np.mean(np.any(pixels < 0.9, axis=2))
     assert drawn > 0.05
     assert len(np.unique((pixels * 255).astype(np.uint8).reshape(-1, 3), axis=0)) > 50
+
+
+def test_outputs_are_not_taken_for_inputs() -> None:
+    # an adiabatic sweep's outlet temperature is an output: plots and the report must
+    # neither average over it nor plot against it as a swept input
+    from eqbatch.report import _is_input
+
+    assert not _is_input("T_out_K") and not _is_input("H_out_kJ") and not _is_input("heat_kJ")
+    inputs = ("T_K", "T_C", "T_in_K", "P_bar", "P_psig", "feed_CH4", "feed_CH4[kmol/h]", "S_C", "lnK_shift")
+    for name in inputs:
+        assert _is_input(name), name

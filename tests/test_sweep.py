@@ -471,6 +471,12 @@ def test_plot_filters_rows_names_what_it_averages_and_samples_large_files(tmp_pa
     notes: list[str] = []
     plots.result_plot(result, tmp_path / "s.png", x="T_K", y="y_H2", max_rows=100, notes=notes)
     assert f"a random sample of 100 of {7 * 3 * 15:,} rows" in notes
+    # text filters ignore case (status names are stored in capitals)
+    notes = []
+    plots.result_plot(
+        result, tmp_path / "s.png", x="T_K", y="y_H2", where=["status_name=converged"], notes=notes
+    )
+    assert "status_name=converged" in notes[0]
     with pytest.raises(eqbatch.CaseInputError, match="no row has P_bar>100"):
         plots.result_plot(result, tmp_path / "s.png", x="T_K", y="y_H2", where=["P_bar>100"])
 
@@ -520,11 +526,18 @@ def test_csv_input_where_filters_and_column_subsets(tmp_path, capsys) -> None:
     np.testing.assert_array_equal(picked.column("y_H2").to_numpy(), want.y_H2.to_numpy())
     assert not list(tmp_path.glob(".*staged"))  # the staging folder is gone
     # a finished output: kept by a resume, refused without one
-    again = {"where": ["T_K>=1000"], "quiet": True}
+    again = {"where": ["T_K>=1000", "P_bar<30"], "columns": ["T_K", "P_bar", "y_H2", "status_name"]}
+    again |= {"quiet": True}
     kept = sweep(system, tmp_path / "g.csv", tmp_path / "w.parquet", resume=True, **again)
     assert kept.kept == 6 and pq.read_table(tmp_path / "w.parquet").equals(picked)
     with pytest.raises(SweepError, match="exists"):
         sweep(system, tmp_path / "g.csv", tmp_path / "w.parquet", **again)
+    # a resume keeps it only if this sweep made it: other rows, a filter or a tol is refused
+    changed = again | {"where": ["T_K>=900"]}
+    with pytest.raises(SweepError, match="not this sweep's finished output"):
+        sweep(system, tmp_path / "g.csv", tmp_path / "w.parquet", resume=True, **changed)
+    with pytest.raises(SweepError, match="not this sweep's finished output"):
+        sweep(system, tmp_path / "g.csv", tmp_path / "w.parquet", resume=True, tol=1e-9, **again)
     # bad filters and columns are named
     with pytest.raises(SweepError, match="names no column 'T'"):
         sweep(system, tmp_path / "g.csv", tmp_path / "x.parquet", where=["T>5"], quiet=True)

@@ -61,6 +61,8 @@ def test_feeds_as_amounts_flows_masses_and_mass_flows(reformer) -> None:
     np.testing.assert_allclose(res.feed[0], by_hand, rtol=1e-12)
     same = reformer.solve(by_hand, T=1100.0, P=20.0)
     np.testing.assert_array_equal(res.amounts, same.amounts)
+    assert res.to_arrow().schema.field("n_H2").metadata == {b"unit": b"mol/h"}
+    assert same.to_arrow().schema.field("n_H2").metadata == {b"unit": b"mol"}
     masses = reformer.solve({"CH4": Q(1.6043, "kg"), "H2O": "3 kmol"}, T=1100.0, P=20.0)
     np.testing.assert_allclose(masses.feed[0, :2], [1.6043 / m_ch4, 3000.0], rtol=1e-12)
     with pytest.raises(CaseInputError, match="not both"):
@@ -96,6 +98,9 @@ def test_sweep_feed_columns_with_units(tmp_path, reformer) -> None:
     a, b = (pq.read_table(tmp_path / f"{n}_out.parquet") for n in ("plant", "si"))
     np.testing.assert_allclose(a.column("n_H2").to_numpy(), b.column("n_H2").to_numpy(), rtol=1e-12)
     assert a.schema.field("feed_CH4[kmol/h]").metadata == {b"unit": b"kmol/h"}  # the input's own unit
+    # a flow basis: the amounts out are per hour, and their metadata say so
+    assert a.schema.field("n_H2").metadata == {b"unit": b"mol/h"}
+    assert b.schema.field("n_H2").metadata == {b"unit": b"mol"}
     pq.write_table(
         pa.table({"feed_CH4[kmol]": [1.0], "feed_H2O[t/h]": [1.0], "T_K": [900.0]}), tmp_path / "x.parquet"
     )

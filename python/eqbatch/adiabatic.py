@@ -22,8 +22,8 @@ from typing import Any, Protocol
 
 import numpy as np
 
-from eqbatch.errors import CaseInputError, InvalidCaseError
-from eqbatch.inputs import case_column, feed_array
+from eqbatch.errors import CaseInputError, ExtrapolationWarning, InvalidCaseError
+from eqbatch.inputs import case_column, feed_array, reaction_rows
 from eqbatch.result import EnergyBalance, EquilibriumResult, Status
 from eqbatch.spec import SystemSpec
 
@@ -136,7 +136,7 @@ def _in_core(
         heat = np.zeros(1) if duty is None else 1000.0 * case_column(duty, "duty")
         H_rows = None if H_in is None else 1000.0 * case_column(H_in, "H_in")
         shift = None if lnk_shift is None else np.atleast_2d(np.asarray(lnk_shift, dtype=float))
-        start = None if x0 is None else np.atleast_2d(np.asarray(x0, dtype=float))
+        start = None if x0 is None else reaction_rows(system, x0, "x0")  # (labelled by reaction too)
         sizes = [feed_rows.shape[0], P_rows.shape[0], T_rows.shape[0], heat.shape[0]]
         sizes += [] if start is None else [start.shape[0]]
         sizes += [] if H_rows is None else [H_rows.shape[0]]
@@ -155,6 +155,7 @@ def _in_core(
     feed_rows, P_rows, heat = rows(feed_rows, (n, system.n_species)), rows(P_rows, (n,)), rows(heat, (n,))
     if H_rows is None:
         T_in = rows(T_rows, (n,))
+        system._report_ranges(T_in)  # an inlet outside the species data's range is said, as by a solve at T
         with warnings.catch_warnings():
             warnings.simplefilter("ignore")  # the kernel keeps the outlet inside the range
             h_in = system._species_h_cp(np.where(np.isfinite(T_in) & (T_in > 0), T_in, lo))[0]
@@ -193,23 +194,26 @@ def _in_core(
     absent = np.zeros(n, dtype=np.uint64)
     left = np.flatnonzero(~settled)
     if left.size:
-        rest = _nested(
-            system,
-            solve,
-            feed_rows[left],
-            T_in[left] if H_rows is None else None,
-            P_rows[left],
-            tol=tol,
-            max_iter=max_iter,
-            threads=threads,
-            invalid="mark",
-            x0=None if start_rows is None else start_rows[left],
-            max_T_iter=max_T_iter,
-            energy_tol=energy_tol,
-            duty=None if duty is None else heat[left] / 1000.0,
-            H_in=None if H_rows is None else H_feed[left] / 1000.0,
-            lnk_shift=None if shift_rows is None else shift_rows[left],
-        )
+        with warnings.catch_warnings():
+            # (the inlets' range was said above, once; the nested solve would say it again)
+            warnings.simplefilter("ignore", ExtrapolationWarning)
+            rest = _nested(
+                system,
+                solve,
+                feed_rows[left],
+                T_in[left] if H_rows is None else None,
+                P_rows[left],
+                tol=tol,
+                max_iter=max_iter,
+                threads=threads,
+                invalid="mark",
+                x0=None if start_rows is None else start_rows[left],
+                max_T_iter=max_T_iter,
+                energy_tol=energy_tol,
+                duty=None if duty is None else heat[left] / 1000.0,
+                H_in=None if H_rows is None else H_feed[left] / 1000.0,
+                lnk_shift=None if shift_rows is None else shift_rows[left],
+            )
         assert rest.T is not None and rest.T_in is not None and rest.T_iterations is not None
         amounts[left], extents[left], status[left] = rest.amounts, rest.extents, rest.status
         T_out[left], lnK[left], T_in[left] = rest.T, rest.lnK, rest.T_in

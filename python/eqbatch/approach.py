@@ -32,6 +32,10 @@ from eqbatch.outputs import Outputs
 from eqbatch.result import EquilibriumResult
 from eqbatch.spec import SystemSpec, compile_system
 
+#: Feeds below this are zero to the core (their reciprocal would overflow):
+#: ``TINY_FEED`` of ``eqbatch_core::batch``.
+TINY_FEED = 1e-300
+
 
 class CoreOptions(NamedTuple):
     """The options of a core solve: ``tol``, ``max_iter``, ``threads``, the
@@ -186,7 +190,7 @@ def feed_directions(system: SystemSpec, feed: np.ndarray, which: np.ndarray) -> 
     reactive = np.any(system.stoich != 0, axis=0)
     if any(p != "gas" for p in system.phases) or not np.any(which):
         return out
-    zero = (feed <= 0.0) & reactive
+    zero = (feed < TINY_FEED) & reactive  # (the core's zero: below 1e-300 a feed is none)
     patterns, inverse = _patterns(zero)
     known = np.array([cone_directions(system.stoich, pattern, which) for pattern in patterns])
     out = known[inverse]

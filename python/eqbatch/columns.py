@@ -136,29 +136,34 @@ _UNITS_BY_PREFIX = (
 )
 
 
-def unit_of(name: str) -> str | None:
-    """The unit of a result-table column (None: a count, a flag or a name).
+def unit_of(name: str, per_hour: bool = False) -> str | None:
+    """The unit of a result-table column (None: a count, a flag or a name);
+    with ``per_hour`` (a feed given as flows) amounts and energies are per
+    hour.
 
     Examples
     --------
     >>> unit_of("n_CH4"), unit_of("y_H2"), unit_of("P_psig"), unit_of("dH_shift"), unit_of("status")
     ('mol', '1', 'psi (gauge)', 'J/mol', None)
+    >>> unit_of("n_CH4", per_hour=True), unit_of("heat_kJ", per_hour=True)
+    ('mol/h', 'kJ/h')
     """
-    if name in _UNITS_BY_NAME:
-        return _UNITS_BY_NAME[name]
     if name.endswith("]") and "[" in name:  # a column named with its unit: feed_CH4[kmol/h]
         return name[name.rindex("[") + 1 : -1]
-    return next((unit for prefix, unit in _UNITS_BY_PREFIX if name.startswith(prefix)), None)
+    unit = _UNITS_BY_NAME.get(name) or next((u for p, u in _UNITS_BY_PREFIX if name.startswith(p)), None)
+    if per_hour and unit in ("mol", "kJ"):
+        return f"{unit}/h"
+    return unit
 
 
-def with_units(schema: Any) -> Any:
+def with_units(schema: Any, per_hour: bool = False) -> Any:
     """A :class:`pyarrow.Schema` whose fields carry their ``unit`` metadata
     (:func:`unit_of`), the schema's own metadata kept."""
     import pyarrow as pa
 
     fields = []
     for field in schema:
-        unit = unit_of(field.name)
+        unit = unit_of(field.name, per_hour)
         fields.append(field if unit is None else field.with_metadata({"unit": unit}))
     return pa.schema(fields, metadata=schema.metadata)
 

@@ -378,8 +378,9 @@ def independent_reactions(species: Sequence[str], formulas: Mapping[str, dict[st
     return equations
 
 
-#: Standard atomic weights, g/mol (IUPAC 2021 abridged values, conventional
-#: values where IUPAC gives an interval; from memory): the molar masses of
+#: Standard atomic weights, g/mol (IUPAC/CIAAW abridged standard atomic
+#: weights, 2021; conventional values where an interval is given; from
+#: memory): the molar masses of
 #: species from their formulas, for feeds given as masses.
 ATOMIC_WEIGHTS = {
     "H": 1.008, "He": 4.0026, "Li": 6.94, "Be": 9.0122, "B": 10.81, "C": 12.011, "N": 14.007,
@@ -439,8 +440,10 @@ def cone_directions(stoich: np.ndarray, not_fed: np.ndarray, which: np.ndarray |
         for sign in (1.0, -1.0):
             c[j] = sign
             lp = linprog(c, A_ub=a_ub, b_ub=b_ub, bounds=bounds, method="highs")
-            # (min xi_j > 0: forward; max xi_j < 0, i.e. min -xi_j > 0: backward)
-            if lp.status == 0 and lp.fun > 1e-9:
+            # (min xi_j > 0: forward; max xi_j < 0, i.e. min -xi_j > 0: backward;
+            # the >= 1 constraints make a real bound of order 1, far above the
+            # solver's feasibility tolerance, about 1e-7)
+            if lp.status == 0 and lp.fun > 1e-6:
                 out[j] = sign
                 break
     return out

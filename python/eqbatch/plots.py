@@ -11,6 +11,7 @@ import numpy as np
 from eqbatch.columns import parse_output
 from eqbatch.errors import CaseInputError
 from eqbatch.uncertainty import MonteCarloResult
+from eqbatch.units import PRESSURE_COLUMNS, TEMPERATURE_COLUMNS
 from eqbatch.where import columns_of, parse_where, where_mask
 
 __all__ = ["histogram", "parse_output", "result_plot", "tornado"]
@@ -73,10 +74,11 @@ MAX_PLOT_ROWS = 200_000
 #: Above this many distinct ``by`` values the lines take a colour scale, not
 #: a legend.
 MAX_LEGEND = 10
-#: Input columns a sweep may vary: a plot that does not show them and sees
+#: Input columns a sweep may vary (by exact name or prefix; outputs such as
+#: ``T_out_K`` are not among them): a plot that does not show them and sees
 #: them vary averages over them, and says which.
-_SWEPT_PREFIXES = ("feed_", "lnK_", "approach_", "T_", "P_")
-_SWEPT = {"S_C", "adiabatic", "duty_kJ", "H_in_kJ"}
+_SWEPT_PREFIXES = ("feed_", "lnK_", "approach_")
+_SWEPT = {*PRESSURE_COLUMNS, *TEMPERATURE_COLUMNS, "T_in_K", "S_C", "adiabatic", "duty_kJ", "H_in_kJ"}
 
 
 def result_plot(

@@ -110,6 +110,7 @@ class EquilibriumResult:
         "held",
         "_ln_phi",
         "_dn_dT",
+        "per_hour",
     )
 
     def __init__(
@@ -142,6 +143,9 @@ class EquilibriumResult:
         self._energy: EnergyBalance | None = None
         #: (N,) temperature iterations of an adiabatic solve, else None.
         self.T_iterations: np.ndarray | None = None
+        #: The feed was given as flows (kmol/h, kg/h): amounts and extents are
+        #: mol/h, energies kJ/h (the units ``to_arrow()`` writes).
+        self.per_hour = False
         #: (N,) inlet temperature of an energy-balance solve (``adiabatic=True``
         #: or ``duty=``), K, else None.
         self.T_in: np.ndarray | None = None
@@ -911,7 +915,7 @@ class EquilibriumResult:
                 for k, v in cols.items()
             }
         )
-        return table.cast(with_units(table.schema))  # (each field's unit in its metadata)
+        return table.cast(with_units(table.schema, self.per_hour))  # (each field's unit in its metadata)
 
 
 class EnergyBalance:

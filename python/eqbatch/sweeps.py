@@ -114,6 +114,7 @@ from eqbatch.units import (
     PRESSURE_COLUMNS,
     TEMPERATURE_COLUMNS,
     amounts_in_mol,
+    is_flow,
     pressure_to_bar,
     temperature_to_kelvin,
 )
@@ -344,7 +345,7 @@ class _Plan:
         # (a feed column may carry its unit: feed_CH4[kmol/h], feed_H2O[t/h]; the
         # factor to mol, or mol/h for flows, per column)
         self.feed_factor: list[float] = []
-        units = feed_column_units(system, path, names)
+        units, self.per_hour = feed_column_units(system, path, names)
         missing = []
         for sp in system.species:
             col = FEED + sp
@@ -633,12 +634,14 @@ class _Plan:
         return outs | phases | derived | energy
 
 
-def feed_column_units(system: ReactionSystem, path: Path, names: list[str]) -> dict[str, dict[str, float]]:
+def feed_column_units(
+    system: ReactionSystem, path: Path, names: list[str]
+) -> tuple[dict[str, dict[str, float]], bool]:
     """The feed columns that carry a unit (``feed_<species>[<unit>]``: ``kmol``,
     ``kmol/h``, ``kg/h``, ``t/h``, ...), per species, with the factor to mol
     (amounts, masses) or mol/h (flows, mass flows; through the molar mass of
     the species' formula). All of a file's unit-bearing feed columns must be
-    amounts or all flows."""
+    amounts or all flows; the flag says flows (the outputs are then per hour)."""
     out: dict[str, dict[str, float]] = {}
     flows = set()
     for name in names:
@@ -649,13 +652,13 @@ def feed_column_units(system: ReactionSystem, path: Path, names: list[str]) -> d
             raise SweepError(f"{path}: {name} names no species of the system")
         try:
             factor = amounts_in_mol({species: f"1 {unit}"}, system.molar_mass)[species]
+            flows.add(is_flow({species: f"1 {unit}"}))
         except CaseInputError as err:
             raise SweepError(f"{path}: column {name}: {err}") from None
-        flows.add("/" in unit)
         out.setdefault(species, {})[name] = float(factor)
     if len(flows) > 1:
         raise SweepError(f"{path}: feed columns with units must be all amounts or all flows")
-    return out
+    return out, flows == {True}
 
 
 def _refuse_unknown_columns(system: ReactionSystem, path: Path, names: list[str]) -> None:
@@ -948,7 +951,7 @@ def _sweep_locked(
     t0 = time.perf_counter()
     done = 0
     tmp_out = partial / "output.parquet.tmp"
-    writer = _BackgroundWriter(tmp_out, partial, {"eqbatch.sweep": json.dumps(identity)})
+    writer = _BackgroundWriter(tmp_out, partial, {"eqbatch.sweep": json.dumps(identity)}, plan.per_hour)
     finished = _part_chain(partial) if left else []
     try:
         for start, rows, crc, path in finished:
@@ -1125,10 +1128,11 @@ class _BackgroundWriter:
     which it costs time and saves nothing. Pages carry CRC-32 checksums, and
     the file's metadata says what it was made of."""
 
-    def __init__(self, path: Path, partial: Path, metadata: dict) -> None:
+    def __init__(self, path: Path, partial: Path, metadata: dict, per_hour: bool = False) -> None:
         self.path = path
         self.partial = partial
         self.metadata = metadata
+        self.per_hour = per_hour  # (a feed of flows: amounts in mol/h in the units metadata)
         # One table waits while another is written and a third is solved: enough
         # to overlap solving and writing, and fewer tables in flight keep the
         # peak memory steadier (two waiting gave ~10 MB higher, more variable peaks).
@@ -1148,7 +1152,7 @@ class _BackgroundWriter:
                 if writer is None:
                     writer = pq.ParquetWriter(
                         self.path,
-                        with_units(table.schema).with_metadata(self.metadata),  # (units per field)
+                        with_units(table.schema, self.per_hour).with_metadata(self.metadata),  # (units)
                         use_dictionary=False,
                         write_page_checksum=True,
                     )
@@ -1213,25 +1217,47 @@ def _staged_sweep(
 ) -> SweepSummary:
     """:func:`sweep` of a CSV file, of a file's rows that pass ``where``, or
     into a subset of the output's ``columns``: see there."""
-    pa, pq = _pa()
     stage = dst.parent / f".{dst.name}.staged"
-    if dst.exists() and not kwargs["overwrite"]:
-        if not kwargs["resume"]:
-            raise SweepError(_exists_message(dst))
-        if not stage.exists():  # finished before: nothing was interrupted
-            return _kept_output(dst)
+    if dst.exists() and not (kwargs["overwrite"] or kwargs["resume"]):
+        raise SweepError(_exists_message(dst))
     conditions = parse_where(where)
     stage.mkdir(parents=True, exist_ok=True)
     staged = src
     if conditions or src.suffix.lower() == ".csv":
         staged = stage / "input.parquet"
         _stage_rows(src, conditions, staged)
-    full = stage / "output.parquet" if columns else dst
-    inner = dict(kwargs)
-    if full != dst:  # (the staged output: kept by a resume, else made afresh)
-        inner["overwrite"] = kwargs["overwrite"] or not kwargs["resume"]
-    summary = sweep_file(system, staged, full, quiet=quiet, **inner)
-    if columns:
+    if not columns:  # (the sweep itself checks a resume: the staged rows are in its record)
+        summary = sweep_file(system, staged, dst, quiet=quiet, **kwargs)
+    else:
+        pf = _open(staged)
+        extra, energy = kwargs["allow_extra_columns"], kwargs["energy"]
+        plan = _Plan(system, staged, pf.schema_arrow, lambda msg: None, extra, energy, kwargs["yields_per"])
+        known = plan.names + plan.output_names()
+        unknown = [c for c in columns if c not in known]
+        if unknown:  # (before any solving)
+            raise SweepError(
+                f"{dst}: columns= names no output column {', '.join(map(repr, unknown))} "
+                f"(the output has {', '.join(known)})"
+            )
+        full = stage / "output.parquet"
+        started = full.exists() or (stage / f".{full.name}.partial").exists()
+        if dst.exists() and kwargs["resume"] and not kwargs["overwrite"] and not started:
+            # a finished subset is kept only if this sweep made it: the same rows,
+            # system, settings, outputs and columns
+            options = {k: kwargs[k] for k in ("tol", "max_iter")}
+            outputs = plan.energy_names() + plan.yield_names()
+            identity = json.loads(json.dumps(_identity(system, staged, pf, options) | {"outputs": outputs}))
+            problems = _finished_problems(dst, identity, src)
+            if _open(dst).schema_arrow.names != list(columns):
+                problems.append("its columns differ from the ones asked for")
+            if problems:
+                raise SweepError(
+                    f"{dst}: exists and is not this sweep's finished output: {'; '.join(problems)}; "
+                    "pass --overwrite to replace it"
+                )
+            shutil.rmtree(stage, ignore_errors=True)
+            return _kept_output(dst)
+        summary = sweep_file(system, staged, full, quiet=quiet, **kwargs)
         _project(full, dst, list(columns))
     shutil.rmtree(stage, ignore_errors=True)
     summary.files = [str(dst)]

@@ -39,7 +39,7 @@ from eqbatch.realgas import nonideal_sensitivities, solve_real, warn_if_not_idea
 from eqbatch.result import EquilibriumResult, Status
 from eqbatch.spec import PHASES, ArrayLike, KData, SystemSpec, bad_temperatures
 from eqbatch.system_file import read_spec
-from eqbatch.units import amounts_in_mol, is_quantity, pressure_input, temperature_input
+from eqbatch.units import amounts_in_mol, is_flow, is_quantity, pressure_input, temperature_input
 
 # MAX_ITER, PHASES, TOL_RANGE, ArrayLike and KData live in inputs and spec;
 # they are named here too for code that imported them from eqbatch.system.
@@ -411,7 +411,9 @@ class ReactionSystem(SystemSpec):
             T = temperature_input(T)
         if type(P) is not float and P is not None and not isinstance(P, np.ndarray):
             P = pressure_input(P)
+        per_hour = False
         if isinstance(feed, Mapping) and any(isinstance(v, str) or is_quantity(v) for v in feed.values()):
+            per_hour = is_flow(dict(feed))
             feed = amounts_in_mol(dict(feed), self.molar_mass)
         if self.nonideal is not None:
             unsupported = [
@@ -450,7 +452,8 @@ class ReactionSystem(SystemSpec):
                     "chain=True does not apply to adiabatic=True (each case's temperature "
                     "iterations already start from its own previous solution)"
                 )
-            return adiabatic_solve(
+            tol = checked_options(tol, invalid, max_iter, threads)  # (as an isothermal solve checks them)
+            balanced = adiabatic_solve(
                 self,
                 self.solve,
                 feed,
@@ -465,6 +468,8 @@ class ReactionSystem(SystemSpec):
                 duty=duty,
                 H_in=H_in,
             )
+            balanced.per_hour = per_hour
+            return balanced
         feed_arr = feed_array(self, feed)
         T_arr = None if T is None else case_column(T, "T")
         if approach:
@@ -550,6 +555,7 @@ class ReactionSystem(SystemSpec):
                 result._sens, result._dn_dT = nonideal_sensitivities(self, result, T_arr, threads)
             if held is not None and held.any():
                 approach_module.held_sensitivities(self, result, held, threads)
+        result.per_hour = per_hour
         return result
 
     def prepare(

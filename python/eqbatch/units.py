@@ -241,3 +241,20 @@ def amounts_in_mol(amounts: dict[str, Any], molar_mass: Any) -> dict[str, Any]:
     if len(kinds) > 1:
         raise CaseInputError("feed: give every species as an amount or every one as a flow, not both")
     return out
+
+
+def is_flow(amounts: dict[str, Any]) -> bool:
+    """Whether a feed given with units is a flow basis (its values per
+    time: ``"100 kmol/h"``, ``Q_(5.4, "t/h")``), for the outputs' units.
+
+    Examples
+    --------
+    >>> is_flow({"CH4": "100 kmol/h", "H2O": 3.0}), is_flow({"CH4": "1 kmol"})
+    (True, False)
+    """
+    ureg = _registry()
+    for value in amounts.values():
+        if isinstance(value, str) or is_quantity(value):
+            q = ureg.Quantity(value) if isinstance(value, str) else ureg.Quantity(1.0, str(value.units))
+            return bool(q.check("[substance]/[time]") or q.check("[mass]/[time]"))
+    return False

@@ -3,7 +3,8 @@ one of ``=``, ``!=``, ``<``, ``<=``, ``>``, ``>=`` (``--where T_K>=900``,
 ``--where status_name=converged``). Several filters must all hold.
 
 A value that reads as a number compares as a number, ``true``/``false`` as
-a boolean, anything else as text (status names, labels).
+a boolean, anything else as text, without regard to case (status names,
+labels).
 """
 
 from __future__ import annotations
@@ -81,9 +82,10 @@ def where_mask(conditions: Sequence[Condition], column: Callable[[str], np.ndarr
     mask = np.ones(rows, dtype=bool)
     for c in conditions:
         values = np.asarray(column(c.column))
-        if isinstance(c.value, str):
-            values = values.astype(str)
-        mask &= np.asarray(_OPERATORS[c.op](values, c.value), dtype=bool)
+        value = c.value
+        if isinstance(value, str):  # text compares without case: status_name=converged
+            values, value = np.char.lower(values.astype(str)), value.lower()
+        mask &= np.asarray(_OPERATORS[c.op](values, value), dtype=bool)
     return mask
 
 

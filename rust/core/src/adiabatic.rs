@@ -46,7 +46,7 @@ use crate::batch::{on_threads, TINY_FEED};
 use crate::error::CoreError;
 use crate::face::{analyse, SharedFace};
 use crate::ln::ln_normal;
-use crate::newton::{ldl_solve, ARMIJO, MAX_BACKTRACKS, TO_BOUNDARY};
+use crate::newton::{accept_quickly, ldl_solve, ARMIJO, MAX_BACKTRACKS, TO_BOUNDARY};
 use crate::solver::{for_small_systems, interior_start, warm_start, SolveOptions};
 use crate::status::Status;
 use crate::system::System;
@@ -288,6 +288,9 @@ struct Point {
     total: f64,
     /// How close to the balance `t` is, relative.
     rel: f64,
+    /// The balance's last Newton step there, `f / C` (K): the balancing
+    /// temperature is `t - offset` to second order.
+    offset: f64,
 }
 
 /// The system's constants for this path.
@@ -426,6 +429,10 @@ impl<'a, const R: usize, const S: usize, const EXACT: bool> Work<'a, R, S, EXACT
         for j in 0..r {
             self.shift[j] = self.table_shift[j] + case.shift.map_or(0.0, |v| v[j]);
         }
+        if self.limit == 0 {
+            // (a system whose points the general solve must check in its own basis)
+            return (Status::Stalled, 0, f64::NAN);
+        }
         let Some(shared) = self.face_of(case.feed) else {
             return (Status::Stalled, 0, f64::NAN);
         };
@@ -462,7 +469,9 @@ impl<'a, const R: usize, const S: usize, const EXACT: bool> Work<'a, R, S, EXACT
         // until its energy balance closes inside.
         let mut here = None;
         for _ in 0..START_HALVINGS {
-            here = point(&self.c, &self.n[..s], target, t0, LOOSE, &mut self.species);
+            // (a caller's start may be the answer already: its balance closely)
+            let rel = if warm { T_STEP } else { LOOSE };
+            here = point(&self.c, &self.n[..s], target, t0, rel, &mut self.species);
             if here.is_some() {
                 break;
             }
@@ -693,8 +702,17 @@ impl<'a, const R: usize, const S: usize, const EXACT: bool> Work<'a, R, S, EXACT
                     derivative += self.trial_residual[j] * self.step[j];
                 }
                 // (convex: a non-positive derivative at the trial point means
-                // phi fell; otherwise the exact change decides)
-                let accept = derivative <= 0.0 || {
+                // phi fell, and so does a small step whose derivative has
+                // halved, by the quadratic model, as in the isothermal solve;
+                // otherwise the exact change decides)
+                let mut largest_relative = 0.0_f64;
+                for i in 0..s {
+                    if self.dn[i] != 0.0 {
+                        largest_relative =
+                            largest_relative.max((alpha * self.dn[i] / self.n[i]).abs());
+                    }
+                }
+                let accept = accept_quickly(derivative, largest_relative, slope) || {
                     let phi_there = phi(
                         &self.c,
                         &self.trial[..s],
@@ -776,17 +794,19 @@ fn point<const R: usize, const S: usize>(
                 heat_capacity: cp,
                 total,
                 rel,
+                offset: step,
             });
         }
         if f < 0.0 {
-            a = t;
+            a = a.max(t);
         } else {
-            b = t;
+            b = b.min(t);
         }
         let next = t - step;
         t = if next > a && next < b {
             next
-        } else if next <= c.lo || next >= c.hi {
+        } else if (next <= c.lo && a == c.lo) || (next >= c.hi && b == c.hi) {
+            // (beyond an end the bracket has not moved from: ask that end's sign)
             let end = if next <= c.lo { c.lo } else { c.hi };
             if end == t {
                 return None;
@@ -838,7 +858,9 @@ fn phi<const R: usize, const S: usize>(
     let t = at.t;
     let (ln_t, inv_t) = (t.ln(), 1.0 / t);
     let ln_total = at.total.ln();
-    let mut v = at.total * ln_p;
+    // (phi at the balancing temperature `t - offset`: d phi / dT = -C / T at
+    // fixed amounts, so the loose balance of early iterates costs nothing here)
+    let mut v = at.total * ln_p + at.heat_capacity * inv_t * at.offset;
     for (i, &n) in amounts.iter().enumerate() {
         if n > 0.0 {
             v += n * (n.ln() - ln_total - c.table.s(i, t, ln_t, inv_t));
