@@ -156,3 +156,11 @@ def test_outputs_are_not_taken_for_inputs() -> None:
     inputs = ("T_K", "T_C", "T_in_K", "P_bar", "P_psig", "feed_CH4", "feed_CH4[kmol/h]", "S_C", "lnK_shift")
     for name in inputs:
         assert _is_input(name), name
+
+
+def test_the_report_plots_only_converged_cases(study, tmp_path) -> None:
+    cases, _ = study
+    sweep(reformer_system(), cases, tmp_path / "none.parquet", max_iter=0, quiet=True)  # nothing converges
+    page = study_report(tmp_path / "none.parquet", tmp_path / "none.html").read_text()
+    assert "No case converged: nothing to plot." in page and "data:image/png" not in page
+    assert "iteration limit" in page  # the statuses by name

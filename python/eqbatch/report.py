@@ -218,11 +218,16 @@ def _plots_section(path: Path, names: list[str], table: Any) -> str:
     means = {n: float(np.nanmean(table.column(n).to_numpy(zero_copy_only=False))) for n in fractions}
     key = sorted(fractions, key=lambda n: -means[n])[:_KEY_FRACTIONS]
     against = html.escape(x) + ("" if by is None else f", one line per {html.escape(by)}")
-    parts = [f"<h2>Plots</h2><p class='note'>Against {against} (the most varied inputs).</p>"]
+    # (only converged cases: a case that is not holds the solver's last iterate, no answer)
+    status = table.column("status").to_numpy() if "status" in table.column_names else None
+    if status is not None and not np.any(status == 0):
+        return "<h2>Plots</h2><p>No case converged: nothing to plot.</p>"
+    where = None if status is None else ["status=0"]
+    parts = [f"<h2>Plots</h2><p class='note'>Converged cases against {against} (the most varied inputs).</p>"]
     with tempfile.TemporaryDirectory() as folder:
         for y in conversions + key:
             notes: list[str] = []
-            png = result_plot(path, Path(folder) / f"{y}.png", x=x, y=y, by=by, notes=notes)
+            png = result_plot(path, Path(folder) / f"{y}.png", x=x, y=y, by=by, where=where, notes=notes)
             data = base64.b64encode(png.read_bytes()).decode("ascii")
             caption = html.escape(f"{y} against {x}" + (f" ({'; '.join(notes)})" if notes else ""))
             parts.append(f"<figure><img alt='{caption}' src='data:image/png;base64,{data}'>")
