@@ -85,59 +85,59 @@ pub fn sensitivities_batch(
         })?;
     }
     let faces = table.unwrap_or_default();
-    let work = |chunk: usize, dk: &mut [f64], dp: &mut [f64], df: &mut [f64]| {
-        let mut scratch = Scratch::new(s, r);
-        let mut cursor = FaceCursor::new(s);
-        let cases = dp.len() / s;
-        for local in 0..cases {
-            let case = chunk * CHUNK + local;
-            let dk = &mut dk[local * s * r..(local + 1) * s * r];
-            let dp = &mut dp[local * s..(local + 1) * s];
-            let df = if with_feed {
-                &mut df[local * s * s..(local + 1) * s * s]
-            } else {
-                &mut df[..0]
-            };
-            let feed = feed_rows.row(inputs.feed, case);
-            let n_case = &amounts[case * s..(case + 1) * s];
-            let converged =
-                status[case] == Status::Converged as u8 || status[case] == Status::Underflow as u8;
-            let mask = absent.map_or(0, |a| a[case]);
-            let ok = converged
-                && if mask != 0 {
-                    // The face of the equilibrium with the phase held absent.
-                    let held: Vec<bool> = (0..s)
-                        .map(|i| mask >> system.phase_index(i) & 1 != 0)
-                        .collect();
-                    let zero: Vec<bool> = n_case.iter().map(|&v| v <= 0.0).collect();
-                    match analyse_with(system, &zero, &held) {
-                        Ok(face) => case_sensitivities(
-                            system,
-                            &face,
-                            Some(&held),
-                            n_case,
-                            &mut scratch,
-                            dk,
-                            dp,
-                            df,
-                        ),
-                        Err(_) => false,
-                    }
+    let work =
+        |chunk: usize, dk: &mut [f64], dp: &mut [f64], df: &mut [f64], scratch: &mut Scratch| {
+            let mut cursor = FaceCursor::new(s);
+            let cases = dp.len() / s;
+            for local in 0..cases {
+                let case = chunk * CHUNK + local;
+                let dk = &mut dk[local * s * r..(local + 1) * s * r];
+                let dp = &mut dp[local * s..(local + 1) * s];
+                let df = if with_feed {
+                    &mut df[local * s * s..(local + 1) * s * s]
                 } else {
-                    match cursor.face(&faces, feed) {
-                        Some(Ok(face)) => {
-                            case_sensitivities(system, face, None, n_case, &mut scratch, dk, dp, df)
-                        }
-                        _ => false,
-                    }
+                    &mut df[..0]
                 };
-            if !ok {
-                dk.fill(f64::NAN);
-                dp.fill(f64::NAN);
-                df.fill(f64::NAN);
+                let feed = feed_rows.row(inputs.feed, case);
+                let n_case = &amounts[case * s..(case + 1) * s];
+                let converged = status[case] == Status::Converged as u8
+                    || status[case] == Status::Underflow as u8;
+                let mask = absent.map_or(0, |a| a[case]);
+                let ok = converged
+                    && if mask != 0 {
+                        // The face of the equilibrium with the phase held absent.
+                        let held: Vec<bool> = (0..s)
+                            .map(|i| mask >> system.phase_index(i) & 1 != 0)
+                            .collect();
+                        let zero: Vec<bool> = n_case.iter().map(|&v| v <= 0.0).collect();
+                        match analyse_with(system, &zero, &held) {
+                            Ok(face) => case_sensitivities(
+                                system,
+                                &face,
+                                Some(&held),
+                                n_case,
+                                scratch,
+                                dk,
+                                dp,
+                                df,
+                            ),
+                            Err(_) => false,
+                        }
+                    } else {
+                        match cursor.face(&faces, feed) {
+                            Some(Ok(face)) => {
+                                case_sensitivities(system, face, None, n_case, scratch, dk, dp, df)
+                            }
+                            _ => false,
+                        }
+                    };
+                if !ok {
+                    dk.fill(f64::NAN);
+                    dp.fill(f64::NAN);
+                    df.fill(f64::NAN);
+                }
             }
-        }
-    };
+        };
     let run = |out: &mut SensitivityOutputs| {
         if with_feed {
             out.d_ln_k
@@ -145,25 +145,45 @@ pub fn sensitivities_batch(
                 .zip(out.d_ln_p.par_chunks_mut(CHUNK * s))
                 .zip(out.d_feed.par_chunks_mut(CHUNK * s * s))
                 .enumerate()
-                .for_each(|(chunk, ((dk, dp), df))| work(chunk, dk, dp, df));
+                .for_each(|(chunk, ((dk, dp), df))| {
+                    work(chunk, dk, dp, df, &mut Scratch::new(s, r))
+                });
         } else {
             out.d_ln_k
                 .par_chunks_mut(CHUNK * s * r)
                 .zip(out.d_ln_p.par_chunks_mut(CHUNK * s))
                 .enumerate()
-                .for_each(|(chunk, (dk, dp))| work(chunk, dk, dp, &mut []));
+                .for_each(|(chunk, (dk, dp))| {
+                    work(chunk, dk, dp, &mut [], &mut Scratch::new(s, r))
+                });
         }
     };
     if serial {
-        work(
-            0,
-            &mut out.d_ln_k[..],
-            &mut out.d_ln_p[..],
-            &mut out.d_feed[..],
-        );
+        // (an optimiser's one-case calls reuse this thread's working memory:
+        // a dozen allocations are a tenth of such a call)
+        SERIAL_SCRATCH.with(|cell| {
+            let mut kept = cell.borrow_mut();
+            let scratch = match kept.as_mut() {
+                Some((ks, kr, scratch)) if (*ks, *kr) == (s, r) => scratch,
+                _ => &mut kept.insert((s, r, Scratch::new(s, r))).2,
+            };
+            work(
+                0,
+                &mut out.d_ln_k[..],
+                &mut out.d_ln_p[..],
+                &mut out.d_feed[..],
+                scratch,
+            );
+        });
         return Ok(());
     }
     on_threads(threads, || run(out))
+}
+
+thread_local! {
+    /// The last serial call's working memory on this thread, with its sizes.
+    static SERIAL_SCRATCH: std::cell::RefCell<Option<(usize, usize, Scratch)>> =
+        const { std::cell::RefCell::new(None) };
 }
 
 struct Scratch {
