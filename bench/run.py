@@ -983,11 +983,13 @@ def main(argv: list[str] | None = None) -> int:
         "20.7 -> 6.4 us a case (20,000 demo cases, same iterations) |",
         "| adiabatic solves in the core: one Newton iteration on the extents with the outlet "
         "temperature eliminated by the energy balance (merit: the entropy at the given enthalpy), "
-        "compile-time sizes, the balance solved only as closely as the residuals need | 6.4 -> 1.0 us "
-        "a case (7 Newton steps instead of 22; 0.054x -> about 0.17x of the isothermal solve) |",
+        "compile-time sizes, the balance solved only as closely as the residuals need | 6.4 -> 0.74 us "
+        "a case (7 Newton steps instead of 22; 0.054x -> 0.24x of the isothermal solve) |",
         "| approach solves: the direction each approached reaction runs taken from the feed where "
         "the stoichiometry fixes it (a linear programme per zero pattern), so no solve at T "
-        "first; only the approached reactions' ln K evaluated again | 2.7 -> 1.8 isothermal solves |",
+        "first; only the approached reactions' ln K evaluated again | 2.7 -> 1.6-1.8 isothermal solves |",
+        "| sensitivities of a one-chunk call: the derivatives' working memory kept per thread | "
+        "a prepared call with sensitivities 2.0x -> 1.9x the plain prepared call |",
         "",
         "Per-case time against the number of cases: best call of several, the sizes taking turns "
         "(five rounds). The outputs (69 bytes "
