@@ -83,6 +83,8 @@ def test_demo_runs_and_summarises(capsys, tmp_path) -> None:
     assert "defer to local codes and licensed engineers" in out
     assert "Parquet sweep" in out and "184 rows, 184 converged" in out
     assert (tmp_path / "hydrogen.png").read_bytes()[:4] == b"\x89PNG"
+    report = (tmp_path / "report.html").read_text()  # the sweep's study report
+    assert "made with this system" in report and "184" in report and "licensed engineers" in report
 
 
 def test_python_dash_m_and_console_script(tmp_path) -> None:

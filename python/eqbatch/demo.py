@@ -19,6 +19,7 @@ from eqbatch.errors import CaseInputError
 from eqbatch.grid import make_grid, write_grid
 from eqbatch.hazards import caution
 from eqbatch.plots import result_plot
+from eqbatch.report import study_report
 from eqbatch.sweeps import sweep
 from eqbatch.system import ReactionSystem
 
@@ -126,6 +127,8 @@ def _sweep_and_plot(system: ReactionSystem, folder: Path, threads: int | None) -
     write_grid(cases, table)
     summary = sweep(system, cases, results, overwrite=True, quiet=True, threads=threads)
     png = result_plot(results, folder / "hydrogen.png", x="T_K", y="y_H2", by="P_bar")
+    report = study_report(results, folder / "report.html", system=system, title="Demo: steam reformer sweep")
     print(f"Parquet sweep: {cases} -> {results}: {summary.line()}")
-    print(f"plot of y_H2 against T_K by P_bar (S/C 3): {png}\n")
+    print(f"plot of y_H2 against T_K by P_bar (S/C 3): {png}")
+    print(f"study report (one HTML page): {report}\n")
     return summary.converged == summary.rows
