@@ -85,6 +85,9 @@ def test_demo_runs_and_summarises(capsys, tmp_path) -> None:
     assert (tmp_path / "hydrogen.png").read_bytes()[:4] == b"\x89PNG"
     report = (tmp_path / "report.html").read_text()  # the sweep's study report
     assert "made with this system" in report and "184" in report and "licensed engineers" in report
+    # plots of CH4 and H2O conversion and three mole fractions; none for the species the
+    # demo's grid lists with zero feed (their conversion columns hold no number)
+    assert report.count("data:image/png") == 5 and "conversion_CO against" not in report
 
 
 def test_python_dash_m_and_console_script(tmp_path) -> None:

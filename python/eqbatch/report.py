@@ -213,7 +213,8 @@ def _plots_section(path: Path, names: list[str], table: Any) -> str:
     x = varied[0]
     # one line per value of the next most varied input, where it has few values
     by = next((n for n in varied[1:] if spread[n] <= 10), None)
-    conversions = [n for n in names if n.startswith("conversion_")]
+    # (a conversion column of a species never fed holds no number: nothing to draw)
+    conversions = [n for n in names if n.startswith("conversion_") and _has_numbers(path, n)]
     fractions = [n for n in names if n.startswith("y_")]
     means = {n: float(np.nanmean(table.column(n).to_numpy(zero_copy_only=False))) for n in fractions}
     key = sorted(fractions, key=lambda n: -means[n])[:_KEY_FRACTIONS]
@@ -222,7 +223,7 @@ def _plots_section(path: Path, names: list[str], table: Any) -> str:
     status = table.column("status").to_numpy() if "status" in table.column_names else None
     if status is not None and not np.any(status == 0):
         return "<h2>Plots</h2><p>No case converged: nothing to plot.</p>"
-    where = None if status is None else ["status=0"]
+    where = None if status is None else ["status_name=converged" if "status_name" in names else "status=0"]
     parts = [f"<h2>Plots</h2><p class='note'>Converged cases against {against} (the most varied inputs).</p>"]
     with tempfile.TemporaryDirectory() as folder:
         for y in conversions + key:
@@ -233,6 +234,14 @@ def _plots_section(path: Path, names: list[str], table: Any) -> str:
             parts.append(f"<figure><img alt='{caption}' src='data:image/png;base64,{data}'>")
             parts.append(f"<figcaption class='note'>{caption}</figcaption></figure>")
     return "\n".join(parts)
+
+
+def _has_numbers(path: Path, column: str) -> bool:
+    """Whether a column holds any finite number."""
+    import pyarrow.parquet as pq
+
+    values = pq.read_table(path, columns=[column]).column(0).to_numpy(zero_copy_only=False)
+    return bool(np.any(np.isfinite(values.astype(float))))
 
 
 def _uncertainty_section(mc: MonteCarloResult) -> str:
