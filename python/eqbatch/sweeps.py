@@ -1290,14 +1290,19 @@ def _stage_rows(src: Path, conditions: Sequence[Condition], out: Path) -> None:
     missing = [c for c in columns_of(conditions) if c not in schema.names]
     if missing:
         raise SweepError(f"{src}: where= names no column {', '.join(map(repr, missing))}")
-    with pq.ParquetWriter(out, schema, write_page_checksum=True) as writer:
-        try:
+    # (written under a private name, then renamed: a sweep already reading an
+    # earlier staged file keeps reading that one)
+    tmp = out.parent / f".{out.name}.{os.getpid()}.writing"
+    try:
+        with pq.ParquetWriter(tmp, schema, write_page_checksum=True) as writer:
             for batch in reader:
                 if conditions:
                     batch = batch.filter(pa.array(_passing(conditions, batch)))
                 writer.write_batch(batch)
-        except pa.ArrowInvalid as err:
-            raise SweepError(f"{src}: {err}") from None
+    except pa.ArrowInvalid as err:
+        tmp.unlink(missing_ok=True)
+        raise SweepError(f"{src}: {err}") from None
+    os.replace(tmp, out)
 
 
 def _passing(conditions: Sequence[Condition], batch: Any) -> np.ndarray:
