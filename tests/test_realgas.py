@@ -434,3 +434,19 @@ def test_a_real_gas_with_a_solid() -> None:
     np.testing.assert_allclose(ln_q[present], 0.5, atol=1e-9)
     np.testing.assert_allclose(res.activities[~present, 2], np.exp(0.5 - ln_q[~present]), rtol=1e-9)
     assert np.all(res.activities[~present, 2] < 1.0)
+
+
+def test_a_real_gas_solve_writes_into_an_earlier_result() -> None:
+    # out= with a cubic equation of state: the earlier result's arrays receive the new
+    # values, which equal a fresh solve's (the same computation, bit for bit)
+    system = ammonia("peng-robinson")
+    T = 723.15
+    lnk = gillespie_beattie_ln_k(T)
+    first = system.solve([1.0, 3.0, 0.0], lnK=lnk, P=100.0 * 1.01325, T=T)
+    kept = first.amounts
+    second = system.solve([1.0, 3.0, 0.0], lnK=lnk, P=300.0 * 1.01325, T=T, out=first)
+    fresh = system.solve([1.0, 3.0, 0.0], lnK=lnk, P=300.0 * 1.01325, T=T)
+    assert second.amounts is kept  # no new memory: the earlier arrays
+    np.testing.assert_array_equal(second.amounts, fresh.amounts)
+    np.testing.assert_array_equal(first.amounts, fresh.amounts)  # the earlier result shows the new values
+    assert second.converged.all()

@@ -423,7 +423,6 @@ class ReactionSystem(SystemSpec):
                     ("duty=", duty is not None),
                     ("approach=", bool(approach)),
                     ("chain=True", chain),
-                    ("out=", out is not None),
                 )
                 if given
             ]
@@ -527,6 +526,12 @@ class ReactionSystem(SystemSpec):
             solved_real, ln_phi = solve_real(
                 self, feed_arr, lnk_arr, p_arr, T_arr, n, tol, max_iter, threads, start
             )
+            if out is not None:  # (the earlier result's arrays receive the values)
+                kept = self._outputs(out, n)
+                assert kept is not None
+                for target, values in zip(kept, solved_real):
+                    np.copyto(target, values)
+                solved_real = kept
             amounts, extents, status, iterations, absent = solved_real
         else:
             amounts, extents, status, iterations, absent = self._engine.solve(
