@@ -14,7 +14,7 @@ from eqbatch.uncertainty import MonteCarloResult
 from eqbatch.units import PRESSURE_COLUMNS, TEMPERATURE_COLUMNS
 from eqbatch.where import columns_of, parse_where, where_mask
 
-__all__ = ["histogram", "parse_output", "result_plot", "tornado"]
+__all__ = ["histogram", "is_swept_input", "parse_output", "result_plot", "tornado"]
 
 
 def _pyplot() -> Any:
@@ -81,6 +81,17 @@ _SWEPT_PREFIXES = ("feed_", "lnK_", "approach_")
 _SWEPT = {*PRESSURE_COLUMNS, *TEMPERATURE_COLUMNS, "T_in_K", "S_C", "adiabatic", "duty_kJ", "H_in_kJ"}
 
 
+def is_swept_input(name: str) -> bool:
+    """Whether a result column is an input a sweep may vary (not an output).
+
+    Examples
+    --------
+    >>> is_swept_input("feed_CH4"), is_swept_input("T_C"), is_swept_input("T_out_K")
+    (True, True, False)
+    """
+    return name.startswith(_SWEPT_PREFIXES) or name in _SWEPT
+
+
 def result_plot(
     path: str | Path,
     out: str | Path,
@@ -116,7 +127,7 @@ def result_plot(
     if missing:
         shown = ", ".join(n for n in names if not n.startswith("__"))
         raise CaseInputError(f"{path}: no column {', '.join(map(repr, missing))} (columns are {shown})")
-    swept = [n for n in names if (n.startswith(_SWEPT_PREFIXES) or n in _SWEPT) and n not in cols]
+    swept = [n for n in names if is_swept_input(n) and n not in cols]
     read = list(dict.fromkeys(cols + columns_of(conditions) + swept))
     table = pq.read_table(path, columns=read, page_checksum_verification=True)
     total = table.num_rows

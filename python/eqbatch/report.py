@@ -13,7 +13,6 @@ mailed or archived alone.
 from __future__ import annotations
 
 import base64
-import hashlib
 import html
 import json
 import tempfile
@@ -24,8 +23,9 @@ import numpy as np
 
 from eqbatch.errors import CaseInputError
 from eqbatch.hazards import caution
-from eqbatch.plots import _SWEPT, _SWEPT_PREFIXES, result_plot
+from eqbatch.plots import is_swept_input, result_plot
 from eqbatch.status import status_words
+from eqbatch.sweeps import system_digest
 from eqbatch.system import ReactionSystem
 from eqbatch.uncertainty import MonteCarloResult
 
@@ -94,9 +94,10 @@ def study_report(
     )
     parts.append(_caution_block(system))
     parts.append(_system_section(system, record))
-    table = pq.read_table(path, columns=[n for n in names if _is_input(n) or n.startswith(("status", "y_"))])
+    wanted = ("status", "y_", "conversion_")
+    table = pq.read_table(path, columns=[n for n in names if _is_input(n) or n.startswith(wanted)])
     parts.append(_ranges_section(table))
-    parts.append(_status_section(pq.read_table(path, columns=[n for n in names if n == "status"])))
+    parts.append(_status_section(table))
     parts.append(_plots_section(path, names, table))
     if uncertainty is not None:
         parts.append(_uncertainty_section(uncertainty))
@@ -120,8 +121,7 @@ def _record(pf: Any) -> dict:
         return {}
 
 
-def _is_input(name: str) -> bool:
-    return name.startswith(_SWEPT_PREFIXES) or name in _SWEPT
+_is_input = is_swept_input
 
 
 def _table(head: list[str], rows: list[list[Any]]) -> str:
@@ -141,7 +141,7 @@ def _system_section(system: ReactionSystem | None, record: dict) -> str:
     parts = ["<h2>System</h2>"]
     recorded = record.get("system_sha256")
     if recorded:
-        own = hashlib.sha256(repr(system.arguments()).encode()).hexdigest()
+        own = system_digest(system)
         parts.append(
             "<p class='note'>"
             + (
@@ -214,7 +214,7 @@ def _plots_section(path: Path, names: list[str], table: Any) -> str:
     # one line per value of the next most varied input, where it has few values
     by = next((n for n in varied[1:] if spread[n] <= 10), None)
     # (a conversion column of a species never fed holds no number: nothing to draw)
-    conversions = [n for n in names if n.startswith("conversion_") and _has_numbers(path, n)]
+    conversions = [n for n in names if n.startswith("conversion_") and _has_numbers(table, n)]
     fractions = [n for n in names if n.startswith("y_")]
     means = {n: float(np.nanmean(table.column(n).to_numpy(zero_copy_only=False))) for n in fractions}
     key = sorted(fractions, key=lambda n: -means[n])[:_KEY_FRACTIONS]
@@ -236,11 +236,9 @@ def _plots_section(path: Path, names: list[str], table: Any) -> str:
     return "\n".join(parts)
 
 
-def _has_numbers(path: Path, column: str) -> bool:
+def _has_numbers(table: Any, column: str) -> bool:
     """Whether a column holds any finite number."""
-    import pyarrow.parquet as pq
-
-    values = pq.read_table(path, columns=[column]).column(0).to_numpy(zero_copy_only=False)
+    values = table.column(column).to_numpy(zero_copy_only=False)
     return bool(np.any(np.isfinite(values.astype(float))))
 
 

@@ -114,7 +114,6 @@ from eqbatch.units import (
     PRESSURE_COLUMNS,
     TEMPERATURE_COLUMNS,
     amounts_in_mol,
-    is_flow,
     pressure_to_bar,
     temperature_to_kelvin,
 )
@@ -651,8 +650,9 @@ def feed_column_units(
         if species not in system.species:
             raise SweepError(f"{path}: {name} names no species of the system")
         try:
-            factor = amounts_in_mol({species: f"1 {unit}"}, system.molar_mass)[species]
-            flows.add(is_flow({species: f"1 {unit}"}))
+            factors, flow = amounts_in_mol({species: f"1 {unit}"}, system.molar_mass)
+            factor = factors[species]
+            flows.add(flow)
         except CaseInputError as err:
             raise SweepError(f"{path}: column {name}: {err}") from None
         out.setdefault(species, {})[name] = float(factor)
@@ -701,11 +701,16 @@ def _refuse_unknown_columns(system: ReactionSystem, path: Path, names: list[str]
         )
 
 
-def _identity(system: ReactionSystem, path: Path, pf: Any, options: dict) -> dict:
+def system_digest(system: ReactionSystem) -> str:
+    """A system by content, as a sweep records it (SHA-256 of its arguments)."""
+    return hashlib.sha256(repr(system.arguments()).encode()).hexdigest()
+
+
+def _identity(system: ReactionSystem, path: Path, pf: Any, options: dict, plan: _Plan) -> dict:
     """What a sweep's result is made of, as JSON values: the input by content
     (SHA-256 of the file's bytes: a file rewritten with other rows of the same
-    size and time differs), the system by content, and the settings that change
-    results (``threads`` and the batch size do not)."""
+    size and time differs), the system by content, the settings that change
+    results (``threads`` and the batch size do not) and the optional outputs."""
     digest = hashlib.sha256()
     with open(path, "rb") as f:
         while block := f.read(8 << 20):
@@ -714,10 +719,11 @@ def _identity(system: ReactionSystem, path: Path, pf: Any, options: dict) -> dic
         "format": _IDENTITY_FORMAT,
         "input_sha256": digest.hexdigest(),
         "input_rows": pf.metadata.num_rows,
-        "system_sha256": hashlib.sha256(repr(system.arguments()).encode()).hexdigest(),
+        "system_sha256": system_digest(system),
         "tol": float(options["tol"]),
         "max_iter": int(options["max_iter"]),
         "eqbatch": _core.__version__,
+        "outputs": plan.energy_names() + plan.yield_names(),
     }
 
 
@@ -910,8 +916,7 @@ def _sweep_locked(
         raise SweepError(
             f"{dst}: an interrupted sweep left {partial}; resume it (--resume) or start over (--overwrite)"
         )
-    outputs = plan.energy_names() + plan.yield_names()
-    identity = json.loads(json.dumps(_identity(system, src, pf, options) | {"outputs": outputs}))
+    identity = _identity(system, src, pf, options, plan)
     if dst.exists():
         if resume:
             problems = _finished_problems(dst, identity, src)
@@ -1245,8 +1250,7 @@ def _staged_sweep(
             # a finished subset is kept only if this sweep made it: the same rows,
             # system, settings, outputs and columns
             options = {k: kwargs[k] for k in ("tol", "max_iter")}
-            outputs = plan.energy_names() + plan.yield_names()
-            identity = json.loads(json.dumps(_identity(system, staged, pf, options) | {"outputs": outputs}))
+            identity = _identity(system, staged, pf, options, plan)
             problems = _finished_problems(dst, identity, src)
             if _open(dst).schema_arrow.names != list(columns):
                 problems.append("its columns differ from the ones asked for")
@@ -1312,15 +1316,10 @@ def _passing(conditions: Sequence[Condition], batch: Any) -> np.ndarray:
 
 def _project(full: Path, dst: Path, columns: list[str]) -> None:
     """The output ``dst`` as the ``columns`` of the finished sweep ``full``
-    (its metadata kept), batch by batch."""
+    (its metadata kept), batch by batch; the columns were checked before
+    the sweep (:func:`_staged_sweep`)."""
     pa, pq = _pa()
     pf = _open(full)
-    missing = [c for c in columns if c not in pf.schema_arrow.names]
-    if missing:
-        raise SweepError(
-            f"{dst}: columns= names no output column {', '.join(map(repr, missing))} "
-            f"(the output has {', '.join(pf.schema_arrow.names)})"
-        )
     schema = pa.schema([pf.schema_arrow.field(c) for c in columns], metadata=pf.schema_arrow.metadata)
     tmp = dst.parent / f".{dst.name}.writing"
     with pq.ParquetWriter(tmp, schema, use_dictionary=False, write_page_checksum=True) as writer:

@@ -39,7 +39,7 @@ from eqbatch.realgas import nonideal_sensitivities, solve_real, warn_if_not_idea
 from eqbatch.result import EquilibriumResult, Status
 from eqbatch.spec import PHASES, ArrayLike, KData, SystemSpec, bad_temperatures
 from eqbatch.system_file import read_spec
-from eqbatch.units import amounts_in_mol, is_flow, is_quantity, pressure_input, temperature_input
+from eqbatch.units import amounts_in_mol, is_quantity, pressure_input, temperature_input
 
 # MAX_ITER, PHASES, TOL_RANGE, ArrayLike and KData live in inputs and spec;
 # they are named here too for code that imported them from eqbatch.system.
@@ -413,8 +413,7 @@ class ReactionSystem(SystemSpec):
             P = pressure_input(P)
         per_hour = False
         if isinstance(feed, Mapping) and any(isinstance(v, str) or is_quantity(v) for v in feed.values()):
-            per_hour = is_flow(dict(feed))
-            feed = amounts_in_mol(dict(feed), self.molar_mass)
+            feed, per_hour = amounts_in_mol(dict(feed), self.molar_mass)
         if self.nonideal is not None:
             unsupported = [
                 name

@@ -193,19 +193,19 @@ def _converted(value: Any, unit: str, name: str) -> Any:
         raise CaseInputError(f"{name} = {value}: not convertible to {unit}") from None
 
 
-def amounts_in_mol(amounts: dict[str, Any], molar_mass: Any) -> dict[str, Any]:
+def amounts_in_mol(amounts: dict[str, Any], molar_mass: Any) -> tuple[dict[str, Any], bool]:
     """A feed given per species with units, in mol: amounts (``"2 kmol"``,
     ``Q_(2, "kmol")``) to mol, molar flows (``"100 kmol/h"``) to mol/h, and
     masses or mass flows (``"1.6 t/h"``, ``"16 kg"``) through the species'
-    molar mass (``molar_mass(species)``, kg/mol). A flow basis gives results
-    per hour (amounts in mol/h); amounts and flows cannot be mixed. Values
-    without a unit are mol (or mol/h beside flows).
+    molar mass (``molar_mass(species)``, kg/mol); and whether it is a flow
+    basis (results per hour, amounts in mol/h). Amounts and flows cannot be
+    mixed. Values without a unit are mol (or mol/h beside flows).
 
     Examples
     --------
-    >>> mol = amounts_in_mol({"CH4": "100 kmol/h", "H2O": "5.4 t/h"}, {"CH4": 0.016043, "H2O": 0.018015}.get)
-    >>> {name: round(v, 1) for name, v in mol.items()}  # mol/h
-    {'CH4': 100000.0, 'H2O': 299750.2}
+    >>> mol, per_hour = amounts_in_mol({"CH4": "100 kmol/h", "H2O": "5.4 t/h"}, {"H2O": 0.018015}.get)
+    >>> {name: round(v, 1) for name, v in mol.items()}, per_hour  # mol/h
+    ({'CH4': 100000.0, 'H2O': 299750.2}, True)
     """
     ureg = _registry()
     out: dict[str, Any] = {}
@@ -240,21 +240,4 @@ def amounts_in_mol(amounts: dict[str, Any], molar_mass: Any) -> dict[str, Any]:
         kinds.add(flow)
     if len(kinds) > 1:
         raise CaseInputError("feed: give every species as an amount or every one as a flow, not both")
-    return out
-
-
-def is_flow(amounts: dict[str, Any]) -> bool:
-    """Whether a feed given with units is a flow basis (its values per
-    time: ``"100 kmol/h"``, ``Q_(5.4, "t/h")``), for the outputs' units.
-
-    Examples
-    --------
-    >>> is_flow({"CH4": "100 kmol/h", "H2O": 3.0}), is_flow({"CH4": "1 kmol"})
-    (True, False)
-    """
-    ureg = _registry()
-    for value in amounts.values():
-        if isinstance(value, str) or is_quantity(value):
-            q = ureg.Quantity(value) if isinstance(value, str) else ureg.Quantity(1.0, str(value.units))
-            return bool(q.check("[substance]/[time]") or q.check("[mass]/[time]"))
-    return False
+    return out, kinds == {True}

@@ -42,9 +42,10 @@
 
 use rayon::prelude::*;
 
-use crate::batch::{on_threads, TINY_FEED};
+use crate::batch::{feed_is_valid, on_threads, FaceCursor, FaceTable};
 use crate::error::CoreError;
-use crate::face::{analyse, SharedFace};
+// (the largest system the run-time-size kernel takes: the lane kernel's)
+use crate::lanes::{lane_tolerance, MAX_LANE_REACTIONS as MAX_R, MAX_LANE_SPECIES as MAX_S};
 use crate::ln::ln_normal;
 use crate::newton::{accept_quickly, ldl_solve, ARMIJO, MAX_BACKTRACKS, TO_BOUNDARY};
 use crate::solver::{for_small_systems, interior_start, warm_start, SolveOptions};
@@ -173,10 +174,6 @@ type Kernel = fn(
     Option<usize>,
     AdiabaticOutputs,
 ) -> Result<(), CoreError>;
-
-/// Largest system the run-time-size kernel takes.
-const MAX_R: usize = 20;
-const MAX_S: usize = 28;
 
 fn kernel_for(r: usize, s: usize) -> Kernel {
     macro_rules! pick {
@@ -316,8 +313,8 @@ struct Work<'a, const R: usize, const S: usize, const EXACT: bool> {
     table_shift: [f64; R],
     /// Per reaction: the table's shift plus the case's.
     shift: [f64; R],
-    key: Vec<bool>,
-    face: Option<(Vec<bool>, SharedFace)>,
+    faces: FaceCursor,
+    no_table: FaceTable,
     n: [f64; S],
     xi: [f64; R],
     trial: [f64; S],
@@ -355,7 +352,7 @@ impl<'a, const R: usize, const S: usize, const EXACT: bool> Work<'a, R, S, EXACT
         let reactive = std::array::from_fn(|i| i < s && system.is_reactive(i));
         let mut table_shift = [0.0; R];
         table_shift[..r].copy_from_slice(table.coefficients().1);
-        let (tol, verify) = crate::lanes::lane_tolerance(system, options.tol);
+        let (tol, verify) = lane_tolerance(system, options.tol);
         Work {
             c: Consts {
                 system,
@@ -378,8 +375,8 @@ impl<'a, const R: usize, const S: usize, const EXACT: bool> Work<'a, R, S, EXACT
             },
             table_shift,
             shift: [0.0; R],
-            key: vec![false; s],
-            face: None,
+            faces: FaceCursor::new(s),
+            no_table: FaceTable::default(),
             n: [0.0; S],
             xi: [0.0; R],
             trial: [0.0; S],
@@ -433,10 +430,12 @@ impl<'a, const R: usize, const S: usize, const EXACT: bool> Work<'a, R, S, EXACT
             // (a system whose points the general solve must check in its own basis)
             return (Status::Stalled, 0, f64::NAN);
         }
-        let Some(shared) = self.face_of(case.feed) else {
-            return (Status::Stalled, 0, f64::NAN);
-        };
-        let Ok(face) = shared.as_ref() else {
+        // (the batch's face machinery with an empty table: the system's memo,
+        // the last pattern held)
+        let Ok(face) = self
+            .faces
+            .face_or_analyse(&self.no_table, self.c.system, case.feed)
+        else {
             return (Status::Stalled, 0, f64::NAN);
         };
         // (a full face leaves no reactive species unreachable; an inert
@@ -551,37 +550,6 @@ impl<'a, const R: usize, const S: usize, const EXACT: bool> Work<'a, R, S, EXACT
             &mut self.residual,
             &mut self.a,
         );
-    }
-
-    /// The face of `feed`'s zero pattern (the last one kept at hand).
-    fn face_of(&mut self, feed: &[f64]) -> Option<SharedFace> {
-        for (k, &v) in self.key.iter_mut().zip(feed) {
-            *k = v < TINY_FEED;
-        }
-        if let Some((key, face)) = &self.face {
-            if *key == self.key {
-                return Some(face.clone());
-            }
-        }
-        let words: Vec<u64> = self
-            .key
-            .chunks(64)
-            .map(|c| {
-                c.iter()
-                    .enumerate()
-                    .fold(0, |w, (i, &z)| w | (u64::from(z) << i))
-            })
-            .collect();
-        let system = self.c.system;
-        let zero = &self.key;
-        let face = system
-            .face_memo()
-            .get_or_analyse(&words, || analyse(system, zero));
-        if face.is_err() {
-            return None;
-        }
-        self.face = Some((self.key.clone(), face.clone()));
-        Some(face)
     }
 
     #[inline(always)]
@@ -899,11 +867,6 @@ fn residuals<const R: usize, const S: usize>(
         out[j] = ln_q + dh * inv_t + c.moles[j] * (ln_p - ln_total) - shift[j];
         a[j] = dh * inv_t;
     }
-}
-
-fn feed_is_valid(feed: &[f64]) -> bool {
-    let total: f64 = feed.iter().sum();
-    feed.iter().all(|&v| v >= 0.0) && total > 0.0 && total < f64::INFINITY
 }
 
 #[cfg(test)]

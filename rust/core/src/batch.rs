@@ -148,7 +148,7 @@ fn zero_pattern(feed: &[f64], key: &mut [u64]) {
     }
 }
 
-fn feed_is_valid(feed: &[f64]) -> bool {
+pub(crate) fn feed_is_valid(feed: &[f64]) -> bool {
     let mut total = 0.0;
     let mut lowest = 0.0_f64;
     for &v in feed {
