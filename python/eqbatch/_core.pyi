@@ -26,6 +26,18 @@ class System:
     def phase_index(self) -> list[int]: ...
     @property
     def n_phases(self) -> int: ...
+    def solve_prepared(
+        self,
+        feed: npt.NDArray[np.float64],
+        ln_k: npt.NDArray[np.float64],
+        pressure: float,
+        n_cases: int,
+        tol: float,
+        max_iter: int,
+        threads: int | None,
+        floats: npt.NDArray[np.float64],
+        words: npt.NDArray[np.uint64],
+    ) -> None: ...
     def solve(
         self,
         feed: npt.NDArray[np.float64],

@@ -46,7 +46,10 @@ class PreparedSolve:
         "_sensitivities",
         "_arrays",
         "_result",
-        "_pressure",
+        "_floats",
+        "_words",
+        "_core",
+        "_P0",
     )
 
     def __init__(
@@ -68,14 +71,20 @@ class PreparedSolve:
         self._threads = threads
         self._sensitivities = bool(sensitivities)
         n, s, r = self.cases, system.n_species, system.n_reactions
+        # Two buffers the core writes in one call (`System.solve_prepared`);
+        # the result's arrays are views of them.
+        iteration_words, status_words = -(-n // 2), -(-n // 8)
+        self._floats = np.zeros(n * (s + r))
+        self._words = np.zeros(n + iteration_words + status_words, dtype=np.uint64)
         self._arrays = (
-            np.zeros((n, s)),
-            np.zeros((n, r)),
-            np.zeros(n, dtype=np.uint8),
-            np.zeros(n, dtype=np.uint32),
-            np.zeros(n, dtype=np.uint64),
+            self._floats[: n * s].reshape(n, s),
+            self._floats[n * s :].reshape(n, r),
+            self._words[n + iteration_words :].view(np.uint8)[:n],
+            self._words[n : n + iteration_words].view(np.uint32)[:n],
+            self._words[:n],
         )
-        self._pressure = np.zeros(1)  # a float P of the fast path, written in place
+        self._core = system._engine.solve_prepared
+        self._P0 = float(system.P0)
         amounts, extents, status, iterations, absent = self._arrays
         p0 = system._p0_row  # placeholders until the first call
         self._result = EquilibriumResult(system, amounts, extents, None, status, iterations, p0, p0, None, p0)
@@ -114,21 +123,29 @@ class PreparedSolve:
         >>> [round(float(solve([1.0, 0.0], lnK=[k]).amounts[0, 1]), 6) for k in (0.0, np.log(3.0))]
         [0.5, 0.75]
         """
-        system, n = self.system, self.cases
-        arrays = type(feed) is np.ndarray and type(lnK) is np.ndarray
-        if arrays and T is None and (P is None or type(P) is float):
-            # The optimiser's call: float64 arrays, a float pressure. The core
-            # checks shapes, dtype and layout; anything it refuses takes the
-            # general conversion below, which explains what is wrong.
+        if T is None and type(feed) is np.ndarray and type(lnK) is np.ndarray:
+            # The optimiser's call: float64 arrays, a float pressure, written
+            # out in line (a call costs about two microseconds; each Python
+            # step here is a few per cent of it). The core checks shapes,
+            # dtype and layout; anything it refuses takes the general
+            # conversion below, which explains what is wrong.
             if P is None:
-                p_arr = system._p0_row
-            else:
-                p_arr = self._pressure
-                p_arr[0] = P
-            try:
-                return self._run(feed, lnK, p_arr, None)
-            except (TypeError, ValueError):
-                pass
+                P = self._P0
+            if type(P) is float:
+                try:
+                    n, floats, words = self.cases, self._floats, self._words
+                    self._core(feed, lnK, P, n, self._tol, self._max_iter, self._threads, floats, words)
+                except (TypeError, ValueError):
+                    pass
+                else:
+                    result = self._result
+                    # (result.invalidate(), in line)
+                    result._mole_fractions = result._sens = result._dn_dT = result._energy = None
+                    result._feed, result._lnK, result._P, result._T = feed, lnK, P, None
+                    if self._sensitivities:
+                        self._add_sensitivities(feed, np.array([P]))
+                    return result
+        system, n = self.system, self.cases
         feed_arr = feed_array(system, feed)
         T_arr = None if T is None else case_column(T, "T")
         lnk_arr = lnk_array(system, lnK, None, None, T_arr)
@@ -150,16 +167,21 @@ class PreparedSolve:
         self, feed: np.ndarray, lnk: np.ndarray, p: np.ndarray, T: np.ndarray | None
     ) -> EquilibriumResult:
         """The core's solve into the prepared arrays (inputs already in its layout)."""
-        system, result = self.system, self._result
-        amounts, _, status, _, absent = system._engine.solve(
+        result = self._result
+        self.system._engine.solve(
             feed, lnk, p, self.cases, self._tol, self._max_iter, self._threads, None, False, self._arrays
         )
         result.invalidate()
         result._feed, result._lnK, result._P, result._T = feed, lnk, p, T  # (one row may be 1-D)
         if self._sensitivities:
-            engine, threads = system._engine, self._threads
-            rows = feed if feed.ndim == 2 else feed[None]
-            result._sens = engine.sensitivities(rows, p, amounts, status, absent, threads)
+            self._add_sensitivities(feed, p)
         return result
+
+    def _add_sensitivities(self, feed: np.ndarray, p: np.ndarray) -> None:
+        """The derivatives of the solve just run, into the result."""
+        amounts, _, status, _, absent = self._arrays
+        rows = feed if feed.ndim == 2 else feed[None]
+        engine = self.system._engine
+        self._result._sens = engine.sensitivities(rows, p, amounts, status, absent, self._threads)
 
     __call__ = solve

@@ -133,7 +133,7 @@ class EquilibriumResult:
         self.status = status
         self.iterations = iterations
         self._feed = feed
-        self._P = P
+        self._P: np.ndarray | float = P  # (a float: a prepared solve's one pressure)
         self._T = T
         self._lnK = lnK
         self._sens: tuple[np.ndarray, np.ndarray, np.ndarray] | None = None
@@ -245,7 +245,8 @@ class EquilibriumResult:
     @property
     def P(self) -> np.ndarray:
         """(N,) the pressure of every case, bar (see :attr:`feed` for an example)."""
-        return self._rows(self._P)
+        P = self._P
+        return self._rows(P if isinstance(P, np.ndarray) else np.array([P]))
 
     @property
     def T(self) -> np.ndarray | None:

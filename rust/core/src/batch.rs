@@ -11,6 +11,7 @@ use std::sync::atomic::{AtomicUsize, Ordering};
 use std::sync::{Arc, Mutex};
 
 use rayon::prelude::*;
+use smallvec::{smallvec, SmallVec};
 
 use crate::condensed::ReducedRun;
 use crate::error::CoreError;
@@ -135,6 +136,14 @@ fn pattern_words(n_species: usize) -> usize {
     n_species.div_ceil(64).max(1)
 }
 
+/// A feed's zero pattern, one bit per species: inline up to 128 species, so
+/// a small call (an optimiser's single case) allocates no keys.
+pub(crate) type PatternKey = SmallVec<[u64; 2]>;
+
+fn pattern_key(n_species: usize) -> PatternKey {
+    smallvec![0; pattern_words(n_species)]
+}
+
 /// Feeds below this are indistinguishable from zero in float64 (their
 /// reciprocal overflows): they count as zero in the reachability analysis.
 pub const TINY_FEED: f64 = 1e-300;
@@ -173,9 +182,9 @@ fn case_is_valid(feed: &[f64], ln_k: &[f64], pressure: f64) -> bool {
 /// a hash index is built once there are more than [`FaceTable::SCAN`].
 #[derive(Default)]
 pub(crate) struct FaceTable {
-    keys: Vec<Vec<u64>>,
-    index: HashMap<Vec<u64>, usize>,
-    faces: Vec<Arc<Result<Face, FaceError>>>,
+    keys: SmallVec<[PatternKey; 2]>,
+    index: HashMap<PatternKey, usize>,
+    faces: SmallVec<[Arc<Result<Face, FaceError>>; 2]>,
 }
 
 impl FaceTable {
@@ -190,7 +199,7 @@ impl FaceTable {
         }
     }
 
-    fn insert(&mut self, key: Vec<u64>, face: Arc<Result<Face, FaceError>>) {
+    fn insert(&mut self, key: PatternKey, face: Arc<Result<Face, FaceError>>) {
         let at = self.faces.len();
         self.faces.push(face);
         self.keys.push(key);
@@ -208,21 +217,20 @@ impl FaceTable {
 /// pattern looked up (sweeps usually share one pattern, so the hash lookup
 /// is skipped and nothing is allocated per case).
 pub(crate) struct FaceCursor {
-    key: Vec<u64>,
-    last_key: Vec<u64>,
+    key: PatternKey,
+    last_key: PatternKey,
     last: Option<usize>,
     /// [`FaceCursor::face_or_analyse`]'s last face and its pattern, and
     /// every face it analysed (a thread analyses a pattern at most once).
-    held: Option<(Vec<u64>, SharedFace)>,
-    seen: HashMap<Vec<u64>, SharedFace>,
+    held: Option<(PatternKey, SharedFace)>,
+    seen: HashMap<PatternKey, SharedFace>,
 }
 
 impl FaceCursor {
     pub(crate) fn new(n_species: usize) -> Self {
-        let words = pattern_words(n_species);
         FaceCursor {
-            key: vec![0; words],
-            last_key: vec![0; words],
+            key: pattern_key(n_species),
+            last_key: pattern_key(n_species),
             last: None,
             held: None,
             seen: HashMap::new(),
@@ -292,12 +300,12 @@ pub(crate) fn faces_for(
 ) -> FaceTable {
     const BLOCK: usize = 16_384;
     let s = system.n_species();
-    let words = pattern_words(s);
     let n_rows = if rows.broadcast { 1 } else { inputs.n_cases };
     // Per block: its distinct patterns and a case that has each.
-    let scan = |block: usize| -> Vec<(Vec<u64>, usize)> {
-        let mut found: Vec<(Vec<u64>, usize)> = Vec::new();
-        let mut key = vec![0u64; words];
+    type Found = SmallVec<[(PatternKey, usize); 2]>;
+    let scan = |block: usize| -> Found {
+        let mut found = Found::new();
+        let mut key = pattern_key(s);
         for case in block * BLOCK..((block + 1) * BLOCK).min(n_rows) {
             let feed = rows.row(inputs.feed, case);
             if !feed_is_valid(feed) {
@@ -310,22 +318,25 @@ pub(crate) fn faces_for(
         }
         found
     };
-    let blocks = n_rows.div_ceil(BLOCK);
-    let found: Vec<Vec<(Vec<u64>, usize)>> = if parallel && blocks > 1 {
-        (0..blocks).into_par_iter().map(scan).collect()
-    } else {
-        (0..blocks).map(scan).collect()
-    };
     let mut table = FaceTable::default();
-    for (key, case) in found.into_iter().flatten() {
-        if table.find(&key).is_none() {
-            let feed = rows.row(inputs.feed, case);
-            let face = system.face_memo().get_or_analyse(&key, || {
-                let zero: Vec<bool> = feed.iter().map(|&v| v < TINY_FEED).collect();
-                analyse(system, &zero)
-            });
-            table.insert(key, face);
+    let mut add = |found: Found| {
+        for (key, case) in found {
+            if table.find(&key).is_none() {
+                let feed = rows.row(inputs.feed, case);
+                let face = system.face_memo().get_or_analyse(&key, || {
+                    let zero: Vec<bool> = feed.iter().map(|&v| v < TINY_FEED).collect();
+                    analyse(system, &zero)
+                });
+                table.insert(key, face);
+            }
         }
+    };
+    let blocks = n_rows.div_ceil(BLOCK);
+    if parallel && blocks > 1 {
+        let found: Vec<Found> = (0..blocks).into_par_iter().map(scan).collect();
+        found.into_iter().for_each(&mut add);
+    } else {
+        (0..blocks).map(scan).for_each(&mut add);
     }
     table
 }
@@ -660,8 +671,9 @@ impl<'a> BatchPlan<'a> {
         index: usize,
         n_local: usize,
         eligible: &mut [bool; LANE_CHUNK],
-    ) -> Vec<LaneCase<'t>> {
-        let mut cases: Vec<LaneCase> = Vec::with_capacity(n_local);
+    ) -> SmallVec<[LaneCase<'t>; 4]> {
+        // (inline for the optimiser's small calls)
+        let mut cases = SmallVec::with_capacity(n_local);
         for local in 0..n_local {
             let (feed, ln_k, pressure, start) = self.case_inputs(index * self.chunk_len + local);
             if !case_is_valid(feed, ln_k, pressure) {
@@ -732,8 +744,12 @@ impl<'a> BatchPlan<'a> {
 /// as much as a thousand cases on the lane path). Chunks are handed out in
 /// order from a shared counter; which thread solves a chunk does not change
 /// its results.
-fn run_in_parallel(plan: &BatchPlan, chunks: Vec<Chunk>, pool: Option<&rayon::ThreadPool>) {
-    let work: Vec<Mutex<Option<Chunk>>> = chunks.into_iter().map(|c| Mutex::new(Some(c))).collect();
+fn run_in_parallel<'w>(
+    plan: &BatchPlan,
+    chunks: impl Iterator<Item = Chunk<'w>>,
+    pool: Option<&rayon::ThreadPool>,
+) {
+    let work: Vec<Mutex<Option<Chunk>>> = chunks.map(|c| Mutex::new(Some(c))).collect();
     let next = AtomicUsize::new(0);
     let drain = || {
         let mut state = ChunkState::new(plan.system);
@@ -835,18 +851,19 @@ struct CaseOut<'c> {
 }
 
 impl<'w> Chunk<'w> {
-    /// Cut every output into chunks of `len` cases.
-    fn split(outputs: &'w mut BatchOutputs, len: usize, s: usize, r: usize) -> Vec<Chunk<'w>> {
-        let n_chunks = outputs.status.len().div_ceil(len);
-        let mut fractions: Vec<Option<&'w mut [f64]>> = match outputs.mole_fractions.as_deref_mut()
-        {
-            Some(y) => y.chunks_mut(len * s).map(Some).collect(),
-            None => (0..n_chunks).map(|_| None).collect(),
-        };
-        let mut absent: Vec<Option<&'w mut [u64]>> = match outputs.absent.as_deref_mut() {
-            Some(mask) => mask.chunks_mut(len).map(Some).collect(),
-            None => (0..n_chunks).map(|_| None).collect(),
-        };
+    /// Cut every output into chunks of `len` cases (lazily: a serial call
+    /// allocates nothing for them).
+    fn split(
+        outputs: &'w mut BatchOutputs,
+        len: usize,
+        s: usize,
+        r: usize,
+    ) -> impl Iterator<Item = Chunk<'w>> {
+        let mut fractions = outputs
+            .mole_fractions
+            .as_deref_mut()
+            .map(|y| y.chunks_mut(len * s));
+        let mut absent = outputs.absent.as_deref_mut().map(|a| a.chunks_mut(len));
         outputs
             .amounts
             .chunks_mut(len * s)
@@ -855,19 +872,18 @@ impl<'w> Chunk<'w> {
             .zip(outputs.iterations.chunks_mut(len))
             .enumerate()
             .map(
-                |(index, (((amounts, extents), status), iterations))| Chunk {
+                move |(index, (((amounts, extents), status), iterations))| Chunk {
                     index,
                     out: ChunkOut {
                         amounts,
                         extents,
-                        fractions: fractions[index].take(),
-                        absent: absent[index].take(),
+                        fractions: fractions.as_mut().and_then(Iterator::next),
+                        absent: absent.as_mut().and_then(Iterator::next),
                         status,
                         iterations,
                     },
                 },
             )
-            .collect()
     }
 }
 
@@ -994,7 +1010,10 @@ mod tests {
         let mut table = FaceTable::default();
         let keys: Vec<Vec<u64>> = (0..40u64).map(|k| vec![k * 3 + 1, k]).collect();
         for (k, key) in keys.iter().enumerate() {
-            table.insert(key.clone(), Arc::new(Err(FaceError::LinearProgramme)));
+            table.insert(
+                key.as_slice().into(),
+                Arc::new(Err(FaceError::LinearProgramme)),
+            );
             for (j, earlier) in keys[..=k].iter().enumerate() {
                 assert_eq!(table.find(earlier), Some(j), "after {} keys", k + 1);
             }

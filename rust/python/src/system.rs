@@ -156,6 +156,10 @@ fn writable<'py, T: numpy::Element, D: numpy::ndarray::Dimension>(
         .map_err(|e| PyValueError::new_err(format!("out: {e}")))
 }
 
+/// Calls of fewer cases than this run without releasing the interpreter
+/// lock (a few microseconds of work at most).
+const HOLD_LOCK_BELOW: usize = 8;
+
 #[pyclass(name = "System", module = "eqbatch._core", frozen)]
 pub struct PySystem {
     inner: System,
@@ -287,7 +291,7 @@ impl PySystem {
                 drop_vanishing: false,
             };
             let system = &self.inner;
-            py.detach(move || {
+            let mut run = move || {
                 let mut outputs = BatchOutputs {
                     amounts: a,
                     extents: e,
@@ -297,10 +301,85 @@ impl PySystem {
                     absent: Some(ab),
                 };
                 solve_batch(system, &inputs, &mut outputs, &options, threads)
-            })
-            .map_err(to_py)?;
+            };
+            // An optimiser's few cases take about a microsecond: releasing
+            // and re-taking the interpreter lock would be a tenth of that.
+            let solved = if n_cases < HOLD_LOCK_BELOW {
+                run()
+            } else {
+                py.detach(run)
+            };
+            solved.map_err(to_py)?;
         }
         Ok((amounts, extents, status, iterations, absent))
+    }
+
+    /// `solve` for a prepared solve's repeated calls: one pressure for every
+    /// case (`pressure`), and the outputs in two buffers the caller made
+    /// once, `floats` (amounts, then extents: `N * (S + R)`) and `words`
+    /// (absent masks, then iterations as `u32`, then statuses as bytes:
+    /// `N + ceil(N / 2) + ceil(N / 8)`), whose views are the result's
+    /// arrays. Two output borrows instead of five: an optimiser's call is
+    /// about two microseconds, and each borrow of an array costs a few
+    /// per cent of it.
+    #[allow(clippy::too_many_arguments)]
+    fn solve_prepared<'py>(
+        &self,
+        py: Python<'py>,
+        feed: PyReadonlyArrayDyn<'py, f64>,
+        ln_k: PyReadonlyArrayDyn<'py, f64>,
+        pressure: f64,
+        n_cases: usize,
+        tol: f64,
+        max_iter: u32,
+        threads: Option<usize>,
+        floats: Bound<'py, PyArray1<f64>>,
+        words: Bound<'py, PyArray1<u64>>,
+    ) -> PyResult<()> {
+        let (s, r, n) = (self.inner.n_species(), self.inner.n_reactions(), n_cases);
+        let (iteration_words, status_words) = (n.div_ceil(2), n.div_ceil(8));
+        check_output(&floats, &[n * (s + r)], "floats")?;
+        check_output(&words, &[n + iteration_words + status_words], "words")?;
+        let feed = rows_of(&feed, s, "feed")?;
+        let ln_k = rows_of(&ln_k, r, "ln_k")?;
+        let (mut floats, mut words) = (writable(&floats)?, writable(&words)?);
+        let (amounts, extents) = floats.as_slice_mut()?.split_at_mut(n * s);
+        let (absent, rest) = words.as_slice_mut()?.split_at_mut(n);
+        let (iterations, status) = rest.split_at_mut(iteration_words);
+        let iterations = &mut bytemuck::cast_slice_mut::<u64, u32>(iterations)[..n];
+        let status = &mut bytemuck::cast_slice_mut::<u64, u8>(status)[..n];
+        let pressure = [pressure];
+        let inputs = BatchInputs {
+            n_cases,
+            feed,
+            ln_k,
+            pressure: &pressure,
+            start: None,
+        };
+        let options = SolveOptions {
+            tol,
+            max_iter,
+            chain: false,
+            drop_vanishing: false,
+        };
+        let system = &self.inner;
+        let mut run = move || {
+            let mut outputs = BatchOutputs {
+                amounts,
+                extents,
+                mole_fractions: None,
+                status,
+                iterations,
+                absent: Some(absent),
+            };
+            solve_batch(system, &inputs, &mut outputs, &options, threads)
+        };
+        let solved = if n_cases < HOLD_LOCK_BELOW {
+            run()
+        } else {
+            py.detach(run)
+        };
+        solved.map_err(to_py)
     }
 
     /// Solve with non-ideal phases: a gas from a cubic equation of state
