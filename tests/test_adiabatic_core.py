@@ -47,8 +47,25 @@ def test_the_core_settles_the_demo_reformer_and_agrees_with_the_nested_solve(ref
     h_in = reformer._species_h_cp(T)[0]
     H = np.sum(feed * h_in, axis=1)
     # the kernel alone: every case of this workload settles there (no hand-back)
-    kernel = reformer._engine.adiabatic(table, lo, hi, feed, H, T, P, None, None, 1e-10, 200, None)
+    kernel = reformer._engine.adiabatic(
+        table, lo, hi, feed, H, np.zeros(400), T, P, None, None, 1e-10, 200, None
+    )
     assert np.all(kernel[3] == Status.CONVERGED)
+    # the feed's enthalpy summed in the core (enthalpy None) instead of given:
+    # the same outlets (the two sums differ in the last bits only), and a duty
+    # (heat, J) moves the outlet as the same enthalpy given does
+    heat = np.linspace(-2e4, 2e4, 400)
+    for added in (np.zeros(400), heat):
+        given = reformer._engine.adiabatic(
+            table, lo, hi, feed, H + added, added, T, P, None, None, 1e-10, 200, None
+        )
+        summed = reformer._engine.adiabatic(
+            table, lo, hi, feed, None, added, T, P, None, None, 1e-10, 200, None
+        )
+        assert np.all(summed[3] == Status.CONVERGED)
+        assert np.max(np.abs(summed[2] - given[2])) < 1e-8 and np.allclose(
+            summed[0], given[0], rtol=1e-9, atol=1e-14
+        )
     res = reformer.solve(feed, T=T, P=P, adiabatic=True)
     ref = _by_nested(reformer, feed, T, P)
     assert res.converged.all() and ref.converged.all()
@@ -124,7 +141,19 @@ def test_cases_the_kernel_hands_back_are_solved_by_the_nested_path(reformer) -> 
     table, lo, hi = reformer._energy_table
     H = np.sum(np.nan_to_num(feed) * reformer._species_h_cp(T)[0], axis=1)
     kernel = reformer._engine.adiabatic(
-        table, lo, hi, np.nan_to_num(feed), H, T, P, np.ascontiguousarray(shift), None, 1e-10, 200, None
+        table,
+        lo,
+        hi,
+        np.nan_to_num(feed),
+        H,
+        np.zeros(6),
+        T,
+        P,
+        np.ascontiguousarray(shift),
+        None,
+        1e-10,
+        200,
+        None,
     )
     assert kernel[3][0] == Status.STALLED  # the trace methane: not the kernel's case
 

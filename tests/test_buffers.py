@@ -10,6 +10,7 @@ import eqbatch
 import numpy as np
 import pytest
 from eqbatch import outputs
+from eqbatch.demo import reformer_system
 
 N = 300_000  # amounts 14.4 MB, extents 4.8 MB: above the 4 MiB threshold
 
@@ -146,3 +147,35 @@ def test_only_large_outputs_are_kept(reforming) -> None:
     del small
     gc.collect()
     assert outputs.kept() == (0, 0)
+
+
+def test_an_adiabatic_solve_reuses_freed_outputs_without_stale_values() -> None:
+    # The adiabatic kernel writes into a freed output set too (a million cases
+    # would otherwise map 70 MB of fresh pages a call); the values must be
+    # those of the same solve in pieces too small to reuse anything, invalid
+    # cases (NaN, zero absent masks) included.
+    system = reformer_system()
+    n = 70_000  # 70,000 x 8 columns x 8 bytes: above the 4 MiB threshold
+    rng = np.random.default_rng(9)
+    feed = np.zeros((n, len(system.species)))
+    feed[:, system.species.index("CH4")] = 1.0
+    feed[:, system.species.index("H2O")] = rng.uniform(1.5, 5.0, n)
+    feed[rng.random(n) < 0.01, 0] = -1.0  # invalid
+    T, P = rng.uniform(700.0, 1100.0, n), rng.uniform(1.0, 40.0, n)
+    eqbatch.release_memory()
+    first = system.solve(feed[::-1].copy(), T=T[::-1].copy(), P=P, adiabatic=True)
+    first.absent[:] = 7  # poison what the next solve takes
+    addresses = first.amounts.ctypes.data
+    del first
+    gc.collect()
+    second = system.solve(feed, T=T, P=P, adiabatic=True)
+    assert second.amounts.ctypes.data == addresses  # the freed set was taken
+    assert (second.status == eqbatch.Status.INVALID_INPUT).sum() > 300
+    assert not second.absent.any()
+    pieces = [
+        system.solve(feed[k : k + 5000], T=T[k : k + 5000], P=P[k : k + 5000], adiabatic=True)
+        for k in range(0, n, 5000)
+    ]
+    for name in ("amounts", "extents", "status", "iterations", "T"):
+        values = np.concatenate([getattr(p, name) for p in pieces])
+        assert np.array_equal(getattr(second, name), values, equal_nan=True), name

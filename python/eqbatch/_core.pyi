@@ -71,7 +71,8 @@ class System:
         lo: float,
         hi: float,
         feed: npt.NDArray[np.float64],
-        enthalpy: npt.NDArray[np.float64],
+        enthalpy: npt.NDArray[np.float64] | None,
+        heat: npt.NDArray[np.float64],
         t_start: npt.NDArray[np.float64],
         pressure: npt.NDArray[np.float64],
         shift: npt.NDArray[np.float64] | None,
@@ -79,6 +80,13 @@ class System:
         tol: float,
         max_iter: int,
         threads: int | None,
+        out: tuple[
+            npt.NDArray[np.float64],
+            npt.NDArray[np.float64],
+            npt.NDArray[np.uint8],
+            npt.NDArray[np.uint32],
+        ]
+        | None = None,
     ) -> tuple[
         npt.NDArray[np.float64],
         npt.NDArray[np.float64],

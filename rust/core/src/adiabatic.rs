@@ -77,9 +77,9 @@ const CHUNK: usize = 1024;
 pub struct AdiabaticInputs<'a> {
     /// Feed amounts, `n x S`.
     pub feed: &'a [f64],
-    /// The outlet's enthalpy, J (on the species data's formation scale):
-    /// the feed's at its inlet temperature plus any heat added.
-    pub enthalpy: &'a [f64],
+    /// The outlet's enthalpy (the feed's at its inlet temperature plus any
+    /// heat added).
+    pub enthalpy: Enthalpy<'a>,
     /// The first temperature tried, K (the inlet's).
     pub t_start: &'a [f64],
     /// Pressure, bar.
@@ -89,6 +89,40 @@ pub struct AdiabaticInputs<'a> {
     /// Starting extents (`n x R`), used where they put every reactive
     /// species above zero; `None`: the interior start.
     pub start: Option<&'a [f64]>,
+}
+
+/// How each case's outlet enthalpy is given.
+#[derive(Clone, Copy)]
+pub enum Enthalpy<'a> {
+    /// Per case, J (on the species data's formation scale).
+    Given(&'a [f64]),
+    /// The feed's at `t_start` (its inlet temperature), from the table,
+    /// plus `heat` (J per case) added: no per-species enthalpies leave the
+    /// core (a million cases would need 48 MB of them).
+    FeedAtStart { heat: &'a [f64] },
+}
+
+impl Enthalpy<'_> {
+    fn len(&self) -> usize {
+        match self {
+            Enthalpy::Given(v) => v.len(),
+            Enthalpy::FeedAtStart { heat } => heat.len(),
+        }
+    }
+}
+
+/// The enthalpy of `amounts` at `t` (K), J: `R sum_i n_i (H_i / R)(t)`;
+/// NaN where `t` is not positive and finite.
+fn enthalpy_at(table: &ThermoTable, amounts: &[f64], t: f64) -> f64 {
+    if !(t > 0.0 && t < f64::INFINITY) {
+        return f64::NAN;
+    }
+    let inv_t = 1.0 / t;
+    let mut sum = 0.0;
+    for (k, &v) in amounts.iter().enumerate() {
+        sum += v * table.h_cp(k, t, inv_t).0;
+    }
+    GAS_CONSTANT * sum
 }
 
 /// Per-case outputs.
@@ -239,9 +273,15 @@ fn run<const R: usize, const S: usize, const EXACT: bool>(
                     let mut w = Work::<R, S, EXACT>::new(system, table, range, options);
                     for local in 0..status.len() {
                         let k = chunk * CHUNK + local;
+                        let feed = &inputs.feed[k * s..(k + 1) * s];
                         let case = CaseIn {
-                            feed: &inputs.feed[k * s..(k + 1) * s],
-                            enthalpy: inputs.enthalpy[k],
+                            feed,
+                            enthalpy: match inputs.enthalpy {
+                                Enthalpy::Given(v) => v[k],
+                                Enthalpy::FeedAtStart { heat } => {
+                                    enthalpy_at(table, feed, inputs.t_start[k]) + heat[k]
+                                }
+                            },
                             t_start: inputs.t_start[k],
                             pressure: inputs.pressure[k],
                             shift: inputs.ln_k_shift.map(|v| &v[k * r..(k + 1) * r]),
@@ -963,7 +1003,7 @@ mod tests {
         let (mut t, mut st, mut it) = (vec![0.0; n], vec![0u8; n], vec![0u32; n]);
         let inputs = AdiabaticInputs {
             feed,
-            enthalpy,
+            enthalpy: Enthalpy::Given(enthalpy),
             t_start,
             pressure,
             ln_k_shift: None,

@@ -102,11 +102,12 @@ impl Range {
         t * (c[0] + t * (c[1] + t * (c[2] + t * (c[3] + t * c[4])))) - self.e * inv_t + self.h
     }
 
-    /// `Cp/R` at `t` (K).
+    /// `Cp/R` at `t` (K), given `1 / t` (no division: the energy balance
+    /// of an adiabatic case evaluates it for every species at every step).
     #[inline]
-    fn cp(&self, t: f64) -> f64 {
+    fn cp(&self, t: f64, inv_t: f64) -> f64 {
         let a = &self.cp;
-        a[0] + t * (a[1] + t * (a[2] + t * (a[3] + t * a[4]))) + self.e / (t * t)
+        a[0] + t * (a[1] + t * (a[2] + t * (a[3] + t * a[4]))) + self.e * inv_t * inv_t
     }
 }
 
@@ -162,7 +163,7 @@ impl SpeciesThermo {
 
     /// `Cp/R` at `t` (K).
     pub fn cp(&self, t: f64) -> f64 {
-        self.range(t).cp(t)
+        self.range(t).cp(t, 1.0 / t)
     }
 }
 
@@ -221,7 +222,7 @@ impl ThermoTable {
     #[inline(always)]
     pub(crate) fn h_cp(&self, k: usize, t: f64, inv_t: f64) -> (f64, f64) {
         let range = self.data[k].range(t);
-        (range.h(t, inv_t), range.cp(t))
+        (range.h(t, inv_t), range.cp(t, inv_t))
     }
 
     /// Data set `k`'s `S/R` at `t` (K), given `ln t` and `1 / t`.
@@ -245,7 +246,7 @@ impl ThermoTable {
                 for (k, data) in self.data.iter().enumerate() {
                     let range = data.range(t);
                     h[k] = GAS_CONSTANT * range.h_s(t, ln_t, inv_t).0;
-                    cp[k] = GAS_CONSTANT * range.cp(t);
+                    cp[k] = GAS_CONSTANT * range.cp(t, inv_t);
                 }
             },
         )

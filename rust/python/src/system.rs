@@ -1,7 +1,7 @@
 //! `eqbatch._core.System`: a validated reaction system and its batch solve.
 
 use eqbatch_core::activity::{ActivityKind, Solution};
-use eqbatch_core::adiabatic::{adiabatic_batch, AdiabaticInputs, AdiabaticOutputs};
+use eqbatch_core::adiabatic::{adiabatic_batch, AdiabaticInputs, AdiabaticOutputs, Enthalpy};
 use eqbatch_core::eos::{Cubic, CubicKind};
 use eqbatch_core::realgas::{compressibility, ln_coefficients, solve_batch_real, NonIdeal};
 use eqbatch_core::{
@@ -23,6 +23,14 @@ type Solved<'py> = (
     Bound<'py, PyArray1<u8>>,
     Bound<'py, PyArray1<u32>>,
     Bound<'py, PyArray1<u64>>,
+);
+
+/// An adiabatic solve's reused outputs: amounts, extents, status, iterations.
+type OutArrays<'py> = (
+    Bound<'py, PyArray2<f64>>,
+    Bound<'py, PyArray2<f64>>,
+    Bound<'py, PyArray1<u8>>,
+    Bound<'py, PyArray1<u32>>,
 );
 
 /// One solution phase's activity model as the binding takes it: (model 0
@@ -484,13 +492,15 @@ impl PySystem {
     /// one Newton iteration (`eqbatch_core::adiabatic`): `table` holds
     /// every species' data with the reactions as rows, `lo`, `hi` (K) the
     /// data's range; per case (no broadcasting) the feed (N, S), the
-    /// outlet's enthalpy `enthalpy` (J), the first temperature `t_start`
-    /// (K), the pressure, an optional ln K shift (N, R) and optional
-    /// starting extents (N, R). Returns
+    /// outlet's enthalpy `enthalpy` (J; `None`: the feed's at `t_start`
+    /// plus `heat`, J, computed in the core), the first temperature
+    /// `t_start` (K, the inlet's), the pressure, an optional ln K shift
+    /// (N, R) and optional starting extents (N, R); `out`: amounts, extents,
+    /// status and iterations to write into (a reused output set). Returns
     /// amounts, extents, temperature, status and iterations; a case not
     /// settled there is `Stalled`, for the caller's nested solve.
     #[allow(clippy::too_many_arguments)]
-    #[pyo3(signature = (table, lo, hi, feed, enthalpy, t_start, pressure, shift, start, tol, max_iter, threads))]
+    #[pyo3(signature = (table, lo, hi, feed, enthalpy, heat, t_start, pressure, shift, start, tol, max_iter, threads, out=None))]
     fn adiabatic<'py>(
         &self,
         py: Python<'py>,
@@ -498,7 +508,8 @@ impl PySystem {
         lo: f64,
         hi: f64,
         feed: PyReadonlyArray2<'py, f64>,
-        enthalpy: PyReadonlyArray1<'py, f64>,
+        enthalpy: Option<PyReadonlyArray1<'py, f64>>,
+        heat: PyReadonlyArray1<'py, f64>,
         t_start: PyReadonlyArray1<'py, f64>,
         pressure: PyReadonlyArray1<'py, f64>,
         shift: Option<PyReadonlyArray2<'py, f64>>,
@@ -506,14 +517,26 @@ impl PySystem {
         tol: f64,
         max_iter: u32,
         threads: Option<usize>,
+        out: Option<OutArrays<'py>>,
     ) -> PyResult<Adiabatic<'py>> {
         let (s, r) = (self.inner.n_species(), self.inner.n_reactions());
         let n = t_start.len();
-        let amounts = PyArray2::zeros(py, [n, s], false);
-        let extents = PyArray2::zeros(py, [n, r], false);
+        let (amounts, extents, status, iterations) = match out {
+            Some(arrays) => {
+                check_output(&arrays.0, &[n, s], "amounts")?;
+                check_output(&arrays.1, &[n, r], "extents")?;
+                check_output(&arrays.2, &[n], "status")?;
+                check_output(&arrays.3, &[n], "iterations")?;
+                arrays
+            }
+            None => (
+                PyArray2::zeros(py, [n, s], false),
+                PyArray2::zeros(py, [n, r], false),
+                PyArray1::zeros(py, n, false),
+                PyArray1::zeros(py, n, false),
+            ),
+        };
         let temperature = PyArray1::zeros(py, n, false);
-        let status = PyArray1::zeros(py, n, false);
-        let iterations = PyArray1::zeros(py, n, false);
         {
             let shift = match &shift {
                 Some(v) => Some(v.as_slice()?),
@@ -523,9 +546,15 @@ impl PySystem {
                 Some(v) => Some(v.as_slice()?),
                 None => None,
             };
+            let enthalpy = match &enthalpy {
+                Some(v) => Enthalpy::Given(v.as_slice()?),
+                None => Enthalpy::FeedAtStart {
+                    heat: heat.as_slice()?,
+                },
+            };
             let inputs = AdiabaticInputs {
                 feed: feed.as_slice()?,
-                enthalpy: enthalpy.as_slice()?,
+                enthalpy,
                 t_start: t_start.as_slice()?,
                 pressure: pressure.as_slice()?,
                 ln_k_shift: shift,
