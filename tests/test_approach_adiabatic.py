@@ -10,7 +10,7 @@ from __future__ import annotations
 import numpy as np
 import pytest
 from eqbatch import InvalidCaseError, ReactionSystem, Status
-from eqbatch.approach import feed_directions
+from eqbatch.approach import approach_temperatures, feed_directions
 from eqbatch.cli import main
 from eqbatch.demo import reformer_feed, reformer_system
 from eqbatch.thermo import CpPolynomial, equilibrium_temperature
@@ -306,3 +306,22 @@ def test_an_approach_batch_mixing_fixed_and_solved_directions_solves_each_case_a
     started = reformer.solve(feed, T=T, P=P, approach={"reforming": 15.0, "shift": 10.0}, x0=[0.3, 0.1])
     assert started.converged.all()
     assert np.allclose(started.amounts, batch.amounts, rtol=1e-8)
+
+
+def test_approach_sides_from_the_evaluated_enthalpies_equal_those_from_van_t_hoff(reformer) -> None:
+    # An approach solve takes each reaction's side from the reaction enthalpies of
+    # its one ln K evaluation; d ln K / dT = dH / (R T^2) (van 't Hoff) must put every
+    # approach temperature on the same side. Reforming is endothermic and the shift
+    # exothermic over the whole range (facts of the trade).
+    rng = np.random.default_rng(21)
+    T = np.linspace(650.0, 1250.0, 60)
+    direction = rng.choice([-1.0, 1.0], (60, 2))
+    dh = np.full((60, 2), np.nan)
+    lnk = reformer._lnK_rows(T, dh)
+    assert np.array_equal(lnk, reformer.lnK(T))
+    assert (dh[:, 0] > 0).all() and (dh[:, 1] < 0).all()
+    approach = {"reforming": 15.0, "shift": 10.0}
+    ours = approach_temperatures(reformer, T, approach, direction, dh)
+    assert np.array_equal(ours, approach_temperatures(reformer, T, approach, direction))
+    assert np.array_equal(ours[:, 0], T - 15.0 * direction[:, 0])
+    assert np.array_equal(ours[:, 1], T + 10.0 * direction[:, 1])

@@ -109,7 +109,7 @@ def check_approach(system: SystemSpec, approach: Mapping[str, Any]) -> dict[str,
 
 
 def approach_temperatures(
-    system: SystemSpec, T: Any, approach: Mapping[str, float], direction: Any
+    system: SystemSpec, T: Any, approach: Mapping[str, float], direction: Any, dh: np.ndarray | None = None
 ) -> np.ndarray:
     """The temperature at which each reaction's K is taken.
 
@@ -133,6 +133,10 @@ def approach_temperatures(
         Checked (see :func:`check_approach`).
     direction : array_like, shape (N, R)
         The sign of each reaction's extent at equilibrium, per case.
+    dh : ndarray, shape (N, R), optional
+        Reaction enthalpies at ``T`` already evaluated (NaN columns: not
+        known); where every approached column is known, no derivative of
+        ln K is evaluated.
 
     Returns
     -------
@@ -156,10 +160,13 @@ def approach_temperatures(
             raise CaseInputError(f"approach: reaction {label!r} has no K(T) data to take an approach on")
     if not approach:
         return T_eff
-    with quiet_ranges():  # ln K at the same temperatures reports extrapolation
-        slopes = system.dlnK_dT(np.ascontiguousarray(T_rows))
-    for label, dT in approach.items():
-        j = system.labels.index(label)
+    columns = [system.labels.index(label) for label in approach]
+    if dh is not None and not np.isnan(dh[:, columns]).all(axis=0).any():
+        slopes = dh  # (d ln K / dT = dH / (R T^2): the same sign)
+    else:
+        with quiet_ranges():  # ln K at the same temperatures reports extrapolation
+            slopes = system.dlnK_dT(np.ascontiguousarray(T_rows))
+    for j, dT in zip(columns, approach.values()):
         T_eff[:, j] = T_rows - np.sign(slopes[:, j]) * np.nan_to_num(direction[:, j]) * dT
     return T_eff
 
@@ -191,6 +198,8 @@ def feed_directions(system: SystemSpec, feed: np.ndarray, which: np.ndarray) -> 
     if any(p != "gas" for p in system.phases) or not np.any(which):
         return out
     zero = (feed < TINY_FEED) & reactive  # (the core's zero: below 1e-300 a feed is none)
+    if (zero == zero[0]).all():  # one pattern (the usual batch): no pattern index
+        return np.broadcast_to(cone_directions(system.stoich, zero[0], which), out.shape)
     patterns, inverse = _patterns(zero)
     known = np.array([cone_directions(system.stoich, pattern, which) for pattern in patterns])
     out = known[inverse]
@@ -225,10 +234,12 @@ def solve(
     options: CoreOptions,
     bad_T: np.ndarray | None,
     out: Outputs | None = None,
+    dh: np.ndarray | None = None,
 ) -> ApproachSolve:
     """Solve ``n`` cases with ``approach`` (``{label: dT}``, checked).
     ``lnK_eq`` are the equilibrium constants at ``T``; ``options`` those of
-    the core; ``out`` output arrays for the final solve."""
+    the core; ``out`` output arrays for the final solve; ``dh`` the reaction
+    enthalpies at ``T`` where known (see :func:`approach_temperatures`)."""
     tol, max_iter, threads, start, chain = options
     core = system._engine
     approached = np.zeros(system.n_reactions, dtype=bool)
@@ -260,7 +271,7 @@ def solve(
         else:
             direction = eq_direction
             warm = np.where(np.isfinite(eq_extents), eq_extents, 0.0)
-    T_eff = approach_temperatures(system, T, approach, direction)
+    T_eff = approach_temperatures(system, T, approach, direction, dh)
     # (the reactions without an approach keep their constants at T)
     lnK = np.array(np.broadcast_to(lnK_eq, (n, system.n_reactions)))
     lnK[:, approached] = system.lnK_at(T_eff, columns=approached)[:, approached]

@@ -355,9 +355,12 @@ class SystemSpec:
         self._enthalpy_data(what)
         return self._species_table.species(np.ascontiguousarray(T, dtype=float))
 
-    def _thermo_columns(self, T: np.ndarray, out: np.ndarray, dh: bool = False) -> np.ndarray:
+    def _thermo_columns(
+        self, T: np.ndarray, out: np.ndarray, dh: bool = False, dh_out: np.ndarray | None = None
+    ) -> np.ndarray:
         """Write ln K (or, with ``dh``, the reaction enthalpy, J/mol) of the
-        species-data reactions at ``T`` (1-D) into their columns of ``out``;
+        species-data reactions at ``T`` (1-D) into their columns of ``out``
+        (and the enthalpies into ``dh_out`` too, from the same evaluation);
         returns a mask of the columns written."""
         done = np.zeros(self.n_reactions, dtype=bool)
         fast = self._thermo_table
@@ -365,6 +368,8 @@ class SystemSpec:
             rows, table = fast
             lnk, dH = table.evaluate(np.ascontiguousarray(T))
             out[:, rows] = dH if dh else lnk
+            if dh_out is not None:
+                dh_out[:, rows] = dH
             done[rows] = True
         return done
 
@@ -587,6 +592,13 @@ class SystemSpec:
         >>> s.lnK([800.0, 1000.0]).round(4).tolist()
         [[1.3922], [0.2478]]
         """
+        return self._lnK_rows(T, None)
+
+    def _lnK_rows(self, T: ArrayLike, dh_out: np.ndarray | None) -> np.ndarray:
+        """:meth:`lnK` at ``T``, and with ``dh_out`` ((N, R)) the reaction
+        enthalpies (J/mol: the sign of d ln K / dT) written into the columns
+        of species-data reactions from the same evaluation (an approach
+        solve needs both; other columns are left as they are)."""
         T = np.atleast_1d(np.asarray(T, dtype=np.float64))
         if T.ndim != 1:
             raise CaseInputError(f"T must be a scalar or a 1-D array, got shape {T.shape}")
@@ -601,7 +613,7 @@ class SystemSpec:
             T = np.where(bad, np.nan, T)  # no extrapolation warning for a temperature that is not one
         out = np.empty((T.shape[0], self.n_reactions))
         with quiet_ranges():  # reported below, once per data set with the count of cases
-            done = self._thermo_columns(T, out)  # species data: in the core
+            done = self._thermo_columns(T, out, dh_out=dh_out)  # species data: in the core
             for j in np.flatnonzero(~done):
                 out[:, j] = self._lnk_column(int(j), T)
         self._report_ranges(T)

@@ -474,7 +474,15 @@ class ReactionSystem(SystemSpec):
             if T_arr is None or lnK is not None or K is not None or log10K is not None:
                 raise CaseInputError("approach= needs T= and the system's K(T) data (not explicit constants)")
             approach = approach_module.check_approach(self, approach)
-        lnk_arr = lnk_array(self, lnK, K, log10K, T_arr)
+        dh = None
+        if approach:
+            # (with the reaction enthalpies of the same evaluation: their signs
+            # say which way an approach moves each temperature)
+            assert T_arr is not None
+            dh = np.full((T_arr.shape[0], self.n_reactions), np.nan)
+            lnk_arr = self._lnK_rows(T_arr.reshape(-1), dh)
+        else:
+            lnk_arr = lnk_array(self, lnK, K, log10K, T_arr)
         p_arr = self._p0_row if P is None else case_column(P, "P")
         rows = (feed_arr.shape[0], lnk_arr.shape[0], p_arr.shape[0], 1 if T_arr is None else T_arr.shape[0])
         n = max(rows)
@@ -512,6 +520,7 @@ class ReactionSystem(SystemSpec):
                 approach_module.CoreOptions(tol, max_iter, threads, start, chain),
                 bad_T,
                 self._outputs(out, n),
+                dh,
             )
             amounts, extents, status, iterations, absent = (
                 solved.amounts,
