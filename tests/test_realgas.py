@@ -450,3 +450,65 @@ def test_a_real_gas_solve_writes_into_an_earlier_result() -> None:
     np.testing.assert_array_equal(second.amounts, fresh.amounts)
     np.testing.assert_array_equal(first.amounts, fresh.amounts)  # the earlier result shows the new values
     assert second.converged.all()
+
+
+def converter() -> eqbatch.ReactionSystem:
+    """An ammonia converter of our own: Peng-Robinson, K(T) from the
+    Gillespie-Beattie correlation."""
+    return eqbatch.ReactionSystem(
+        ["N2", "H2", "NH3"],
+        {"synthesis": "N2 + 3 H2 = 2 NH3"},
+        P0=1.01325,
+        gas_model="peng-robinson",
+        critical={k: CRITICAL[k] for k in ("N2", "H2", "NH3")},
+        lnK={"synthesis": gillespie_beattie_data()},
+    )
+
+
+def test_an_approach_on_a_real_gas_takes_k_at_the_approach_temperature() -> None:
+    # A converter outlet "10 K from equilibrium" (design practice): synthesis is
+    # exothermic and runs forward from a feed short of equilibrium, so its K is
+    # taken 10 K hotter (facts of the trade), while the fugacity coefficients stay
+    # those of the gas at its own T and P. Checked against the Peng-Robinson solve
+    # given the Gillespie-Beattie ln K (Phys. Rev. 36, 1930) at T + 10 K. The rows
+    # with NH3 fed leave the direction to a solve at T first.
+    system = converter()
+    T = np.array([650.0, 700.0, 750.0, 800.0, 700.0, 760.0])
+    P = np.array([150.0, 200.0, 250.0, 300.0, 120.0, 280.0])
+    feed = np.tile([1.0, 3.0, 0.0], (6, 1))
+    feed[4:, 2] = 0.05
+    res = system.solve(feed, T=T, P=P, approach={"synthesis": 10.0})
+    hotter = np.array([[gillespie_beattie_ln_k(t + 10.0)] for t in T])
+    ref = system.solve(feed, lnK=hotter, T=T, P=P)
+    assert res.converged.all() and ref.converged.all()
+    np.testing.assert_allclose(res.lnK, hotter, rtol=0, atol=1e-10)
+    np.testing.assert_allclose(res.amounts, ref.amounts, rtol=1e-9, atol=1e-12)
+    np.testing.assert_allclose(res.fugacity_coefficients, ref.fugacity_coefficients, rtol=1e-9)
+    at_t = system.solve(feed, T=T, P=P)
+    assert (res.amounts[:, 2] < at_t.amounts[:, 2]).all()  # held short of equilibrium
+    # the same cases in a batch that fixes no direction from the feed alone
+    np.testing.assert_allclose(
+        system.solve(feed[4:], T=T[4:], P=P[4:], approach={"synthesis": 10.0}).amounts,
+        res.amounts[4:],
+        rtol=1e-12,
+    )
+
+
+def test_a_real_gas_already_within_its_approach_is_held_at_its_feed() -> None:
+    # A feed at the equilibrium of 5 K hotter runs forward at T but is already
+    # within a 10 K approach: the reaction is held at zero extent (an approach
+    # never runs a reaction the other way), and the coefficients reported are
+    # those of the feed gas, here against the independent numpy Peng-Robinson.
+    system = converter()
+    T, P = 720.0, 220.0
+    feed = system.solve([1.0, 3.0, 0.0], T=T + 5.0, P=P).amounts[0]
+    assert system.solve(feed, T=T, P=P).extents[0, 0] > 0
+    res = system.solve(feed, T=T, P=P, approach={"synthesis": 10.0})
+    assert res.converged.all() and res.held[0, 0]
+    np.testing.assert_array_equal(res.amounts[0], feed)
+    y = feed / feed.sum()
+    np.testing.assert_allclose(
+        np.log(res.fugacity_coefficients[0]),
+        numpy_ln_phi("peng-robinson", ["N2", "H2", "NH3"], y, T, P),
+        atol=1e-9,
+    )

@@ -29,6 +29,7 @@ from eqbatch.equations import cone_directions
 from eqbatch.errors import CaseInputError
 from eqbatch.kdata import quiet_ranges
 from eqbatch.outputs import Outputs
+from eqbatch.realgas import ln_coefficients, solve_real_with
 from eqbatch.result import EquilibriumResult
 from eqbatch.spec import SystemSpec, compile_system
 
@@ -51,13 +52,23 @@ class CoreOptions(NamedTuple):
 class ApproachSolve:
     """The arrays of a batch solved with approach temperatures: the core's
     outputs, the constants used, each reaction's temperature (``T_eff``) and
-    which reactions were held at zero extent (``held``, (N, R) bool)."""
+    which reactions were held at zero extent (``held``, (N, R) bool), and
+    with non-ideal phases the coefficients of the answer (``ln_phi``)."""
 
-    def __init__(self, outputs: Outputs, lnK: np.ndarray, T_eff: np.ndarray, held: np.ndarray) -> None:
+    def __init__(
+        self,
+        outputs: Outputs,
+        lnK: np.ndarray,
+        T_eff: np.ndarray,
+        held: np.ndarray,
+        ln_phi: np.ndarray | None = None,
+    ) -> None:
         self.amounts, self.extents, self.status, self.iterations, self.absent = outputs
         self.lnK = lnK
         self.T_eff = T_eff
         self.held = held
+        #: (N, S) ln phi / ln gamma of a system with non-ideal phases, else None.
+        self.ln_phi = ln_phi
 
 
 def check_approach(system: SystemSpec, approach: Mapping[str, Any]) -> dict[str, Any]:
@@ -242,6 +253,7 @@ def solve(
     enthalpies at ``T`` where known (see :func:`approach_temperatures`)."""
     tol, max_iter, threads, start, chain = options
     core = system._engine
+    real = system.nonideal is not None  # (solves with its fugacity/activity coefficients)
     approached = np.zeros(system.n_reactions, dtype=bool)
     for label in approach:
         approached[system.labels.index(label)] = True
@@ -260,7 +272,11 @@ def solve(
         )
         x0 = None if start is None else (_rows(start, unknown) if subset and len(start) > 1 else start)
         m = unknown.size if subset else n
-        eq_extents = core.solve(f_, k_, p_, m, tol, max_iter, threads, x0, chain)[1]
+        if real:
+            t_ = _rows(T, unknown) if subset and len(T) > 1 else T
+            eq_extents = solve_real_with(core, system, f_, k_, p_, t_, m, tol, max_iter, threads, x0)[0][1]
+        else:
+            eq_extents = core.solve(f_, k_, p_, m, tol, max_iter, threads, x0, chain)[1]
         eq_direction = np.sign(np.nan_to_num(eq_extents))
         if subset:
             direction = np.array(direction)
@@ -277,7 +293,15 @@ def solve(
     lnK[:, approached] = system.lnK_at(T_eff, columns=approached)[:, approached]
     if bad_T is not None:
         lnK[np.broadcast_to(bad_T, (lnK.shape[0],))] = np.nan
-    solved = core.solve(feed, lnK, P, n, tol, max_iter, threads, warm, chain, out)
+    ln_phi = None
+    if real:
+        solved, ln_phi = solve_real_with(core, system, feed, lnK, P, T, n, tol, max_iter, threads, warm)
+        if out is not None:  # (the earlier result's arrays receive the values)
+            for target, values in zip(out, solved):
+                np.copyto(target, values)
+            solved = out
+    else:
+        solved = core.solve(feed, lnK, P, n, tol, max_iter, threads, warm, chain, out)
     held = np.zeros((n, system.n_reactions), dtype=bool)
     for _ in range(system.n_reactions):
         extents = solved[1]
@@ -287,8 +311,8 @@ def solve(
         if cases.size == 0:
             break
         held[cases] |= against[cases]
-        _solve_held(system, cases, held, feed, lnK, P, tol, max_iter, solved)
-    return ApproachSolve(solved, lnK, T_eff, held)
+        _solve_held(system, cases, held, feed, lnK, P, tol, max_iter, solved, (T, ln_phi))
+    return ApproachSolve(solved, lnK, T_eff, held, ln_phi)
 
 
 def _rows(array: np.ndarray, cases: np.ndarray) -> np.ndarray:
@@ -310,10 +334,14 @@ def _solve_held(
     tol: float,
     max_iter: int,
     outputs: Outputs,
+    real: tuple[np.ndarray, np.ndarray | None] = (np.zeros(0), None),
 ) -> None:
     """Solve ``cases`` again with their held reactions removed (grouped by
-    which reactions are held), writing into ``outputs`` in place."""
+    which reactions are held), writing into ``outputs`` in place; with
+    non-ideal phases ``real`` is ``(T, ln_phi)``, the temperatures and the
+    coefficients to update (``ln_phi`` None: an ideal system)."""
     amounts, extents, status, iterations, absent = outputs
+    T, ln_phi = real
     patterns, groups = np.unique(held[cases], axis=0, return_inverse=True)
     for g, pattern in enumerate(patterns):
         rows = cases[groups.reshape(-1) == g]
@@ -322,15 +350,21 @@ def _solve_held(
         if not keep.any():
             amounts[rows] = _rows(feed, rows)
             status[rows] = 0
+            if ln_phi is not None:  # (the coefficients of the feed itself)
+                ln_phi[rows] = ln_coefficients(system, amounts[rows], _rows(T, rows), _rows(P, rows), None)
             continue
-        a, e, st, it, ab = _without(system, keep).solve(
+        args = (
             np.ascontiguousarray(_rows(feed, rows)),
             np.ascontiguousarray(_rows(lnK, rows)[:, keep]),
             np.ascontiguousarray(_rows(P, rows)),
-            rows.size,
-            tol,
-            max_iter,
         )
+        if ln_phi is not None:
+            reduced, T_rows = _without(system, keep), _rows(T, rows)
+            found, phi = solve_real_with(reduced, system, *args, T_rows, rows.size, tol, max_iter, None, None)
+            a, e, st, it, ab = found
+            ln_phi[rows] = phi
+        else:
+            a, e, st, it, ab = _without(system, keep).solve(*args, rows.size, tol, max_iter)
         amounts[rows] = a
         extents[np.ix_(rows, np.flatnonzero(keep))] = e
         status[rows] = st

@@ -28,6 +28,7 @@ import numpy as np
 from eqbatch.activity import core_arguments
 from eqbatch.compounds import identify
 from eqbatch.errors import CaseInputError, NonIdealGasWarning, SystemDefinitionError
+from eqbatch.outputs import Outputs
 
 #: The gas models a system takes, and the core's code of each cubic.
 GAS_MODELS = ("ideal", "peng-robinson", "srk")
@@ -216,7 +217,7 @@ def solve_real(
     max_iter: int,
     threads: int | None,
     start: np.ndarray | None,
-) -> tuple[tuple[np.ndarray, ...], np.ndarray]:
+) -> tuple[Outputs, np.ndarray]:
     """The core's solve with the system's non-ideal phases (the gas's cubic,
     the solutions' activity models): ``(amounts, extents, status,
     iterations, absent)`` and ``ln phi`` / ``ln gamma`` (N, S)."""
@@ -225,9 +226,37 @@ def solve_real(
             f"{system.nonideal}: the fugacity and activity coefficients depend on temperature; give T= "
             "(also when the equilibrium constants are given)"
         )
+    return solve_real_with(system._engine, system, feed, lnk, P, T, n, tol, max_iter, threads, start)
+
+
+def solve_real_with(
+    engine: Any,
+    system: Any,
+    feed: np.ndarray,
+    lnk: np.ndarray,
+    P: np.ndarray,
+    T: np.ndarray,
+    n: int,
+    tol: float,
+    max_iter: int,
+    threads: int | None,
+    start: np.ndarray | None,
+) -> tuple[Outputs, np.ndarray]:
+    """:func:`solve_real` on the compiled system ``engine``: ``system``'s own
+    or one of its reactions only (the same species and phase models; an
+    approach solve re-solves held cases so)."""
     temperature = np.ascontiguousarray(T, dtype=np.float64)
-    return system._engine.solve_real(
-        feed, lnk, P, temperature, n, tol, max_iter, threads, start, *_core_model(system)
+    return engine.solve_real(
+        np.ascontiguousarray(feed),
+        np.ascontiguousarray(lnk),
+        np.ascontiguousarray(P),
+        temperature,
+        n,
+        tol,
+        max_iter,
+        threads,
+        start,
+        *_core_model(system),
     )
 
 

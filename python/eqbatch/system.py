@@ -420,7 +420,7 @@ class ReactionSystem(SystemSpec):
                 for name, given in (
                     ("adiabatic=True", adiabatic),
                     ("duty=", duty is not None),
-                    ("approach=", bool(approach)),
+                    ("approach= with sensitivities=True", bool(approach) and sensitivities),
                     ("chain=True", chain),
                 )
                 if given
@@ -529,7 +529,7 @@ class ReactionSystem(SystemSpec):
                 solved.iterations,
                 solved.absent,
             )
-            lnk_arr, T_eff, held = solved.lnK, solved.T_eff, solved.held
+            lnk_arr, T_eff, held, ln_phi = solved.lnK, solved.T_eff, solved.held, solved.ln_phi
         elif self.nonideal is not None:
             solved_real, ln_phi = solve_real(
                 self, feed_arr, lnk_arr, p_arr, T_arr, n, tol, max_iter, threads, start
