@@ -51,6 +51,9 @@ def test_the_core_settles_the_demo_reformer_and_agrees_with_the_nested_solve(ref
         table, lo, hi, feed, H, np.zeros(400), T, P, None, None, 1e-10, 200, None
     )
     assert np.all(kernel[3] == Status.CONVERGED)
+    # ln K at each outlet from the core: what system.lnK gives at the outlet T
+    # (the same data summed in another order: equal to rounding)
+    np.testing.assert_allclose(kernel[5], reformer.lnK(kernel[2]), rtol=0, atol=1e-12)
     # the feed's enthalpy summed in the core (enthalpy None) instead of given:
     # the same outlets (the two sums differ in the last bits only), and a duty
     # (heat, J) moves the outlet as the same enthalpy given does

@@ -93,6 +93,7 @@ class System:
         npt.NDArray[np.float64],
         npt.NDArray[np.uint8],
         npt.NDArray[np.uint32],
+        npt.NDArray[np.float64],
     ]: ...
     def sensitivities(
         self,

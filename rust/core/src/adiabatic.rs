@@ -132,6 +132,9 @@ pub struct AdiabaticOutputs<'a> {
     pub temperature: &'a mut [f64],
     pub status: &'a mut [u8],
     pub iterations: &'a mut [u32],
+    /// Every reaction's `ln K` at the outlet temperature (with the case's
+    /// shift), as the table's `evaluate` gives it; NaN unless converged.
+    pub ln_k: &'a mut [f64],
 }
 
 /// The outlet of every case: see the module docs. `table` holds every
@@ -164,6 +167,7 @@ pub fn adiabatic_batch(
         (outputs.temperature.len(), n, "temperature"),
         (outputs.status.len(), n, "status"),
         (outputs.iterations.len(), n, "iterations"),
+        (outputs.ln_k.len(), n * r, "ln K"),
     ];
     for (got, want, what) in shapes {
         if got != want {
@@ -240,6 +244,7 @@ fn run_none(
     outputs.temperature.fill(f64::NAN);
     outputs.status.fill(Status::Stalled as u8);
     outputs.iterations.fill(0);
+    outputs.ln_k.fill(f64::NAN);
     Ok(())
 }
 
@@ -259,6 +264,7 @@ fn run<const R: usize, const S: usize, const EXACT: bool>(
         temperature,
         status,
         iterations,
+        ln_k,
     } = outputs;
     let work = || {
         amounts
@@ -267,10 +273,12 @@ fn run<const R: usize, const S: usize, const EXACT: bool>(
             .zip(temperature.par_chunks_mut(CHUNK))
             .zip(status.par_chunks_mut(CHUNK))
             .zip(iterations.par_chunks_mut(CHUNK))
+            .zip(ln_k.par_chunks_mut(CHUNK * r))
             .enumerate()
             .for_each(
-                |(chunk, ((((amounts, extents), temperature), status), iterations))| {
+                |(chunk, (((((amounts, extents), temperature), status), iterations), ln_k))| {
                     let mut w = Work::<R, S, EXACT>::new(system, table, range, options);
+                    let (mut g, mut h) = (vec![0.0; s], vec![0.0; s]);
                     for local in 0..status.len() {
                         let k = chunk * CHUNK + local;
                         let feed = &inputs.feed[k * s..(k + 1) * s];
@@ -293,6 +301,17 @@ fn run<const R: usize, const S: usize, const EXACT: bool>(
                         temperature[local] = t;
                         status[local] = st as u8;
                         iterations[local] = it;
+                        let ln_k = &mut ln_k[local * r..(local + 1) * r];
+                        if st == Status::Converged {
+                            table.ln_k_at(t, &mut g, &mut h, ln_k);
+                            if let Some(shift) = case.shift {
+                                for (v, c) in ln_k.iter_mut().zip(shift) {
+                                    *v += c;
+                                }
+                            }
+                        } else {
+                            ln_k.fill(f64::NAN);
+                        }
                     }
                 },
             );
@@ -1001,6 +1020,7 @@ mod tests {
         let (n, s, r) = (t_start.len(), sys.n_species(), sys.n_reactions());
         let (mut amounts, mut extents) = (vec![0.0; n * s], vec![0.0; n * r]);
         let (mut t, mut st, mut it) = (vec![0.0; n], vec![0u8; n], vec![0u32; n]);
+        let mut ln_k = vec![0.0; n * r];
         let inputs = AdiabaticInputs {
             feed,
             enthalpy: Enthalpy::Given(enthalpy),
@@ -1015,6 +1035,7 @@ mod tests {
             temperature: &mut t,
             status: &mut st,
             iterations: &mut it,
+            ln_k: &mut ln_k,
         };
         adiabatic_batch(
             sys,

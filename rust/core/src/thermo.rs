@@ -265,23 +265,49 @@ impl ThermoTable {
             self.n_reactions(),
             scratch,
             |(g, h), t, ln_t, inv_t, ln_k, dh| {
-                for (k, data) in self.data.iter().enumerate() {
-                    let (hr, sr) = data.range(t).h_s(t, ln_t, inv_t);
-                    g[k] = hr * inv_t - sr;
-                    h[k] = hr;
-                }
+                self.g_h(t, ln_t, inv_t, g, h);
                 for (j, (ln_k, dh)) in ln_k.iter_mut().zip(dh.iter_mut()).enumerate() {
+                    *ln_k = self.ln_k_row(j, g);
                     let row = &self.coef[j * d..(j + 1) * d];
-                    let (mut sum_g, mut sum_h) = (0.0, 0.0);
+                    let mut sum_h = 0.0;
                     for (k, &c) in row.iter().enumerate() {
-                        sum_g += c * g[k];
                         sum_h += c * h[k];
                     }
-                    *ln_k = -sum_g + self.shift[j];
                     *dh = GAS_CONSTANT * sum_h;
                 }
             },
         )
+    }
+
+    /// Every data set's `G/(RT)` and `H/R` at `t` (K), given `ln t` and `1 / t`.
+    #[inline]
+    fn g_h(&self, t: f64, ln_t: f64, inv_t: f64, g: &mut [f64], h: &mut [f64]) {
+        for (k, data) in self.data.iter().enumerate() {
+            let (hr, sr) = data.range(t).h_s(t, ln_t, inv_t);
+            g[k] = hr * inv_t - sr;
+            h[k] = hr;
+        }
+    }
+
+    /// Reaction `j`'s `ln K` from every data set's `G/(RT)`.
+    #[inline]
+    fn ln_k_row(&self, j: usize, g: &[f64]) -> f64 {
+        let d = self.data.len();
+        let mut sum_g = 0.0;
+        for (k, &c) in self.coef[j * d..(j + 1) * d].iter().enumerate() {
+            sum_g += c * g[k];
+        }
+        -sum_g + self.shift[j]
+    }
+
+    /// `ln K` of every reaction at `t` (K, positive and finite) into `ln_k`,
+    /// with the bits of [`ThermoTable::evaluate`]; `g` and `h` are scratch
+    /// of `n_data` values each.
+    pub(crate) fn ln_k_at(&self, t: f64, g: &mut [f64], h: &mut [f64], ln_k: &mut [f64]) {
+        self.g_h(t, t.ln(), 1.0 / t, g, h);
+        for (j, out) in ln_k.iter_mut().enumerate() {
+            *out = self.ln_k_row(j, g);
+        }
     }
 }
 

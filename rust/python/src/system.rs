@@ -51,6 +51,7 @@ type Adiabatic<'py> = (
     Bound<'py, PyArray1<f64>>,
     Bound<'py, PyArray1<u8>>,
     Bound<'py, PyArray1<u32>>,
+    Bound<'py, PyArray2<f64>>,
 );
 
 type Sensitivities<'py> = (
@@ -497,8 +498,9 @@ impl PySystem {
     /// `t_start` (K, the inlet's), the pressure, an optional ln K shift
     /// (N, R) and optional starting extents (N, R); `out`: amounts, extents,
     /// status and iterations to write into (a reused output set). Returns
-    /// amounts, extents, temperature, status and iterations; a case not
-    /// settled there is `Stalled`, for the caller's nested solve.
+    /// amounts, extents, temperature, status, iterations and ln K at the
+    /// outlet (with the shift; NaN unless converged); a case not settled
+    /// there is `Stalled`, for the caller's nested solve.
     #[allow(clippy::too_many_arguments)]
     #[pyo3(signature = (table, lo, hi, feed, enthalpy, heat, t_start, pressure, shift, start, tol, max_iter, threads, out=None))]
     fn adiabatic<'py>(
@@ -537,6 +539,7 @@ impl PySystem {
             ),
         };
         let temperature = PyArray1::zeros(py, n, false);
+        let ln_k = PyArray2::zeros(py, [n, r], false);
         {
             let shift = match &shift {
                 Some(v) => Some(v.as_slice()?),
@@ -566,12 +569,14 @@ impl PySystem {
                 writable(&temperature)?,
             );
             let (mut st, mut it) = (writable(&status)?, writable(&iterations)?);
+            let mut k = writable(&ln_k)?;
             let outputs = AdiabaticOutputs {
                 amounts: a.as_slice_mut()?,
                 extents: e.as_slice_mut()?,
                 temperature: t.as_slice_mut()?,
                 status: st.as_slice_mut()?,
                 iterations: it.as_slice_mut()?,
+                ln_k: k.as_slice_mut()?,
             };
             let options = SolveOptions {
                 tol,
@@ -585,7 +590,7 @@ impl PySystem {
             })
             .map_err(to_py)?;
         }
-        Ok((amounts, extents, temperature, status, iterations))
+        Ok((amounts, extents, temperature, status, iterations, ln_k))
     }
 
     /// `ln phi` / `ln gamma` (N, S) of `amounts` (N, S) at `temperature`
