@@ -54,19 +54,23 @@ def test_same_bits_as_solve(cases: int) -> None:
 @pytest.mark.parametrize("cases", [1, 2, 9, 37])
 def test_the_fast_path_writes_every_output_where_solve_does(cases: int) -> None:
     # float64 arrays and a float P take the core's two-buffer call (statuses,
-    # iterations and absent masks packed in one word buffer): every output
-    # must equal solve()'s, an invalid case's status and NaNs included.
+    # iterations and absent masks packed in one word buffer; derivatives in a
+    # third): every output must equal solve()'s, an invalid case's status and
+    # NaNs included.
     system = reformer_system()
     rng = np.random.default_rng(cases)
     feed = reformer_feed(rng.uniform(1.5, 4.5, cases))
     feed[cases // 2, 0] = -1.0  # invalid: status INVALID_INPUT, NaN outputs
     lnk = system.lnK(rng.uniform(800.0, 1150.0, cases))
-    run = system.prepare(cases)
+    run = system.prepare(cases, sensitivities=True)
     for P in (3.0, 25.0):  # the second call overwrites the first's buffers
         ours = run.solve(feed, lnK=lnk, P=P)
-        ref = system.solve(feed, lnK=lnk, P=P)
+        ref = system.solve(feed, lnK=lnk, P=P, sensitivities=True)
         for name in ("amounts", "extents", "status", "iterations", "absent"):
             np.testing.assert_array_equal(_bits(getattr(ours, name)), _bits(getattr(ref, name)), err_msg=name)
+        # the derivatives (written into one prepared buffer) too, NaN rows included
+        for by in ("lnK", "P", "feed"):
+            np.testing.assert_array_equal(_bits(ours.sensitivity(by)), _bits(ref.sensitivity(by)), err_msg=by)
         assert ours.status[cases // 2] == Status.INVALID_INPUT
         others = np.arange(cases) != cases // 2
         assert (ours.status[others] == 0).all() and (ours.iterations[others] > 0).all()

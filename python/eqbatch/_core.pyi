@@ -26,6 +26,16 @@ class System:
     def phase_index(self) -> list[int]: ...
     @property
     def n_phases(self) -> int: ...
+    def sensitivities_prepared(
+        self,
+        feed: npt.NDArray[np.float64],
+        pressure: float,
+        n_cases: int,
+        floats: npt.NDArray[np.float64],
+        words: npt.NDArray[np.uint64],
+        threads: int | None,
+        derivs: npt.NDArray[np.float64],
+    ) -> None: ...
     def solve_prepared(
         self,
         feed: npt.NDArray[np.float64],

@@ -48,6 +48,8 @@ class PreparedSolve:
         "_result",
         "_floats",
         "_words",
+        "_derivs",
+        "_sens_views",
         "_core",
         "_P0",
     )
@@ -82,6 +84,15 @@ class PreparedSolve:
             self._words[n + iteration_words :].view(np.uint8)[:n],
             self._words[n : n + iteration_words].view(np.uint32)[:n],
             self._words[:n],
+        )
+        # (with sensitivities: one buffer of derivatives, by ln K, ln P and the
+        # feed, whose views the result holds)
+        k = n if sensitivities else 0
+        self._derivs = d = np.zeros(k * (s * r + s + s * s))
+        self._sens_views = (
+            d[: k * s * r].reshape(k, s, r),
+            d[k * s * r : k * s * (r + 1)].reshape(k, s),
+            d[k * s * (r + 1) :].reshape(k, s, s),
         )
         self._core = system._engine.solve_prepared
         self._P0 = float(system.P0)
@@ -143,7 +154,10 @@ class PreparedSolve:
                     result._mole_fractions = result._sens = result._dn_dT = result._energy = None
                     result._feed, result._lnK, result._P, result._T = feed, lnK, P, None
                     if self._sensitivities:
-                        self._add_sensitivities(feed, np.array([P]))
+                        self.system._engine.sensitivities_prepared(
+                            feed, P, n, floats, words, self._threads, self._derivs
+                        )
+                        result._sens = self._sens_views
                     return result
         system, n = self.system, self.cases
         feed_arr = feed_array(system, feed)

@@ -700,6 +700,73 @@ impl PySystem {
         Ok(fractions)
     }
 
+    /// `sensitivities` of a prepared solve's last call: the solve's outputs
+    /// from its two buffers (see `solve_prepared`), one pressure for every
+    /// case, and the derivatives into `derivs` (`N S R` by ln K, then `N S`
+    /// by ln P, then `N S S` by the feed), whose views the result holds.
+    /// Four borrows and no new arrays: a prepared call with derivatives
+    /// costs little more than one without.
+    #[allow(clippy::too_many_arguments)]
+    fn sensitivities_prepared<'py>(
+        &self,
+        py: Python<'py>,
+        feed: PyReadonlyArrayDyn<'py, f64>,
+        pressure: f64,
+        n_cases: usize,
+        floats: PyReadonlyArray1<'py, f64>,
+        words: PyReadonlyArray1<'py, u64>,
+        threads: Option<usize>,
+        derivs: Bound<'py, PyArray1<f64>>,
+    ) -> PyResult<()> {
+        let (s, r, n) = (self.inner.n_species(), self.inner.n_reactions(), n_cases);
+        let (iteration_words, status_words) = (n.div_ceil(2), n.div_ceil(8));
+        if floats.len() != n * (s + r) || words.len() != n + iteration_words + status_words {
+            return Err(PyValueError::new_err(
+                "the prepared buffers do not match n_cases",
+            ));
+        }
+        check_output(&derivs, &[n * (s * r + s + s * s)], "derivs")?;
+        let feed = rows_of(&feed, s, "feed")?;
+        let amounts = &floats.as_slice()?[..n * s];
+        let words = words.as_slice()?;
+        let absent = &words[..n];
+        let status = &bytemuck::cast_slice::<u64, u8>(&words[n + iteration_words..])[..n];
+        let mut derivs = writable(&derivs)?;
+        let (d_ln_k, rest) = derivs.as_slice_mut()?.split_at_mut(n * s * r);
+        let (d_ln_p, d_feed) = rest.split_at_mut(n * s);
+        let pressure = [pressure];
+        let system = &self.inner;
+        let mut run = move || {
+            let inputs = BatchInputs {
+                n_cases,
+                feed,
+                ln_k: &[],
+                pressure: &pressure,
+                start: None,
+            };
+            let mut out = SensitivityOutputs {
+                d_ln_k,
+                d_ln_p,
+                d_feed,
+            };
+            sensitivities_batch(
+                system,
+                &inputs,
+                amounts,
+                status,
+                Some(absent),
+                &mut out,
+                threads,
+            )
+        };
+        let done = if n_cases < HOLD_LOCK_BELOW {
+            run()
+        } else {
+            py.detach(run)
+        };
+        done.map_err(to_py)
+    }
+
     /// Exact derivatives of converged cases: returns `(d n / d ln K (N, S, R),
     /// d n / d ln P (N, S), d n / d n0 (N, S, S))`; other cases are NaN.
     /// `absent` is the solve's mask of absent phases; `with_feed=False`
