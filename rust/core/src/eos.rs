@@ -62,7 +62,8 @@ impl CubicKind {
 
 /// The equation of state of a system's gas: constants of its species (in
 /// the system's species order; entries of species not in the gas are not
-/// read).
+/// read). Made by [`Cubic::new`], which also folds each species' constants
+/// into the few numbers a state needs.
 #[derive(Clone, Debug)]
 pub struct Cubic {
     pub kind: CubicKind,
@@ -74,6 +75,10 @@ pub struct Cubic {
     pub omega: Vec<f64>,
     /// Binary parameters `k_ij`, `S x S` row-major, symmetric, zero diagonal.
     pub kij: Vec<f64>,
+    /// Per species: `sqrt(Omega_a (R Tc)^2 / Pc)`, `m(omega)`, `1 / sqrt(Tc)`
+    /// and `b_i = Omega_b R Tc / Pc` (a state then takes one square root,
+    /// not two and three divisions a species).
+    folded: Vec<[f64; 4]>,
 }
 
 /// The cubic has no vapour-like root at this composition, temperature and
@@ -82,6 +87,40 @@ pub struct Cubic {
 pub struct LnPhiError;
 
 impl Cubic {
+    /// The equation `kind` with each species' critical temperature `tc` (K),
+    /// pressure `pc` (bar) and acentric factor `omega`, and the binary
+    /// parameters `kij` (`S x S`).
+    pub fn new(
+        kind: CubicKind,
+        tc: Vec<f64>,
+        pc: Vec<f64>,
+        omega: Vec<f64>,
+        kij: Vec<f64>,
+    ) -> Self {
+        let (omega_a, omega_b, _, _, _) = kind.constants();
+        let folded = tc
+            .iter()
+            .zip(&pc)
+            .zip(&omega)
+            .map(|((&tc, &pc), &w)| {
+                [
+                    (omega_a * (R_BAR_CM3 * tc).powi(2) / pc).sqrt(),
+                    kind.m(w),
+                    1.0 / tc.sqrt(),
+                    omega_b * R_BAR_CM3 * tc / pc,
+                ]
+            })
+            .collect();
+        Cubic {
+            kind,
+            tc,
+            pc,
+            omega,
+            kij,
+            folded,
+        }
+    }
+
     /// `ln phi` of the species `gas` lists (indices into the system's
     /// species), at gas mole fractions `y` (one per entry of `gas`),
     /// temperature `t` (K) and pressure `p` (bar), into `out` (one per entry
@@ -95,17 +134,19 @@ impl Cubic {
         out: &mut [f64],
         work: &mut [f64],
     ) -> Result<(), LnPhiError> {
-        let (_, omega_b, u1, u2, _) = self.kind.constants();
+        let (_, _, u1, u2, _) = self.kind.constants();
         let mix = self.mixture(gas, y, t, p, work)?;
         let sum_a = &work[gas.len()..2 * gas.len()];
         let (big_a, big_b, z) = (mix.big_a, mix.big_b, mix.z);
         let log_term = ((z + u2 * big_b) / (z + u1 * big_b)).ln();
         let lead = big_a / ((u2 - u1) * big_b);
+        let ln_free = (z - big_b).ln();
+        let (inv_b, inv_a) = (1.0 / mix.b, 1.0 / mix.a);
         for (k, &i) in gas.iter().enumerate() {
-            let b_ratio = omega_b * R_BAR_CM3 * self.tc[i] / self.pc[i] / mix.b;
+            let b_ratio = self.folded[i][3] * inv_b;
             out[k] = b_ratio * (z - 1.0)
-                - (z - big_b).ln()
-                - lead * (2.0 * sum_a[k] / mix.a - b_ratio) * log_term;
+                - ln_free
+                - lead * (2.0 * sum_a[k] * inv_a - b_ratio) * log_term;
         }
         Ok(())
     }
@@ -135,20 +176,20 @@ impl Cubic {
         work: &mut [f64],
     ) -> Result<Mixture, LnPhiError> {
         let g = gas.len();
-        let (omega_a, omega_b, _, _, z_c) = self.kind.constants();
+        let (_, _, _, _, z_c) = self.kind.constants();
         let s = self.tc.len();
         let rt = R_BAR_CM3 * t;
+        let sqrt_t = t.sqrt();
         let (sqrt_a, sum_a) = work.split_at_mut(g);
         let mut b = 0.0;
         let (mut t_pc, mut p_pc) = (0.0, 0.0);
         for (k, &i) in gas.iter().enumerate() {
-            let (tc, pc) = (self.tc[i], self.pc[i]);
-            let alpha = 1.0 + self.kind.m(self.omega[i]) * (1.0 - (t / tc).sqrt());
-            let a_i = omega_a * (R_BAR_CM3 * tc).powi(2) / pc * alpha * alpha;
-            sqrt_a[k] = a_i.sqrt();
-            b += y[k] * omega_b * R_BAR_CM3 * tc / pc;
-            t_pc += y[k] * tc;
-            p_pc += y[k] * pc;
+            let [sqrt_ac, m, inv_sqrt_tc, b_i] = self.folded[i];
+            // sqrt(a_i) = sqrt(Omega_a (R Tc)^2 / Pc) |alpha|, alpha = 1 + m (1 - sqrt(T / Tc))
+            sqrt_a[k] = sqrt_ac * (1.0 + m * (1.0 - sqrt_t * inv_sqrt_tc)).abs();
+            b += y[k] * b_i;
+            t_pc += y[k] * self.tc[i];
+            p_pc += y[k] * self.pc[i];
         }
         let mut a = 0.0;
         for k in 0..g {
@@ -200,12 +241,40 @@ fn coefficients(kind: CubicKind, a: f64, b: f64) -> (f64, f64, f64) {
 }
 
 /// The largest real root of the cubic in `Z` and how many real roots it
-/// has (1 or 3), by the trigonometric or Cardano form, polished by Newton.
+/// has (1 or 3).
 fn largest_root(kind: CubicKind, a: f64, b: f64) -> (f64, usize) {
     let (c2, c1, c0) = coefficients(kind, a, b);
     let q = (3.0 * c1 - c2 * c2) / 9.0;
     let r = (9.0 * c2 * c1 - 27.0 * c0 - 2.0 * c2 * c2 * c2) / 54.0;
     let disc = q * q * q + r * r;
+    let roots = if disc <= 0.0 && q < 0.0 { 3 } else { 1 };
+    // Newton from Z = 1 + B, an upper bound of the roots of both equations
+    // (Z = V / (V - b) - (attraction, positive) <= Z / (Z - B)): from the
+    // right of the largest root, where the cubic is convex, the iterates fall
+    // to it monotonically, without the closed forms' acos, cos or cbrt.
+    let mut z = 1.0 + b;
+    for _ in 0..NEWTON_ROOT_STEPS {
+        let f = ((z + c2) * z + c1) * z + c0;
+        let df = (3.0 * z + 2.0 * c2) * z + c1;
+        let step = f / df;
+        let settled = 4.0 * f64::EPSILON * z;
+        if !(df > 0.0 && step > -settled) {
+            break; // (not on the convex side: the closed form below)
+        }
+        z -= step;
+        if step.abs() <= settled {
+            return (z, roots);
+        }
+    }
+    closed_form_root(c2, c1, c0, q, r, disc)
+}
+
+/// Newton steps [`largest_root`] takes before it uses the closed form.
+const NEWTON_ROOT_STEPS: usize = 40;
+
+/// The largest real root by the trigonometric or Cardano form, polished by
+/// Newton (where the iteration from the right does not settle).
+fn closed_form_root(c2: f64, c1: f64, c0: f64, q: f64, r: f64, disc: f64) -> (f64, usize) {
     let (mut z, roots) = if disc <= 0.0 && q < 0.0 {
         let theta = (r / (-q * q * q).sqrt()).clamp(-1.0, 1.0).acos();
         (2.0 * (-q).sqrt() * (theta / 3.0).cos() - c2 / 3.0, 3)
@@ -230,17 +299,41 @@ mod tests {
 
     #[test]
     fn a_vanishing_pressure_gives_ideal_gas() {
-        let eos = Cubic {
-            kind: CubicKind::PengRobinson,
-            tc: vec![126.2, 190.6],
-            pc: vec![33.98, 45.99],
-            omega: vec![0.037, 0.011],
-            kij: vec![0.0; 4],
-        };
+        let eos = Cubic::new(
+            CubicKind::PengRobinson,
+            vec![126.2, 190.6],
+            vec![33.98, 45.99],
+            vec![0.037, 0.011],
+            vec![0.0; 4],
+        );
         let (mut out, mut work) = ([0.0; 2], [0.0; 4]);
         eos.ln_phi(&[0, 1], &[0.3, 0.7], 300.0, 1e-8, &mut out, &mut work)
             .unwrap();
         assert!(out.iter().all(|v| v.abs() < 1e-9));
+    }
+
+    #[test]
+    fn newton_from_the_right_finds_the_largest_root_the_closed_forms_give() {
+        // the closed forms (trigonometric with three real roots, Cardano
+        // with one) are the independent reference; A and B cover gas-like,
+        // three-root and liquid-like states
+        for kind in [CubicKind::PengRobinson, CubicKind::Soave] {
+            for i in 0..60 {
+                for j in 1..40 {
+                    let (a, b) = (0.05 * i as f64, 0.01 * j as f64);
+                    let (c2, c1, c0) = coefficients(kind, a, b);
+                    let q = (3.0 * c1 - c2 * c2) / 9.0;
+                    let r = (9.0 * c2 * c1 - 27.0 * c0 - 2.0 * c2 * c2 * c2) / 54.0;
+                    let (want, n_want) = closed_form_root(c2, c1, c0, q, r, q * q * q + r * r);
+                    let (z, n) = largest_root(kind, a, b);
+                    assert_eq!(n, n_want, "{kind:?} {a} {b}");
+                    assert!(
+                        (z - want).abs() <= 1e-12 * want.abs().max(1.0),
+                        "{kind:?} {a} {b}: {z} vs {want}"
+                    );
+                }
+            }
+        }
     }
 
     #[test]

@@ -519,13 +519,13 @@ mod tests {
     fn a_case_without_a_temperature_is_invalid_input_not_converged() {
         // N2 + 3 H2 = 2 NH3 with Peng-Robinson; the second case's T is NaN
         let sys = System::new(vec![-1.0, -3.0, 2.0], 1, 3, vec![Phase::Gas; 3], 1.0).unwrap();
-        let eos = Cubic {
-            kind: CubicKind::PengRobinson,
-            tc: vec![126.2, 33.19, 405.4],
-            pc: vec![33.98, 13.13, 113.53],
-            omega: vec![0.0372, -0.216, 0.256],
-            kij: vec![0.0; 9],
-        };
+        let eos = Cubic::new(
+            CubicKind::PengRobinson,
+            vec![126.2, 33.19, 405.4],
+            vec![33.98, 13.13, 113.53],
+            vec![0.0372, -0.216, 0.256],
+            vec![0.0; 9],
+        );
         let model = NonIdeal {
             eos: Some(&eos),
             solutions: &[],

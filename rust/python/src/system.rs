@@ -72,8 +72,8 @@ fn non_ideal_parts(
 ) -> PyResult<(Option<Cubic>, Vec<Solution>)> {
     let eos = match kind {
         None => None,
-        Some(code) => Some(Cubic {
-            kind: match code {
+        Some(code) => Some(Cubic::new(
+            match code {
                 0 => CubicKind::PengRobinson,
                 1 => CubicKind::Soave,
                 _ => {
@@ -86,7 +86,7 @@ fn non_ideal_parts(
             pc,
             omega,
             kij,
-        }),
+        )),
     };
     let mut models = Vec::with_capacity(solutions.len());
     for (code, species, a, b, alpha, r, q) in solutions {
