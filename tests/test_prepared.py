@@ -75,6 +75,11 @@ def test_the_fast_path_writes_every_output_where_solve_does(cases: int) -> None:
         others = np.arange(cases) != cases // 2
         assert (ours.status[others] == 0).all() and (ours.iterations[others] > 0).all()
         assert ours.P.tolist() == [P] * cases
+    # one feed row (1-D) for every case, derivatives included
+    one_row = run.solve(feed[0], lnK=lnk, P=7.0)
+    ref = system.solve(np.tile(feed[0], (cases, 1)), lnK=lnk, P=7.0, sensitivities=True)
+    np.testing.assert_array_equal(_bits(one_row.amounts), _bits(ref.amounts))
+    np.testing.assert_array_equal(_bits(one_row.sensitivity("feed")), _bits(ref.sensitivity("feed")))
 
 
 def test_temperature_input_and_one_row_broadcast() -> None:

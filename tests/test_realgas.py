@@ -512,3 +512,41 @@ def test_a_real_gas_already_within_its_approach_is_held_at_its_feed() -> None:
         numpy_ln_phi("peng-robinson", ["N2", "H2", "NH3"], y, T, P),
         atol=1e-9,
     )
+
+
+def test_a_real_gas_with_one_reaction_held_solves_the_others_without_it() -> None:
+    # Two reactions on a Peng-Robinson gas: ammonia synthesis (Gillespie-Beattie K)
+    # and a methanation of CO2 (K data of our own for this check: ln K = -27 +
+    # 19900 / T). The feed is the equilibrium of 5 K hotter, so at a 10 K approach
+    # the synthesis is already within its approach and is held at zero extent;
+    # the methanation then finds its equilibrium alone. Checked against the
+    # Peng-Robinson solve of a system that has only the methanation.
+    critical = dict(
+        CRITICAL, H2O={"Tc": 647.14, "Pc": 220.64, "omega": 0.344}
+    )  # (Poling et al., from memory)
+    species = ["N2", "H2", "NH3", "CO2", "CH4", "H2O"]
+    methanation = {"a": -27.0, "b": 19900.0}
+    both = eqbatch.ReactionSystem(
+        species,
+        {"synthesis": "N2 + 3 H2 = 2 NH3", "methanation": "CO2 + 4 H2 = CH4 + 2 H2O"},
+        P0=1.01325,
+        gas_model="peng-robinson",
+        critical={k: critical[k] for k in species},
+        lnK={"synthesis": gillespie_beattie_data(), "methanation": methanation},
+    )
+    alone = eqbatch.ReactionSystem(
+        species,
+        {"methanation": "CO2 + 4 H2 = CH4 + 2 H2O"},
+        P0=1.01325,
+        gas_model="peng-robinson",
+        critical={k: critical[k] for k in species},
+        lnK={"methanation": methanation},
+    )
+    T, P = 700.0, 200.0
+    feed = both.solve([1.0, 3.6, 0.0, 0.1, 0.0, 0.0], T=T + 5.0, P=P).amounts[0]
+    res = both.solve(feed, T=T, P=P, approach={"synthesis": 10.0})
+    assert res.converged.all() and res.held[0].tolist() == [True, False]
+    assert res.extents[0, 0] == 0.0
+    ref = alone.solve(feed, T=T, P=P)
+    np.testing.assert_allclose(res.amounts, ref.amounts, rtol=1e-9, atol=1e-14)
+    np.testing.assert_allclose(res.fugacity_coefficients, ref.fugacity_coefficients, rtol=1e-9)

@@ -187,7 +187,8 @@ def _in_core(
         None if reused is None else reused[:4],
     )
     # A converged case closed its energy balance to 1e-13 of T in the core
-    # (tests/test_approach_adiabatic.py checks the balance of the outputs),
+    # (tests/test_adiabatic_core.py checks the balance of the outputs; so
+    # ``energy_tol`` only applies to the nested solve's cases),
     # and its ln K at the outlet are those system.lnK gives there (plus the shift).
     settled = status == Status.CONVERGED
     T_steps = iterations.astype(np.int64)  # every Newton step also moves the temperature

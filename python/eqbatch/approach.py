@@ -193,7 +193,8 @@ def feed_directions(system: SystemSpec, feed: np.ndarray, which: np.ndarray) -> 
     (:func:`eqbatch.equations.cone_directions`, one linear programme per
     zero pattern), the reaction runs that way whatever its K: steam
     reforming from a feed of methane and steam runs forward. Systems with
-    other phases (which may be absent) get NaN throughout.
+    other phases (which may be absent) get NaN throughout. Where one zero
+    pattern serves every feed the answer is a read-only broadcast of one row.
 
     Examples
     --------

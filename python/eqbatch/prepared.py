@@ -25,8 +25,9 @@ class PreparedSolve:
     """Solves of a fixed number of cases of one system, into the same arrays.
 
     Made by :meth:`ReactionSystem.prepare`. Each call returns the same
-    :class:`EquilibriumResult` object with new values: copy what must
-    outlive the next call (``result.amounts.copy()``).
+    :class:`EquilibriumResult` object with new values, its derivatives
+    (``result.sensitivity(...)``) included: copy what must outlive the next
+    call (``result.amounts.copy()``, ``result.sensitivity("lnK").copy()``).
 
     Parameters
     ----------

@@ -63,7 +63,8 @@ impl CubicKind {
 /// The equation of state of a system's gas: constants of its species (in
 /// the system's species order; entries of species not in the gas are not
 /// read). Made by [`Cubic::new`], which also folds each species' constants
-/// into the few numbers a state needs.
+/// into the few numbers a state needs: the fields are for reading (a
+/// changed field would not reach the folded constants; make a new one).
 #[derive(Clone, Debug)]
 pub struct Cubic {
     pub kind: CubicKind,
