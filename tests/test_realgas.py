@@ -550,3 +550,23 @@ def test_a_real_gas_with_one_reaction_held_solves_the_others_without_it() -> Non
     ref = alone.solve(feed, T=T, P=P)
     np.testing.assert_allclose(res.amounts, ref.amounts, rtol=1e-9, atol=1e-14)
     np.testing.assert_allclose(res.fugacity_coefficients, ref.fugacity_coefficients, rtol=1e-9)
+
+
+def test_a_prepared_solve_of_a_real_gas_is_the_solve() -> None:
+    # prepare() on a Peng-Robinson system: each call is the successive
+    # substitution of solve(), to the bit, derivatives included; a call
+    # without T is refused (phi needs it), never answered as an ideal gas.
+    system = converter()
+    feed = np.array([[1.0, 3.0, 0.0], [1.0, 2.5, 0.1], [1.0, 3.5, 0.05]])
+    T, P = np.array([680.0, 720.0, 760.0]), np.array([150.0, 220.0, 300.0])
+    run = system.prepare(3, sensitivities=True)
+    for shift in (0.0, 0.3):
+        ours = run.solve(feed, lnK=system.lnK(T) + shift, T=T, P=P)
+        ref = system.solve(feed, lnK=system.lnK(T) + shift, T=T, P=P, sensitivities=True)
+        assert ours.converged.all()
+        np.testing.assert_array_equal(ours.amounts, ref.amounts)
+        np.testing.assert_array_equal(ours.fugacity_coefficients, ref.fugacity_coefficients)
+        for by in ("lnK", "P", "T", "feed"):
+            np.testing.assert_array_equal(ours.sensitivity(by), ref.sensitivity(by), err_msg=by)
+    with pytest.raises(CaseInputError, match="give T="):
+        run.solve(feed, lnK=system.lnK(T), P=P)

@@ -17,6 +17,8 @@ import numpy as np
 
 from eqbatch.errors import CaseInputError
 from eqbatch.inputs import case_column, checked_options, feed_array, lnk_array
+from eqbatch.outputs import Outputs
+from eqbatch.realgas import nonideal_sensitivities, solve_real_with
 from eqbatch.result import EquilibriumResult
 from eqbatch.spec import SystemSpec, bad_temperatures
 
@@ -53,6 +55,7 @@ class PreparedSolve:
         "_sens_views",
         "_core",
         "_P0",
+        "_real",
     )
 
     def __init__(
@@ -79,7 +82,7 @@ class PreparedSolve:
         iteration_words, status_words = -(-n // 2), -(-n // 8)
         self._floats = np.zeros(n * (s + r))
         self._words = np.zeros(n + iteration_words + status_words, dtype=np.uint64)
-        self._arrays = (
+        self._arrays: Outputs = (
             self._floats[: n * s].reshape(n, s),
             self._floats[n * s :].reshape(n, r),
             self._words[n + iteration_words :].view(np.uint8)[:n],
@@ -96,6 +99,9 @@ class PreparedSolve:
             d[k * s * (r + 1) :].reshape(k, s, s),
         )
         self._core = system._engine.solve_prepared
+        # (non-ideal phases: every call takes the general conversion and the
+        # successive-substitution solve, which needs T; nothing skips it)
+        self._real = system.nonideal is not None
         self._P0 = float(system.P0)
         amounts, extents, status, iterations, absent = self._arrays
         p0 = system._p0_row  # placeholders until the first call
@@ -135,7 +141,7 @@ class PreparedSolve:
         >>> [round(float(solve([1.0, 0.0], lnK=[k]).amounts[0, 1]), 6) for k in (0.0, np.log(3.0))]
         [0.5, 0.75]
         """
-        if T is None and type(feed) is np.ndarray and type(lnK) is np.ndarray:
+        if T is None and not self._real and type(feed) is np.ndarray and type(lnK) is np.ndarray:
             # The optimiser's call: float64 arrays, a float pressure, written
             # out in line (a call costs about two microseconds; each Python
             # step here is a few per cent of it). The core checks shapes,
@@ -182,14 +188,28 @@ class PreparedSolve:
         self, feed: np.ndarray, lnk: np.ndarray, p: np.ndarray, T: np.ndarray | None
     ) -> EquilibriumResult:
         """The core's solve into the prepared arrays (inputs already in its layout)."""
-        result = self._result
-        self.system._engine.solve(
-            feed, lnk, p, self.cases, self._tol, self._max_iter, self._threads, None, False, self._arrays
-        )
+        result, system, n = self._result, self.system, self.cases
+        if self._real:
+            if T is None:
+                why = "the fugacity and activity coefficients depend on temperature"
+                raise CaseInputError(f"{system.nonideal}: {why}; give T=")
+            solved, ln_phi = solve_real_with(
+                system._engine, system, feed, lnk, p, T, n, self._tol, self._max_iter, self._threads, None
+            )
+            for target, values in zip(self._arrays, solved):
+                np.copyto(target, values)
+            result._ln_phi = ln_phi
+        else:
+            system._engine.solve(
+                feed, lnk, p, n, self._tol, self._max_iter, self._threads, None, False, self._arrays
+            )
         result.invalidate()
         result._feed, result._lnK, result._P, result._T = feed, lnk, p, T  # (one row may be 1-D)
         if self._sensitivities:
             self._add_sensitivities(feed, p)
+            if self._real:
+                assert T is not None
+                result._sens, result._dn_dT = nonideal_sensitivities(system, result, T, self._threads)
         return result
 
     def _add_sensitivities(self, feed: np.ndarray, p: np.ndarray) -> None:

@@ -612,8 +612,6 @@ class ReactionSystem(SystemSpec):
         >>> res.amounts.tolist(), res.sensitivity("lnK")[0, :, 0].round(6).tolist()
         ([[0.5, 0.5]], [-0.25, 0.25])
         """
-        if self.nonideal is not None:
-            raise CaseInputError(f"prepare() is not yet available with {self.nonideal}; call solve()")
         return PreparedSolve(
             self, cases, tol=tol, max_iter=max_iter, threads=threads, sensitivities=sensitivities
         )
