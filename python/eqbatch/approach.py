@@ -29,7 +29,7 @@ from eqbatch.equations import cone_directions
 from eqbatch.errors import CaseInputError
 from eqbatch.kdata import quiet_ranges
 from eqbatch.outputs import Outputs
-from eqbatch.realgas import ln_coefficients, solve_real_with
+from eqbatch.realgas import ln_coefficients, solve_real
 from eqbatch.result import EquilibriumResult
 from eqbatch.spec import SystemSpec, compile_system
 
@@ -275,7 +275,7 @@ def solve(
         m = unknown.size if subset else n
         if real:
             t_ = _rows(T, unknown) if subset and len(T) > 1 else T
-            eq_extents = solve_real_with(core, system, f_, k_, p_, t_, m, tol, max_iter, threads, x0)[0][1]
+            eq_extents = solve_real(system, f_, k_, p_, t_, m, tol, max_iter, threads, x0, core)[0][1]
         else:
             eq_extents = core.solve(f_, k_, p_, m, tol, max_iter, threads, x0, chain)[1]
         eq_direction = np.sign(np.nan_to_num(eq_extents))
@@ -296,7 +296,7 @@ def solve(
         lnK[np.broadcast_to(bad_T, (lnK.shape[0],))] = np.nan
     ln_phi = None
     if real:
-        solved, ln_phi = solve_real_with(core, system, feed, lnK, P, T, n, tol, max_iter, threads, warm)
+        solved, ln_phi = solve_real(system, feed, lnK, P, T, n, tol, max_iter, threads, warm)
         if out is not None:  # (the earlier result's arrays receive the values)
             for target, values in zip(out, solved):
                 np.copyto(target, values)
@@ -361,7 +361,7 @@ def _solve_held(
         )
         if ln_phi is not None:
             reduced, T_rows = _without(system, keep), _rows(T, rows)
-            found, phi = solve_real_with(reduced, system, *args, T_rows, rows.size, tol, max_iter, None, None)
+            found, phi = solve_real(system, *args, T_rows, rows.size, tol, max_iter, None, None, reduced)
             a, e, st, it, ab = found
             ln_phi[rows] = phi
         else:

@@ -18,7 +18,7 @@ import numpy as np
 from eqbatch.errors import CaseInputError
 from eqbatch.inputs import case_column, checked_options, feed_array, lnk_array
 from eqbatch.outputs import Outputs
-from eqbatch.realgas import nonideal_sensitivities, solve_real_with
+from eqbatch.realgas import nonideal_sensitivities, solve_real
 from eqbatch.result import EquilibriumResult
 from eqbatch.spec import SystemSpec, bad_temperatures
 
@@ -190,12 +190,8 @@ class PreparedSolve:
         """The core's solve into the prepared arrays (inputs already in its layout)."""
         result, system, n = self._result, self.system, self.cases
         if self._real:
-            if T is None:
-                why = "the fugacity and activity coefficients depend on temperature"
-                raise CaseInputError(f"{system.nonideal}: {why}; give T=")
-            solved, ln_phi = solve_real_with(
-                system._engine, system, feed, lnk, p, T, n, self._tol, self._max_iter, self._threads, None
-            )
+            threads = self._threads
+            solved, ln_phi = solve_real(system, feed, lnk, p, T, n, self._tol, self._max_iter, threads, None)
             for target, values in zip(self._arrays, solved):
                 np.copyto(target, values)
             result._ln_phi = ln_phi

@@ -217,34 +217,20 @@ def solve_real(
     max_iter: int,
     threads: int | None,
     start: np.ndarray | None,
+    engine: Any = None,
 ) -> tuple[Outputs, np.ndarray]:
     """The core's solve with the system's non-ideal phases (the gas's cubic,
     the solutions' activity models): ``(amounts, extents, status,
-    iterations, absent)`` and ``ln phi`` / ``ln gamma`` (N, S)."""
+    iterations, absent)`` and ``ln phi`` / ``ln gamma`` (N, S). ``engine``:
+    the compiled system to solve, ``system``'s own by default, or one of
+    its reactions only (the same species and phase models; an approach
+    solve re-solves held cases so)."""
     if T is None:
         raise CaseInputError(
             f"{system.nonideal}: the fugacity and activity coefficients depend on temperature; give T= "
             "(also when the equilibrium constants are given)"
         )
-    return solve_real_with(system._engine, system, feed, lnk, P, T, n, tol, max_iter, threads, start)
-
-
-def solve_real_with(
-    engine: Any,
-    system: Any,
-    feed: np.ndarray,
-    lnk: np.ndarray,
-    P: np.ndarray,
-    T: np.ndarray,
-    n: int,
-    tol: float,
-    max_iter: int,
-    threads: int | None,
-    start: np.ndarray | None,
-) -> tuple[Outputs, np.ndarray]:
-    """:func:`solve_real` on the compiled system ``engine``: ``system``'s own
-    or one of its reactions only (the same species and phase models; an
-    approach solve re-solves held cases so)."""
+    engine = system._engine if engine is None else engine
     temperature = np.ascontiguousarray(T, dtype=np.float64)
     return engine.solve_real(
         np.ascontiguousarray(feed),

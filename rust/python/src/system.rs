@@ -25,7 +25,7 @@ type Solved<'py> = (
     Bound<'py, PyArray1<u64>>,
 );
 
-/// An adiabatic solve's reused outputs: amounts, extents, status, iterations.
+/// Caller's (reused) outputs: amounts, extents, status, iterations.
 type OutArrays<'py> = (
     Bound<'py, PyArray2<f64>>,
     Bound<'py, PyArray2<f64>>,
@@ -132,6 +132,51 @@ fn check_output<T: numpy::Element, D: numpy::ndarray::Dimension>(
         )));
     }
     Ok(())
+}
+
+/// The caller's amounts, extents, status and iterations for `n` cases of
+/// `s` species and `r` reactions (shapes and layout checked; every value
+/// is overwritten), or new ones.
+fn outputs_or_new<'py>(
+    py: Python<'py>,
+    out: Option<OutArrays<'py>>,
+    n: usize,
+    s: usize,
+    r: usize,
+) -> PyResult<OutArrays<'py>> {
+    Ok(match out {
+        Some(arrays) => {
+            check_output(&arrays.0, &[n, s], "amounts")?;
+            check_output(&arrays.1, &[n, r], "extents")?;
+            check_output(&arrays.2, &[n], "status")?;
+            check_output(&arrays.3, &[n], "iterations")?;
+            arrays
+        }
+        None => (
+            PyArray2::zeros(py, [n, s], false),
+            PyArray2::zeros(py, [n, r], false),
+            PyArray1::zeros(py, n, false),
+            PyArray1::zeros(py, n, false),
+        ),
+    })
+}
+
+/// `solve_batch` into `outputs`: holding the interpreter lock for calls
+/// under [`HOLD_LOCK_BELOW`] cases (an optimiser's few cases take about a
+/// microsecond; releasing and re-taking the lock would be a tenth of that),
+/// else with it released.
+fn solve_in(
+    py: Python<'_>,
+    system: &System,
+    inputs: &BatchInputs,
+    mut outputs: BatchOutputs,
+    options: &SolveOptions,
+    threads: Option<usize>,
+) -> PyResult<()> {
+    let small = inputs.n_cases < HOLD_LOCK_BELOW;
+    let mut run = move || solve_batch(system, inputs, &mut outputs, options, threads);
+    let solved = if small { run() } else { py.detach(run) };
+    solved.map_err(to_py)
 }
 
 /// A per-case input of `width` columns: `(N, width)`, or `(width,)` for one
@@ -253,23 +298,14 @@ impl PySystem {
         let s = self.inner.n_species();
         let r = self.inner.n_reactions();
         // The caller's arrays (every value is overwritten), or new ones.
-        let (amounts, extents, status, iterations, absent) = match out {
-            Some(arrays) => {
-                check_output(&arrays.0, &[n_cases, s], "amounts")?;
-                check_output(&arrays.1, &[n_cases, r], "extents")?;
-                check_output(&arrays.2, &[n_cases], "status")?;
-                check_output(&arrays.3, &[n_cases], "iterations")?;
-                check_output(&arrays.4, &[n_cases], "absent")?;
-                arrays
+        let (four, absent) = match out {
+            Some((a, e, st, it, ab)) => {
+                check_output(&ab, &[n_cases], "absent")?;
+                (Some((a, e, st, it)), ab)
             }
-            None => (
-                PyArray2::zeros(py, [n_cases, s], false),
-                PyArray2::zeros(py, [n_cases, r], false),
-                PyArray1::zeros(py, n_cases, false),
-                PyArray1::zeros(py, n_cases, false),
-                PyArray1::zeros(py, n_cases, false),
-            ),
+            None => (None, PyArray1::zeros(py, n_cases, false)),
         };
+        let (amounts, extents, status, iterations) = outputs_or_new(py, four, n_cases, s, r)?;
         {
             let feed = rows_of(&feed, s, "feed")?;
             let ln_k = rows_of(&ln_k, r, "ln_k")?;
@@ -299,26 +335,15 @@ impl PySystem {
                 chain,
                 drop_vanishing: false,
             };
-            let system = &self.inner;
-            let mut run = move || {
-                let mut outputs = BatchOutputs {
-                    amounts: a,
-                    extents: e,
-                    mole_fractions: None,
-                    status: st,
-                    iterations: it,
-                    absent: Some(ab),
-                };
-                solve_batch(system, &inputs, &mut outputs, &options, threads)
+            let outputs = BatchOutputs {
+                amounts: a,
+                extents: e,
+                mole_fractions: None,
+                status: st,
+                iterations: it,
+                absent: Some(ab),
             };
-            // An optimiser's few cases take about a microsecond: releasing
-            // and re-taking the interpreter lock would be a tenth of that.
-            let solved = if n_cases < HOLD_LOCK_BELOW {
-                run()
-            } else {
-                py.detach(run)
-            };
-            solved.map_err(to_py)?;
+            solve_in(py, &self.inner, &inputs, outputs, &options, threads)?;
         }
         Ok((amounts, extents, status, iterations, absent))
     }
@@ -371,24 +396,15 @@ impl PySystem {
             chain: false,
             drop_vanishing: false,
         };
-        let system = &self.inner;
-        let mut run = move || {
-            let mut outputs = BatchOutputs {
-                amounts,
-                extents,
-                mole_fractions: None,
-                status,
-                iterations,
-                absent: Some(absent),
-            };
-            solve_batch(system, &inputs, &mut outputs, &options, threads)
+        let outputs = BatchOutputs {
+            amounts,
+            extents,
+            mole_fractions: None,
+            status,
+            iterations,
+            absent: Some(absent),
         };
-        let solved = if n_cases < HOLD_LOCK_BELOW {
-            run()
-        } else {
-            py.detach(run)
-        };
-        solved.map_err(to_py)
+        solve_in(py, &self.inner, &inputs, outputs, &options, threads)
     }
 
     /// Solve with non-ideal phases: a gas from a cubic equation of state
@@ -523,21 +539,7 @@ impl PySystem {
     ) -> PyResult<Adiabatic<'py>> {
         let (s, r) = (self.inner.n_species(), self.inner.n_reactions());
         let n = t_start.len();
-        let (amounts, extents, status, iterations) = match out {
-            Some(arrays) => {
-                check_output(&arrays.0, &[n, s], "amounts")?;
-                check_output(&arrays.1, &[n, r], "extents")?;
-                check_output(&arrays.2, &[n], "status")?;
-                check_output(&arrays.3, &[n], "iterations")?;
-                arrays
-            }
-            None => (
-                PyArray2::zeros(py, [n, s], false),
-                PyArray2::zeros(py, [n, r], false),
-                PyArray1::zeros(py, n, false),
-                PyArray1::zeros(py, n, false),
-            ),
-        };
+        let (amounts, extents, status, iterations) = outputs_or_new(py, out, n, s, r)?;
         let temperature = PyArray1::zeros(py, n, false);
         let ln_k = PyArray2::zeros(py, [n, r], false);
         {
