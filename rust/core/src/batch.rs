@@ -312,7 +312,11 @@ pub(crate) fn faces_for(
                 continue;
             }
             zero_pattern(feed, &mut key);
-            if !found.iter().any(|(k, _)| *k == key) {
+            // (word by word: a slice comparison calls memcmp for every case)
+            if !found
+                .iter()
+                .any(|(k, _)| k.iter().zip(&key).all(|(a, b)| a == b))
+            {
                 found.push((key.clone(), case));
             }
         }
