@@ -312,7 +312,7 @@ def solve(
         if cases.size == 0:
             break
         held[cases] |= against[cases]
-        _solve_held(system, cases, held, feed, lnK, P, tol, max_iter, solved, (T, ln_phi))
+        _solve_held(system, cases, held, feed, lnK, P, tol, max_iter, solved, T=T, ln_phi=ln_phi)
     return ApproachSolve(solved, lnK, T_eff, held, ln_phi)
 
 
@@ -335,14 +335,15 @@ def _solve_held(
     tol: float,
     max_iter: int,
     outputs: Outputs,
-    real: tuple[np.ndarray, np.ndarray | None] = (np.zeros(0), None),
+    *,
+    T: np.ndarray,
+    ln_phi: np.ndarray | None,
 ) -> None:
     """Solve ``cases`` again with their held reactions removed (grouped by
     which reactions are held), writing into ``outputs`` in place; with
-    non-ideal phases ``real`` is ``(T, ln_phi)``, the temperatures and the
-    coefficients to update (``ln_phi`` None: an ideal system)."""
+    non-ideal phases (``ln_phi`` not None) at temperatures ``T``, updating
+    the coefficients ``ln_phi``."""
     amounts, extents, status, iterations, absent = outputs
-    T, ln_phi = real
     patterns, groups = np.unique(held[cases], axis=0, return_inverse=True)
     for g, pattern in enumerate(patterns):
         rows = cases[groups.reshape(-1) == g]

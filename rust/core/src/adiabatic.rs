@@ -111,20 +111,6 @@ impl Enthalpy<'_> {
     }
 }
 
-/// The enthalpy of `amounts` at `t` (K), J: `R sum_i n_i (H_i / R)(t)`;
-/// NaN where `t` is not positive and finite.
-fn enthalpy_at(table: &ThermoTable, amounts: &[f64], t: f64) -> f64 {
-    if !(t > 0.0 && t < f64::INFINITY) {
-        return f64::NAN;
-    }
-    let inv_t = 1.0 / t;
-    let mut sum = 0.0;
-    for (k, &v) in amounts.iter().enumerate() {
-        sum += v * table.h_cp(k, t, inv_t).0;
-    }
-    GAS_CONSTANT * sum
-}
-
 /// Per-case outputs.
 pub struct AdiabaticOutputs<'a> {
     pub amounts: &'a mut [f64],
@@ -281,15 +267,14 @@ fn run<const R: usize, const S: usize, const EXACT: bool>(
                     let (mut g, mut h) = (vec![0.0; s], vec![0.0; s]);
                     for local in 0..status.len() {
                         let k = chunk * CHUNK + local;
-                        let feed = &inputs.feed[k * s..(k + 1) * s];
+                        let (enthalpy, heat) = match inputs.enthalpy {
+                            Enthalpy::Given(v) => (Some(v[k]), 0.0),
+                            Enthalpy::FeedAtStart { heat } => (None, heat[k]),
+                        };
                         let case = CaseIn {
-                            feed,
-                            enthalpy: match inputs.enthalpy {
-                                Enthalpy::Given(v) => v[k],
-                                Enthalpy::FeedAtStart { heat } => {
-                                    enthalpy_at(table, feed, inputs.t_start[k]) + heat[k]
-                                }
-                            },
+                            feed: &inputs.feed[k * s..(k + 1) * s],
+                            enthalpy,
+                            heat,
                             t_start: inputs.t_start[k],
                             pressure: inputs.pressure[k],
                             shift: inputs.ln_k_shift.map(|v| &v[k * r..(k + 1) * r]),
@@ -321,7 +306,9 @@ fn run<const R: usize, const S: usize, const EXACT: bool>(
 
 struct CaseIn<'a> {
     feed: &'a [f64],
-    enthalpy: f64,
+    /// The outlet's enthalpy, J; `None`: the feed's at `t_start` plus `heat`.
+    enthalpy: Option<f64>,
+    heat: f64,
     t_start: f64,
     pressure: f64,
     shift: Option<&'a [f64]>,
@@ -473,7 +460,7 @@ impl<'a, const R: usize, const S: usize, const EXACT: bool> Work<'a, R, S, EXACT
         self.n.fill(f64::NAN);
         self.xi.fill(f64::NAN);
         let valid = feed_is_valid(case.feed)
-            && case.enthalpy.is_finite()
+            && case.enthalpy.map_or(case.heat.is_finite(), f64::is_finite)
             && case.t_start > 0.0
             && case.t_start < f64::INFINITY
             && case.pressure > 0.0
@@ -518,7 +505,14 @@ impl<'a, const R: usize, const S: usize, const EXACT: bool> Work<'a, R, S, EXACT
         if !warm {
             interior_start(face, case.feed, &mut self.n[..s], &mut self.xi[..r], s, r);
         }
-        let target = case.enthalpy / GAS_CONSTANT;
+        let target = match case.enthalpy {
+            Some(h) => h / GAS_CONSTANT,
+            // (the feed's at its inlet by the balance's own sum, plus the heat)
+            None => {
+                let heat = -case.heat / GAS_CONSTANT;
+                balance(&self.c, case.feed, heat, case.t_start, &mut self.species).0
+            }
+        };
         let ln_p = (case.pressure / self.c.system.p0()).ln();
         let t0 = case.t_start.clamp(self.c.lo, self.c.hi);
         // The start may need a temperature outside the data's range
