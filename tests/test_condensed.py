@@ -350,6 +350,88 @@ def test_the_answer_has_the_lowest_gibbs_energy_of_any_phase_set() -> None:
             checked += 1
 
 
+# Random networks of the benchmark's condensed-phase workload on which the
+# phase-set search and every phase set stalled (a pure species present at
+# the minimum was driven to 1e-305 wherever it was present); the core now
+# settles them from the barrier path (rust/core/src/barrier.rs).
+LIQUIDS_AND_A_SOLID = (
+    [
+        "X1 + 2 X2 + 2 X3 = X4",
+        "X0 + X1 + X2 = X5",
+        "6 X0 + 3 X1 + 4 X2 + 4 X3 = 2 X6",
+        "6 X0 + 3 X1 + 2 X3 = 2 X7",
+        "3 X1 + 4 X2 + 6 X3 = 2 X8",
+    ],
+    {"X2": "pure_liquid", "X3": "pure_liquid", "X8": "solid"},
+)
+STALLED_NETWORKS = [
+    (
+        [
+            "X0 + 2 X1 + 4 X2 + 6 X3 = 2 X4",
+            "3 X0 + 2 X1 + 4 X2 = 2 X5",
+            "3 X0 + X1 + 6 X2 + 2 X3 = 2 X6",
+            "3 X1 + 6 X2 = 2 X7",
+        ],
+        {"X0": "pure_liquid", "X1": "solid", "X6": "solid"},
+        [0.0, 0.0, 0.0, 0.6916324753562797, 0.2222829102004522, 0.9122782606108644, 0.0, 0.7612313756223977],
+        [-22.057611853687792, -17.58549885965045, -12.365582666861066, -52.11540497405277],
+        4.6517326255052485,
+    ),
+    (
+        *LIQUIDS_AND_A_SOLID,
+        [
+            0.592166861086238,
+            0.14976870857734295,
+            0.5429201615331845,
+            0.0,
+            0.7117990804951233,
+            0.20373449006512262,
+            0.8814421856037125,
+            0.922697981059188,
+            0.0,
+        ],
+        [-9.804238421712398, -30.069217710077993, 20.850264552926134, -9.145979829594538, 5.510732837063298],
+        13.209730440296237,
+    ),
+    (
+        *LIQUIDS_AND_A_SOLID,
+        [
+            0.2738317186904924,
+            0.48924536762268717,
+            0.05826313289386936,
+            0.0,
+            0.0,
+            0.447315575193231,
+            0.38883450380216056,
+            0.9670898282272915,
+            0.37082455395164093,
+        ],
+        [17.767821723003948, -26.898760389901025, 21.448531784793285, 7.432449141721399, -27.923689804985322],
+        0.24858729444630961,
+    ),
+]
+
+
+@pytest.mark.parametrize("case", range(len(STALLED_NETWORKS)))
+def test_networks_every_phase_set_stalled_on_reach_the_lowest_gibbs_energy(case: int) -> None:
+    # converged, atoms conserved, every reaction among present species at
+    # equilibrium, and no lower G/RT than an independent minimisation finds
+    # (scipy SLSQP over the extents with n >= 0, from three starts)
+    equations, phases, feed, lnk, P = STALLED_NETWORKS[case]
+    names = [f"X{k}" for k in range(len(feed))]
+    system = eqbatch.ReactionSystem(names, equations, phases=phases, check_balance=False)
+    feed, lnk = np.array(feed), np.array(lnk)
+    res = system.solve(feed, lnK=lnk, P=P)
+    assert res.converged[0], res.message(0)
+    a = res.amounts[0]
+    basis = conservation_basis(system)
+    np.testing.assert_allclose(basis @ a, basis @ feed, atol=1e-12 * feed.sum())
+    r = log_residuals(system, a, lnk, P)
+    assert np.all(np.abs(r[np.isfinite(r)]) < 1e-8), r
+    starts = (np.zeros(system.n_reactions), res.extents[0] * 0.5, res.extents[0] * 0.9)
+    assert gibbs(system, a, lnk, P) <= lowest_gibbs(system, feed, lnk, P, starts) + 1e-9
+
+
 @pytest.mark.parametrize("feed", [[5.0, 1.0, 0.0], [0.1, 1.0, 0.0], [0.0, 1.0, 1.0]])
 def test_derivatives_in_the_phase_set_present_match_finite_differences(feed) -> None:
     # Boudouard at K = 0.45, P = 2 bar: graphite left over (first feed), used up

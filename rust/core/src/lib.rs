@@ -8,7 +8,8 @@
 //! * [`system`]: the validated reaction system and its structural checks;
 //! * [`face`]: which species a feed can reach (the zero-pattern analysis);
 //! * [`basis`]: the per-case stoichiometric basis that keeps trace species precise;
-//! * [`presence`]: phases that are absent at equilibrium (tried absent, kept if stable);
+//! * [`presence`]: phases that are absent at equilibrium (tried absent, kept if stable), with
+//!   [`barrier`] as its fallback;
 //! * [`newton`]: the iteration's pieces written once (rules, merit, Hessian, `L D L^T`, residuals)
 //!   over one case or a lane group ([`num`]);
 //! * [`solver`]: the damped Newton solve of one case;
@@ -25,6 +26,7 @@
 
 pub mod activity;
 pub mod adiabatic;
+pub mod barrier;
 pub mod basis;
 pub mod batch;
 pub mod condensed;

@@ -31,13 +31,18 @@
 //!    a 1e-6 share) is repeated with that phase absent.
 //!
 //! Phase sets already tried are not tried again, and the search ends after
-//! `2 P + 2` attempts (P phases) with the last attempt's status: a case is
-//! never called converged with an absent phase that would form. Pure
+//! `2 P + 2` attempts (P phases). Where it has not settled the case by
+//! then, every phase set is tried in turn (up to 8 phases); where that
+//! fails too, the barrier path ([`crate::barrier`]) names the phase set and
+//! gives a start near the equilibrium, and the search runs again from
+//! there. A case none of these settles ends with the last attempt's status:
+//! it is never called converged with an absent phase that would form. Pure
 //! species without feed start absent (the common case: carbon that does not
 //! form costs one solve and one stability test); a system without pure
 //! species first solves with every phase present and searches only when
 //! that stalls ([`worth_retrying`]).
 
+use crate::barrier::{BarrierPath, FIRST_STRETCH, SECOND_STRETCH};
 use crate::face::{analyse_with, Face, SharedFace};
 use crate::linalg::{null_space, particular_solution, solve_spd_scaled};
 use crate::lp::{maximize, LpOutcome};
@@ -177,8 +182,10 @@ pub fn retry_with_a_phase_absent(
 
 /// The active-set search of the module docs for `case` (its face is that
 /// of the feed's zero pattern; its start is not used), from the phases in
-/// `absent` and, where given, from `start` (extents); where it fails, every phase set in turn (at most
-/// [`ENUMERATED_PHASES`] phases with species). Always writes `amounts` and
+/// `absent` and, where given, from `start` (extents); where it fails, again
+/// from the end of the barrier path ([`crate::barrier`]); where that fails
+/// too, every phase set in turn (at most [`ENUMERATED_PHASES`] phases with
+/// species). Always writes `amounts` and
 /// `extents`: those of the converged attempt, else of the last one (NaN if
 /// no attempt could be made).
 #[allow(clippy::too_many_arguments)]
@@ -196,92 +203,25 @@ pub fn decide_phases(
         drop_vanishing: true,
         ..*options
     };
-    let feed_total: f64 = case.feed.iter().sum();
-    let mut tried: Vec<u64> = Vec::new();
+    let mut search = Search::default();
     // (a caller's start is blended with a little of the face's interior
     // point, so that the phases it holds nothing of are present)
-    let mut start: Option<Start> = start.map(|x| Start {
+    let start = start.map(|x| Start {
         extents: x.to_vec(),
         toward: Some(Vec::new()),
+        amounts: None,
     });
-    let mut iterations = 0;
-    let mut last = Status::Stalled;
-    let mut written = false;
-    for _ in 0..2 * system.n_phases() + 2 {
-        if tried.contains(&absent) && start.is_none() {
-            break;
-        }
-        tried.push(absent);
-        let Some((status, its, face)) = solve_with_absent(
-            system,
-            case,
-            &budget,
-            ws,
-            absent,
-            start.as_ref(),
-            amounts,
-            extents,
-        ) else {
-            break; // this set cannot be emptied: no candidate
-        };
-        written = true;
-        iterations += its;
-        last = status;
-        start = None;
-        if status.is_converged() {
-            match instability(system, case, face_of(&face), amounts, absent) {
-                None => {
-                    return Decided {
-                        status,
-                        iterations,
-                        absent,
-                    }
-                }
-                Some((phase, implied)) => {
-                    absent &= !phase_bit(phase);
-                    start = Some(introduction(
-                        system,
-                        case.feed,
-                        (amounts, extents),
-                        implied.as_ref(),
-                        &species_of(system, absent),
-                    ));
-                }
-            }
-            continue;
-        }
-        // Stalled: a present phase is leaving. The smallest first (a phase
-        // whose total fell below its vanishing share is certainly leaving;
-        // a whole phase that the reactions empty, a gas of one species
-        // turning into a solid, stalls while still large), skipping sets
-        // already tried.
-        let mut totals = vec![0.0; system.n_phases()];
-        for i in 0..system.n_species() {
-            totals[system.phase_index(i)] += amounts[i];
-        }
-        let mut candidates: Vec<(f64, usize)> = (0..system.n_phases())
-            .filter(|&phase| {
-                absent & phase_bit(phase) == 0 && system.in_phase(phase).iter().any(|&m| m)
-            })
-            .map(|phase| {
-                let share = if phase < system.n_mixtures() {
-                    MIXTURE_VANISHING
-                } else {
-                    10.0 * PURE_VANISHING
-                };
-                // (vanishing ones sort first, by how far below their share)
-                (totals[phase] / (share * feed_total), phase)
-            })
-            .collect();
-        candidates.sort_by(|a, b| a.0.total_cmp(&b.0));
-        let Some(&(_, phase)) = candidates
-            .iter()
-            .find(|&&(_, phase)| !tried.contains(&(absent | phase_bit(phase))))
-        else {
-            break;
-        };
-        absent |= phase_bit(phase);
+    if let Some(found) = search.run(system, case, &budget, ws, (amounts, extents), absent, start) {
+        return found;
     }
+    let Search {
+        tried,
+        mut iterations,
+        last,
+        mut written,
+    } = search;
+    absent = tried.last().copied().unwrap_or(absent);
+    let mut last = last.unwrap_or(Status::Stalled);
     // Every phase set not tried yet (or tried only with vanishing pure
     // species dropped), fewest absent phases first: the first
     // that converges with every absent phase stable is the equilibrium (the
@@ -325,6 +265,54 @@ pub fn decide_phases(
             }
         }
     }
+    // Every set failed (or there are too many to try): follow the barrier
+    // path ([`crate::barrier`]) to the phase set and a start near the
+    // equilibrium, and search from there; where that fails, on down the
+    // path (pure phases present in traces).
+    let mut search = Search {
+        tried: Vec::new(),
+        iterations,
+        last: Some(last),
+        written,
+    };
+    let mut path = BarrierPath::new(system, case);
+    let patient = SolveOptions {
+        drop_vanishing: false,
+        ..budget
+    };
+    for levels in [FIRST_STRETCH, SECOND_STRETCH] {
+        let Some(end) = path.descend(system, case, options, ws, levels) else {
+            break;
+        };
+        search.iterations += end.iterations;
+        // (not blended: the path's traces are the equilibrium's, and a
+        // blend would put them back at 1e-9 of the feed)
+        let start = Start {
+            extents: end.extents,
+            toward: None,
+            amounts: Some(end.amounts),
+        };
+        let found = search.run(
+            system,
+            case,
+            &patient,
+            ws,
+            (amounts, extents),
+            end.absent,
+            Some(start),
+        );
+        if let Some(found) = found {
+            return found;
+        }
+    }
+    let Search {
+        tried,
+        iterations,
+        last,
+        written,
+    } = search;
+    let absent = tried.last().copied().unwrap_or(absent);
+    let last = last.unwrap_or(Status::Stalled);
     if !written {
         amounts.fill(f64::NAN);
         extents.fill(f64::NAN);
@@ -343,6 +331,111 @@ pub fn decide_phases(
 /// Phases with species beyond which a case whose active-set search failed
 /// is not solved for every phase set (2^P solves).
 const ENUMERATED_PHASES: usize = 8;
+
+/// The state of one case's phase-set search: the sets tried, the Newton
+/// iterations spent and how the last attempt ended.
+#[derive(Default)]
+struct Search {
+    tried: Vec<u64>,
+    iterations: u32,
+    last: Option<Status>,
+    /// Whether an attempt wrote the outputs.
+    written: bool,
+}
+
+impl Search {
+    /// The active-set search of the module docs from the phases in `absent`
+    /// (and `start`, where given): the equilibrium where an attempt
+    /// converges with every absent phase stable, else `None` (after at most
+    /// `2 P + 2` attempts, or where every next set was tried before).
+    #[allow(clippy::too_many_arguments)]
+    fn run(
+        &mut self,
+        system: &System,
+        case: &Case,
+        budget: &SolveOptions,
+        ws: &mut Workspace,
+        (amounts, extents): (&mut [f64], &mut [f64]),
+        mut absent: u64,
+        mut start: Option<Start>,
+    ) -> Option<Decided> {
+        let feed_total: f64 = case.feed.iter().sum();
+        for _ in 0..2 * system.n_phases() + 2 {
+            if self.tried.contains(&absent) && start.is_none() {
+                break;
+            }
+            self.tried.push(absent);
+            let (status, its, face) = solve_with_absent(
+                system,
+                case,
+                budget,
+                ws,
+                absent,
+                start.as_ref(),
+                amounts,
+                extents,
+            )?; // this set cannot be emptied: no candidate
+            self.written = true;
+            self.iterations += its;
+            self.last = Some(status);
+            start = None;
+            if status.is_converged() {
+                match instability(system, case, face_of(&face), amounts, absent) {
+                    None => {
+                        return Some(Decided {
+                            status,
+                            iterations: self.iterations,
+                            absent,
+                        })
+                    }
+                    Some((phase, implied)) => {
+                        absent &= !phase_bit(phase);
+                        start = Some(introduction(
+                            system,
+                            case.feed,
+                            (amounts, extents),
+                            implied.as_ref(),
+                            &species_of(system, absent),
+                        ));
+                    }
+                }
+                continue;
+            }
+            // Stalled: a present phase is leaving. The smallest first (a phase
+            // whose total fell below its vanishing share is certainly leaving;
+            // a whole phase that the reactions empty, a gas of one species
+            // turning into a solid, stalls while still large), skipping sets
+            // already tried.
+            let mut totals = vec![0.0; system.n_phases()];
+            for i in 0..system.n_species() {
+                totals[system.phase_index(i)] += amounts[i];
+            }
+            let mut candidates: Vec<(f64, usize)> = (0..system.n_phases())
+                .filter(|&phase| {
+                    absent & phase_bit(phase) == 0 && system.in_phase(phase).iter().any(|&m| m)
+                })
+                .map(|phase| {
+                    let share = if phase < system.n_mixtures() {
+                        MIXTURE_VANISHING
+                    } else {
+                        10.0 * PURE_VANISHING
+                    };
+                    // (vanishing ones sort first, by how far below their share)
+                    (totals[phase] / (share * feed_total), phase)
+                })
+                .collect();
+            candidates.sort_by(|a, b| a.0.total_cmp(&b.0));
+            let Some(&(_, phase)) = candidates
+                .iter()
+                .find(|&&(_, phase)| !self.tried.contains(&(absent | phase_bit(phase))))
+            else {
+                break;
+            };
+            absent |= phase_bit(phase);
+        }
+        None
+    }
+}
 
 /// Why the equilibrium found with the phases of `absent` held empty (on
 /// `face`) is not the equilibrium: an absent phase that would form, and
@@ -464,18 +557,31 @@ fn solve_with_absent(
     let zero: Vec<bool> = shifted.iter().map(|&v| v <= 0.0).collect();
     let shared = face_with(system, &zero, &held)?;
     let face = face_of(&shared);
+    // A start with amounts of its own is solved from them as the feed (and
+    // its extents added after), where they keep the species this face
+    // cannot reach at zero, as the feed does.
+    let point = start.and_then(|start| {
+        let on_face = point_on_face(face, start.amounts.as_deref()?, case.feed)?;
+        Some((start.extents.clone(), on_face))
+    });
+    let from_point = point.is_some();
+    let (shift, shifted) = point.unwrap_or((shift, shifted));
     let (status, iterations) = if face.dim == 0 {
         amounts.copy_from_slice(&shifted);
         extents.fill(0.0);
         (Status::Converged, 0)
     } else {
-        let start: Option<Vec<f64>> = start.map(|start| {
-            let mut x: Vec<f64> = (0..r).map(|j| start.extents[j] - shift[j]).collect();
-            if let Some(toward) = &start.toward {
-                blended(system, face, &shifted, &mut x, toward);
-            }
-            x
-        });
+        let start: Option<Vec<f64>> = if from_point {
+            Some(vec![0.0; r])
+        } else {
+            start.map(|start| {
+                let mut x: Vec<f64> = (0..r).map(|j| start.extents[j] - shift[j]).collect();
+                if let Some(toward) = &start.toward {
+                    blended(system, face, &shifted, &mut x, toward);
+                }
+                x
+            })
+        };
         let again = Case {
             face,
             feed: &shifted,
@@ -488,6 +594,23 @@ fn solve_with_absent(
         extents[j] += shift[j];
     }
     Some((status, iterations, shared))
+}
+
+/// `amounts` with the species `face` cannot reach set to zero, where each
+/// is within round-off of it (1e-12 of the feed's total); `None` where one
+/// is not (the point does not belong to the face).
+fn point_on_face(face: &Face, amounts: &[f64], feed: &[f64]) -> Option<Vec<f64>> {
+    let total: f64 = feed.iter().sum();
+    let mut on_face = amounts.to_vec();
+    for (n, &unreachable) in on_face.iter_mut().zip(&face.unreachable) {
+        if unreachable {
+            if n.abs() > 1e-12 * total {
+                return None;
+            }
+            *n = 0.0;
+        }
+    }
+    Some(on_face)
 }
 
 /// The face of a memo entry [`face_with`] returned (always an analysed one).
@@ -711,6 +834,11 @@ fn implied_phase(
 struct Start {
     extents: Vec<f64>,
     toward: Option<Vec<f64>>,
+    /// The amounts at `extents`, where they are more precise than
+    /// `feed + nu^T extents` (the traces of the barrier path, 1e-30 of the
+    /// feed, which that sum would round away), with the species the attempt
+    /// holds absent at zero: the attempt then solves from them as its feed.
+    amounts: Option<Vec<f64>>,
 }
 
 /// A start for the case with the phase `implied` found unstable now
@@ -731,6 +859,7 @@ fn introduction(
     let blend = |toward: Vec<f64>| Start {
         extents: extents.to_vec(),
         toward: Some(toward),
+        amounts: None,
     };
     let Some(implied) = implied.filter(|i| !i.species.is_empty()) else {
         return blend(Vec::new());
@@ -781,6 +910,7 @@ fn introduction(
             return Start {
                 extents: start,
                 toward: rounded_away.then(Vec::new),
+                amounts: None,
             };
         }
     }
@@ -962,6 +1092,112 @@ mod tests {
         assert_eq!(out.absent, phase_bit(0) | phase_bit(2)); // the gas and X6
         assert_eq!(n[0], 0.0);
         assert!((n[4] - 1.4153557958007406 / 3.0).abs() < 1e-15);
+    }
+
+    /// `ln a` of each species at `n`: 0 for a pure one, `ln(y P / P0)` in
+    /// the gas (P0 = 1 bar); the test's own arithmetic, not the solver's.
+    fn ln_activities(phases: &[Phase], n: &[f64], pressure: f64) -> Vec<f64> {
+        let gas: f64 = (0..n.len())
+            .filter(|&i| phases[i] == Phase::Gas)
+            .map(|i| n[i])
+            .sum();
+        (0..n.len())
+            .map(|i| match phases[i] {
+                Phase::Gas => (n[i] / gas * pressure).ln(),
+                _ => 0.0,
+            })
+            .collect()
+    }
+
+    #[test]
+    fn a_case_every_phase_set_stalls_on_is_settled_from_the_barrier_path() {
+        // A random network of the benchmark (pure liquid X0, solids X1 and
+        // X6) on which the search and every phase set stalled: the Newton
+        // iteration drove X0 to 1e-305 wherever it was present, although the
+        // minimum of G holds 1.48 mol of it (scipy's SLSQP, and a numpy
+        // barrier method, both outside eqbatch). The answer must satisfy
+        // the conditions of the module docs, checked here by hand: every
+        // reaction without X6 at equilibrium, X6 absent with activity <= 1.
+        let g = Phase::Gas;
+        let phases = vec![Phase::Pure, Phase::Pure, g, g, g, g, Phase::Pure, g];
+        let nu = vec![
+            -1.0, -2.0, -4.0, -6.0, 2.0, 0.0, 0.0, 0.0, //
+            -3.0, -2.0, -4.0, 0.0, 0.0, 2.0, 0.0, 0.0, //
+            -3.0, -1.0, -6.0, -2.0, 0.0, 0.0, 2.0, 0.0, //
+            0.0, -3.0, -6.0, 0.0, 0.0, 0.0, 0.0, 2.0,
+        ];
+        let ln_k = [
+            -22.057611853687792,
+            -17.58549885965045,
+            -12.365582666861066,
+            -52.11540497405277,
+        ];
+        let feed = [
+            0.0,
+            0.0,
+            0.0,
+            0.6916324753562797,
+            0.2222829102004522,
+            0.9122782606108644,
+            0.0,
+            0.7612313756223977,
+        ];
+        let pressure = 4.6517326255052485;
+        let (out, n) = solve(nu.clone(), 4, phases.clone(), &feed, &ln_k, pressure);
+        assert_eq!(out.status, Status::Converged);
+        assert_eq!(out.absent, phase_bit(3)); // X6's phase only
+        assert!(n[0] > 1.0 && n[1] > 1.0, "{n:?}");
+        let ln_a = ln_activities(&phases, &n, pressure);
+        let affinity = |j: usize| (0..8).map(|i| nu[j * 8 + i] * ln_a[i]).sum::<f64>() - ln_k[j];
+        for j in [0, 1, 3] {
+            assert!(affinity(j).abs() < 1e-8, "reaction {j}: {}", affinity(j));
+        }
+        // 2 ln a_X6 = ln K_2 + 3 ln a_X0 + ln a_X1 + 6 ln a_X2 + 2 ln a_X3
+        let ln_a6 = 0.5 * (ln_k[2] + 3.0 * ln_a[0] + ln_a[1] + 6.0 * ln_a[2] + 2.0 * ln_a[3]);
+        assert!(ln_a6 <= 1e-9, "{ln_a6}");
+    }
+
+    #[test]
+    fn a_pure_phase_tied_to_a_trace_gas_is_present_in_a_trace() {
+        // X0 (gas) and the solid X1 are made only together, 1 : 6, so
+        // X1 = 6 X0 at any extent; with ln K 80 for X0 + 6 X1 + X2 + 2 X3 =
+        // 2 X4(s), X0 ends near 1e-31 mol and X1 with it: a solid present
+        // in a trace. Every phase set stalled here (the blend that starts an
+        // attempt put the pair back at 1e-10); the barrier path, followed
+        // down to 1e-41, holds them at their amounts.
+        let g = Phase::Gas;
+        let phases = vec![g, Phase::Pure, g, g, Phase::Pure, Phase::Pure];
+        let nu = vec![
+            -1.0, -6.0, -1.0, -2.0, 2.0, 0.0, //
+            -1.0, -6.0, -3.0, 0.0, 0.0, 2.0,
+        ];
+        let ln_k = [80.2013703519585, 68.92309892371964];
+        let feed = [
+            0.0,
+            0.0,
+            0.4545465506820648,
+            0.9542691770844235,
+            0.0,
+            0.10642280265468328,
+        ];
+        let pressure = 0.12547547426219138;
+        let (out, n) = solve(nu, 2, phases.clone(), &feed, &ln_k, pressure);
+        assert_eq!(out.status, Status::Converged);
+        assert_eq!(out.absent, phase_bit(3)); // X5's phase only
+        assert!(
+            n[1] > 0.0 && (n[1] - 6.0 * n[0]).abs() <= 1e-12 * n[1],
+            "{n:?}"
+        );
+        // with X1 and X4 present: ln a_X0 = -ln K_0 - ln a_X2 - 2 ln a_X3
+        let ln_a = ln_activities(&phases, &n, pressure);
+        let closed_form = -ln_k[0] - ln_a[2] - 2.0 * ln_a[3];
+        assert!(
+            (ln_a[0] - closed_form).abs() < 1e-8,
+            "{} against {closed_form}",
+            ln_a[0]
+        );
+        // 2 ln a_X5 = ln K_1 + ln a_X0 + 3 ln a_X2 <= 0: X5 stays absent
+        assert!(ln_k[1] + ln_a[0] + 3.0 * ln_a[2] <= 1e-9);
     }
 
     #[test]

@@ -66,6 +66,11 @@ pub struct SolveOptions {
     /// species is leaving the equilibrium (below a 1e-12 share of the feed
     /// and still shrinking), for [`crate::presence`] to solve without it.
     pub drop_vanishing: bool,
+    /// Weight `mu` of a logarithmic barrier `-mu sum ln n` on the pure
+    /// condensed species, which gives each the curvature `mu / n^2` its
+    /// linear Gibbs function lacks ([`crate::barrier`]); 0 (the default)
+    /// for the equilibrium itself.
+    pub barrier: f64,
 }
 
 impl Default for SolveOptions {
@@ -75,6 +80,7 @@ impl Default for SolveOptions {
             max_iter: 200,
             chain: false,
             drop_vanishing: false,
+            barrier: 0.0,
         }
     }
 }
@@ -668,22 +674,30 @@ fn basis_residuals(
     ln_totals: &[f64; SLOTS],
     phase_of: impl Fn(usize) -> usize,
     pure: impl Fn(usize) -> bool,
+    barrier: f64,
     pivots: &[usize],
     components: &[usize],
     comp_stoich: &[f64],
     constant: &[f64],
 ) {
-    // (a pure species' activity is 1: no term)
+    // (a pure species' activity is 1: no term but the barrier's -mu / n)
+    let pure_mu = |i: usize| {
+        if barrier > 0.0 {
+            -barrier * (-ln_n[i]).exp()
+        } else {
+            0.0
+        }
+    };
     for (m, &i) in mu.iter_mut().zip(components) {
         *m = if pure(i) {
-            0.0
+            pure_mu(i)
         } else {
             ln_n[i] - ln_totals[phase_of(i)]
         };
     }
     for (m, &p) in pivot_mu.iter_mut().zip(pivots) {
         *m = if pure(p) {
-            0.0
+            pure_mu(p)
         } else {
             ln_n[p] - ln_totals[phase_of(p)]
         };
@@ -722,6 +736,8 @@ struct Problem<'a> {
     n_mix: usize,
     /// Total feed, the scale of a pure species' amount.
     feed_total: f64,
+    /// [`SolveOptions::barrier`] (0 for an all-gas system).
+    barrier: f64,
 }
 
 /// Slots of the per-phase totals: one per mixture phase and, last, [`SINK`].
@@ -739,7 +755,13 @@ pub(crate) const PURE_VANISHING: f64 = 1e-12;
 impl<'a> Problem<'a> {
     /// The fixed part of a solve of `case` with sizes `sizes`.
     #[inline(always)]
-    fn new(system: &'a System, case: &Case<'a>, sizes: Sizes, gas_only: bool) -> Self {
+    fn new(
+        system: &'a System,
+        case: &Case<'a>,
+        sizes: Sizes,
+        gas_only: bool,
+        barrier: f64,
+    ) -> Self {
         let s = sizes.species;
         Problem {
             system,
@@ -757,6 +779,19 @@ impl<'a> Problem<'a> {
             } else {
                 case.feed[..s].iter().sum()
             },
+            barrier: if gas_only { 0.0 } else { barrier },
+        }
+    }
+
+    /// The weight of species `i` (amount `n > 0`) in the Hessian: `1 / n`
+    /// for a mixture species, the barrier's `mu / n^2` for a pure one (whose
+    /// Gibbs function is linear: none without a barrier).
+    #[inline(always)]
+    fn curvature(&self, i: usize, n: f64) -> f64 {
+        if self.is_pure(i) {
+            self.barrier / (n * n)
+        } else {
+            1.0 / n
         }
     }
 
@@ -845,7 +880,7 @@ fn run(
     sizes: Sizes,
     gas_only: bool,
 ) -> (Status, u32) {
-    let p = Problem::new(system, case, sizes, gas_only);
+    let p = Problem::new(system, case, sizes, gas_only, options.barrier);
     start_point(&p, case.start, sc);
     if p.dim == 0 {
         return (Status::Converged, 0);
@@ -930,8 +965,8 @@ impl Iterate {
             // Species in no reaction never enter the Hessian; leaving their
             // 1/n at zero keeps a subnormal inert from turning 0 * inf into NaN.
             // A pure species' Gibbs function is linear: no curvature either.
-            sc.inv_amount[i] = if n > 0.0 && p.system.is_reactive(i) && !p.is_pure(i) {
-                1.0 / n
+            sc.inv_amount[i] = if n > 0.0 && p.system.is_reactive(i) {
+                p.curvature(i, n)
             } else {
                 0.0
             };
@@ -1051,7 +1086,7 @@ fn rebase_trace_components(p: &Problem, sc: &mut Scratch, it: &mut Iterate) {
         if v > 0.0 && v < f64::INFINITY && v != amounts[i] {
             amounts[i] = v;
             sc.ln_amount[i] = v.ln();
-            sc.inv_amount[i] = if p.is_pure(i) { 0.0 } else { 1.0 / v };
+            sc.inv_amount[i] = p.curvature(i, v);
             moved = true;
         }
     }
@@ -1105,6 +1140,7 @@ fn residual_test(p: &Problem, sc: &mut Scratch, it: &Iterate, tol: f64) -> (f64,
             &it.ln_totals,
             |i| p.phase_of(i),
             |i| p.is_pure(i),
+            p.barrier,
             &sc.pivots[..dim],
             &sc.components[..nc],
             &sc.comp_stoich[..dim * nc],
@@ -1367,6 +1403,7 @@ fn trial_accepted(
         &trial.ln_totals,
         |i| p.phase_of(i),
         |i| p.is_pure(i),
+        p.barrier,
         &sc.pivots[..dim],
         &sc.components[..nc],
         &sc.comp_stoich[..dim * nc],
@@ -1392,6 +1429,10 @@ fn trial_accepted(
         if !p.is_pure(i) {
             second_order += h(amounts[i], sc.change[i]);
             phase_delta[p.phase_of(i)] += sc.change[i];
+        } else if p.barrier > 0.0 && sc.change[i] != 0.0 {
+            // -mu ln(1 + d/n) beyond its first-order part -mu d/n
+            let x = sc.change[i] / amounts[i];
+            second_order += p.barrier * (x - x.ln_1p());
         }
     }
     for k in 0..p.n_mix {
@@ -1411,7 +1452,7 @@ fn take_step(p: &Problem, sc: &mut Scratch, it: &mut Iterate, trial: &Trial) {
         if sc.change[i] != 0.0 {
             amounts[i] = sc.trial[i];
             sc.ln_amount[i] = sc.trial_ln[i];
-            sc.inv_amount[i] = if p.is_pure(i) { 0.0 } else { 1.0 / sc.trial[i] };
+            sc.inv_amount[i] = p.curvature(i, sc.trial[i]);
         }
     }
     it.totals = trial.totals;

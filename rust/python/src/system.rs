@@ -333,7 +333,7 @@ impl PySystem {
                 tol,
                 max_iter,
                 chain,
-                drop_vanishing: false,
+                ..SolveOptions::default()
             };
             let outputs = BatchOutputs {
                 amounts: a,
@@ -394,7 +394,7 @@ impl PySystem {
             tol,
             max_iter,
             chain: false,
-            drop_vanishing: false,
+            ..SolveOptions::default()
         };
         let outputs = BatchOutputs {
             amounts,
@@ -473,7 +473,7 @@ impl PySystem {
                 tol,
                 max_iter,
                 chain: false,
-                drop_vanishing: false,
+                ..SolveOptions::default()
             };
             let system = &self.inner;
             py.detach(move || {
@@ -584,7 +584,7 @@ impl PySystem {
                 tol,
                 max_iter,
                 chain: false,
-                drop_vanishing: false,
+                ..SolveOptions::default()
             };
             let (system, table) = (&self.inner, &table.inner);
             py.detach(move || {
