@@ -22,6 +22,9 @@ CRITICAL = {
     "NH3": {"Tc": 405.4, "Pc": 113.53, "omega": 0.256},
     "CH4": {"Tc": 190.56, "Pc": 45.99, "omega": 0.011},
     "CO2": {"Tc": 304.12, "Pc": 73.74, "omega": 0.225},
+    "CO": {"Tc": 132.85, "Pc": 34.94, "omega": 0.045},
+    "CH3OH": {"Tc": 512.64, "Pc": 80.97, "omega": 0.565},
+    "H2O": {"Tc": 647.14, "Pc": 220.64, "omega": 0.344},
 }
 
 
@@ -136,6 +139,51 @@ def test_mixture_fugacity_coefficients_against_numpy(kind: str) -> None:
     np.testing.assert_allclose(ln_a @ system.stoich[0], res.lnK[:, 0], atol=1e-9)
 
 
+def graaf_ln_k(T: float) -> np.ndarray:
+    """ln K of CO + 2 H2 = CH3OH and CO2 + H2 = CO + H2O on a 1 bar standard
+    state, fugacity-based, from Graaf, Stamhuis and Beenackers (Chem. Eng.
+    Sci. 43, 1988, after Graaf et al. 1986; from memory):
+    log10 K1 = 5139 / T - 12.621 (bar^-2), log10 K2 = -2073 / T + 2.029."""
+    return np.log(10.0) * np.array([5139.0 / T - 12.621, -2073.0 / T + 2.029])
+
+
+@pytest.mark.parametrize("P", [50.0, 100.0])
+def test_methanol_synthesis_with_fugacity_based_k_against_an_independent_solve(P: float) -> None:
+    # A synthesis gas (H2 70, CO 20, CO2 7, CH4 3 %) at 250 C with Graaf's
+    # fugacity-based K: the Peng-Robinson equilibrium must equal an
+    # independent solve of sum nu (ln y + ln phi + ln P) = ln K (scipy's
+    # fsolve on the two extents, phi from numpy_ln_phi above), and the
+    # fugacity correction must raise the methanol made over the ideal-gas
+    # answer (phi of methanol below one at 50-100 bar, 250 C: a fact of
+    # the trade that makes converters run at pressure).
+    from scipy.optimize import fsolve
+
+    names = ["CO", "H2", "CH3OH", "CO2", "H2O", "CH4"]
+    equations = ["CO + 2 H2 = CH3OH", "CO2 + H2 = CO + H2O"]
+    T = 523.15
+    feed = np.array([0.20, 0.70, 0.0, 0.07, 0.0, 0.03])
+    ln_k = graaf_ln_k(T)
+    real = eqbatch.ReactionSystem(
+        names, equations, gas_model="peng-robinson", critical={n: CRITICAL[n] for n in names}
+    ).solve(feed, lnK=ln_k, T=T, P=P, tol=1e-12)
+    ideal = eqbatch.ReactionSystem(names, equations).solve(feed, lnK=ln_k, P=P)
+    assert real.converged[0] and ideal.converged[0]
+    nu = np.array([[-1.0, -2.0, 1.0, 0.0, 0.0, 0.0], [1.0, -1.0, 0.0, -1.0, 1.0, 0.0]])
+
+    def residual(x: np.ndarray) -> np.ndarray:
+        n = feed + nu.T @ x
+        y = n / n.sum()
+        ln_phi = numpy_ln_phi("peng-robinson", names, y, T, P)
+        return nu @ (np.log(y) + ln_phi + math.log(P)) - ln_k
+
+    x = fsolve(residual, ideal.extents[0], xtol=1e-13)
+    assert np.abs(residual(x)).max() < 1e-9
+    y_independent = (feed + nu.T @ x) / (feed + nu.T @ x).sum()
+    np.testing.assert_allclose(real.mole_fractions[0], y_independent, rtol=1e-7, atol=1e-12)
+    assert real.mole_fractions[0, 2] > ideal.mole_fractions[0, 2] * 1.02
+    assert real.fugacity_coefficients[0, 2] < 1.0
+
+
 def test_pure_gas_phi_is_the_integral_of_z_minus_one() -> None:
     # ln phi = integral from 0 to P of (Z - 1) / P' dP' for a pure gas (the
     # thermodynamic identity), Z from the same cubic by numpy.roots at each
@@ -227,6 +275,24 @@ def test_real_gas_results_do_not_depend_on_the_thread_count() -> None:
     assert one.converged.all()
     np.testing.assert_array_equal(one.amounts, two.amounts)
     np.testing.assert_array_equal(one.fugacity_coefficients, two.fugacity_coefficients)
+
+
+def test_a_chained_real_gas_sweep_gives_the_same_answers_on_any_thread_count() -> None:
+    # chain=True starts each case's first pass from the case before it: the
+    # answers are the unchained ones (to the tolerance), the iterations are
+    # not (the starts differ), and chunks are fixed, so the thread count
+    # changes no bit
+    system = ammonia("peng-robinson")
+    T = 723.15
+    P = np.linspace(100.0, 300.0, 400)
+    args = dict(lnK=gillespie_beattie_ln_k(T), T=T, P=P)
+    plain = system.solve([1.0, 3.0, 0.0], **args)
+    chained = [system.solve([1.0, 3.0, 0.0], chain=True, threads=t, **args) for t in (1, 2)]
+    assert plain.converged.all() and chained[0].converged.all()
+    np.testing.assert_allclose(chained[0].mole_fractions, plain.mole_fractions, rtol=1e-9)
+    assert not np.array_equal(chained[0].iterations, plain.iterations)
+    np.testing.assert_array_equal(chained[0].amounts, chained[1].amounts)
+    np.testing.assert_array_equal(chained[0].iterations, chained[1].iterations)
 
 
 def test_clear_errors() -> None:

@@ -296,7 +296,7 @@ def solve(
         lnK[np.broadcast_to(bad_T, (lnK.shape[0],))] = np.nan
     ln_phi = None
     if real:
-        solved, ln_phi = solve_real(system, feed, lnK, P, T, n, tol, max_iter, threads, warm)
+        solved, ln_phi = solve_real(system, feed, lnK, P, T, n, tol, max_iter, threads, warm, chain=chain)
         if out is not None:  # (the earlier result's arrays receive the values)
             for target, values in zip(out, solved):
                 np.copyto(target, values)

@@ -218,13 +218,16 @@ def solve_real(
     threads: int | None,
     start: np.ndarray | None,
     engine: Any = None,
+    chain: bool = False,
 ) -> tuple[Outputs, np.ndarray]:
     """The core's solve with the system's non-ideal phases (the gas's cubic,
     the solutions' activity models): ``(amounts, extents, status,
     iterations, absent)`` and ``ln phi`` / ``ln gamma`` (N, S). ``engine``:
     the compiled system to solve, ``system``'s own by default, or one of
     its reactions only (the same species and phase models; an approach
-    solve re-solves held cases so)."""
+    solve re-solves held cases so). ``chain``: the first pass starts each case
+    without a start of its own from the one before it (the later passes start
+    from the pass before)."""
     if T is None:
         raise CaseInputError(
             f"{system.nonideal}: the fugacity and activity coefficients depend on temperature; give T= "
@@ -243,6 +246,7 @@ def solve_real(
         threads,
         start,
         *_core_model(system),
+        chain,
     )
 
 

@@ -421,7 +421,6 @@ class ReactionSystem(SystemSpec):
                     ("adiabatic=True", adiabatic),
                     ("duty=", duty is not None),
                     ("approach= with sensitivities=True", bool(approach) and sensitivities),
-                    ("chain=True", chain),
                 )
                 if given
             ]
@@ -532,7 +531,7 @@ class ReactionSystem(SystemSpec):
             lnk_arr, T_eff, held, ln_phi = solved.lnK, solved.T_eff, solved.held, solved.ln_phi
         elif self.nonideal is not None:
             solved_real, ln_phi = solve_real(
-                self, feed_arr, lnk_arr, p_arr, T_arr, n, tol, max_iter, threads, start
+                self, feed_arr, lnk_arr, p_arr, T_arr, n, tol, max_iter, threads, start, chain=chain
             )
             if out is not None:  # (the earlier result's arrays receive the values)
                 kept = self._outputs(out, n)

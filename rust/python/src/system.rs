@@ -412,9 +412,10 @@ impl PySystem {
     /// critical constants per species, K and bar; `kij` S x S) and
     /// solutions with activity models (`solutions`: (model 0 NRTL / 1
     /// Wilson, species, a, b, alpha), each k x k): the outputs of `solve`
-    /// and `ln phi` / `ln gamma` (N, S).
+    /// and `ln phi` / `ln gamma` (N, S). `chain`: the first pass starts each
+    /// case without a start from the case before it in its chunk.
     #[allow(clippy::too_many_arguments)]
-    #[pyo3(signature = (feed, ln_k, pressure, temperature, n_cases, tol, max_iter, threads, start, kind, tc, pc, omega, kij, solutions))]
+    #[pyo3(signature = (feed, ln_k, pressure, temperature, n_cases, tol, max_iter, threads, start, kind, tc, pc, omega, kij, solutions, chain=false))]
     fn solve_real<'py>(
         &self,
         py: Python<'py>,
@@ -433,6 +434,7 @@ impl PySystem {
         omega: Vec<f64>,
         kij: Vec<f64>,
         solutions: Vec<SolutionArgs>,
+        chain: bool,
     ) -> PyResult<(Solved<'py>, Bound<'py, PyArray2<f64>>)> {
         let s = self.inner.n_species();
         let r = self.inner.n_reactions();
@@ -472,7 +474,7 @@ impl PySystem {
             let options = SolveOptions {
                 tol,
                 max_iter,
-                chain: false,
+                chain,
                 ..SolveOptions::default()
             };
             let system = &self.inner;
