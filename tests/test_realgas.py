@@ -184,6 +184,83 @@ def test_methanol_synthesis_with_fugacity_based_k_against_an_independent_solve(P
     assert real.fugacity_coefficients[0, 2] < 1.0
 
 
+def numpy_departure_enthalpy(names, amounts: np.ndarray, T: float, P: float) -> float:
+    """Residual enthalpy of a Peng-Robinson gas mixture, J, by the textbook
+    closed form H^R = R T (Z - 1) + (T da/dT - a) / (2 sqrt2 b)
+    ln((Z + (1 + sqrt2) B) / (Z + (1 - sqrt2) B)) (e.g. Poling, Prausnitz and
+    O'Connell, 5th ed., table 6-3; from memory), kij = 0: independent of
+    eqbatch's code."""
+    tc = np.array([CRITICAL[n]["Tc"] for n in names])
+    pc = np.array([CRITICAL[n]["Pc"] for n in names])
+    w = np.array([CRITICAL[n]["omega"] for n in names])
+    y = amounts / amounts.sum()
+    m = 0.37464 + 1.54226 * w - 0.26992 * w**2
+    ac = PR_OMEGA_A * (R * tc) ** 2 / pc
+    root = 1 + m * (1 - np.sqrt(T / tc))
+    a_i, da_i = ac * root**2, -ac * m * root / np.sqrt(T * tc)
+    a = y @ np.sqrt(np.outer(a_i, a_i)) @ y
+    da = y @ ((np.outer(da_i, a_i) + np.outer(a_i, da_i)) / (2 * np.sqrt(np.outer(a_i, a_i)))) @ y
+    b = y @ (PR_OMEGA_B * R * tc / pc)
+    A, B = a * P / (R * T) ** 2, b * P / (R * T)
+    roots = np.roots([1.0, B - 1.0, A - 3 * B**2 - 2 * B, -(A * B - B**2 - B**3)])
+    Z = max(r.real for r in roots if abs(r.imag) < 1e-10)
+    s2 = math.sqrt(2.0)
+    per_mol = 8.314462618 * T * (Z - 1) + 0.1 * (T * da - a) / (2 * s2 * b) * math.log(
+        (Z + (1 + s2) * B) / (Z + (1 - s2) * B)
+    )  # (bar cm3 = 0.1 J)
+    return float(amounts.sum() * per_mol)
+
+
+@pytest.mark.parametrize("P", [150.0, 300.0])
+def test_an_adiabatic_ammonia_bed_closes_the_real_gas_energy_balance(P: float) -> None:
+    # An ammonia converter bed (N2 : H2 : NH3 = 1 : 3 : 0.2 at 680 K, species
+    # data from chemicals) with Peng-Robinson: the outlet must be the
+    # temperature at which the equilibrium (phi from numpy_ln_phi) has the
+    # feed's real enthalpy, ideal-gas part plus the closed-form residual
+    # enthalpy, found here by scipy's brentq; and the departure must matter
+    # (the ideal-gas outlet is more than a kelvin away at these pressures); the
+    # same with a heat duty.
+    from scipy.optimize import brentq
+
+    names = ["N2", "H2", "NH3"]
+    real = eqbatch.ReactionSystem(
+        names,
+        ["N2 + 3 H2 = 2 NH3"],
+        thermo="chemicals",
+        gas_model="peng-robinson",
+        critical={n: CRITICAL[n] for n in names},
+    )
+    ideal = eqbatch.ReactionSystem(names, ["N2 + 3 H2 = 2 NH3"], thermo="chemicals")
+    feed, T_in = np.array([1.0, 3.0, 0.2]), 680.0
+    got = real.solve(feed, T=T_in, P=P, adiabatic=True)
+    assert got.converged[0]
+    nu = np.array([-1.0, -3.0, 2.0])
+
+    def equilibrium(T: float) -> np.ndarray:
+        lnk = float(real.lnK(T)[0, 0])
+
+        def residual(x: float) -> float:
+            n = feed + nu * x
+            y = n / n.sum()
+            return float(nu @ (np.log(y) + numpy_ln_phi("peng-robinson", names, y, T, P) + math.log(P)) - lnk)
+
+        return feed + nu * brentq(residual, -0.1 + 1e-12, 1.0 - 1e-12, xtol=1e-15)
+
+    def enthalpy(n: np.ndarray, T: float) -> float:
+        h_ideal = real._species_h_cp(np.array([T]))[0][0]  # J/mol, the species data
+        return float(n @ h_ideal) + numpy_departure_enthalpy(names, n, T, P)
+
+    H_in = enthalpy(feed, T_in)
+    T_out = brentq(lambda T: enthalpy(equilibrium(T), T) - H_in, 700.0, 900.0, xtol=1e-10)
+    assert abs(got.T[0] - T_out) < 1e-5, (got.T[0], T_out)
+    np.testing.assert_allclose(got.amounts[0], equilibrium(T_out), rtol=1e-7)
+    assert abs(ideal.solve(feed, T=T_in, P=P, adiabatic=True).T[0] - got.T[0]) > 1.0
+    # a cooled bed: 5 kJ removed (duty= -5)
+    cooled = real.solve(feed, T=T_in, P=P, duty=-5.0)
+    T_cooled = brentq(lambda T: enthalpy(equilibrium(T), T) - (H_in - 5000.0), 680.0, 900.0, xtol=1e-10)
+    assert cooled.converged[0] and abs(cooled.T[0] - T_cooled) < 1e-5
+
+
 def test_pure_gas_phi_is_the_integral_of_z_minus_one() -> None:
     # ln phi = integral from 0 to P of (Z - 1) / P' dP' for a pure gas (the
     # thermodynamic identity), Z from the same cubic by numpy.roots at each
@@ -317,7 +394,9 @@ def test_clear_errors() -> None:
     with pytest.raises(CaseInputError, match="give T="):
         system.solve([1.0, 3.0, 0.0], lnK=-5.0, P=100.0)
     with pytest.raises(CaseInputError, match="not yet available"):
-        system.solve([1.0, 3.0, 0.0], lnK=-5.0, P=100.0, T=700.0, adiabatic=True)
+        system.solve([1.0, 3.0, 0.0], P=100.0, T=700.0, adiabatic=True, sensitivities=True)
+    with pytest.raises(CaseInputError, match="H_in= not yet available"):
+        system.solve([1.0, 3.0, 0.0], P=100.0, H_in=-10.0, adiabatic=True)
     # the same system again from its arguments
     again = eqbatch.ReactionSystem(**system.arguments())
     a = again.solve([1.0, 3.0, 0.0], lnK=-5.0, P=100.0, T=700.0)

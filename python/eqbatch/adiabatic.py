@@ -25,6 +25,7 @@ import numpy as np
 from eqbatch import outputs
 from eqbatch.errors import CaseInputError, ExtrapolationWarning, InvalidCaseError
 from eqbatch.inputs import case_column, feed_array, reaction_rows
+from eqbatch.realgas import departure_enthalpy
 from eqbatch.result import EnergyBalance, EquilibriumResult, Status
 from eqbatch.spec import SystemSpec
 
@@ -81,6 +82,10 @@ def adiabatic_solve(
     species data give (a Monte Carlo sample of uncertain Gibbs energies;
     constant in T, so d ln K / dT is unchanged).
 
+    With non-ideal phases the enthalpies include the gas's residual and the
+    solutions' excess enthalpy (:func:`eqbatch.realgas.departure_enthalpy`),
+    at the inlet and at the outlet.
+
     All-gas ideal systems whose every ln K comes from the species' data go
     first to the core's one Newton iteration on extents and temperature
     together (``eqbatch_core::adiabatic``: the mixture's entropy at the
@@ -97,7 +102,7 @@ def adiabatic_solve(
         "energy_tol": energy_tol,
     }
     out = None
-    if invalid != "raise" and system._energy_table is not None:
+    if invalid != "raise" and system._energy_table is not None and system.nonideal is None:
         out = _in_core(system, solve, feed, T, P, x0=x0, duty=duty, H_in=H_in, lnk_shift=lnk_shift, **args)
     if out is None:
         given = {"x0": x0, "duty": duty, "H_in": H_in, "lnk_shift": lnk_shift}
@@ -252,6 +257,7 @@ def _nested(
     species = system._species_h_cp
     options: dict[str, Any] = {"threads": threads, "tol": tol, "max_iter": max_iter}
     H_given = None
+    real = system.nonideal is not None
     if H_in is not None:
         feed = feed_array(system, feed)
         H_given = 1000.0 * case_column(H_in, "H_in")
@@ -278,7 +284,8 @@ def _nested(
         with warnings.catch_warnings():
             warnings.simplefilter("ignore")  # the range is reported by the temperature iterations' bracket
             lnk0 = system.lnK(T_given) + lnk_shift
-        base = solve(feed, lnK=lnk0, P=P, invalid=invalid, x0=x0, **options)
+        # (a non-ideal solve needs T for its coefficients)
+        base = solve(feed, lnK=lnk0, T=T_given if real else None, P=P, invalid=invalid, x0=x0, **options)
     n = len(base)
     if heat is not None and heat.shape[0] not in (1, n):
         raise CaseInputError(f"duty has {heat.shape[0]} cases and the other inputs {n}")
@@ -308,6 +315,10 @@ def _nested(
         warnings.simplefilter("ignore")  # range warnings: the bracket keeps T inside
         h_in, cp_in = species(np.where(bad, lo, T_in))
         H_feed = np.sum(feed_rows * h_in, axis=1) if H_given is None else np.broadcast_to(H_given, (n,))
+        if real and H_given is None:  # the feed is a real gas (or solution) at its inlet
+            H_feed = (
+                H_feed + departure_enthalpy(system, feed_rows, np.where(bad, lo, T_in), P_rows, threads)[0]
+            )
         scale = np.sum(np.abs(feed_rows * h_in), axis=1) + np.abs(heat) + 1.0
         H_in = H_feed + heat  # the outlet's enthalpy: the feed's plus the heat added
 
@@ -319,7 +330,8 @@ def _nested(
             if shift is None:
                 r = solve(fr, T=Tr, P=pr, x0=start, **options)
             else:
-                r = solve(fr, lnK=system.lnK(Tr) + shift[rows], P=pr, x0=start, **options)
+                lnk_r = system.lnK(Tr) + shift[rows]
+                r = solve(fr, lnK=lnk_r, T=Tr if real else None, P=pr, x0=start, **options)
             ab = r.absent if r.absent is not None else np.zeros(rows.size, dtype=np.uint64)
             fv, dfv = _residual_at(system, fr, pr, r.amounts, r.status, ab, Tr, H_in[rows], threads)
             return r.amounts, r.extents, r.status, r.iterations, ab, r.lnK, fv, dfv
@@ -455,7 +467,9 @@ def _residual_at(
     """The energy residual ``sum n h(T) - H_in`` of solved cases at ``T`` and
     its exact derivative along the equilibrium, ``sum n cp + sum h dn/dT``
     with ``dn/dT = dn/dlnK . dlnK/dT`` (the core's derivatives without the
-    feed columns)."""
+    feed columns). With non-ideal phases the residual adds the departure
+    enthalpy of the amounts, and the derivative its change with ``T`` at
+    fixed amounts and the ideal mixture's ``dn/dT``."""
     h, cp = system._species_h_cp(T)
     dk = system._engine.sensitivities(
         np.ascontiguousarray(feed),
@@ -469,6 +483,11 @@ def _residual_at(
     dn_dT = np.einsum("nsr,nr->ns", dk, system.dlnK_dT(T))
     f = np.sum(amounts * h, axis=1) - H_in
     df = np.sum(amounts * cp, axis=1) + np.sum(h * dn_dT, axis=1)
+    if system.nonideal is not None:
+        # (df then leaves out the departure's change through the amounts:
+        # a Newton step a little short, which the bracket keeps safe)
+        departure, d_departure = departure_enthalpy(system, amounts, T, P, threads)
+        f, df = f + departure, df + d_departure
     return f, df
 
 

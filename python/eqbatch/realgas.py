@@ -320,6 +320,35 @@ def ln_coefficients(
     )
 
 
+#: The gas constant, J / (mol K) (CODATA 2018).
+R_J = 8.314462618
+
+
+def departure_enthalpy(
+    system: Any, amounts: np.ndarray, T: np.ndarray, P: np.ndarray, threads: int | None
+) -> tuple[np.ndarray, np.ndarray]:
+    """(N,) enthalpy of ``amounts`` at ``T`` and ``P`` beyond the ideal
+    mixture's, J: the gas's residual enthalpy (from its cubic) plus each
+    solution's excess enthalpy (from its activity model), and its derivative
+    in ``T`` at fixed amounts, J/K. Both from the Gibbs-Helmholtz relation
+    ``H = -R T^2 d/dT sum_i n_i ln phi_i`` (``ln gamma_i`` in a solution) at
+    fixed ``P`` and amounts, with the core's own coefficients: the balance
+    then uses the equation of state the equilibrium uses. The derivatives
+    are five-point central differences in steps of 1e-3 ``T`` (truncation
+    about 1e-12 relative)."""
+    n = amounts.shape[0]
+    Tn = np.broadcast_to(np.asarray(T, dtype=float), (n,))
+    Pn = np.broadcast_to(np.asarray(P, dtype=float), (n,))
+    h = 1e-3 * Tn
+    g = [
+        np.sum(amounts * ln_coefficients(system, amounts, Tn + k * h, Pn, threads), axis=1)
+        for k in (-2, -1, 0, 1, 2)
+    ]
+    d1 = (g[0] - 8.0 * g[1] + 8.0 * g[3] - g[4]) / (12.0 * h)
+    d2 = (-g[0] + 16.0 * g[1] - 30.0 * g[2] + 16.0 * g[3] - g[4]) / (12.0 * h * h)
+    return -R_J * Tn * Tn * d1, -R_J * (2.0 * Tn * d1 + Tn * Tn * d2)
+
+
 #: Relative step of the central differences of ln phi / ln gamma.
 _STEP = 1e-6
 

@@ -418,8 +418,11 @@ class ReactionSystem(SystemSpec):
             unsupported = [
                 name
                 for name, given in (
-                    ("adiabatic=True", adiabatic),
-                    ("duty=", duty is not None),
+                    ("H_in=", H_in is not None),
+                    (
+                        "adiabatic=True or duty= with sensitivities=True",
+                        (adiabatic or duty is not None) and sensitivities,
+                    ),
                     ("approach= with sensitivities=True", bool(approach) and sensitivities),
                 )
                 if given
