@@ -219,7 +219,7 @@ def test_an_adiabatic_ammonia_bed_closes_the_real_gas_energy_balance(P: float) -
     # feed's real enthalpy, ideal-gas part plus the closed-form residual
     # enthalpy, found here by scipy's brentq; and the departure must matter
     # (the ideal-gas outlet is more than a kelvin away at these pressures); the
-    # same with a heat duty.
+    # same from the inlet's real enthalpy, and with a heat duty.
     from scipy.optimize import brentq
 
     names = ["N2", "H2", "NH3"]
@@ -255,6 +255,10 @@ def test_an_adiabatic_ammonia_bed_closes_the_real_gas_energy_balance(P: float) -
     assert abs(got.T[0] - T_out) < 1e-5, (got.T[0], T_out)
     np.testing.assert_allclose(got.amounts[0], equilibrium(T_out), rtol=1e-7)
     assert abs(ideal.solve(feed, T=T_in, P=P, adiabatic=True).T[0] - got.T[0]) > 1.0
+    # the inlet given as its real enthalpy (kJ) instead of its temperature
+    by_enthalpy = real.solve(feed, H_in=H_in / 1000.0, P=P, adiabatic=True)
+    assert by_enthalpy.converged[0] and abs(by_enthalpy.T[0] - T_out) < 1e-5
+    assert abs(by_enthalpy.T_in[0] - T_in) < 1e-6
     # a cooled bed: 5 kJ removed (duty= -5)
     cooled = real.solve(feed, T=T_in, P=P, duty=-5.0)
     T_cooled = brentq(lambda T: enthalpy(equilibrium(T), T) - (H_in - 5000.0), 680.0, 900.0, xtol=1e-10)
@@ -395,8 +399,6 @@ def test_clear_errors() -> None:
         system.solve([1.0, 3.0, 0.0], lnK=-5.0, P=100.0)
     with pytest.raises(CaseInputError, match="not yet available"):
         system.solve([1.0, 3.0, 0.0], P=100.0, T=700.0, adiabatic=True, sensitivities=True)
-    with pytest.raises(CaseInputError, match="H_in= not yet available"):
-        system.solve([1.0, 3.0, 0.0], P=100.0, H_in=-10.0, adiabatic=True)
     # the same system again from its arguments
     again = eqbatch.ReactionSystem(**system.arguments())
     a = again.solve([1.0, 3.0, 0.0], lnK=-5.0, P=100.0, T=700.0)

@@ -261,10 +261,19 @@ def _nested(
     if H_in is not None:
         feed = feed_array(system, feed)
         H_given = 1000.0 * case_column(H_in, "H_in")
-        m = max(feed.shape[0], H_given.shape[0])
+        P_given = case_column(P, "P")
+        m = max(feed.shape[0], H_given.shape[0], P_given.shape[0] if real else 1)
         feed = np.ascontiguousarray(np.broadcast_to(feed, (m, system.n_species)))
         H_given = np.ascontiguousarray(np.broadcast_to(H_given, (m,)))
-        T = _feed_temperature(species, feed, H_given, lo, hi)
+        departure = None
+        if real:  # (the feed's real enthalpy: its departure at the inlet counts)
+            P_rows_in = np.broadcast_to(P_given, (m,))
+            feed_in = feed
+
+            def departure(T_: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+                return departure_enthalpy(system, feed_in, T_, P_rows_in, threads)
+
+        T = _feed_temperature(species, feed, H_given, lo, hi, departure=departure)
         if invalid == "raise" and np.isnan(T).any():
             k = int(np.argmax(np.isnan(T)))
             raise InvalidCaseError(
@@ -492,31 +501,48 @@ def _residual_at(
 
 
 def _feed_temperature(
-    species: Any, feed: np.ndarray, H: np.ndarray, lo: float, hi: float, iterations: int = 100
+    species: Any,
+    feed: np.ndarray,
+    H: np.ndarray,
+    lo: float,
+    hi: float,
+    iterations: int = 100,
+    departure: Any = None,
 ) -> np.ndarray:
     """The temperature at which each feed (N, S) has the enthalpy ``H`` (J):
     Newton on ``sum n0 h(T) - H`` (rising with T, by ``sum n0 cp``) from the
     middle of the data's range, kept inside the bracket from half the data's
     lowest temperature to twice their highest; NaN where no temperature there
-    fits or the iteration does not close."""
+    fits or the iteration does not close. ``departure(T)``, where given,
+    adds the feed's departure enthalpy and its derivative (a real gas; at
+    the bracket's ends only where it has a value there)."""
+
+    def extra(T_: np.ndarray, end: bool = False) -> tuple[np.ndarray, np.ndarray]:
+        if departure is None:
+            return np.zeros(n), np.zeros(n)
+        value, slope = departure(T_)
+        return (np.nan_to_num(value), np.nan_to_num(slope)) if end else (value, slope)
+
     n = feed.shape[0]
     a, b = np.full(n, 0.5 * lo), np.full(n, 2.0 * hi)
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")
-        f_a = np.sum(feed * species(a)[0], axis=1) - H
-        f_b = np.sum(feed * species(b)[0], axis=1) - H
+        f_a = np.sum(feed * species(a)[0], axis=1) + extra(a, end=True)[0] - H
+        f_b = np.sum(feed * species(b)[0], axis=1) + extra(b, end=True)[0] - H
         ok = np.isfinite(H) & (f_a <= 0) & (f_b >= 0)
         T = np.where(ok, 0.5 * (lo + hi), np.nan)
         for _ in range(iterations):
             h, cp = species(np.where(ok, T, lo))
-            f = np.sum(feed * h, axis=1) - H
+            dep, d_dep = extra(np.where(ok, T, lo))
+            f = np.sum(feed * h, axis=1) + dep - H
             if np.all(~ok | (np.abs(f) <= 1e-12 * (np.sum(np.abs(feed * h), axis=1) + 1.0))):
                 break
             a = np.where(f < 0, T, a)
             b = np.where(f > 0, T, b)
             with np.errstate(divide="ignore", invalid="ignore"):
-                step = T - f / np.sum(feed * cp, axis=1)
+                step = T - f / (np.sum(feed * cp, axis=1) + d_dep)
             T = np.where(ok, np.where((step > a) & (step < b), step, 0.5 * (a + b)), np.nan)
         h = species(np.where(ok, T, lo))[0]
-        closed = np.abs(np.sum(feed * h, axis=1) - H) <= 1e-9 * (np.sum(np.abs(feed * h), axis=1) + 1.0)
+        dep = extra(np.where(ok, T, lo))[0]
+        closed = np.abs(np.sum(feed * h, axis=1) + dep - H) <= 1e-9 * (np.sum(np.abs(feed * h), axis=1) + 1.0)
     return np.where(ok & closed, T, np.nan)

@@ -418,7 +418,6 @@ class ReactionSystem(SystemSpec):
             unsupported = [
                 name
                 for name, given in (
-                    ("H_in=", H_in is not None),
                     (
                         "adiabatic=True or duty= with sensitivities=True",
                         (adiabatic or duty is not None) and sensitivities,
