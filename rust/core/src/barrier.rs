@@ -13,7 +13,7 @@
 //! The barrier method minimises instead
 //!
 //! ```text
-//! g(xi) - mu sum_pure ln n_i
+//! g(xi) - mu (sum_pure ln n_i + sum_mixtures ln N_p)
 //! ```
 //!
 //! over the feed's face for a falling sequence of weights `mu`, each from
@@ -24,9 +24,11 @@
 //! the same Newton iteration ([`SolveOptions::barrier`]), whose basis
 //! changes and logarithmic paths keep trace species exact on the way. The
 //! barrier gives every pure species the curvature `mu / n^2` that the plain
-//! function lacks, the problem stays convex, and the minimisers follow a
-//! smooth path to the equilibrium: pure species that belong to it keep
-//! their amounts, those that do not fall as `mu` does. At the end of the
+//! function lacks, keeps every mixture phase in (a whole phase that an
+//! attempt empties has no curvature left either), the problem stays
+//! convex, and the minimisers follow a smooth path to the equilibrium:
+//! phases that belong to it keep their amounts, those that do not fall as
+//! `mu` does. At the end of the
 //! path the phase set can be read off, and the amounts there are a start
 //! from which the Newton iteration on that set converges in a few steps;
 //! the search takes it from there, and its stability test still decides.
@@ -202,7 +204,8 @@ mod tests {
     #[test]
     fn a_barrier_solve_finds_the_centre_of_its_weight() {
         // At extent x: C 0.3 - x, CO2 1 - x, CO 2x (gas 1 + x). The centre
-        // for weight mu zeroes 2 ln(y_CO P) - ln(y_CO2 P) + mu / n_C - ln K,
+        // for weight mu (on n_C and on the gas's total) zeroes
+        // 2 ln(y_CO P) - ln(y_CO2 P) + mu / n_C - mu / (1 + x) - ln K,
         // increasing in x on (0, 0.3): bisection, independent of the solver.
         let system = boudouard();
         let (feed, ln_k, p) = ([0.3, 1.0, 0.0], [0.0], 1.0);
@@ -228,6 +231,7 @@ mod tests {
                 |x| {
                     let gas = 1.0 + x;
                     2.0 * (2.0 * x / gas * p).ln() - ((1.0 - x) / gas * p).ln() + mu / (0.3 - x)
+                        - mu / gas
                         - ln_k[0]
                 },
                 1e-300,

@@ -1158,6 +1158,47 @@ mod tests {
     }
 
     #[test]
+    fn a_case_whose_gas_every_attempt_emptied_is_settled_by_a_barrier_on_the_totals() {
+        // Another random network of the benchmark: every phase set stalled
+        // or emptied the gas (to 1e-78 mol, where its Newton iteration has
+        // no curvature left); the barrier on the phase totals keeps the gas
+        // in along the path, and the equilibrium holds 3.1 mol of it. Checked
+        // by hand: both reactions without X6 at equilibrium, X6 absent with
+        // activity <= 1.
+        let g = Phase::Gas;
+        let phases = vec![g, g, Phase::Pure, g, Phase::Pure, g, Phase::Pure];
+        let nu = vec![
+            -3.0, 0.0, -2.0, 0.0, 2.0, 0.0, 0.0, //
+            -2.0, -6.0, -3.0, -3.0, 0.0, 2.0, 0.0, //
+            -3.0, -6.0, -2.0, -3.0, 0.0, 0.0, 2.0,
+        ];
+        let ln_k = [41.853446338409455, -51.98258391152752, -16.785832101988447];
+        let feed = [
+            0.940317225150025,
+            0.0,
+            0.23759906674112696,
+            0.0,
+            0.8962558312081115,
+            0.5515979540121999,
+            0.13200033624286267,
+        ];
+        let pressure = 0.6223512420176428;
+        let (out, n) = solve(nu.clone(), 3, phases.clone(), &feed, &ln_k, pressure);
+        assert_eq!(out.status, Status::Converged);
+        assert_eq!(out.absent, phase_bit(3)); // X6's phase only
+        let gas: f64 = [0, 1, 3, 5].iter().map(|&i| n[i]).sum();
+        assert!(gas > 1.0, "{n:?}");
+        let ln_a = ln_activities(&phases, &n, pressure);
+        let affinity = |j: usize| (0..7).map(|i| nu[j * 7 + i] * ln_a[i]).sum::<f64>() - ln_k[j];
+        for j in [0, 1] {
+            assert!(affinity(j).abs() < 1e-8, "reaction {j}: {}", affinity(j));
+        }
+        // 2 ln a_X6 = ln K_2 + 3 ln a_X0 + 6 ln a_X1 + 2 ln a_X2 + 3 ln a_X3
+        let ln_a6 = 0.5 * (ln_k[2] + 3.0 * ln_a[0] + 6.0 * ln_a[1] + 3.0 * ln_a[3]);
+        assert!(ln_a6 <= 1e-9, "{ln_a6}");
+    }
+
+    #[test]
     fn a_pure_phase_tied_to_a_trace_gas_is_present_in_a_trace() {
         // X0 (gas) and the solid X1 are made only together, 1 : 6, so
         // X1 = 6 X0 at any extent; with ln K 80 for X0 + 6 X1 + X2 + 2 X3 =

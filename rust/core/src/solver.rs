@@ -66,10 +66,12 @@ pub struct SolveOptions {
     /// species is leaving the equilibrium (below a 1e-12 share of the feed
     /// and still shrinking), for [`crate::presence`] to solve without it.
     pub drop_vanishing: bool,
-    /// Weight `mu` of a logarithmic barrier `-mu sum ln n` on the pure
-    /// condensed species, which gives each the curvature `mu / n^2` its
-    /// linear Gibbs function lacks ([`crate::barrier`]); 0 (the default)
-    /// for the equilibrium itself.
+    /// Weight `mu` of a logarithmic barrier `-mu sum ln n` on the amounts of
+    /// the pure condensed species and the totals of the mixture phases
+    /// (for a system with more than the gas): it gives each pure species the
+    /// curvature `mu / n^2` its linear Gibbs function lacks, and keeps every
+    /// phase in ([`crate::barrier`]); 0 (the default) for the equilibrium
+    /// itself.
     pub barrier: f64,
 }
 
@@ -783,6 +785,22 @@ impl<'a> Problem<'a> {
         }
     }
 
+    /// `ln N` of each mixture phase as the residuals take it: with a
+    /// barrier, `ln N + mu / N` (the barrier `-mu ln N` on the phase's total
+    /// adds `-mu / N` to each of its species' chemical potentials).
+    #[inline(always)]
+    fn barrier_ln_totals(&self, totals: &[f64; SLOTS], ln_totals: &[f64; SLOTS]) -> [f64; SLOTS] {
+        let mut out = *ln_totals;
+        if self.barrier > 0.0 {
+            for k in 0..self.n_mix {
+                if totals[k] > 0.0 {
+                    out[k] += self.barrier / totals[k];
+                }
+            }
+        }
+        out
+    }
+
     /// The weight of species `i` (amount `n > 0`) in the Hessian: `1 / n`
     /// for a mixture species, the barrier's `mu / n^2` for a pure one (whose
     /// Gibbs function is linear: none without a barrier).
@@ -1137,7 +1155,7 @@ fn residual_test(p: &Problem, sc: &mut Scratch, it: &Iterate, tol: f64) -> (f64,
             &mut sc.comp_mu[..nc],
             &mut sc.pivot_mu[..dim],
             sc.ln_amount,
-            &it.ln_totals,
+            &p.barrier_ln_totals(&it.totals, &it.ln_totals),
             |i| p.phase_of(i),
             |i| p.is_pure(i),
             p.barrier,
@@ -1183,10 +1201,11 @@ fn newton_step(p: &Problem, sc: &mut Scratch, it: &Iterate) -> bool {
         sc.du[j] = sc.inv_amount[sc.pivots[j]];
     }
     let r = p.r;
+    // (a barrier -mu ln N on a phase's total adds +mu / N^2 along its change)
     let phase_terms: [PhaseTerm<f64>; MAX_MIXTURES] = std::array::from_fn(|k| PhaseTerm {
         change: &sc.phase_change[k * r..k * r + dim],
         inv_total: if it.totals[k] > 0.0 {
-            1.0 / it.totals[k]
+            (1.0 - p.barrier / it.totals[k]) / it.totals[k]
         } else {
             0.0
         },
@@ -1400,7 +1419,7 @@ fn trial_accepted(
         &mut sc.comp_mu[..nc],
         &mut sc.pivot_mu[..dim],
         sc.trial_ln,
-        &trial.ln_totals,
+        &p.barrier_ln_totals(&trial.totals, &trial.ln_totals),
         |i| p.phase_of(i),
         |i| p.is_pure(i),
         p.barrier,
@@ -1437,6 +1456,10 @@ fn trial_accepted(
     }
     for k in 0..p.n_mix {
         second_order -= h(it.totals[k], phase_delta[k]);
+        if p.barrier > 0.0 && phase_delta[k] != 0.0 {
+            let x = phase_delta[k] / it.totals[k];
+            second_order += p.barrier * (x - x.ln_1p());
+        }
     }
     sufficient_decrease(trial.first_order, second_order, alpha, slope)
 }
