@@ -432,6 +432,25 @@ def test_networks_every_phase_set_stalled_on_reach_the_lowest_gibbs_energy(case:
     assert gibbs(system, a, lnk, P) <= lowest_gibbs(system, feed, lnk, P, starts) + 1e-9
 
 
+def test_a_case_exactly_on_a_phase_boundary_says_so() -> None:
+    # Boudouard with CO = CO2 = 1 mol and no carbon at P = 2 bar: Q = y_CO^2 P /
+    # y_CO2 = 1 (closed form). K = 1 puts graphite exactly at its edge (activity
+    # Q / K = 1 at zero amount); K = 1.1 leaves it absent (activity 0.909) and
+    # K = 0.9 makes it form. On the edge, one-sided differences of the carbon
+    # formed differ (none for a larger K, some for a smaller one): the message
+    # says its derivatives hold on one side only.
+    system = eqbatch.ReactionSystem(BOUDOUARD, ["C + CO2 = 2 CO"], phases={"C": "solid"})
+    lnK = np.log([[1.0], [1.1], [0.9]])
+    res = system.solve([[0.0, 1.0, 1.0]] * 3, lnK=lnK, P=2.0, sensitivities=True)
+    assert res.converged.all()
+    assert res.on_phase_boundary.tolist() == [True, False, False]
+    assert "on its boundary" in res.message(0) and "on its boundary" not in res.message(1)
+    h = 1e-6
+    up = system.solve([0.0, 1.0, 1.0], lnK=lnK[0] + h, P=2.0).amounts[0, 0] / h
+    down = -system.solve([0.0, 1.0, 1.0], lnK=lnK[0] - h, P=2.0).amounts[0, 0] / h
+    assert up == 0.0 and down < -0.1
+
+
 @pytest.mark.parametrize("feed", [[5.0, 1.0, 0.0], [0.1, 1.0, 0.0], [0.0, 1.0, 1.0]])
 def test_derivatives_in_the_phase_set_present_match_finite_differences(feed) -> None:
     # Boudouard at K = 0.45, P = 2 bar: graphite left over (first feed), used up

@@ -434,6 +434,11 @@ class EquilibriumResult:
                 text += f"; the {phase} phase is absent (it would not form: it is stable empty)"
             else:
                 text += f"; the {phase} phase is absent"
+        if settled and self._on_phase_boundary([case])[0]:
+            text += (
+                "; a pure phase is on its boundary (activity 1 at zero amount): "
+                "derivatives hold on one side only"
+            )
         if self.held is not None and self.held[case].any():
             labels = [lab for lab, h in zip(self.system.labels, self.held[case]) if h]
             text += (
@@ -503,6 +508,40 @@ class EquilibriumResult:
         """(N, P) bool: which phases (``system.phase_names``) hold material at
         equilibrium (False for invalid or infeasible cases)."""
         return self.phase_amounts > 0
+
+    @property
+    def on_phase_boundary(self) -> np.ndarray:
+        """(N,) bool: converged cases where a pure condensed species sits on
+        the edge of its phase, absent with an activity within 1e-9 of 1 (in
+        ``ln a``) or present with at most 1e-12 of the feed's total. Such a
+        case's derivatives (:meth:`sensitivity`) hold on the side of the phase
+        set found only: a change one way makes the phase appear or vanish,
+        and the derivatives jump there.
+
+        Examples
+        --------
+        >>> import numpy as np
+        >>> from eqbatch import ReactionSystem
+        >>> system = ReactionSystem(["C", "CO2", "CO"], ["C + CO2 = 2 CO"], phases={"C": "solid"})
+        >>> # equal CO and CO2 at 1 bar: Q = 0.5, so K = 0.5 puts carbon just at its edge
+        >>> system.solve([[0.0, 1.0, 1.0]] * 2, lnK=np.log([[0.5], [0.55]])).on_phase_boundary.tolist()
+        [True, False]
+        """
+        return self._on_phase_boundary(slice(None))
+
+    def _on_phase_boundary(self, rows: Any) -> np.ndarray:
+        """:attr:`on_phase_boundary` of the cases ``rows`` (a slice or index array)."""
+        pure = np.array([kind in ("solid", "pure_liquid") for kind in self.system.phases])
+        converged = np.asarray(self.converged)[rows]
+        if not pure.any():
+            return np.zeros(converged.shape, dtype=bool)
+        amounts = self.amounts[rows]
+        feed = np.broadcast_to(np.asarray(self.feed, dtype=float), self.amounts.shape)[rows]
+        with np.errstate(divide="ignore", invalid="ignore"):
+            ln_a = np.log(self._activities(rows)[:, pure])
+        edge_absent = (amounts[:, pure] == 0) & (np.abs(ln_a) <= 1e-9)
+        edge_present = (amounts[:, pure] > 0) & (amounts[:, pure] <= 1e-12 * feed.sum(axis=1)[:, None])
+        return converged & (edge_absent | edge_present).any(axis=1)
 
     @property
     def dry_mole_fractions(self) -> np.ndarray:
